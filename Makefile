@@ -1,0 +1,36 @@
+# Two entry points: `make demo` and `make test`. Each creates .venv when missing
+# and installs the project (with its test extra) into it.
+PYTHON ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+.PHONY: demo test lint demo-data golden clean
+
+$(STAMP): pyproject.toml
+	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e ".[test]"
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/reporter build inputs/demo --out build/demo
+
+test: $(STAMP)
+	$(BIN)/ruff check reporter tests
+	$(BIN)/python -m pytest
+
+lint: $(STAMP)
+	$(BIN)/ruff check reporter tests
+
+# Regenerate the invented demo scheme (seeded, so the files come out identical).
+demo-data: $(STAMP)
+	$(BIN)/python -m reporter.demo_data inputs/demo
+
+# Regenerate the golden results files after an intended change in the figures.
+golden: $(STAMP)
+	SOURCE_DATE_EPOCH=1764460800 $(BIN)/reporter build inputs/demo --out build/golden
+	cp build/golden/results/securities.csv build/golden/results/portfolio.json tests/golden/
+
+clean:
+	rm -rf build

@@ -1,0 +1,3 @@
+from reporter.cli import main
+
+raise SystemExit(main())

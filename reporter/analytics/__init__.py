@@ -1,0 +1,1 @@
+"""Pure analytics: typed data in, typed results out, no I/O."""

@@ -1,0 +1,194 @@
+"""Every figure the pack shows, computed from validated inputs (pure; no I/O)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from reporter.analytics.diversification import (
+    Concentration,
+    EqualWeightCurve,
+    VarianceSplit,
+    concentration,
+    equal_weight_curve,
+    pairwise_covariance,
+    sector_weights,
+    variance_split,
+)
+from reporter.analytics.regression import (
+    MarketModelFits,
+    PortfolioFit,
+    fit_market_model,
+    fit_portfolio,
+)
+from reporter.analytics.returns import Window, period_keys, portfolio_returns
+from reporter.analytics.sml import (
+    Ratios,
+    SecurityMarketLine,
+    performance_ratios,
+    security_market_line,
+)
+from reporter.config import Settings
+from reporter.models import DatedSeries, ValidInputs
+
+SECURITY_COLUMNS = [
+    "security_id", "name", "sector", "weight", "n_obs", "status",
+    "alpha", "alpha_se", "alpha_t", "beta", "beta_se", "beta_t", "r_squared", "residual_vol",
+    "mean_excess_return", "sml_expected_excess", "sml_residual", "treynor", "sml_position",
+    "alpha_ann", "residual_vol_ann", "mean_excess_return_ann", "sml_expected_excess_ann",
+    "sml_residual_ann", "treynor_ann",
+]
+
+
+@dataclass(frozen=True)
+class PackResults:
+    """All results for one pack. ``securities`` has :data:`SECURITY_COLUMNS`."""
+
+    window: Window
+    fits: MarketModelFits
+    sml: SecurityMarketLine
+    portfolio_series: np.ndarray      # r_p per period over the window
+    portfolio_fit: PortfolioFit
+    beta_weighted: float              # sum w_i beta_i over fitted holdings (weights rescaled)
+    fitted_weight: float              # weight of the fitted holdings
+    ratios: Ratios
+    concentration: Concentration
+    sectors: pd.DataFrame             # sector, weight, n_holdings
+    variance: VarianceSplit
+    curve: EqualWeightCurve
+    securities: pd.DataFrame
+    periods_per_year: int
+
+    def portfolio_summary(self) -> dict:
+        """The flat figures written to ``results/portfolio.json`` (see README for units)."""
+        P = self.periods_per_year
+        f, r, c, w = self.portfolio_fit, self.ratios, self.concentration, self.window
+        return {
+            "window_start": str(w.dates[0]),
+            "window_end": str(w.dates[-1]),
+            "n_periods": int(w.n_periods),
+            "n_obs": f.n_obs,
+            "periods_per_year": P,
+            "mean_risk_free": self.sml.mean_risk_free,
+            "mean_risk_free_ann": self.sml.mean_risk_free * P,
+            "mean_market_premium": self.sml.mean_market_premium,
+            "mean_market_premium_ann": self.sml.mean_market_premium * P,
+            "beta_weighted": self.beta_weighted,
+            "beta_regression": f.beta,
+            "beta_se": f.beta_se,
+            "beta_t": f.beta_t,
+            "beta_ci_low": f.beta_ci[0],
+            "beta_ci_high": f.beta_ci[1],
+            "fitted_weight": self.fitted_weight,
+            "alpha": f.alpha,
+            "alpha_se": f.alpha_se,
+            "alpha_t": f.alpha_t,
+            "alpha_ci_low": f.alpha_ci[0],
+            "alpha_ci_high": f.alpha_ci[1],
+            "alpha_ann": f.alpha * P,
+            "r_squared": f.r_squared,
+            "residual_vol": f.residual_vol,
+            "residual_vol_ann": f.residual_vol * np.sqrt(P),
+            "mean_excess_return": r.mean_excess,
+            "mean_excess_return_ann": r.mean_excess * P,
+            "volatility": r.volatility,
+            "volatility_ann": r.volatility * np.sqrt(P),
+            "sharpe": r.sharpe,
+            "sharpe_ann": r.sharpe * np.sqrt(P),
+            "market_sharpe_ann": r.market_sharpe * np.sqrt(P),
+            "treynor": r.treynor,
+            "treynor_ann": r.treynor * P,
+            "active_return": r.active_return,
+            "active_return_ann": r.active_return * P,
+            "tracking_error": r.tracking_error,
+            "tracking_error_ann": r.tracking_error * np.sqrt(P),
+            "information_ratio": r.information_ratio,
+            "information_ratio_ann": r.information_ratio * np.sqrt(P),
+            "n_holdings": c.n_holdings,
+            "n_fitted": int(self.fits.fitted.sum()),
+            "effective_n": c.effective_n,
+            "top10_weight": c.top10_weight,
+            "largest_weight": c.largest_weight,
+            "systematic_share": self.variance.systematic_share,
+            "idiosyncratic_share": 1.0 - self.variance.systematic_share,
+            "average_variance": self.curve.average_variance,
+            "average_covariance": self.curve.average_covariance,
+        }
+
+
+def build_window(inputs: ValidInputs, settings: Settings) -> Window:
+    """The last ``settings.window`` market periods up to ``period_end``, with aligned data."""
+    freq = settings.frequency
+    end_key = period_keys(np.array([np.datetime64(settings.period_end, "D")]), freq)[0]
+    mkeys_all = period_keys(inputs.market.dates, freq)
+    idx = np.flatnonzero(mkeys_all <= end_key)[-settings.window:]
+    mkeys = mkeys_all[idx]
+    rf = _align(inputs.risk_free, mkeys, freq)
+    panel = inputs.returns
+    pos = np.searchsorted(panel.period_keys, mkeys)
+    pos_c = np.minimum(pos, max(len(panel.period_keys) - 1, 0))
+    present = (pos < len(panel.period_keys)) & (panel.period_keys[pos_c] == mkeys) if len(
+        panel.period_keys) else np.zeros(len(mkeys), dtype=bool)
+    rets = np.full((len(mkeys), len(panel.security_ids)), np.nan)
+    rets[present] = panel.values[pos_c[present]]
+    return Window(dates=inputs.market.dates[idx], security_ids=panel.security_ids,
+                  returns=rets, market=inputs.market.values[idx], risk_free=rf)
+
+
+def _align(series: DatedSeries, keys: np.ndarray, freq: str) -> np.ndarray:
+    skeys = period_keys(series.dates, freq)
+    pos = np.searchsorted(skeys, keys)
+    return series.values[pos]
+
+
+def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
+    """Compute every figure of the pack."""
+    P = settings.periods_per_year
+    win = build_window(inputs, settings)
+    weights = inputs.holdings.weights
+    x = win.market_excess
+    fits = fit_market_model(win.excess_returns, x, settings.min_obs)
+    sml = security_market_line(fits, x, win.risk_free, settings.confidence)
+
+    port = portfolio_returns(win.returns, weights)
+    pfit = fit_portfolio(port - win.risk_free, x, settings.confidence)
+    ok = fits.fitted
+    fitted_weight = float(weights[ok].sum())
+    beta_weighted = float(weights[ok] @ fits.beta[ok] / fitted_weight) if ok.any() else np.nan
+    ratios = performance_ratios(port, win.market, win.risk_free, pfit.beta)
+    conc = concentration(weights)
+    hold = inputs.holdings.frame
+    sectors = sector_weights(hold["sector"], weights)
+    var = variance_split(weights, fits.beta, fits.residual_vol, x)
+    curve = equal_weight_curve(pairwise_covariance(win.returns[:, ok]))
+
+    sec = pd.DataFrame({
+        "security_id": hold["security_id"].to_numpy(),
+        "name": hold["name"].to_numpy(),
+        "sector": hold["sector"].to_numpy(),
+        "weight": weights,
+        "n_obs": fits.n_obs,
+        "status": np.where(ok, "fitted", f"not fitted: fewer than {settings.min_obs} periods"),
+        "alpha": fits.alpha, "alpha_se": fits.alpha_se, "alpha_t": fits.alpha_t,
+        "beta": fits.beta, "beta_se": fits.beta_se, "beta_t": fits.beta_t,
+        "r_squared": fits.r_squared, "residual_vol": fits.residual_vol,
+        "mean_excess_return": np.where(ok, fits.mean_excess, np.nan),
+        "sml_expected_excess": sml.expected_excess, "sml_residual": sml.residual,
+        "treynor": sml.treynor, "sml_position": sml.position,
+    })
+    sec["alpha_ann"] = sec["alpha"] * P
+    sec["residual_vol_ann"] = sec["residual_vol"] * np.sqrt(P)
+    for col in ("mean_excess_return", "sml_expected_excess", "sml_residual", "treynor"):
+        sec[f"{col}_ann"] = sec[col] * P
+    extra = [c for c in ("asset_class", "currency", "country", "market_value") if c in hold]
+    for c in extra:
+        sec[c] = hold[c].to_numpy()
+    sec = sec[SECURITY_COLUMNS + extra]
+    return PackResults(
+        window=win, fits=fits, sml=sml, portfolio_series=port, portfolio_fit=pfit,
+        beta_weighted=beta_weighted, fitted_weight=fitted_weight, ratios=ratios,
+        concentration=conc, sectors=sectors, variance=var, curve=curve, securities=sec,
+        periods_per_year=P,
+    )

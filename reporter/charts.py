@@ -1,0 +1,124 @@
+"""Results -> Altair chart objects (pure). Exported to SVG once, at render time.
+
+The look is the house's own: a restrained ink-and-teal palette, and meaning never carried
+by colour alone (position on the security market line is shown by marker shape too).
+"""
+
+from __future__ import annotations
+
+import altair as alt
+import numpy as np
+import pandas as pd
+
+from reporter.analytics.pack import PackResults
+from reporter.analytics.sml import ABOVE, BELOW, WITHIN
+
+INK, TEAL, OCHRE, BRICK, GREY = "#1d2b36", "#2a6f6f", "#b8741a", "#9c3b2e", "#6b7780"
+FONT = "DejaVu Sans"
+WIDTH, HEIGHT = 520, 300
+
+THEME_CONFIG = {
+    "font": FONT,
+    "background": "white",
+    "view": {"stroke": None},
+    "axis": {"labelFontSize": 11, "titleFontSize": 11, "titleFontWeight": "normal",
+             "labelColor": INK, "titleColor": INK, "gridColor": "#e3e6e8", "domainColor": GREY,
+             "tickColor": GREY},
+    "legend": {"labelFontSize": 11, "titleFontSize": 11, "titleFontWeight": "normal",
+               "labelColor": INK, "titleColor": INK, "orient": "bottom"},
+    "title": {"fontSize": 13, "fontWeight": "normal", "color": INK, "anchor": "start"},
+}
+
+
+def sml_chart(res: PackResults) -> alt.LayerChart:
+    """Each holding's beta against its annualised mean excess return, with the ex post line
+    E[r - r_f] = beta x mean market premium, beta error bars (95%), the market and cash."""
+    P = res.periods_per_year
+    sec = res.securities[res.fits.fitted].copy()
+    z = 1.96
+    df = pd.DataFrame({
+        "name": sec["name"], "beta": sec["beta"],
+        "beta_lo": sec["beta"] - z * sec["beta_se"], "beta_hi": sec["beta"] + z * sec["beta_se"],
+        "excess": sec["mean_excess_return_ann"], "weight": sec["weight"],
+        "position": sec["sml_position"],
+    })
+    mrp = res.sml.mean_market_premium * P
+    hi = float(max(2.0, np.nanmax(df["beta_hi"]) if len(df) else 2.0))
+    lo = float(min(0.0, np.nanmin(df["beta_lo"]) if len(df) else 0.0))
+    line = pd.DataFrame({"beta": [lo, hi], "excess": [lo * mrp, hi * mrp]})
+    anchors = pd.DataFrame({"beta": [0.0, 1.0], "excess": [0.0, mrp],
+                            "label": ["Risk-free", "Market proxy"]})
+    x = alt.X("beta:Q", title="Beta (OLS, bars: 95% interval)",
+              scale=alt.Scale(domain=[lo, hi], nice=False))
+    y = alt.Y("excess:Q", title="Mean excess return, annualised", axis=alt.Axis(format="%"))
+    shape_scale = alt.Scale(domain=[ABOVE, WITHIN, BELOW],
+                            range=["triangle-up", "circle", "triangle-down"])
+    colour_scale = alt.Scale(domain=[ABOVE, WITHIN, BELOW], range=[TEAL, GREY, BRICK])
+    base = alt.Chart(df)
+    bars = base.mark_rule(color="#b9c0c5", strokeWidth=1).encode(x="beta_lo:Q", x2="beta_hi:Q",
+                                                                   y="excess:Q")
+    pts = base.mark_point(filled=True, opacity=0.9, size=60).encode(
+        x=x, y=y,
+        shape=alt.Shape("position:N", scale=shape_scale, title="Alpha vs zero"),
+        color=alt.Color("position:N", scale=colour_scale, title="Alpha vs zero"),
+        tooltip=["name:N", alt.Tooltip("beta:Q", format=".2f"),
+                 alt.Tooltip("excess:Q", format=".1%"), "position:N"],
+    )
+    sml = alt.Chart(line).mark_line(color=INK, strokeWidth=1.5).encode(x="beta:Q", y="excess:Q")
+    anc = alt.Chart(anchors).mark_point(shape="square", size=90, filled=True,
+                                        color=OCHRE).encode(x="beta:Q", y="excess:Q")
+    lab = alt.Chart(anchors).mark_text(align="left", dx=8, dy=-8, color=INK,
+                                       fontSize=11).encode(x="beta:Q", y="excess:Q",
+                                                           text="label:N")
+    return alt.layer(bars, sml, pts, anc, lab).properties(width=WIDTH, height=HEIGHT)
+
+
+def sector_chart(res: PackResults) -> alt.Chart:
+    """Horizontal bars of weight by sector, largest first."""
+    df = res.sectors.copy()
+    order = list(df["sector"])
+    return alt.Chart(df).mark_bar(color=TEAL, height=14).encode(
+        y=alt.Y("sector:N", sort=order, title=None),
+        x=alt.X("weight:Q", title="Weight", axis=alt.Axis(format="%")),
+        tooltip=["sector:N", alt.Tooltip("weight:Q", format=".1%"), "n_holdings:Q"],
+    ).properties(width=WIDTH - 140, height=max(120, 22 * len(df))) + alt.Chart(df).mark_text(
+        align="left", dx=4, color=INK, fontSize=10).encode(
+        y=alt.Y("sector:N", sort=order), x="weight:Q", text=alt.Text("weight:Q", format=".1%"))
+
+
+def diversification_chart(res: PackResults) -> alt.LayerChart:
+    """Annualised volatility of an equal-weight portfolio of n of the holdings,
+    sqrt(P (avg_var/n + (1 - 1/n) avg_cov)), with its floor and the portfolio marked."""
+    P = res.periods_per_year
+    n_max = int(max(60, 2 * res.concentration.n_holdings))
+    n = np.unique(np.round(np.geomspace(1, n_max, 80)).astype(int))
+    vol = np.sqrt(P * res.curve.variance(n))
+    curve = pd.DataFrame({"n": n, "vol": vol})
+    floor = float(np.sqrt(max(P * res.curve.average_covariance, 0.0)))
+    port = pd.DataFrame({"n": [res.concentration.effective_n],
+                         "vol": [res.ratios.volatility * np.sqrt(P)],
+                         "label": ["This portfolio (effective N)"]})
+    x = alt.X("n:Q", title="Number of equally weighted holdings (log scale)",
+              scale=alt.Scale(type="log", domain=[1, n_max]))
+    y = alt.Y("vol:Q", title="Volatility, annualised", axis=alt.Axis(format="%"),
+              scale=alt.Scale(zero=True))
+    line = alt.Chart(curve).mark_line(color=TEAL, strokeWidth=2).encode(x=x, y=y)
+    rule = alt.Chart(pd.DataFrame({"vol": [floor], "label": ["Market-wide floor"]})).mark_rule(
+        color=GREY, strokeDash=[4, 3]).encode(y="vol:Q")
+    rule_lab = alt.Chart(pd.DataFrame({"vol": [floor], "n": [n_max],
+                                       "label": ["Floor: average covariance"]})).mark_text(
+        align="right", dy=-7, color=GREY, fontSize=10).encode(x="n:Q", y="vol:Q", text="label:N")
+    pt = alt.Chart(port).mark_point(shape="diamond", size=120, filled=True,
+                                    color=OCHRE).encode(x="n:Q", y="vol:Q")
+    pt_lab = alt.Chart(port).mark_text(align="left", dx=9, color=INK, fontSize=11).encode(
+        x="n:Q", y="vol:Q", text="label:N")
+    return alt.layer(line, rule, rule_lab, pt, pt_lab).properties(width=WIDTH, height=260)
+
+
+def build_charts(res: PackResults) -> dict[str, alt.TopLevelMixin]:
+    """Every chart of the pack, keyed by the name the templates use."""
+    return {
+        "sml": sml_chart(res),
+        "sectors": sector_chart(res),
+        "diversification": diversification_chart(res),
+    }

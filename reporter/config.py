@@ -1,0 +1,270 @@
+"""Load and validate ``pack.toml`` into one frozen settings object.
+
+Every problem in the file is collected and reported at once as
+``pack.toml:<key>: <message>``: unknown keys, wrong types, out-of-range values
+and input paths that leave the pack folder. Nothing else in the tool reads the
+TOML file.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Annotated, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
+
+from reporter.errors import InputError, Problem
+
+PERIODS_PER_YEAR = {"monthly": 12, "weekly": 52, "daily": 252}
+INPUT_ROLES = ("holdings", "returns", "market", "risk_free")
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
+
+
+class PackSection(_Strict):
+    """``[pack]``: what the cover shows and the period covered."""
+
+    title: Annotated[str, Field(min_length=1, max_length=200)]
+    organisation: Annotated[str, Field(min_length=1, max_length=200)]
+    period_end: dt.date
+    frequency: Literal["monthly", "weekly", "daily"] = "monthly"
+    currency: Annotated[str, Field(pattern=r"^[A-Z]{3}$")] = "GBP"
+
+
+class InputFile(_Strict):
+    """One data file, with optional reading options (CSV delimiter, decimal comma, sheet...)."""
+
+    path: Annotated[str, Field(min_length=1)]
+    sheet: str | None = None
+    delimiter: Annotated[str, Field(min_length=1, max_length=1)] | None = None
+    decimal: Literal[".", ","] | None = None
+    date_format: Annotated[str, Field(min_length=2)] | None = None
+
+
+class InputsSection(_Strict):
+    """``[inputs]``: the data files, relative to ``pack.toml``.
+
+    Each may be a plain path or an inline table ``{ path = ..., delimiter = ";" ... }``.
+    ``delimiter``, ``decimal`` and ``date_format`` given here apply to every file.
+    """
+
+    holdings: str | InputFile
+    returns: str | InputFile
+    market: str | InputFile
+    risk_free: str | InputFile
+    delimiter: Annotated[str, Field(min_length=1, max_length=1)] = ","
+    decimal: Literal[".", ","] = "."
+    date_format: Annotated[str, Field(min_length=2)] = "%Y-%m-%d"
+
+
+class AnalysisSection(_Strict):
+    """``[analysis]``: the estimation window and the minimum history for a fit."""
+
+    window: Annotated[int, Field(ge=3, le=100_000)] = 60
+    min_obs: Annotated[int, Field(ge=3, le=100_000)] = 24
+    confidence: Annotated[float, Field(gt=0.5, lt=1.0)] = 0.95
+
+
+class ChecksSection(_Strict):
+    """``[checks]``: how strict validation is."""
+
+    weight_tolerance: Annotated[float, Field(ge=0.0, le=0.1)] = 1e-4
+    normalise_weights: bool = False
+    allow_short: bool = False
+    stale_zero_run: Annotated[int, Field(ge=2)] | None = None
+
+
+class RenderSection(_Strict):
+    """``[render]``: optional folder of user templates that override the packaged ones."""
+
+    templates: str | None = None
+
+
+class PackFile(_Strict):
+    pack: PackSection
+    inputs: InputsSection
+    analysis: AnalysisSection = AnalysisSection()
+    checks: ChecksSection = ChecksSection()
+    render: RenderSection = RenderSection()
+
+
+@dataclass(frozen=True)
+class InputSpec:
+    """A resolved input file and how to read it."""
+
+    role: str
+    path: Path
+    display: str  # the path as written in pack.toml, used in messages
+    sheet: str | None
+    delimiter: str
+    decimal: str
+    date_format: str
+
+
+@dataclass(frozen=True)
+class Settings:
+    """The validated settings for one pack; built once and passed down."""
+
+    pack_dir: Path
+    config_path: Path
+    title: str
+    organisation: str
+    period_end: dt.date
+    frequency: str
+    currency: str
+    inputs: dict[str, InputSpec]
+    window: int
+    min_obs: int
+    confidence: float
+    weight_tolerance: float
+    normalise_weights: bool
+    allow_short: bool
+    stale_zero_run: int
+    templates_dir: Path | None
+
+    @property
+    def periods_per_year(self) -> int:
+        return PERIODS_PER_YEAR[self.frequency]
+
+
+DEFAULT_STALE_RUN = {"monthly": 3, "weekly": 4, "daily": 5}
+
+
+def _loc(loc: tuple) -> str:
+    return ".".join(str(p) for p in loc if not isinstance(p, int) and p not in _UNION_TAGS)
+
+
+_UNION_TAGS = {"str", "InputFile", "function-after[_reject_bool(), int]"}
+
+
+def _pydantic_problems(err: ValidationError, fname: str) -> list[Problem]:
+    problems: dict[str, Problem] = {}
+    for e in err.errors():
+        loc = tuple(e["loc"])
+        key = _loc(loc) or "(top level)"
+        kind = e["type"]
+        if kind == "extra_forbidden":
+            msg = "unknown key"
+        elif kind == "missing":
+            msg = "required key is missing"
+        else:
+            msg = e["msg"]
+            if "input" in e and not isinstance(e["input"], dict):
+                msg += f" (got {e['input']!r})"
+        # a str | table field yields one error per alternative; keep the first
+        problems.setdefault(f"{key}|{kind}" if kind == "extra_forbidden" else key,
+                            Problem(f"{fname}:{key}", msg))
+    return list(problems.values())
+
+
+def _resolve_pack(pack: Path) -> tuple[Path, Path]:
+    pack = Path(pack)
+    config_path = pack / "pack.toml" if pack.is_dir() else pack
+    if not config_path.is_file():
+        raise InputError([Problem(str(config_path), "no pack.toml found here")])
+    return config_path.parent.resolve(), config_path.resolve()
+
+
+def load_settings(pack: Path | str) -> Settings:
+    """Read ``pack.toml`` (or the folder holding it) into :class:`Settings`.
+
+    Raises :class:`InputError` with every problem found.
+    """
+    pack_dir, config_path = _resolve_pack(Path(pack))
+    fname = config_path.name
+    try:
+        raw = tomllib.loads(config_path.read_text(encoding="utf-8"))
+    except UnicodeDecodeError as exc:
+        raise InputError([Problem(fname, f"not UTF-8 text ({exc.reason})")]) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError([Problem(fname, f"not valid TOML: {exc}")]) from None
+    try:
+        model = PackFile.model_validate(raw)
+    except ValidationError as exc:
+        raise InputError(_pydantic_problems(exc, fname)) from None
+
+    problems: list[Problem] = []
+    if model.analysis.min_obs > model.analysis.window:
+        problems.append(Problem(f"{fname}:analysis.min_obs",
+                                f"min_obs ({model.analysis.min_obs}) is larger than the window "
+                                f"({model.analysis.window})"))
+
+    inputs: dict[str, InputSpec] = {}
+    defaults = model.inputs
+    for role in INPUT_ROLES:
+        entry = getattr(defaults, role)
+        spec = entry if isinstance(entry, InputFile) else InputFile(path=entry)
+        key = f"inputs.{role}" + (".path" if isinstance(entry, InputFile) else "")
+        path = _guarded_path(pack_dir, spec.path, f"{fname}:{key}", problems, must_exist=True)
+        if path is None:
+            continue
+        inputs[role] = InputSpec(
+            role=role,
+            path=path,
+            display=spec.path,
+            sheet=spec.sheet,
+            delimiter=spec.delimiter or defaults.delimiter,
+            decimal=spec.decimal or defaults.decimal,
+            date_format=spec.date_format or defaults.date_format,
+        )
+        if spec.sheet is not None and path.suffix.lower() != ".xlsx":
+            problems.append(Problem(f"{fname}:inputs.{role}.sheet",
+                                    "a sheet applies only to an .xlsx file"))
+    for role, spec in inputs.items():
+        if spec.delimiter == spec.decimal:
+            problems.append(Problem(f"{fname}:inputs.{role}",
+                                    "the delimiter and the decimal mark are the same character"))
+
+    templates_dir = None
+    if model.render.templates is not None:
+        templates_dir = _guarded_path(pack_dir, model.render.templates,
+                                      f"{fname}:render.templates", problems, must_exist=True,
+                                      want_dir=True)
+    if problems:
+        raise InputError(problems)
+
+    freq = model.pack.frequency
+    return Settings(
+        pack_dir=pack_dir,
+        config_path=config_path,
+        title=model.pack.title,
+        organisation=model.pack.organisation,
+        period_end=model.pack.period_end,
+        frequency=freq,
+        currency=model.pack.currency,
+        inputs=inputs,
+        window=model.analysis.window,
+        min_obs=model.analysis.min_obs,
+        confidence=model.analysis.confidence,
+        weight_tolerance=model.checks.weight_tolerance,
+        normalise_weights=model.checks.normalise_weights,
+        allow_short=model.checks.allow_short,
+        stale_zero_run=model.checks.stale_zero_run or DEFAULT_STALE_RUN[freq],
+        templates_dir=templates_dir,
+    )
+
+
+def _guarded_path(base: Path, rel: str, where: str, problems: list[Problem], *,
+                  must_exist: bool, want_dir: bool = False) -> Path | None:
+    """Resolve ``rel`` against ``base``; refuse a path that leaves ``base``."""
+    candidate = Path(rel)
+    if candidate.is_absolute():
+        problems.append(Problem(where, f"path {rel!r} must be relative to the pack folder"))
+        return None
+    resolved = (base / candidate).resolve()
+    if not resolved.is_relative_to(base):
+        problems.append(Problem(where, f"path {rel!r} leaves the pack folder"))
+        return None
+    if must_exist:
+        if want_dir and not resolved.is_dir():
+            problems.append(Problem(where, f"folder {rel!r} does not exist"))
+            return None
+        if not want_dir and not resolved.is_file():
+            problems.append(Problem(where, f"file {rel!r} does not exist"))
+            return None
+    return resolved

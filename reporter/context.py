@@ -1,0 +1,126 @@
+"""The typed template context: everything a template may show, and nothing it must compute.
+
+Numbers stay numbers here (per-period or ``_ann`` decimals); templates format them through
+the filters in :mod:`reporter.render.environment`.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass, field
+
+import altair as alt
+import numpy as np
+
+from reporter import __version__
+from reporter.analytics.pack import PackResults
+from reporter.analytics.sml import ABOVE, BELOW
+from reporter.config import Settings
+from reporter.models import ValidInputs
+
+CAUTIONS = (
+    "Every figure in this pack is a statistical estimate from a finite sample of past returns "
+    "and carries sampling error; confidence intervals are shown where they matter.",
+    "Beta and alpha depend on the estimation window, the return frequency and the choice of "
+    "market proxy; a different choice can give materially different figures.",
+    "Past performance is not a reliable guide to future results. The value of investments "
+    "and the income from them can fall as well as rise.",
+    "This pack is prepared to inform the committee's discussion. It is not investment advice "
+    "and is not a recommendation to buy, sell or hold any investment.",
+    "Trustees should take decisions with their appointed investment adviser and in line with "
+    "the scheme's governing documents and the regulation that applies to them locally.",
+)
+
+
+@dataclass(frozen=True)
+class Section:
+    anchor: str
+    title: str
+
+
+SECTIONS = (
+    Section("summary", "Summary"),
+    Section("market-risk", "Market risk"),
+    Section("sml", "Security market line"),
+    Section("diversification", "Diversification"),
+    Section("holdings", "Holdings appendix"),
+    Section("methodology", "Methodology"),
+    Section("cautions", "Cautions"),
+)
+
+
+@dataclass(frozen=True)
+class PackContext:
+    """What the pack templates receive."""
+
+    title: str
+    organisation: str
+    period_end: dt.date
+    frequency: str
+    periods_per_year: int
+    currency: str
+    build_time: dt.datetime
+    fingerprint: str                 # sha256 of pack.toml and the input files
+    tool_version: str
+    window: int
+    min_obs: int
+    confidence: float
+    returns_shape: str
+    weight_source: str
+    weights_normalised: bool
+    input_names: dict[str, str]
+    portfolio: dict
+    holdings: list[dict]             # every holding, largest weight first
+    sml_above: list[dict]            # furthest above the line (by residual)
+    sml_below: list[dict]            # furthest below the line
+    sml_counts: dict[str, int]
+    sectors: list[dict]
+    unfitted: list[dict]
+    data_notes: list[str]
+    curve_90: int                    # holdings at which 90% of diversifiable variance is gone
+    curve_95: int
+    charts: dict[str, alt.TopLevelMixin] = field(repr=False)
+    sections: tuple[Section, ...] = SECTIONS
+    cautions: tuple[str, ...] = CAUTIONS
+
+
+def _records(df) -> list[dict]:
+    return [{k: (None if isinstance(v, float) and np.isnan(v) else v) for k, v in r.items()}
+            for r in df.to_dict(orient="records")]
+
+
+def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
+                  charts: dict[str, alt.TopLevelMixin], fingerprint: str,
+                  build_time: dt.datetime) -> PackContext:
+    """Assemble the context for the pack templates."""
+    sec = res.securities
+    by_weight = sec.sort_values(["weight", "security_id"], ascending=[False, True],
+                                kind="stable")
+    fitted = sec[sec["status"] == "fitted"]
+    ranked = fitted.sort_values(["sml_residual", "security_id"], ascending=[False, True],
+                                kind="stable")
+    k = min(5, len(ranked) // 2)
+    counts = {p: int((fitted["sml_position"] == p).sum()) for p in (ABOVE, BELOW)}
+    counts["within"] = int(len(fitted) - counts[ABOVE] - counts[BELOW])
+    notes = [str(w) for w in inputs.warnings]
+    unfitted = sec[sec["status"] != "fitted"]
+    return PackContext(
+        title=settings.title, organisation=settings.organisation,
+        period_end=settings.period_end, frequency=settings.frequency,
+        periods_per_year=settings.periods_per_year, currency=settings.currency,
+        build_time=build_time, fingerprint=fingerprint, tool_version=__version__,
+        window=settings.window, min_obs=settings.min_obs, confidence=settings.confidence,
+        returns_shape=inputs.returns.shape, weight_source=inputs.holdings.weight_source,
+        weights_normalised=inputs.holdings.normalised,
+        input_names={r: s.display for r, s in settings.inputs.items()},
+        portfolio=res.portfolio_summary(),
+        holdings=_records(by_weight),
+        sml_above=_records(ranked.head(k)),
+        sml_below=_records(ranked.tail(k).iloc[::-1]),
+        sml_counts=counts,
+        sectors=_records(res.sectors),
+        unfitted=_records(unfitted),
+        data_notes=notes,
+        curve_90=10, curve_95=20,  # 1 - 1/n reaches 90% at n = 10 and 95% at n = 20
+        charts=charts,
+    )

@@ -1,0 +1,124 @@
+"""Generate the invented demo scheme in ``inputs/demo`` (seeded; the output is committed).
+
+Everything here is fiction: the organisation, the securities and their returns. The
+returns follow a single-index model with sector shocks, betas spread over 0.3-1.8, a few
+holdings with short or broken histories, and a slowly moving risk-free rate.
+
+Run: ``python -m reporter.demo_data inputs/demo``
+"""
+
+from __future__ import annotations
+
+import csv
+import sys
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+SEED = 20261130
+N_MONTHS = 120
+PERIOD_END = "2026-11-30"
+SECTORS = ["Industrials", "Financials", "Health Care", "Consumer Staples",
+           "Consumer Discretionary", "Energy", "Utilities", "Technology", "Materials",
+           "Telecommunications"]
+FIRST = ["Ash", "Bram", "Corr", "Dun", "Elm", "Fen", "Gort", "Hal", "Ings", "Kell", "Lang",
+         "Mire", "Ness", "Orm", "Pell", "Quarn", "Rook", "Sand", "Thorn", "Ulls", "Vell",
+         "Wold", "Yarr", "Brack", "Cald"]
+SECOND = ["brook", "field", "moor", "wick", "stead", "holt", "dale", "mere", "ford", "combe"]
+KIND = {"Industrials": "Engineering", "Financials": "Mutual", "Health Care": "Therapeutics",
+        "Consumer Staples": "Foods", "Consumer Discretionary": "Leisure", "Energy": "Power",
+        "Utilities": "Water", "Technology": "Systems", "Materials": "Minerals",
+        "Telecommunications": "Networks"}
+
+PACK_TOML = """\
+# An invented scheme for the demo: every organisation and security here is fictional.
+[pack]
+title = "Investment Committee Pack: Listed Equity Portfolio"
+organisation = "Tarnbrook Valley Staff Pension Scheme"
+period_end = 2026-11-30
+frequency = "monthly"
+currency = "GBP"
+
+[inputs]
+holdings = "holdings.csv"
+returns = "returns.csv"
+market = "market.csv"
+risk_free = "risk_free.csv"
+
+[analysis]
+window = 60
+min_obs = 24
+"""
+
+
+def generate(out: Path, n_holdings: int = 60) -> None:
+    """Write pack.toml, holdings.csv, returns.csv, market.csv and risk_free.csv into ``out``."""
+    rng = np.random.default_rng(SEED)
+    dates = pd.date_range(end=PERIOD_END, periods=N_MONTHS, freq="ME")
+    t = np.arange(N_MONTHS)
+    rf = np.clip(0.0002 + 0.0036 / (1 + np.exp(-(t - 75) / 6)) + rng.normal(0, 0.00005,
+                                                                           N_MONTHS), 0, None)
+    draws = rng.normal(0, 1, N_MONTHS)
+    halves = np.array_split(np.arange(N_MONTHS), 2)
+    for h in halves:  # each five-year half has a mean premium of 0.55% a month exactly
+        draws[h] = (draws[h] - draws[h].mean()) / draws[h].std()
+    mkt_excess = 0.0055 + 0.042 * draws
+    market = rf + mkt_excess
+    sector_of = [SECTORS[i % len(SECTORS)] for i in range(n_holdings)]
+    rng.shuffle(sector_of)
+    sector_shock = {}
+    for s in SECTORS:
+        shock = rng.normal(0, 0.018, N_MONTHS)
+        sector_shock[s] = shock - shock.mean()
+    beta = rng.uniform(0.3, 1.8, n_holdings)
+    idio = rng.uniform(0.02, 0.075, n_holdings)
+    alpha = np.where(rng.random(n_holdings) < 0.15, rng.normal(0, 0.006, n_holdings), 0.0)
+
+    names, used = [], set()
+    for i in range(n_holdings):
+        while True:
+            nm = f"{FIRST[rng.integers(len(FIRST))]}{SECOND[rng.integers(len(SECOND))]}"
+            if nm not in used:
+                used.add(nm)
+                break
+        names.append(f"{nm} {KIND[sector_of[i]]} plc")
+    ids = [f"TVX{i + 1:03d}" for i in range(n_holdings)]
+
+    rets = (rf[:, None] + alpha + beta * mkt_excess[:, None]
+            + np.column_stack([sector_shock[s] for s in sector_of]) * 0.8
+            + rng.normal(0, 1, (N_MONTHS, n_holdings)) * idio)
+    rets = np.clip(rets, -0.95, None)
+    present = np.ones_like(rets, dtype=bool)
+    present[: N_MONTHS - 40, 5] = False      # listed 40 months ago
+    present[: N_MONTHS - 30, 17] = False     # listed 30 months ago
+    present[: N_MONTHS - 14, 33] = False     # listed 14 months ago: below min_obs
+    present[N_MONTHS - 20: N_MONTHS - 15, 41] = False  # suspended for five months
+
+    mv = np.exp(rng.normal(0, 0.9, n_holdings))
+    w = np.round(mv / mv.sum(), 6)
+    w[np.argmax(w)] += round(1.0 - w.sum(), 6)
+
+    out.mkdir(parents=True, exist_ok=True)
+    (out / "pack.toml").write_text(PACK_TOML, encoding="utf-8")
+    _write(out / "holdings.csv", ["security_id", "name", "sector", "weight"],
+           [[ids[i], names[i], sector_of[i], f"{w[i]:.6f}"] for i in range(n_holdings)])
+    iso = [d.strftime("%Y-%m-%d") for d in dates]
+    _write(out / "market.csv", ["date", "return"],
+           [[iso[k], f"{market[k]:.6f}"] for k in range(N_MONTHS)])
+    _write(out / "risk_free.csv", ["date", "rate"], [[iso[k], f"{rf[k]:.6f}"]
+                                                       for k in range(N_MONTHS)])
+    _write(out / "returns.csv", ["date", "security_id", "return"],
+           [[iso[k], ids[i], f"{rets[k, i]:.6f}"] for k in range(N_MONTHS)
+            for i in range(n_holdings) if present[k, i]])
+
+
+def _write(path: Path, header: list[str], rows: list[list[str]]) -> None:
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        wr = csv.writer(fh, lineterminator="\n")
+        wr.writerow(header)
+        wr.writerows(rows)
+
+
+if __name__ == "__main__":
+    generate(Path(sys.argv[1] if len(sys.argv) > 1 else "inputs/demo"))

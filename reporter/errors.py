@@ -1,0 +1,90 @@
+"""The exception family the CLI knows how to print.
+
+Every user-facing problem is a :class:`Problem`: one line naming where it is
+(``file:row:column`` or ``pack.toml:key``) and what is wrong. Errors are gathered
+into an :class:`InputError` so that the user sees all of them at once.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+EXIT_OK = 0
+EXIT_FAILED = 1
+EXIT_BAD_INPUT = 2
+
+
+@dataclass(frozen=True, order=True)
+class Problem:
+    """One problem in the inputs, with its place.
+
+    ``where`` is already formatted: ``holdings.csv:14:weight`` or ``pack.toml:analysis.window``.
+    """
+
+    where: str
+    message: str
+    severity: str = "error"  # "error" | "warning"
+
+    def __str__(self) -> str:
+        tag = "" if self.severity == "error" else "warning: "
+        return f"{self.where}: {tag}{self.message}"
+
+
+def place(file: str, row: int | None = None, column: str | None = None) -> str:
+    """Format a location as ``file:row:column``, leaving out the parts that do not apply."""
+    parts = [file]
+    if row is not None:
+        parts.append(str(row))
+    if column is not None:
+        parts.append(column)
+    return ":".join(parts)
+
+
+class ReporterError(Exception):
+    """Base class of every error the CLI prints without a traceback."""
+
+    exit_code = EXIT_FAILED
+
+
+@dataclass
+class InputError(ReporterError):
+    """Bad input: one or more problems, each printed on its own line; exit code 2."""
+
+    problems: list[Problem] = field(default_factory=list)
+    exit_code = EXIT_BAD_INPUT
+
+    def __str__(self) -> str:
+        return "\n".join(str(p) for p in self.problems)
+
+
+class OutputError(ReporterError):
+    """The output location is not one we may write to (outside the target, an archive...)."""
+
+    exit_code = EXIT_BAD_INPUT
+
+
+class Collector:
+    """Gathers problems across a whole stage, so that all are reported together."""
+
+    def __init__(self) -> None:
+        self.problems: list[Problem] = []
+
+    def error(self, where: str, message: str) -> None:
+        self.problems.append(Problem(where, message, "error"))
+
+    def warn(self, where: str, message: str) -> None:
+        self.problems.append(Problem(where, message, "warning"))
+
+    @property
+    def errors(self) -> list[Problem]:
+        return [p for p in self.problems if p.severity == "error"]
+
+    @property
+    def warnings(self) -> list[Problem]:
+        return [p for p in self.problems if p.severity == "warning"]
+
+    def raise_if_errors(self, strict: bool = False) -> None:
+        """Raise :class:`InputError` with every problem if any error (or, when strict, warning)."""
+        failing = self.problems if strict else self.errors
+        if failing:
+            raise InputError(list(self.problems) if strict else self.errors + self.warnings)

@@ -1,0 +1,1 @@
+"""Rendering: the Jinja environment, HTML and PDF."""

@@ -1,0 +1,46 @@
+"""``reporter check``: validate a pack and summarise its data without building anything."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from reporter.analytics.pack import build_window
+from reporter.config import load_settings
+from reporter.errors import Problem
+from reporter.validate import validate_pack
+
+
+@dataclass(frozen=True)
+class CheckSummary:
+    text: str
+    warnings: list[Problem]
+
+
+def check_pack(pack: Path | str, strict: bool = False) -> CheckSummary:
+    """Validate ``pack`` and describe holdings, dates, coverage and warnings."""
+    settings = load_settings(pack)
+    inputs = validate_pack(settings, strict=strict)
+    win = build_window(inputs, settings)
+    h = inputs.holdings
+    n_obs = np.isfinite(win.returns).sum(axis=0)
+    full = int((n_obs == win.n_periods).sum())
+    short = int(((n_obs < settings.min_obs)).sum())
+    lines = [
+        f"pack: {settings.title} ({settings.organisation}), period ending {settings.period_end}",
+        f"holdings: {len(h.ids)} from {settings.inputs['holdings'].display}, weights from "
+        f"{h.weight_source}{' (rescaled)' if h.normalised else ''}, "
+        f"{h.frame['sector'].nunique()} sectors",
+        f"returns: {inputs.returns.shape} layout, {inputs.returns.n_rows} rows, "
+        f"{len(inputs.returns.period_keys)} periods",
+        f"market: {len(inputs.market.dates)} periods, {inputs.market.dates[0]} to "
+        f"{inputs.market.dates[-1]}; risk-free: {len(inputs.risk_free.dates)} periods",
+        f"window: {win.n_periods} {settings.frequency} periods, {win.dates[0]} to {win.dates[-1]}",
+        f"coverage: {full} holding(s) with the full window, {short} below min_obs "
+        f"({settings.min_obs}) and not to be fitted",
+        f"warnings: {len(inputs.warnings)}",
+        "ok: the inputs pass every check",
+    ]
+    return CheckSummary(text="\n".join(lines), warnings=inputs.warnings)

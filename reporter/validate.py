@@ -1,0 +1,534 @@
+"""Raw tables -> typed, checked inputs. Every problem is gathered with its place.
+
+Each problem is reported as ``file:row:column: message`` where ``row`` is the row
+as the user sees it (a CSV line number, a spreadsheet row, a Parquet 1-based row).
+Per kind of problem at most :data:`MAX_PER_CHECK` places are listed, followed by a
+count of the rest, so that a wholly wrong file gives a readable report.
+
+Stated rules (also in the README):
+
+* a security's returns look like percentages when their median absolute value is
+  above :data:`PERCENT_MEDIAN` for the frequency, or more than half of them are above 1
+  in absolute value;
+* a risk-free rate whose median, annualised, is above 25% is warned about as a likely
+  annual rate given per period;
+* a holding's prices look stale when it has ``checks.stale_zero_run`` or more exact-zero
+  returns in a row.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from reporter.analytics.returns import frequency_gaps, period_keys
+from reporter.config import Settings
+from reporter.errors import Collector, InputError, place
+from reporter.models import DatedSeries, Holdings, ReturnPanel, ValidInputs
+from reporter.readers import RawTable, read_input
+
+MAX_PER_CHECK = 10
+PERCENT_MEDIAN = {"monthly": 0.25, "weekly": 0.15, "daily": 0.10}
+HOLDINGS_REQUIRED = ("security_id", "name", "sector")
+HOLDINGS_OPTIONAL = ("asset_class", "currency", "country")
+
+
+class _Capped:
+    """Adds problems of one kind to a collector, listing at most MAX_PER_CHECK places."""
+
+    def __init__(self, coll: Collector, summary: str, warning: bool = False) -> None:
+        self.coll, self.summary, self.warning, self.count = coll, summary, warning, 0
+        self._last_file = ""
+
+    def add(self, where: str, message: str) -> None:
+        self.count += 1
+        self._last_file = where.split(":", 1)[0]
+        if self.count <= MAX_PER_CHECK:
+            (self.coll.warn if self.warning else self.coll.error)(where, message)
+
+    def close(self) -> None:
+        rest = self.count - MAX_PER_CHECK
+        if rest > 0:
+            msg = f"... and {rest} more {self.summary}"
+            (self.coll.warn if self.warning else self.coll.error)(self._last_file, msg)
+
+
+# --------------------------------------------------------------------------- columns
+
+def _require_columns(raw: RawTable, required: tuple[str, ...], optional: tuple[str, ...],
+                     coll: Collector) -> bool:
+    names = raw.table.column_names
+    missing = [c for c in required if c not in names]
+    for c in missing:
+        coll.error(place(raw.name, 1, c), "required column is missing "
+                   f"(the file has: {', '.join(names) or 'no columns'})")
+    for c in names:
+        if c not in required and c not in optional:
+            coll.warn(place(raw.name, 1, c), "unknown column, ignored")
+    return not missing
+
+
+def as_float(raw: RawTable, column: str, coll: Collector, decimal: str, *,
+             allow_empty: bool, label: str | None = None) -> np.ndarray:
+    """Column ``column`` as float64 (NaN where empty); non-numbers are reported."""
+    arr = raw.table[column]
+    label = label or column
+    if pa.types.is_floating(arr.type) or pa.types.is_integer(arr.type) or pa.types.is_null(
+            arr.type):
+        values = arr.cast(pa.float64()).to_numpy(zero_copy_only=False)
+        bad_text = np.zeros(len(values), dtype=bool)
+    else:
+        text = pd.Series(arr.cast(pa.string()).to_pylist(), dtype=object)
+        stripped = text.str.strip()
+        if decimal == ",":
+            stripped = stripped.str.replace(",", ".", regex=False)
+        values = pd.to_numeric(stripped, errors="coerce").to_numpy(dtype=float)
+        blank = text.isna().to_numpy() | (stripped == "").fillna(True).to_numpy()
+        bad_text = np.isnan(values) & ~blank
+        values[blank] = np.nan
+        capped = _Capped(coll, f"non-numeric values in column {label}")
+        for i in np.flatnonzero(bad_text):
+            capped.add(place(raw.name, raw.row_number(int(i)), label),
+                       f"not a number: {text.iloc[i]!r}")
+        capped.close()
+    inf = np.isinf(values)
+    if inf.any():
+        capped = _Capped(coll, f"infinite values in column {label}")
+        for i in np.flatnonzero(inf):
+            capped.add(place(raw.name, raw.row_number(int(i)), label), "value is infinite")
+        capped.close()
+        values = np.where(inf, np.nan, values)
+    if not allow_empty:
+        empty = np.isnan(values) & ~bad_text & ~inf
+        capped = _Capped(coll, f"empty values in column {label}")
+        for i in np.flatnonzero(empty):
+            capped.add(place(raw.name, raw.row_number(int(i)), label), "value is empty")
+        capped.close()
+    return values
+
+
+def as_dates(raw: RawTable, column: str, date_format: str, coll: Collector) -> np.ndarray:
+    """Column ``column`` as ``datetime64[D]`` (NaT where bad). Only ``date_format`` is accepted:
+    day-first and month-first are never guessed. Impossible dates (30 February) are errors."""
+    arr = raw.table[column]
+    n = len(arr)
+    if pa.types.is_date(arr.type) or pa.types.is_timestamp(arr.type):
+        out = arr.cast(pa.timestamp("s")).cast(pa.date32()).to_numpy(zero_copy_only=False)
+        out = np.asarray(out, dtype="datetime64[D]")
+        missing = np.isnat(out)
+        bad_rows = {int(i): None for i in np.flatnonzero(missing)}
+    else:
+        enc = pc.dictionary_encode(arr.cast(pa.string())).combine_chunks()
+        uniq = pd.Series(enc.dictionary.to_pylist(), dtype=object)
+        parsed = pd.to_datetime(uniq.str.strip(), format=date_format, errors="coerce")
+        uniq_days = parsed.to_numpy(dtype="datetime64[ns]").astype("datetime64[D]")
+        codes = enc.indices.to_numpy(zero_copy_only=False)
+        valid_codes = ~np.asarray(enc.indices.is_null().to_numpy(zero_copy_only=False))
+        out = np.full(n, np.datetime64("NaT"), dtype="datetime64[D]")
+        safe = np.where(valid_codes, codes, 0)
+        out[valid_codes] = uniq_days[safe[valid_codes]] if len(uniq_days) else out[valid_codes]
+        bad_rows = {int(i): (uniq.iloc[codes[i]] if valid_codes[i] else None)
+                    for i in np.flatnonzero(np.isnat(out))}
+    capped = _Capped(coll, f"bad dates in column {column}")
+    for i, text in bad_rows.items():
+        where = place(raw.name, raw.row_number(i), column)
+        if text is None:
+            capped.add(where, "date is empty")
+        else:
+            capped.add(where, f"not a valid date in the format {date_format!r}: {text!r}")
+    capped.close()
+    return out
+
+
+def as_text(raw: RawTable, column: str, coll: Collector, *, allow_empty: bool) -> np.ndarray:
+    values = np.array([None if v is None else str(v).strip()
+                       for v in raw.table[column].cast(pa.string()).to_pylist()], dtype=object)
+    if not allow_empty:
+        capped = _Capped(coll, f"empty values in column {column}")
+        for i in np.flatnonzero([v is None or v == "" for v in values]):
+            capped.add(place(raw.name, raw.row_number(int(i)), column), "value is empty")
+        capped.close()
+    return values
+
+
+# --------------------------------------------------------------------------- holdings
+
+def validate_holdings(raw: RawTable, settings: Settings, coll: Collector) -> Holdings | None:
+    """Check the holdings file and derive weights (from ``weight`` or ``market_value``)."""
+    names = raw.table.column_names
+    has_w, has_mv = "weight" in names, "market_value" in names
+    if not (has_w or has_mv):
+        coll.error(place(raw.name, 1, "weight"),
+                   "required column is missing: give weight or market_value")
+    optional = HOLDINGS_OPTIONAL + ("weight", "market_value")
+    if not _require_columns(raw, HOLDINGS_REQUIRED, optional, coll) or not (has_w or has_mv):
+        return None
+    if raw.table.num_rows == 0:
+        coll.error(raw.name, "the file has no holdings")
+        return None
+    spec = settings.inputs["holdings"]
+    ids = as_text(raw, "security_id", coll, allow_empty=False)
+    frame = pd.DataFrame({
+        "security_id": ids,
+        "name": as_text(raw, "name", coll, allow_empty=False),
+        "sector": as_text(raw, "sector", coll, allow_empty=False),
+    })
+    seen: dict[str, int] = {}
+    for i, sid in enumerate(ids):
+        if sid is None or sid == "":
+            continue
+        if sid in seen:
+            coll.error(place(raw.name, raw.row_number(i), "security_id"),
+                       f"duplicate security id {sid!r} (first at row {raw.row_number(seen[sid])})")
+        else:
+            seen[sid] = i
+    column = "weight" if has_w else "market_value"
+    if has_w and has_mv:
+        coll.warn(place(raw.name, 1, "market_value"), "both weight and market_value given; "
+                  "weights are taken from the weight column")
+    raw_w = as_float(raw, column, coll, spec.decimal, allow_empty=False)
+    if has_mv:
+        frame["market_value"] = as_float(raw, "market_value", coll, spec.decimal,
+                                         allow_empty=False) if has_w else raw_w
+    neg = np.flatnonzero(raw_w < 0)
+    if len(neg) and not settings.allow_short:
+        capped = _Capped(coll, f"negative values in column {column}")
+        for i in neg:
+            capped.add(place(raw.name, raw.row_number(int(i)), column),
+                       f"negative {column} {raw_w[i]:g}: short positions are not allowed "
+                       "(set checks.allow_short = true)")
+        capped.close()
+    for opt in HOLDINGS_OPTIONAL:
+        if opt in names:
+            frame[opt] = as_text(raw, opt, coll, allow_empty=True)
+
+    normalised = False
+    if not np.isnan(raw_w).any():
+        total = float(raw_w.sum())
+        if column == "market_value":
+            if total <= 0:
+                coll.error(place(raw.name, None, column), "market values sum to zero or less")
+                return None
+            weights = raw_w / total
+        else:
+            weights = raw_w
+            if abs(total - 1.0) > settings.weight_tolerance:
+                msg = (f"weights sum to {total:.6g}, not 1 (tolerance "
+                       f"{settings.weight_tolerance:g})")
+                if settings.normalise_weights:
+                    coll.warn(place(raw.name, None, column), msg + "; rescaled to sum to 1")
+                    weights = raw_w / total
+                    normalised = True
+                else:
+                    coll.error(place(raw.name, None, column), msg + "; fix the file or set "
+                               "checks.normalise_weights = true")
+        frame["weight"] = weights
+    else:
+        frame["weight"] = raw_w
+    frame = frame[["security_id", "name", "sector", "weight"]
+                  + [c for c in frame.columns if c not in ("security_id", "name", "sector",
+                                                           "weight")]]
+    return Holdings(frame=frame, weight_source=column, normalised=normalised)
+
+
+# --------------------------------------------------------------------------- series
+
+def validate_series(raw: RawTable, value_col: str, settings: Settings,
+                    coll: Collector) -> DatedSeries | None:
+    """A ``date,<value_col>`` series: dates valid, unique per period, values numeric."""
+    if not _require_columns(raw, ("date", value_col), (), coll):
+        return None
+    if raw.table.num_rows == 0:
+        coll.error(raw.name, "the file has no rows")
+        return None
+    spec = settings.inputs["market" if value_col == "return" else "risk_free"]
+    dates = as_dates(raw, "date", spec.date_format, coll)
+    values = as_float(raw, value_col, coll, spec.decimal, allow_empty=False)
+    ok = ~np.isnat(dates)
+    keys = period_keys(dates[ok], settings.frequency)
+    rows = np.flatnonzero(ok)
+    order = np.argsort(keys, kind="stable")
+    dup = np.flatnonzero(np.diff(keys[order]) == 0) + 1
+    capped = _Capped(coll, "repeated periods")
+    for d in dup:
+        i, first = rows[order[d]], rows[order[d - 1]]
+        same = dates[i] == dates[first]
+        capped.add(place(raw.name, raw.row_number(int(i)), "date"),
+                   ("duplicate date " if same else f"second date in the same {_period_word(settings)} ")
+                   + f"{dates[i]} (first at row {raw.row_number(int(first))})"
+                   + ("" if same else f"; the data do not look {settings.frequency}"))
+    capped.close()
+    _check_return_values(raw, values, value_col, settings, coll, label=value_col)
+    if value_col == "rate":
+        med = np.nanmedian(values) if np.isfinite(values).any() else 0.0
+        if med * settings.periods_per_year > 0.25 and med <= PERCENT_MEDIAN[settings.frequency]:
+            coll.warn(place(raw.name, None, value_col),
+                      f"median rate {med:.4g} per period is {med * settings.periods_per_year:.1%}"
+                      " a year: is this an annual rate? Give the rate per period")
+    if len(dup):
+        return None
+    keep = ok
+    d, v = dates[keep], values[keep]
+    order = np.argsort(d)
+    return DatedSeries(dates=d[order], values=v[order])
+
+
+def _period_word(settings: Settings) -> str:
+    return {"monthly": "month", "weekly": "week", "daily": "day"}[settings.frequency]
+
+
+def _check_return_values(raw: RawTable, values: np.ndarray, column: str, settings: Settings,
+                         coll: Collector, label: str, rows: np.ndarray | None = None) -> None:
+    """Returns below -100%, and a column that looks like percentages."""
+    below = np.flatnonzero(values < -1.0)
+    capped = _Capped(coll, f"returns below -100% in column {label}")
+    for i in below:
+        r = int(rows[i]) if rows is not None else int(i)
+        capped.add(place(raw.name, raw.row_number(r), label),
+                   f"return {values[i]:g} is below -100%")
+    capped.close()
+    finite = values[np.isfinite(values)]
+    if len(finite) and looks_like_percent(finite, settings.frequency):
+        first = int(rows[np.flatnonzero(np.isfinite(values))[0]]) if rows is not None else int(
+            np.flatnonzero(np.isfinite(values))[0])
+        coll.error(place(raw.name, raw.row_number(first), label),
+                   f"values look like percentages (median |value| {np.median(np.abs(finite)):.3g}"
+                   f" is above {PERCENT_MEDIAN[settings.frequency]} for {settings.frequency} data"
+                   "); give decimals, e.g. 0.012 for 1.2%")
+
+
+def looks_like_percent(values: np.ndarray, frequency: str) -> bool:
+    """The stated percentage rule: median |v| above PERCENT_MEDIAN[frequency], or most |v| > 1."""
+    a = np.abs(values)
+    return bool(np.median(a) > PERCENT_MEDIAN[frequency] or np.mean(a > 1.0) > 0.5)
+
+
+# --------------------------------------------------------------------------- returns
+
+def validate_returns(raw: RawTable, holdings: Holdings | None, settings: Settings,
+                     coll: Collector) -> ReturnPanel | None:
+    """Long (``date,security_id,return``) or wide (``date`` + one column per id) returns."""
+    names = raw.table.column_names
+    if "security_id" in names or "return" in names:
+        return _returns_long(raw, holdings, settings, coll)
+    if "date" in names and len(names) > 1:
+        return _returns_wide(raw, holdings, settings, coll)
+    _require_columns(raw, ("date", "security_id", "return"), (), coll)
+    return None
+
+
+def _returns_long(raw, holdings, settings, coll) -> ReturnPanel | None:
+    if not _require_columns(raw, ("date", "security_id", "return"), (), coll):
+        return None
+    spec = settings.inputs["returns"]
+    dates = as_dates(raw, "date", spec.date_format, coll)
+    values = as_float(raw, "return", coll, spec.decimal, allow_empty=False)
+    enc = pc.dictionary_encode(raw.table["security_id"].cast(pa.string())).combine_chunks()
+    id_codes = enc.indices.to_numpy(zero_copy_only=False)
+    id_null = np.asarray(enc.indices.is_null().to_numpy(zero_copy_only=False))
+    capped = _Capped(coll, "empty security ids")
+    for i in np.flatnonzero(id_null):
+        capped.add(place(raw.name, raw.row_number(int(i)), "security_id"), "value is empty")
+    capped.close()
+    ids = [s.strip() for s in enc.dictionary.to_pylist()]
+
+    ok = ~np.isnat(dates) & ~id_null
+    rows = np.flatnonzero(ok)
+    keys = period_keys(dates[ok], settings.frequency)
+    codes = id_codes[ok].astype(np.int64)
+    uniq_keys, pidx = np.unique(keys, return_inverse=True)
+    n_ids = max(len(ids), 1)
+    combined = pidx.astype(np.int64) * n_ids + codes
+    space = len(uniq_keys) * n_ids
+    if space <= 50_000_000:
+        has_dupes = bool(len(combined)) and np.bincount(combined, minlength=space).max() > 1
+    else:
+        has_dupes = len(np.unique(combined)) < len(combined)
+    if has_dupes:
+        order = np.argsort(combined, kind="stable")
+        s = combined[order]
+        dup = np.flatnonzero(s[1:] == s[:-1]) + 1
+        capped = _Capped(coll, "repeated (date, security) rows")
+        for d in dup:
+            i, first = rows[order[d]], rows[order[d - 1]]
+            sid = ids[id_codes[i]]
+            if dates[i] == dates[first]:
+                agree = "same" if values[i] == values[first] else "different"
+                msg = (f"duplicate row for ({dates[i]}, {sid}) with the {agree} value "
+                       f"(first at row {raw.row_number(int(first))})")
+            else:
+                msg = (f"second return for {sid} in the same {_period_word(settings)} "
+                       f"({dates[first]} and {dates[i]}); the data do not look "
+                       f"{settings.frequency}")
+            capped.add(place(raw.name, raw.row_number(int(i)), "date"), msg)
+        capped.close()
+
+    below = np.flatnonzero(values < -1.0)
+    capped = _Capped(coll, "returns below -100%")
+    for i in below:
+        capped.add(place(raw.name, raw.row_number(int(i)), "return"),
+                   f"return {values[i]:g} is below -100%")
+    capped.close()
+
+    matrix = np.full((len(uniq_keys), len(ids)), np.nan)
+    matrix[pidx, codes] = values[ok]
+    first_row = np.full(len(ids), -1, dtype=np.int64)
+    # first row of each security, for messages about the whole security
+    rev = np.arange(len(rows))[::-1]
+    first_row[codes[rev]] = rows[rev]
+    return _finish_panel(raw, matrix, uniq_keys, ids, holdings, settings, coll, "long",
+                         lambda j: place(raw.name, raw.row_number(int(first_row[j])), "return"))
+
+
+def _returns_wide(raw, holdings, settings, coll) -> ReturnPanel | None:
+    spec = settings.inputs["returns"]
+    dates = as_dates(raw, "date", spec.date_format, coll)
+    ids = [c for c in raw.table.column_names if c != "date"]
+    cols = []
+    for sid in ids:
+        v = as_float(raw, sid, coll, spec.decimal, allow_empty=True)
+        below = np.flatnonzero(v < -1.0)
+        capped = _Capped(coll, f"returns below -100% in column {sid}")
+        for i in below:
+            capped.add(place(raw.name, raw.row_number(int(i)), sid),
+                       f"return {v[i]:g} is below -100%")
+        capped.close()
+        cols.append(v)
+    ok = ~np.isnat(dates)
+    keys = period_keys(dates[ok], settings.frequency)
+    rows = np.flatnonzero(ok)
+    order = np.argsort(keys, kind="stable")
+    dup = np.flatnonzero(np.diff(keys[order]) == 0) + 1
+    capped = _Capped(coll, "repeated dates")
+    for d in dup:
+        i, first = rows[order[d]], rows[order[d - 1]]
+        capped.add(place(raw.name, raw.row_number(int(i)), "date"),
+                   f"date {dates[i]} repeats the period of row {raw.row_number(int(first))}")
+    capped.close()
+    if len(dup):
+        return None
+    matrix = np.column_stack(cols)[ok][order] if cols else np.empty((int(ok.sum()), 0))
+    return _finish_panel(raw, matrix, keys[order], ids, holdings, settings, coll, "wide",
+                         lambda j: place(raw.name, 1, ids[j]))
+
+
+def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where_of):
+    """Per-security checks on the P x N matrix; reorder columns to the holdings' order."""
+    finite = np.isfinite(matrix)
+    with np.errstate(all="ignore"):
+        absm = np.where(finite, np.abs(matrix), np.nan)
+        med = np.nanmedian(absm, axis=0) if matrix.size else np.array([])
+        over1 = np.nanmean(np.where(finite, absm > 1.0, np.nan), axis=0) if matrix.size else med
+    pct = (med > PERCENT_MEDIAN[settings.frequency]) | (over1 > 0.5)
+    for j in np.flatnonzero(pct):
+        coll.error(where_of(j), f"returns for {ids[j]} look like percentages (median |return| "
+                   f"{med[j]:.3g} is above {PERCENT_MEDIAN[settings.frequency]} for "
+                   f"{settings.frequency} data); give decimals, e.g. 0.012 for 1.2%")
+    held = set(holdings.ids) if holdings is not None else set(ids)
+    unheld = [s for s in ids if s not in held]
+    if unheld and holdings is not None:
+        coll.warn(raw.name, f"{len(unheld)} security id(s) have returns but are not held, "
+                  "ignored: " + ", ".join(unheld[:8]) + (" ..." if len(unheld) > 8 else ""))
+    if holdings is None:
+        return None
+    col_of = {s: j for j, s in enumerate(ids)}
+    out = np.full((matrix.shape[0], len(holdings.ids)), np.nan)
+    for k, sid in enumerate(holdings.ids):
+        j = col_of.get(sid)
+        if j is not None:
+            out[:, k] = matrix[:, j]
+    run = longest_zero_run(out)
+    for k, sid in enumerate(holdings.ids):
+        if sid not in col_of:
+            coll.warn(place(settings.inputs["holdings"].display, None, "security_id"),
+                      f"holding {sid} has no return history in {raw.name}")
+        elif run[k] >= settings.stale_zero_run:
+            coll.warn(where_of(col_of[sid]), f"holding {sid} has {run[k]} exact-zero returns "
+                      "in a row: its prices may be stale")
+    return ReturnPanel(period_keys=np.asarray(keys), security_ids=holdings.ids, values=out,
+                       shape=shape, n_rows=raw.table.num_rows)
+
+
+def longest_zero_run(matrix: np.ndarray) -> np.ndarray:
+    """Longest run of exact-zero returns in each column (NaN breaks a run); vectorised."""
+    if matrix.size == 0:
+        return np.zeros(matrix.shape[1], dtype=int)
+    zero = matrix == 0.0
+    idx = np.arange(matrix.shape[0])[:, None]
+    last_break = np.maximum.accumulate(np.where(zero, -1, idx), axis=0)
+    run = np.where(zero, idx - last_break, 0)
+    return run.max(axis=0)
+
+
+# --------------------------------------------------------------------------- whole pack
+
+def read_inputs(settings: Settings) -> tuple[dict[str, RawTable], list]:
+    """Read every input file; returns the tables read and the problems of those that failed."""
+    raws: dict[str, RawTable] = {}
+    problems = []
+    for role, spec in settings.inputs.items():
+        try:
+            raws[role] = read_input(spec)
+        except InputError as exc:
+            problems.extend(exc.problems)
+    return raws, problems
+
+
+def validate_tables(settings: Settings, raws: dict[str, RawTable], read_problems=(),
+                    strict: bool = False) -> ValidInputs:
+    """Check every table; raise :class:`InputError` listing every problem found."""
+    coll = Collector()
+    coll.problems.extend(read_problems)
+    holdings = validate_holdings(raws["holdings"], settings, coll) if "holdings" in raws else None
+    market = validate_series(raws["market"], "return", settings, coll) if "market" in raws \
+        else None
+    rf = validate_series(raws["risk_free"], "rate", settings, coll) if "risk_free" in raws \
+        else None
+    panel = validate_returns(raws["returns"], holdings, settings, coll) if "returns" in raws \
+        else None
+    if market is not None and rf is not None:
+        _check_coverage(settings, market, rf, panel, coll)
+    coll.raise_if_errors(strict=strict)
+    assert holdings is not None and market is not None and rf is not None and panel is not None
+    return ValidInputs(holdings=holdings, returns=panel, market=market, risk_free=rf,
+                       warnings=coll.warnings)
+
+
+def validate_pack(settings: Settings, strict: bool = False) -> ValidInputs:
+    """Read and check every input in one call."""
+    raws, problems = read_inputs(settings)
+    return validate_tables(settings, raws, problems, strict=strict)
+
+
+def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
+                    panel: ReturnPanel | None, coll: Collector) -> None:
+    cfg = settings.config_path.name
+    end = np.datetime64(settings.period_end, "D")
+    end_key = period_keys(np.array([end]), settings.frequency)[0]
+    mkeys = period_keys(market.dates, settings.frequency)
+    mname, rname = settings.inputs["market"].display, settings.inputs["risk_free"].display
+    if mkeys[-1] < end_key:
+        coll.error(f"{cfg}:pack.period_end", f"period_end {settings.period_end} is after the "
+                   f"last date in {mname} ({market.dates[-1]})")
+        return
+    if panel is not None and len(panel.period_keys) and panel.period_keys[-1] < end_key:
+        coll.warn(settings.inputs["returns"].display,
+                  f"no holding has a return for the period of period_end {settings.period_end}")
+    upto = np.flatnonzero(mkeys <= end_key)
+    if len(upto) < settings.window:
+        coll.error(f"{cfg}:analysis.window", f"the window ({settings.window} periods) is longer "
+                   f"than the data: {mname} has {len(upto)} periods up to {settings.period_end}")
+        return
+    win = upto[-settings.window:]
+    gaps = frequency_gaps(market.dates[win], settings.frequency)
+    for g in gaps[:MAX_PER_CHECK]:
+        coll.error(mname, f"the dates {market.dates[win][g - 1]} and {market.dates[win][g]} are "
+                   f"not consecutive {settings.frequency} periods")
+    rkeys = period_keys(rf.dates, settings.frequency)
+    missing = np.setdiff1d(mkeys[win], rkeys)
+    if len(missing):
+        first = market.dates[win][np.isin(mkeys[win], missing)]
+        coll.error(rname, f"the risk-free series does not cover the window: {len(missing)} "
+                   f"period(s) missing, first {first[0]}")
