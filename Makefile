@@ -29,7 +29,7 @@ demo-data: $(STAMP)
 
 # Regenerate the golden results files after an intended change in the figures.
 golden: $(STAMP)
-	SOURCE_DATE_EPOCH=1764460800 $(BIN)/reporter build inputs/demo --out build/golden
+	SOURCE_DATE_EPOCH=1795996800 $(BIN)/reporter build inputs/demo --out build/golden
 	cp build/golden/results/securities.csv build/golden/results/portfolio.json tests/golden/
 
 clean:

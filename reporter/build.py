@@ -20,8 +20,9 @@ from reporter import __version__
 from reporter.analytics.pack import PackResults, analyse
 from reporter.charts import build_charts
 from reporter.config import INPUT_ROLES, Settings, load_settings
-from reporter.context import build_context
+from reporter.context import PackContext, build_context
 from reporter.errors import Problem
+from reporter.models import ValidInputs
 from reporter.progress import Progress
 from reporter.render.html import export_charts, render_html
 from reporter.render.pdf import render_pdf
@@ -83,13 +84,26 @@ def _json(obj) -> str:
     return json.dumps({k: clean(v) for k, v in obj.items()}, indent=2, sort_keys=True) + "\n"
 
 
-def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
-               progress: Progress | None = None) -> BuildReport:
-    """Build ``pack`` (folder or pack.toml) into ``out``: pack.html, pack.pdf, results/."""
+@dataclass(frozen=True)
+class Assembled:
+    """Everything computed for one pack, before any rendering to PDF or writing."""
+
+    settings: Settings
+    inputs: ValidInputs
+    results: PackResults
+    context: PackContext
+    svgs: dict
+    hashes: dict[str, str]
+
+    def html(self, for_print: bool = False) -> str:
+        return render_html(self.context, self.svgs, for_print=for_print,
+                           user_templates=self.settings.templates_dir)
+
+
+def assemble(settings: Settings, *, strict: bool = False,
+             progress: Progress | None = None) -> Assembled:
+    """Read, validate, analyse and chart one pack (no output is written)."""
     progress = progress or Progress(quiet=True)
-    out = Path(out)
-    settings = load_settings(pack)
-    check_target(out)
     with progress.stage("read"):
         raws, read_problems = read_inputs(settings)
     with progress.stage("validate"):
@@ -97,16 +111,25 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     with progress.stage("analyse"):
         res = analyse(inputs, settings)
         hashes = input_hashes(settings)
-        fp = fingerprint(hashes)
-    when = build_time()
     with progress.stage("chart"):
         charts = build_charts(res)
-        ctx = build_context(settings, inputs, res, charts, fp, when)
+        ctx = build_context(settings, inputs, res, charts, fingerprint(hashes), build_time())
         svgs = export_charts(ctx)
+    return Assembled(settings, inputs, res, ctx, svgs, hashes)
+
+
+def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
+               progress: Progress | None = None) -> BuildReport:
+    """Build ``pack`` (folder or pack.toml) into ``out``: pack.html, pack.pdf, results/."""
+    progress = progress or Progress(quiet=True)
+    out = Path(out)
+    settings = load_settings(pack)
+    check_target(out)
+    a = assemble(settings, strict=strict, progress=progress)
     with progress.stage("render"):
-        html = render_html(ctx, svgs, for_print=False, user_templates=settings.templates_dir)
-        pdf = render_pdf(render_html(ctx, svgs, for_print=True,
-                                     user_templates=settings.templates_dir))
+        html = a.html(for_print=False)
+        pdf = render_pdf(a.html(for_print=True))
+    res, ctx = a.results, a.context
     files = OutputSet()
     files.add("pack.html", html)
     files.add("pack.pdf", pdf)
@@ -114,15 +137,15 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     files.add("results/portfolio.json", _json(res.portfolio_summary()))
     files.add("results/manifest.json", _json({
         "tool_version": __version__,
-        "built_utc": when.strftime("%Y-%m-%dT%H:%M:%SZ"),
+        "built_utc": ctx.build_time.strftime("%Y-%m-%dT%H:%M:%SZ"),
         "period_end": settings.period_end.isoformat(),
         "title": settings.title,
         "organisation": settings.organisation,
-        "input_fingerprint": fp,
-        "input_sha256": hashes,
+        "input_fingerprint": ctx.fingerprint,
+        "input_sha256": a.hashes,
         "input_files": {r: settings.inputs[r].display for r in INPUT_ROLES},
-        "warnings": [str(w) for w in inputs.warnings],
+        "warnings": [str(w) for w in a.inputs.warnings],
     }))
     with progress.stage("write"):
         commit(files, out)
-    return BuildReport(out=out, files=files.paths, warnings=inputs.warnings, results=res)
+    return BuildReport(out=out, files=files.paths, warnings=a.inputs.warnings, results=res)

@@ -1,0 +1,136 @@
+"""Assertions on the demo pack, built once per session (see conftest.demo_build)."""
+
+from __future__ import annotations
+
+import json
+import re
+
+import numpy as np
+import pandas as pd
+import pypdf
+import pytest
+
+from reporter.analytics.pack import SECURITY_COLUMNS
+from tests.conftest import DEMO, GOLDEN
+
+REQUIRED = ["security_id", "name", "sector", "weight", "n_obs", "alpha", "alpha_se", "alpha_t",
+            "beta", "beta_se", "beta_t", "r_squared", "residual_vol", "mean_excess_return",
+            "sml_expected_excess", "sml_residual", "treynor"]
+SECTION_TITLES = ["Contents", "Summary", "Market risk", "Security market line",
+                  "Diversification", "Holdings appendix", "Methodology", "Cautions"]
+
+
+@pytest.fixture(scope="module")
+def pdf_text(demo_build) -> list[str]:
+    reader = pypdf.PdfReader(demo_build / "pack.pdf")
+    return [page.extract_text() for page in reader.pages]
+
+
+@pytest.fixture(scope="module")
+def html(demo_build) -> str:
+    return (demo_build / "pack.html").read_text(encoding="utf-8")
+
+
+def test_outputs_exist(demo_build):
+    for rel in ("pack.html", "pack.pdf", "results/securities.csv", "results/portfolio.json",
+                "results/manifest.json"):
+        assert (demo_build / rel).stat().st_size > 0, rel
+
+
+def test_securities_csv_columns_and_rows(demo_build):
+    sec = pd.read_csv(demo_build / "results/securities.csv")
+    assert list(sec.columns[: len(SECURITY_COLUMNS)]) == SECURITY_COLUMNS
+    assert set(REQUIRED) <= set(sec.columns)
+    holdings = pd.read_csv(DEMO / "holdings.csv")
+    assert sorted(sec["security_id"]) == sorted(holdings["security_id"])
+    # annualised columns are the per-period ones times 12 (monthly)
+    np.testing.assert_allclose(sec["alpha_ann"], sec["alpha"] * 12, rtol=1e-9)
+    # the holding listed 14 months ago is below min_obs = 24: counted, not fitted
+    short = sec[sec["n_obs"] < 24]
+    assert len(short) == 1 and short["beta"].isna().all() and short["n_obs"].iloc[0] == 14
+
+
+def test_portfolio_json_keys(demo_build):
+    p = json.loads((demo_build / "results/portfolio.json").read_text())
+    for key in ("beta_weighted", "beta_regression", "alpha", "r_squared", "tracking_error",
+                "sharpe", "treynor", "information_ratio", "n_holdings", "effective_n",
+                "systematic_share", "window_start", "window_end", "n_obs",
+                "mean_market_premium", "mean_risk_free"):
+        assert key in p, key
+    assert p["window_start"] == "2021-12-31" and p["window_end"] == "2026-11-30"
+    assert p["n_obs"] == 60 and p["n_holdings"] == 60
+    w = pd.read_csv(DEMO / "holdings.csv")["weight"].to_numpy()
+    np.testing.assert_allclose(p["effective_n"], 1 / np.sum(w**2), rtol=1e-12)
+    assert p["beta_ci_low"] < p["beta_regression"] < p["beta_ci_high"]
+
+
+def _compare_csv(got: pd.DataFrame, want: pd.DataFrame) -> None:
+    assert list(got.columns) == list(want.columns)
+    for col in want.columns:
+        if want[col].dtype.kind in "fi":
+            np.testing.assert_allclose(got[col], want[col], rtol=1e-9, atol=1e-15, err_msg=col)
+        else:
+            assert got[col].fillna("").tolist() == want[col].fillna("").tolist(), col
+
+
+def test_golden_results(demo_build):
+    # regenerate with `make golden` after an intended change in the figures
+    _compare_csv(pd.read_csv(demo_build / "results/securities.csv"),
+                 pd.read_csv(GOLDEN / "securities.csv"))
+    got = json.loads((demo_build / "results/portfolio.json").read_text())
+    want = json.loads((GOLDEN / "portfolio.json").read_text())
+    assert got.keys() == want.keys()
+    for k, v in want.items():
+        if isinstance(v, float):
+            np.testing.assert_allclose(got[k], v, rtol=1e-9, err_msg=k)
+        else:
+            assert got[k] == v, k
+
+
+def test_html_is_self_contained(html):
+    # no network URL of any kind: no scripts, fonts, images or styles from elsewhere
+    assert not re.search(r"(?i)\b(?:https?:)?//[a-z0-9.-]+\.[a-z]{2,}", html.replace(
+        "http://www.w3.org/2000/svg", "").replace("http://www.w3.org/1999/xlink", ""))
+    assert "<script" not in html.lower()
+    assert html.count("<svg") == 3
+    assert "<style>" in html
+
+
+def test_pdf_has_every_section_and_caution(pdf_text):
+    text = "\n".join(pdf_text)
+    for title in SECTION_TITLES:
+        assert title in text, title
+    flat = re.sub(r"\s+", " ", text)
+    for phrase in ("statistical estimate", "Past performance is not a reliable guide",
+                   "not investment advice", "appointed investment adviser",
+                   "regulation that applies to them locally", "depend on the estimation window"):
+        assert phrase in flat, phrase
+
+
+def test_pdf_layout(demo_build, pdf_text):
+    reader = pypdf.PdfReader(demo_build / "pack.pdf")
+    box = reader.pages[0].mediabox
+    # A4 is 595 x 842 points
+    assert round(float(box.width)) == 595 and round(float(box.height)) == 842
+    n = len(pdf_text)
+    assert f"Page 2 of {n}" in pdf_text[1] and f"Page {n} of {n}" in pdf_text[-1]
+    # running header (title and period) on every page but the cover
+    assert all("Period ending 30 November 2026" in t for t in pdf_text[1:])
+    # the holdings appendix spans pages and repeats its column headers on each
+    appendix = [t for t in pdf_text if "TVX0" in t and "Alpha (ann.)" in t]
+    assert len(appendix) >= 2
+    # the contents page lists page numbers that point at the right pages
+    contents = pdf_text[1]
+    m = re.search(r"Cautions\s*\.*\s*(\d+)", contents)
+    assert m and "Cautions" in pdf_text[int(m.group(1)) - 1]
+
+
+def test_cover_fingerprint_matches_manifest(demo_build, pdf_text):
+    manifest = json.loads((demo_build / "results/manifest.json").read_text())
+    fp = manifest["input_fingerprint"]
+    assert re.fullmatch(r"[0-9a-f]{64}", fp)
+    assert fp[:16] in pdf_text[0]
+    import hashlib
+
+    assert manifest["input_sha256"]["returns"] == hashlib.sha256(
+        (DEMO / "returns.csv").read_bytes()).hexdigest()

@@ -1,0 +1,61 @@
+"""Rendering: escaping of input strings, determinism, the layered template loader."""
+
+from __future__ import annotations
+
+import shutil
+
+import pandas as pd
+import pytest
+
+from reporter.build import assemble
+from reporter.config import load_settings
+from reporter.render.environment import bp, longdate, num, pct
+from tests.conftest import DEMO, FIXED_EPOCH
+
+
+@pytest.fixture()
+def demo_copy(tmp_path):
+    dest = tmp_path / "pack"
+    shutil.copytree(DEMO, dest)
+    return dest
+
+
+def test_input_strings_are_escaped(demo_copy, monkeypatch):
+    h = pd.read_csv(demo_copy / "holdings.csv")
+    h.loc[0, "name"] = "<script>alert('x')</script> & Co"
+    h.loc[1, "sector"] = "<b>Bold</b>"
+    h.to_csv(demo_copy / "holdings.csv", index=False)
+    html = assemble(load_settings(demo_copy)).html()
+    assert "<script>alert" not in html and "<b>Bold</b>" not in html
+    assert "&lt;script&gt;alert(&#39;x&#39;)&lt;/script&gt; &amp; Co" in html
+    assert "&lt;b&gt;Bold&lt;/b&gt;" in html
+
+
+def test_same_inputs_give_byte_identical_html(demo_build, monkeypatch):
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", FIXED_EPOCH)
+    first = assemble(load_settings(DEMO)).html()
+    second = assemble(load_settings(DEMO)).html()
+    assert first == second
+    assert first == (demo_build / "pack.html").read_text(encoding="utf-8")
+    assert "2026-11-30 00:00 UTC" in first
+
+
+def test_user_template_extends_default(demo_copy):
+    tpl = demo_copy / "my_templates"
+    tpl.mkdir()
+    (tpl / "pack.html.j2").write_text(
+        '{% extends "default/pack.html.j2" %}\n'
+        '{% block cautions_page %}{{ super() }}<p id="house-note">Prepared by the '
+        "secretariat of {{ organisation }}.</p>{% endblock %}\n")
+    toml = (demo_copy / "pack.toml").read_text() + '\n[render]\ntemplates = "my_templates"\n'
+    (demo_copy / "pack.toml").write_text(toml)
+    html = assemble(load_settings(demo_copy)).html()
+    assert '<p id="house-note">Prepared by the secretariat of Tarnbrook Valley' in html
+    assert "Past performance is not a reliable guide" in html  # the default block kept
+
+
+def test_display_filters():
+    assert pct(0.01234) == "1.2%" and pct(-0.01234, 2) == "\u22121.23%"
+    assert pct(0.05, 1, True) == "+5.0%" and pct(float("nan")) == "\u2013"
+    assert bp(0.0123) == "+123 bp" and num(1.23456, 3) == "1.235"
+    assert longdate("2026-11-30") == "30 November 2026"
