@@ -10,7 +10,7 @@ import altair as alt
 import numpy as np
 import pandas as pd
 
-from reporter.analytics.pack import PackResults
+from reporter.analytics.pack import PORTFOLIO_SERIES, PackResults
 from reporter.analytics.sml import ABOVE, BELOW, WITHIN
 
 INK, TEAL, OCHRE, BRICK, GREY = "#1d2b36", "#2a6f6f", "#b8741a", "#9c3b2e", "#6b7780"
@@ -115,9 +115,48 @@ def diversification_chart(res: PackResults) -> alt.LayerChart:
     return alt.layer(line, rule, rule_lab, pt, pt_lab).properties(width=WIDTH, height=260)
 
 
+def rolling_portfolio_chart(res: PackResults) -> alt.LayerChart:
+    """The portfolio's trailing-window beta with its confidence band (OLS errors)."""
+    t = res.rolling_table()
+    df = t[t["series"] == PORTFOLIO_SERIES].copy()
+    df["date"] = pd.to_datetime(df["date"])
+    x = alt.X("date:T", title=None, axis=alt.Axis(format="%Y"))
+    band = alt.Chart(df).mark_area(color=TEAL, opacity=0.18).encode(
+        x=x, y=alt.Y("beta_ci_low:Q", title=f"Beta, trailing {res.rolling.window} periods",
+                     scale=alt.Scale(zero=False)), y2="beta_ci_high:Q")
+    line = alt.Chart(df).mark_line(color=TEAL, strokeWidth=2).encode(
+        x=x, y="beta:Q", tooltip=[alt.Tooltip("date:T", format="%Y-%m-%d"),
+                                  alt.Tooltip("beta:Q", format=".2f")])
+    one = alt.Chart(pd.DataFrame({"y": [1.0]})).mark_rule(color=GREY, strokeDash=[4, 3]).encode(
+        y="y:Q")
+    return alt.layer(band, one, line).properties(width=WIDTH, height=220)
+
+
+def rolling_holdings_chart(res: PackResults, top: int = 10) -> alt.Chart:
+    """Trailing-window betas of the largest holdings, one small panel each."""
+    sec = res.securities.sort_values(["weight", "security_id"], ascending=[False, True])
+    ids = list(sec["security_id"].head(top))
+    names = dict(zip(sec["security_id"], sec["name"], strict=True))
+    t = res.rolling_table()
+    df = t[t["series"].isin(ids)].copy()
+    df["date"] = pd.to_datetime(df["date"])
+    df["holding"] = df["series"].map(names)
+    order = [names[i] for i in ids]
+    return alt.Chart(df).mark_line(color=INK, strokeWidth=1.2).encode(
+        x=alt.X("date:T", title=None, axis=alt.Axis(format="%Y", tickCount=4)),
+        y=alt.Y("beta:Q", title="Beta", scale=alt.Scale(zero=False)),
+        tooltip=["holding:N", alt.Tooltip("date:T", format="%Y-%m-%d"),
+                 alt.Tooltip("beta:Q", format=".2f")],
+    ).properties(width=150, height=80).facet(
+        facet=alt.Facet("holding:N", sort=order, title=None,
+                        header=alt.Header(labelFontSize=9, labelLimit=150)), columns=3)
+
+
 def build_charts(res: PackResults) -> dict[str, alt.TopLevelMixin]:
     """Every chart of the pack, keyed by the name the templates use."""
     return {
+        "rolling_portfolio": rolling_portfolio_chart(res),
+        "rolling_holdings": rolling_holdings_chart(res),
         "sml": sml_chart(res),
         "sectors": sector_chart(res),
         "diversification": diversification_chart(res),

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Annotated, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
+from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from reporter.errors import InputError, Problem
 
@@ -68,6 +68,12 @@ class AnalysisSection(_Strict):
     window: Annotated[int, Field(ge=3, le=100_000)] = 60
     min_obs: Annotated[int, Field(ge=3, le=100_000)] = 24
     confidence: Annotated[float, Field(gt=0.5, lt=1.0)] = 0.95
+    errors: Literal["hac", "ols"] = "hac"
+    hac_lags: Annotated[int, Field(ge=0, le=1000)] | None = None
+    blume_intercept: float = 0.33
+    blume_slope: float = 0.67
+    dimson_lags: Annotated[int, Field(ge=1, le=10)] = 1
+    rolling_window: Annotated[int, Field(ge=6, le=100_000)] | None = None
 
 
 class ChecksSection(_Strict):
@@ -121,6 +127,12 @@ class Settings:
     window: int
     min_obs: int
     confidence: float
+    errors: str
+    hac_lags: int | None
+    blume_intercept: float
+    blume_slope: float
+    dimson_lags: int
+    rolling_window: int
     weight_tolerance: float
     normalise_weights: bool
     allow_short: bool
@@ -132,6 +144,7 @@ class Settings:
         return PERIODS_PER_YEAR[self.frequency]
 
 
+DEFAULT_ROLLING_WINDOW = {"monthly": 36, "weekly": 104, "daily": 252}
 DEFAULT_STALE_RUN = {"monthly": 3, "weekly": 4, "daily": 5}
 
 
@@ -241,6 +254,12 @@ def load_settings(pack: Path | str) -> Settings:
         window=model.analysis.window,
         min_obs=model.analysis.min_obs,
         confidence=model.analysis.confidence,
+        errors=model.analysis.errors,
+        hac_lags=model.analysis.hac_lags,
+        blume_intercept=model.analysis.blume_intercept,
+        blume_slope=model.analysis.blume_slope,
+        dimson_lags=model.analysis.dimson_lags,
+        rolling_window=model.analysis.rolling_window or DEFAULT_ROLLING_WINDOW[freq],
         weight_tolerance=model.checks.weight_tolerance,
         normalise_weights=model.checks.normalise_weights,
         allow_short=model.checks.allow_short,

@@ -41,6 +41,7 @@ class Section:
 SECTIONS = (
     Section("summary", "Summary"),
     Section("market-risk", "Market risk"),
+    Section("beta", "Beta estimates"),
     Section("sml", "Security market line"),
     Section("diversification", "Diversification"),
     Section("holdings", "Holdings appendix"),
@@ -77,6 +78,13 @@ class PackContext:
     sectors: list[dict]
     unfitted: list[dict]
     data_notes: list[str]
+    errors: str                      # "hac" | "ols"
+    hac_lags: int | None
+    rolling_window: int
+    blume: tuple[float, float]       # intercept, slope
+    dimson_lags: int
+    show_thin_trading: bool          # daily or weekly data
+    beta_not_one: list[dict]         # holdings whose beta interval excludes 1
     curve_90: int                    # holdings at which 90% of diversifiable variance is gone
     curve_95: int
     charts: dict[str, alt.TopLevelMixin] = field(repr=False)
@@ -87,6 +95,13 @@ class PackContext:
 def _records(df) -> list[dict]:
     return [{k: (None if isinstance(v, float) and np.isnan(v) else v) for k, v in r.items()}
             for r in df.to_dict(orient="records")]
+
+
+def _holdings_to_remove(res: PackResults, share: float) -> int:
+    """Smallest n at which an equal-weight portfolio has removed ``share`` of the
+    diversifiable variance: 1 - 1/n >= share."""
+    n = np.arange(1, 10_000)
+    return int(n[np.argmax(res.curve.diversifiable_removed(n) >= share - 1e-12)])
 
 
 def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
@@ -121,6 +136,12 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         sectors=_records(res.sectors),
         unfitted=_records(unfitted),
         data_notes=notes,
-        curve_90=10, curve_95=20,  # 1 - 1/n reaches 90% at n = 10 and 95% at n = 20
+        errors=settings.errors, hac_lags=settings.hac_lags,
+        rolling_window=settings.rolling_window,
+        blume=(settings.blume_intercept, settings.blume_slope),
+        dimson_lags=settings.dimson_lags,
+        show_thin_trading=settings.frequency in ("daily", "weekly"),
+        beta_not_one=_records(by_weight[by_weight["beta_differs_from_1"].astype(bool)]),
+        curve_90=_holdings_to_remove(res, 0.90), curve_95=_holdings_to_remove(res, 0.95),
         charts=charts,
     )

@@ -8,20 +8,25 @@ spreadsheet's row number, a Parquet file's 1-based row).
 
 from __future__ import annotations
 
+import csv
 import datetime as dt
+import functools
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
 import pyarrow as pa
+import pyarrow.compute as pc
 import pyarrow.csv as pacsv
 import pyarrow.parquet as pq
 
 from reporter.config import InputSpec
-from reporter.errors import InputError, Problem
+from reporter.errors import InputError, Problem, place
 
 # Columns that are identifiers or labels: always read as text, never inferred.
 TEXT_COLUMNS = ("date", "security_id", "name", "sector", "asset_class", "currency", "country")
 SUPPORTED = (".csv", ".txt", ".xlsx", ".parquet", ".pq")
+MAX_BAD_LINES = 10
 
 
 @dataclass(frozen=True)
@@ -32,9 +37,13 @@ class RawTable:
     table: pa.Table
     first_row: int       # row number of the first data row as the user sees it
     format: str          # "csv" | "xlsx" | "parquet"
+    # user-visible row number of each data row, when blank rows were dropped (else None)
+    rows: np.ndarray | None = None
 
     def row_number(self, index: int) -> int:
         """The user-visible row number of 0-based data row ``index``."""
+        if self.rows is not None:
+            return int(self.rows[index])
         return self.first_row + index
 
 
@@ -66,24 +75,69 @@ def _read_csv(spec: InputSpec) -> RawTable:
     if dupes:
         raise InputError([Problem(f"{spec.display}:1:{c}", "column name appears more than once")
                           for c in dupes])
+    table, bad = _read_csv_body(spec, header, use_threads=True)
+    if bad:
+        if any(row.number is None for row in bad):
+            # a multi-threaded read does not know line numbers: re-read to name the lines
+            table, bad = _read_csv_body(spec, header, use_threads=False)
+        problems = [Problem(place(spec.display, row.number),
+                            f"expected {row.expected_columns} fields (delimiter "
+                            f"{spec.delimiter!r}), found {row.actual_columns}")
+                    for row in bad[:MAX_BAD_LINES]]
+        if len(bad) > MAX_BAD_LINES:
+            problems.append(Problem(spec.display, f"... and {len(bad) - MAX_BAD_LINES} more "
+                                    "lines with the wrong number of fields"))
+        raise InputError(problems)
+    table, rows = _drop_blank_rows(table, first_row=2)
+    return RawTable(spec.display, table, 2, "csv", rows)
+
+
+def _read_csv_body(spec: InputSpec, header: list[str], *, use_threads: bool):
+    """Read the data lines under ``header``; returns the table and the malformed lines.
+
+    The header's names are passed in (stripped of spaces), so that ``date, return`` gives a
+    column ``return``. Blank lines are kept as all-null rows here (see :func:`_drop_blank_rows`)
+    so that row numbers stay the file's line numbers. Only an empty field is null: text such as
+    ``NA`` or ``null`` is kept as written (a security id may well be ``NA``), and in a number
+    column it is reported as not a number.
+    """
+    bad: list = []
+
+    def on_bad_row(row) -> str:
+        bad.append(row)
+        return "skip"
+
     table = pacsv.read_csv(
         spec.path,
-        read_options=pacsv.ReadOptions(use_threads=True, block_size=1 << 24),
-        parse_options=pacsv.ParseOptions(delimiter=spec.delimiter),
+        read_options=pacsv.ReadOptions(use_threads=use_threads, block_size=1 << 24,
+                                       column_names=header, skip_rows=1),
+        parse_options=pacsv.ParseOptions(delimiter=spec.delimiter, ignore_empty_lines=False,
+                                         invalid_row_handler=on_bad_row),
         convert_options=pacsv.ConvertOptions(
             column_types={c: pa.string() for c in header if c in TEXT_COLUMNS},
             decimal_point=spec.decimal,
             strings_can_be_null=True,
+            null_values=[""],
         ),
     )
-    return RawTable(spec.display, table, 2, "csv")
+    return table, bad
+
+
+def _drop_blank_rows(table: pa.Table, first_row: int) -> tuple[pa.Table, np.ndarray | None]:
+    """Drop rows in which every field is empty; return the kept rows' user-visible numbers."""
+    if table.num_columns == 0 or table.num_rows == 0:
+        return table, None
+    blank = functools.reduce(pc.and_, [pc.is_null(c) for c in table.columns])
+    blank = np.asarray(blank.to_numpy(zero_copy_only=False), dtype=bool)
+    if not blank.any():
+        return table, None
+    keep = ~blank
+    return table.filter(pa.array(keep)), np.flatnonzero(keep) + first_row
 
 
 def _csv_header(path: Path, delimiter: str) -> list[str]:
     with open(path, encoding="utf-8-sig", newline="") as fh:
         line = fh.readline()
-    import csv
-
     rows = list(csv.reader([line], delimiter=delimiter))
     return [c.strip() for c in rows[0]] if rows and rows[0] else []
 
@@ -113,7 +167,8 @@ def _read_xlsx(spec: InputSpec) -> RawTable:
             continue
         values = [r[j] if j < len(r) else None for r in body]
         columns[name] = _xlsx_column(values, force_text=name in TEXT_COLUMNS)
-    return RawTable(spec.display, pa.table(columns), 2, "xlsx")
+    table, rows = _drop_blank_rows(pa.table(columns), first_row=2)
+    return RawTable(spec.display, table, 2, "xlsx", rows)
 
 
 def _xlsx_column(values: list, force_text: bool) -> pa.Array:
@@ -128,7 +183,23 @@ def _xlsx_column(values: list, force_text: bool) -> pa.Array:
             return str(int(v))
         return str(v)
 
+    if all(v is None or _is_calendar_date(v) for v in values) and any(
+            v is not None for v in values):
+        # real date cells: keep them as dates, so that date_format (for text dates) is not
+        # applied to the ISO text they would otherwise become
+        return pa.array([None if v is None else _as_date(v) for v in values], type=pa.date32())
     if not force_text and all(v is None or (isinstance(v, int | float) and not isinstance(v, bool))
                               for v in values):
         return pa.array([None if v is None else float(v) for v in values], type=pa.float64())
     return pa.array([text(v) for v in values], type=pa.string())
+
+
+def _is_calendar_date(v) -> bool:
+    """A date cell, or a datetime cell at midnight (how spreadsheets store dates)."""
+    if isinstance(v, dt.datetime):
+        return v.time() == dt.time(0) and v.tzinfo is None
+    return isinstance(v, dt.date)
+
+
+def _as_date(v) -> dt.date:
+    return v.date() if isinstance(v, dt.datetime) else v

@@ -255,8 +255,9 @@ def validate_series(raw: RawTable, value_col: str, settings: Settings,
     for d in dup:
         i, first = rows[order[d]], rows[order[d - 1]]
         same = dates[i] == dates[first]
+        what = "duplicate date " if same else f"second date in the same {_period_word(settings)} "
         capped.add(place(raw.name, raw.row_number(int(i)), "date"),
-                   ("duplicate date " if same else f"second date in the same {_period_word(settings)} ")
+                   what
                    + f"{dates[i]} (first at row {raw.row_number(int(first))})"
                    + ("" if same else f"; the data do not look {settings.frequency}"))
     capped.close()

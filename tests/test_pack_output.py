@@ -16,7 +16,7 @@ from tests.conftest import DEMO, GOLDEN
 REQUIRED = ["security_id", "name", "sector", "weight", "n_obs", "alpha", "alpha_se", "alpha_t",
             "beta", "beta_se", "beta_t", "r_squared", "residual_vol", "mean_excess_return",
             "sml_expected_excess", "sml_residual", "treynor"]
-SECTION_TITLES = ["Contents", "Summary", "Market risk", "Security market line",
+SECTION_TITLES = ["Contents", "Summary", "Market risk", "Beta estimates", "Security market line",
                   "Diversification", "Holdings appendix", "Methodology", "Cautions"]
 
 
@@ -92,7 +92,7 @@ def test_html_is_self_contained(html):
     assert not re.search(r"(?i)\b(?:https?:)?//[a-z0-9.-]+\.[a-z]{2,}", html.replace(
         "http://www.w3.org/2000/svg", "").replace("http://www.w3.org/1999/xlink", ""))
     assert "<script" not in html.lower()
-    assert html.count("<svg") == 3
+    assert html.count("<svg") == 5
     assert "<style>" in html
 
 

@@ -20,8 +20,18 @@ from reporter.analytics.diversification import (
 from reporter.analytics.regression import (
     MarketModelFits,
     PortfolioFit,
+    Prepared,
+    RollingBetas,
+    blume_beta,
+    dimson_beta,
     fit_market_model,
     fit_portfolio,
+    hac_standard_errors,
+    rolling_betas,
+    scholes_williams_beta,
+    t_critical,
+    up_down_betas,
+    vasicek_beta,
 )
 from reporter.analytics.returns import Window, period_keys, portfolio_returns
 from reporter.analytics.sml import (
@@ -39,7 +49,12 @@ SECURITY_COLUMNS = [
     "mean_excess_return", "sml_expected_excess", "sml_residual", "treynor", "sml_position",
     "alpha_ann", "residual_vol_ann", "mean_excess_return_ann", "sml_expected_excess_ann",
     "sml_residual_ann", "treynor_ann",
+    "alpha_se_hac", "beta_se_hac", "beta_ci_low", "beta_ci_high", "beta_differs_from_1",
+    "alpha_differs_from_0", "beta_blume", "beta_vasicek", "beta_up", "beta_down",
+    "beta_dimson", "beta_scholes_williams",
 ]
+ROLLING_COLUMNS = ["date", "series", "beta", "beta_se", "beta_ci_low", "beta_ci_high"]
+PORTFOLIO_SERIES = "PORTFOLIO"
 
 
 @dataclass(frozen=True)
@@ -60,6 +75,29 @@ class PackResults:
     curve: EqualWeightCurve
     securities: pd.DataFrame
     periods_per_year: int
+    errors: str                       # "hac" | "ols": errors behind intervals and tests
+    history_dates: np.ndarray         # every market period up to period_end
+    rolling: RollingBetas             # holdings, over history_dates
+    rolling_portfolio: RollingBetas   # the portfolio (one column), over history_dates
+    portfolio_extra: dict             # up/down and thin-trading betas of the portfolio
+    confidence: float
+
+    def rolling_table(self) -> pd.DataFrame:
+        """Long table of rolling betas (:data:`ROLLING_COLUMNS`), portfolio first, complete
+        windows only; dates ascending."""
+        tcrit = float(t_critical(self.confidence, self.rolling.window - 2))
+        ids = (PORTFOLIO_SERIES,) + tuple(self.window.security_ids)
+        beta = np.column_stack([self.rolling_portfolio.beta, self.rolling.beta])
+        se = np.column_stack([self.rolling_portfolio.beta_se, self.rolling.beta_se])
+        t_idx, j_idx = np.nonzero(np.isfinite(beta))
+        order = np.lexsort((t_idx, j_idx))
+        t_idx, j_idx = t_idx[order], j_idx[order]
+        b, e = beta[t_idx, j_idx], se[t_idx, j_idx]
+        return pd.DataFrame({
+            "date": np.asarray(self.history_dates)[t_idx].astype(str),
+            "series": np.asarray(ids, dtype=object)[j_idx],
+            "beta": b, "beta_se": e, "beta_ci_low": b - tcrit * e, "beta_ci_high": b + tcrit * e,
+        })
 
     def portfolio_summary(self) -> dict:
         """The flat figures written to ``results/portfolio.json`` (see README for units)."""
@@ -78,12 +116,16 @@ class PackResults:
             "beta_weighted": self.beta_weighted,
             "beta_regression": f.beta,
             "beta_se": f.beta_se,
+            "beta_se_hac": f.beta_se_hac,
+            "hac_lags": f.hac_lags,
+            "errors": f.errors,
             "beta_t": f.beta_t,
             "beta_ci_low": f.beta_ci[0],
             "beta_ci_high": f.beta_ci[1],
             "fitted_weight": self.fitted_weight,
             "alpha": f.alpha,
             "alpha_se": f.alpha_se,
+            "alpha_se_hac": f.alpha_se_hac,
             "alpha_t": f.alpha_t,
             "alpha_ci_low": f.alpha_ci[0],
             "alpha_ci_high": f.alpha_ci[1],
@@ -115,15 +157,20 @@ class PackResults:
             "idiosyncratic_share": 1.0 - self.variance.systematic_share,
             "average_variance": self.curve.average_variance,
             "average_covariance": self.curve.average_covariance,
+            "rolling_window": self.rolling.window,
+            **self.portfolio_extra,
         }
 
 
-def build_window(inputs: ValidInputs, settings: Settings) -> Window:
-    """The last ``settings.window`` market periods up to ``period_end``, with aligned data."""
+def build_window(inputs: ValidInputs, settings: Settings, periods: int | None = None) -> Window:
+    """The last ``periods`` (default ``settings.window``) market periods up to ``period_end``,
+    with aligned data; ``periods=0`` takes every market period up to ``period_end``."""
     freq = settings.frequency
     end_key = period_keys(np.array([np.datetime64(settings.period_end, "D")]), freq)[0]
     mkeys_all = period_keys(inputs.market.dates, freq)
-    idx = np.flatnonzero(mkeys_all <= end_key)[-settings.window:]
+    n = settings.window if periods is None else periods
+    idx = np.flatnonzero(mkeys_all <= end_key)
+    idx = idx[-n:] if n else idx
     mkeys = mkeys_all[idx]
     rf = _align(inputs.risk_free, mkeys, freq)
     panel = inputs.returns
@@ -149,11 +196,19 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
     win = build_window(inputs, settings)
     weights = inputs.holdings.weights
     x = win.market_excess
-    fits = fit_market_model(win.excess_returns, x, settings.min_obs)
-    sml = security_market_line(fits, x, win.risk_free, settings.confidence)
+    y = win.excess_returns
+    prep = Prepared.of(y, x)
+    fits = fit_market_model(y, x, settings.min_obs, prep=prep)
+    alpha_se_hac, beta_se_hac = hac_standard_errors(y, x, fits, settings.hac_lags, prep=prep)
+    use_hac = settings.errors == "hac"
+    a_se = alpha_se_hac if use_hac else fits.alpha_se
+    b_se = beta_se_hac if use_hac else fits.beta_se
+    sml = security_market_line(fits, x, win.risk_free, settings.confidence, alpha_se=a_se)
+    tcrit = t_critical(settings.confidence, np.maximum(fits.n_obs - 2, 1))
 
     port = portfolio_returns(win.returns, weights)
-    pfit = fit_portfolio(port - win.risk_free, x, settings.confidence)
+    pfit = fit_portfolio(port - win.risk_free, x, settings.confidence, settings.errors,
+                         settings.hac_lags)
     ok = fits.fitted
     fitted_weight = float(weights[ok].sum())
     beta_weighted = float(weights[ok] @ fits.beta[ok] / fitted_weight) if ok.any() else np.nan
@@ -164,6 +219,22 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
     var = variance_split(weights, fits.beta, fits.residual_vol, x)
     curve = equal_weight_curve(pairwise_covariance(win.returns[:, ok]))
 
+    beta_up, beta_down = up_down_betas(y, x, settings.min_obs, prep=prep)
+    port_ex = (port - win.risk_free)[:, None]
+    dimson = np.concatenate([dimson_beta(port_ex, x, settings.dimson_lags, settings.min_obs),
+                             dimson_beta(y, x, settings.dimson_lags, settings.min_obs, prep)])
+    sw = np.concatenate([scholes_williams_beta(port_ex, x, settings.min_obs),
+                         scholes_williams_beta(y, x, settings.min_obs)])
+    p_up, p_down = up_down_betas(port_ex, x, settings.min_obs)
+
+    hist = build_window(inputs, settings, periods=0)
+    rolling = rolling_betas(hist.excess_returns, hist.market_excess, settings.rolling_window)
+    hist_port = portfolio_returns(hist.returns, weights) - hist.risk_free
+    rolling_port = rolling_betas(hist_port[:, None], hist.market_excess, settings.rolling_window)
+
+    with np.errstate(invalid="ignore"):
+        beta_lo, beta_hi = fits.beta - tcrit * b_se, fits.beta + tcrit * b_se
+        alpha_lo, alpha_hi = fits.alpha - tcrit * a_se, fits.alpha + tcrit * a_se
     sec = pd.DataFrame({
         "security_id": hold["security_id"].to_numpy(),
         "name": hold["name"].to_numpy(),
@@ -182,13 +253,34 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
     sec["residual_vol_ann"] = sec["residual_vol"] * np.sqrt(P)
     for col in ("mean_excess_return", "sml_expected_excess", "sml_residual", "treynor"):
         sec[f"{col}_ann"] = sec[col] * P
+    sec["alpha_se_hac"] = alpha_se_hac
+    sec["beta_se_hac"] = beta_se_hac
+    sec["beta_ci_low"] = beta_lo
+    sec["beta_ci_high"] = beta_hi
+    sec["beta_differs_from_1"] = np.where(ok, (beta_lo > 1) | (beta_hi < 1), False)
+    sec["alpha_differs_from_0"] = np.where(ok, (alpha_lo > 0) | (alpha_hi < 0), False)
+    sec["beta_blume"] = blume_beta(fits.beta, settings.blume_intercept, settings.blume_slope)
+    sec["beta_vasicek"] = vasicek_beta(fits.beta, fits.beta_se)
+    sec["beta_up"] = np.where(ok, beta_up, np.nan)
+    sec["beta_down"] = np.where(ok, beta_down, np.nan)
+    sec["beta_dimson"] = np.where(ok, dimson[1:], np.nan)
+    sec["beta_scholes_williams"] = np.where(ok, sw[1:], np.nan)
     extra = [c for c in ("asset_class", "currency", "country", "market_value") if c in hold]
     for c in extra:
         sec[c] = hold[c].to_numpy()
     sec = sec[SECURITY_COLUMNS + extra]
+    portfolio_extra = {
+        "beta_up": float(p_up[0]), "beta_down": float(p_down[0]),
+        "beta_dimson": float(dimson[0]), "beta_scholes_williams": float(sw[0]),
+        "beta_blume": float(blume_beta(pfit.beta, settings.blume_intercept,
+                                       settings.blume_slope)),
+        "dimson_lags": settings.dimson_lags,
+    }
     return PackResults(
         window=win, fits=fits, sml=sml, portfolio_series=port, portfolio_fit=pfit,
         beta_weighted=beta_weighted, fitted_weight=fitted_weight, ratios=ratios,
         concentration=conc, sectors=sectors, variance=var, curve=curve, securities=sec,
-        periods_per_year=P,
+        periods_per_year=P, errors=settings.errors, history_dates=hist.dates,
+        rolling=rolling, rolling_portfolio=rolling_port, portfolio_extra=portfolio_extra,
+        confidence=settings.confidence,
     )

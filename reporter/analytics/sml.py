@@ -29,20 +29,23 @@ class SecurityMarketLine:
 
 
 def security_market_line(fits: MarketModelFits, market_excess: np.ndarray,
-                         risk_free: np.ndarray, confidence: float) -> SecurityMarketLine:
+                         risk_free: np.ndarray, confidence: float,
+                         alpha_se: np.ndarray | None = None) -> SecurityMarketLine:
     """Place each holding against the ex post SML drawn from the window's mean premium.
 
     A holding is called above (below) the line only when its alpha's confidence interval
-    lies wholly above (below) zero; otherwise it is within estimation error.
+    lies wholly above (below) zero; otherwise it is within estimation error. ``alpha_se``
+    (e.g. Newey-West) replaces the OLS errors in that test when given.
     """
+    se = fits.alpha_se if alpha_se is None else alpha_se
     mrp = float(np.mean(market_excess))
     expected = fits.beta * mrp
     with np.errstate(invalid="ignore", divide="ignore"):
         residual = fits.mean_excess - expected
         treynor = fits.mean_excess / fits.beta
         tcrit = t_critical(confidence, np.maximum(fits.n_obs - 2, 1))
-        lo = fits.alpha - tcrit * fits.alpha_se
-        hi = fits.alpha + tcrit * fits.alpha_se
+        lo = fits.alpha - tcrit * se
+        hi = fits.alpha + tcrit * se
     position = np.where(~fits.fitted, "", np.where(lo > 0, ABOVE, np.where(hi < 0, BELOW,
                                                                            WITHIN)))
     return SecurityMarketLine(
