@@ -134,3 +134,29 @@ def test_cover_fingerprint_matches_manifest(demo_build, pdf_text):
 
     assert manifest["input_sha256"]["returns"] == hashlib.sha256(
         (DEMO / "returns.csv").read_bytes()).hexdigest()
+
+
+def test_beta_columns_and_rolling_file(demo_build):
+    sec = pd.read_csv(demo_build / "results/securities.csv")
+    fitted = sec[sec["status"] == "fitted"]
+    for col in ("beta_se_hac", "alpha_se_hac", "beta_blume", "beta_vasicek", "beta_up",
+                "beta_down", "beta_dimson", "beta_scholes_williams"):
+        assert fitted[col].notna().all(), col
+    np.testing.assert_allclose(fitted["beta_blume"], 0.33 + 0.67 * fitted["beta"], rtol=1e-9)
+    # intervals in the pack use Newey-West errors by default (t with n-2 df at 95%)
+    from scipy import stats
+
+    t = stats.t.ppf(0.975, fitted["n_obs"] - 2)
+    np.testing.assert_allclose(fitted["beta_ci_high"] - fitted["beta"],
+                               t * fitted["beta_se_hac"], rtol=1e-8)
+    assert (fitted["beta_differs_from_1"] == ((fitted["beta_ci_low"] > 1)
+                                              | (fitted["beta_ci_high"] < 1))).all()
+    roll = pd.read_csv(demo_build / "results/rolling_beta.csv")
+    assert list(roll.columns) == ["date", "series", "beta", "beta_se", "beta_ci_low",
+                                  "beta_ci_high"]
+    port = roll[roll["series"] == "PORTFOLIO"]
+    # 120 months of history and a 36-month window: 85 complete windows
+    assert len(port) == 85 and port["date"].iloc[-1] == "2026-11-30"
+    # the holding suspended for five months has no value in windows that span the gap
+    gapped = roll[roll["series"] == "TVX042"]
+    assert 0 < len(gapped) < 85
