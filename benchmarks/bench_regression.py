@@ -8,9 +8,9 @@ Run: ``python benchmarks/bench_regression.py``.
 from __future__ import annotations
 
 import platform
-import time
 
 import numpy as np
+from timing import best_of
 
 from reporter.analytics.regression import (
     Prepared,
@@ -40,15 +40,6 @@ def make_data(seed: int = 1):
         start = rng.integers(100, 2300)
         y[start: start + rng.integers(5, 60), j] = np.nan
     return y, x
-
-
-def best_of(fn, repeat: int = 5) -> float:
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return min(times)
 
 
 def regression_stage(y, x):
