@@ -83,8 +83,12 @@ def _run(fn, debug: bool):
             click.echo(str(p), err=True)
         if len(problems) > MAX_LINES:
             click.echo(f"... and {len(problems) - MAX_LINES} more problems", err=True)
-        click.echo(f"reporter: {len(errors)} error(s) in the inputs; nothing was written",
-                   err=True)
+        n_warn = len(problems) - len(errors)
+        if errors:
+            summary = f"{len(errors)} error(s) in the inputs"
+        else:
+            summary = f"{n_warn} warning(s) treated as errors (--strict)"
+        click.echo(f"reporter: {summary}; nothing was written", err=True)
         raise _Exit(exc.exit_code) from None
     except ReporterError as exc:
         if debug:

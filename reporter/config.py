@@ -159,6 +159,9 @@ def _pydantic_problems(err: ValidationError, fname: str) -> list[Problem]:
     problems: dict[str, Problem] = {}
     for e in err.errors():
         loc = tuple(e["loc"])
+        if "str" in loc and isinstance(e.get("input"), dict):
+            # a table given for a `str | table` field: only the table's own errors matter
+            continue
         key = _loc(loc) or "(top level)"
         kind = e["type"]
         if kind == "extra_forbidden":
@@ -209,6 +212,9 @@ def load_settings(pack: Path | str) -> Settings:
 
     inputs: dict[str, InputSpec] = {}
     defaults = model.inputs
+    fmt_problem = date_format_problem(defaults.date_format)
+    if fmt_problem:
+        problems.append(Problem(f"{fname}:inputs.date_format", fmt_problem))
     for role in INPUT_ROLES:
         entry = getattr(defaults, role)
         spec = entry if isinstance(entry, InputFile) else InputFile(path=entry)
@@ -225,6 +231,9 @@ def load_settings(pack: Path | str) -> Settings:
             decimal=spec.decimal or defaults.decimal,
             date_format=spec.date_format or defaults.date_format,
         )
+        fmt_problem = date_format_problem(spec.date_format) if spec.date_format else None
+        if fmt_problem:
+            problems.append(Problem(f"{fname}:inputs.{role}.date_format", fmt_problem))
         if spec.sheet is not None and path.suffix.lower() != ".xlsx":
             problems.append(Problem(f"{fname}:inputs.{role}.sheet",
                                     "a sheet applies only to an .xlsx file"))
@@ -266,6 +275,20 @@ def load_settings(pack: Path | str) -> Settings:
         stale_zero_run=model.checks.stale_zero_run or DEFAULT_STALE_RUN[freq],
         templates_dir=templates_dir,
     )
+
+
+def date_format_problem(fmt: str) -> str | None:
+    """Why ``fmt`` cannot read dates, or None. ``fmt`` is a ``strptime`` format that must give
+    at least the year and the month (a monthly file may leave out the day); it is tried on a
+    sample date, so that a bad directive is reported here rather than failing the read."""
+    sample = dt.date(2001, 2, 3)
+    try:
+        parsed = dt.datetime.strptime(sample.strftime(fmt), fmt)
+    except ValueError as exc:
+        return f"date format {fmt!r} cannot be used: {exc}"
+    if (parsed.year, parsed.month) != (sample.year, sample.month):
+        return f"date format {fmt!r} does not give the year and the month"
+    return None
 
 
 def _guarded_path(base: Path, rel: str, where: str, problems: list[Problem], *,

@@ -56,7 +56,9 @@ def read_input(spec: InputSpec) -> RawTable:
         if suffix == ".xlsx":
             return _read_xlsx(spec)
         if suffix in (".parquet", ".pq"):
-            return RawTable(spec.display, pq.read_table(spec.path), 1, "parquet")
+            table = pq.read_table(spec.path)
+            _refuse_duplicate_columns(spec.display, table.column_names)
+            return RawTable(spec.display, table, 1, "parquet")
     except InputError:
         raise
     except (pa.ArrowException, OSError, ValueError, KeyError) as exc:
@@ -71,10 +73,7 @@ def _read_csv(spec: InputSpec) -> RawTable:
     header = _csv_header(spec.path, spec.delimiter)
     if not header:
         raise InputError([Problem(spec.display, "the file is empty")])
-    dupes = sorted({c for c in header if header.count(c) > 1})
-    if dupes:
-        raise InputError([Problem(f"{spec.display}:1:{c}", "column name appears more than once")
-                          for c in dupes])
+    _refuse_duplicate_columns(spec.display, header)
     table, bad = _read_csv_body(spec, header, use_threads=True)
     if bad:
         if any(row.number is None for row in bad):
@@ -90,6 +89,14 @@ def _read_csv(spec: InputSpec) -> RawTable:
         raise InputError(problems)
     table, rows = _drop_blank_rows(table, first_row=2)
     return RawTable(spec.display, table, 2, "csv", rows)
+
+
+def _refuse_duplicate_columns(display: str, names: list[str]) -> None:
+    """A column named twice cannot be told apart from its twin: refuse the file."""
+    dupes = sorted({c for c in names if names.count(c) > 1})
+    if dupes:
+        raise InputError([Problem(f"{display}:1:{c}", "column name appears more than once")
+                          for c in dupes])
 
 
 def _read_csv_body(spec: InputSpec, header: list[str], *, use_threads: bool):
@@ -160,6 +167,7 @@ def _read_xlsx(spec: InputSpec) -> RawTable:
     if not rows or rows[0] is None:
         raise InputError([Problem(spec.display, "the sheet is empty")])
     header = ["" if h is None else str(h).strip() for h in rows[0]]
+    _refuse_duplicate_columns(spec.display, [h for h in header if h])  # unnamed: skipped
     body = [r for r in rows[1:]]
     columns = {}
     for j, name in enumerate(header):

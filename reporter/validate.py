@@ -18,6 +18,8 @@ Stated rules (also in the README):
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pandas as pd
 import pyarrow as pa
@@ -84,7 +86,8 @@ def as_float(raw: RawTable, column: str, coll: Collector, decimal: str, *,
         stripped = text.str.strip()
         if decimal == ",":
             stripped = stripped.str.replace(",", ".", regex=False)
-        values = pd.to_numeric(stripped, errors="coerce").to_numpy(dtype=float)
+        # a copy: under pandas copy-on-write to_numpy() may return a read-only view
+        values = np.array(pd.to_numeric(stripped, errors="coerce"), dtype=float)
         blank = text.isna().to_numpy() | (stripped == "").fillna(True).to_numpy()
         bad_text = np.isnan(values) & ~blank
         values[blank] = np.nan
@@ -124,7 +127,8 @@ def as_dates(raw: RawTable, column: str, date_format: str, coll: Collector) -> n
         uniq = pd.Series(enc.dictionary.to_pylist(), dtype=object)
         parsed = pd.to_datetime(uniq.str.strip(), format=date_format, errors="coerce")
         uniq_days = parsed.to_numpy(dtype="datetime64[ns]").astype("datetime64[D]")
-        codes = enc.indices.to_numpy(zero_copy_only=False)
+        # integer codes (0 where empty): an index array with nulls would come out as float
+        codes = enc.indices.fill_null(0).to_numpy(zero_copy_only=False).astype(np.int64)
         valid_codes = ~np.asarray(enc.indices.is_null().to_numpy(zero_copy_only=False))
         out = np.full(n, np.datetime64("NaT"), dtype="datetime64[D]")
         safe = np.where(valid_codes, codes, 0)
@@ -268,8 +272,8 @@ def validate_series(raw: RawTable, value_col: str, settings: Settings,
             coll.warn(place(raw.name, None, value_col),
                       f"median rate {med:.4g} per period is {med * settings.periods_per_year:.1%}"
                       " a year: is this an annual rate? Give the rate per period")
-    if len(dup):
-        return None
+    if len(dup) or not ok.any():
+        return None         # (no valid date at all: every row has been reported already)
     keep = ok
     d, v = dates[keep], values[keep]
     order = np.argsort(d)
@@ -282,22 +286,29 @@ def _period_word(settings: Settings) -> str:
 
 def _check_return_values(raw: RawTable, values: np.ndarray, column: str, settings: Settings,
                          coll: Collector, label: str, rows: np.ndarray | None = None) -> None:
-    """Returns below -100%, and a column that looks like percentages."""
-    below = np.flatnonzero(values < -1.0)
+    """Returns below -100%, and a column that looks like percentages (then only that is
+    reported: its values below -100% are the same problem)."""
+    finite = values[np.isfinite(values)]
+    percent = bool(len(finite)) and looks_like_percent(finite, settings.frequency)
+    below = np.flatnonzero(values < -1.0) if not percent else np.array([], dtype=int)
     capped = _Capped(coll, f"returns below -100% in column {label}")
     for i in below:
         r = int(rows[i]) if rows is not None else int(i)
         capped.add(place(raw.name, raw.row_number(r), label),
                    f"return {values[i]:g} is below -100%")
     capped.close()
-    finite = values[np.isfinite(values)]
-    if len(finite) and looks_like_percent(finite, settings.frequency):
+    if percent:
         first = int(rows[np.flatnonzero(np.isfinite(values))[0]]) if rows is not None else int(
             np.flatnonzero(np.isfinite(values))[0])
+        if column == "rate":
+            advice = (f"give the rate per period as a decimal, e.g. "
+                      f"{0.036 / settings.periods_per_year:.3g} for 3.6% a year")
+        else:
+            advice = "give decimals, e.g. 0.012 for 1.2%"
         coll.error(place(raw.name, raw.row_number(first), label),
                    f"values look like percentages (median |value| {np.median(np.abs(finite)):.3g}"
                    f" is above {PERCENT_MEDIAN[settings.frequency]} for {settings.frequency} data"
-                   "); give decimals, e.g. 0.012 for 1.2%")
+                   f"); {advice}")
 
 
 def looks_like_percent(values: np.ndarray, frequency: str) -> bool:
@@ -306,34 +317,59 @@ def looks_like_percent(values: np.ndarray, frequency: str) -> bool:
     return bool(np.median(a) > PERCENT_MEDIAN[frequency] or np.mean(a > 1.0) > 0.5)
 
 
+def _percent_columns(matrix: np.ndarray, frequency: str) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`looks_like_percent` for each column of ``matrix`` (NaN ignored), vectorised;
+    returns the flags and each column's median |value|."""
+    if matrix.size == 0:
+        return np.zeros(matrix.shape[1], dtype=bool), np.full(matrix.shape[1], np.nan)
+    finite = np.isfinite(matrix)
+    with np.errstate(all="ignore"), warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)   # a column with no values
+        absm = np.where(finite, np.abs(matrix), np.nan)
+        med = np.nanmedian(absm, axis=0)
+        over1 = np.nanmean(np.where(finite, absm > 1.0, np.nan), axis=0)
+    return (med > PERCENT_MEDIAN[frequency]) | (over1 > 0.5), med
+
+
 # --------------------------------------------------------------------------- returns
 
 def validate_returns(raw: RawTable, holdings: Holdings | None, settings: Settings,
-                     coll: Collector) -> ReturnPanel | None:
-    """Long (``date,security_id,return``) or wide (``date`` + one column per id) returns."""
+                     coll: Collector, holdings_raw: RawTable | None = None) -> ReturnPanel | None:
+    """Long (``date,security_id,return``) or wide (``date`` + one column per id) returns.
+
+    ``holdings_raw`` (the holdings file as read) lets messages about a holding name its row.
+    """
     names = raw.table.column_names
+    if raw.table.num_rows == 0 and names:
+        coll.error(raw.name, "the file has no rows")
+        return None
     if "security_id" in names or "return" in names:
-        return _returns_long(raw, holdings, settings, coll)
+        return _returns_long(raw, holdings, settings, coll, holdings_raw)
     if "date" in names and len(names) > 1:
-        return _returns_wide(raw, holdings, settings, coll)
+        return _returns_wide(raw, holdings, settings, coll, holdings_raw)
     _require_columns(raw, ("date", "security_id", "return"), (), coll)
     return None
 
 
-def _returns_long(raw, holdings, settings, coll) -> ReturnPanel | None:
+def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | None:
     if not _require_columns(raw, ("date", "security_id", "return"), (), coll):
         return None
     spec = settings.inputs["returns"]
     dates = as_dates(raw, "date", spec.date_format, coll)
     values = as_float(raw, "return", coll, spec.decimal, allow_empty=False)
-    enc = pc.dictionary_encode(raw.table["security_id"].cast(pa.string())).combine_chunks()
-    id_codes = enc.indices.to_numpy(zero_copy_only=False)
+    # ids are trimmed before encoding, so that " FWX01" and "FWX01" are one security, and a
+    # blank id is empty
+    trimmed = pc.utf8_trim_whitespace(raw.table["security_id"].cast(pa.string()))
+    trimmed = pc.if_else(pc.equal(trimmed, ""), pa.scalar(None, pa.string()), trimmed)
+    enc = pc.dictionary_encode(trimmed).combine_chunks()
     id_null = np.asarray(enc.indices.is_null().to_numpy(zero_copy_only=False))
+    # integer codes (0 where null): an index array with nulls would otherwise come out float
+    id_codes = enc.indices.fill_null(0).to_numpy(zero_copy_only=False).astype(np.int64)
     capped = _Capped(coll, "empty security ids")
     for i in np.flatnonzero(id_null):
         capped.add(place(raw.name, raw.row_number(int(i)), "security_id"), "value is empty")
     capped.close()
-    ids = [s.strip() for s in enc.dictionary.to_pylist()]
+    ids = enc.dictionary.to_pylist()
 
     ok = ~np.isnat(dates) & ~id_null
     rows = np.flatnonzero(ok)
@@ -356,8 +392,8 @@ def _returns_long(raw, holdings, settings, coll) -> ReturnPanel | None:
             i, first = rows[order[d]], rows[order[d - 1]]
             sid = ids[id_codes[i]]
             if dates[i] == dates[first]:
-                agree = "same" if values[i] == values[first] else "different"
-                msg = (f"duplicate row for ({dates[i]}, {sid}) with the {agree} value "
+                agree = "the same" if values[i] == values[first] else "a different"
+                msg = (f"duplicate row for ({dates[i]}, {sid}) with {agree} value "
                        f"(first at row {raw.row_number(int(first))})")
             else:
                 msg = (f"second return for {sid} in the same {_period_word(settings)} "
@@ -366,31 +402,43 @@ def _returns_long(raw, holdings, settings, coll) -> ReturnPanel | None:
             capped.add(place(raw.name, raw.row_number(int(i)), "date"), msg)
         capped.close()
 
-    below = np.flatnonzero(values < -1.0)
+    matrix = np.full((len(uniq_keys), len(ids)), np.nan)
+    matrix[pidx, codes] = values[ok]
+    row_of = np.full(matrix.shape, -1, dtype=np.int64)   # file row of each (period, security)
+    row_of[pidx, codes] = rows
+
+    # securities that look like percentages are reported once, in _finish_panel
+    pct_code = np.append(_percent_columns(matrix, settings.frequency)[0], False)
+    code_of_row = np.where(id_null, len(ids), id_codes)    # len(ids): the "no id" slot
+    below = np.flatnonzero((values < -1.0) & ~pct_code[code_of_row])
     capped = _Capped(coll, "returns below -100%")
     for i in below:
         capped.add(place(raw.name, raw.row_number(int(i)), "return"),
                    f"return {values[i]:g} is below -100%")
     capped.close()
 
-    matrix = np.full((len(uniq_keys), len(ids)), np.nan)
-    matrix[pidx, codes] = values[ok]
     first_row = np.full(len(ids), -1, dtype=np.int64)
     # first row of each security, for messages about the whole security
     rev = np.arange(len(rows))[::-1]
     first_row[codes[rev]] = rows[rev]
     return _finish_panel(raw, matrix, uniq_keys, ids, holdings, settings, coll, "long",
-                         lambda j: place(raw.name, raw.row_number(int(first_row[j])), "return"))
+                         lambda j: place(raw.name, raw.row_number(int(first_row[j])), "return"),
+                         lambda t, j: place(raw.name, raw.row_number(int(row_of[t, j])),
+                                            "return"),
+                         holdings_raw)
 
 
-def _returns_wide(raw, holdings, settings, coll) -> ReturnPanel | None:
+def _returns_wide(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | None:
     spec = settings.inputs["returns"]
     dates = as_dates(raw, "date", spec.date_format, coll)
     ids = [c for c in raw.table.column_names if c != "date"]
     cols = []
     for sid in ids:
         v = as_float(raw, sid, coll, spec.decimal, allow_empty=True)
-        below = np.flatnonzero(v < -1.0)
+        finite = v[np.isfinite(v)]
+        percent = bool(len(finite)) and looks_like_percent(finite, settings.frequency)
+        # a column that looks like percentages is reported once, in _finish_panel
+        below = np.flatnonzero(v < -1.0) if not percent else np.array([], dtype=int)
         capped = _Capped(coll, f"returns below -100% in column {sid}")
         for i in below:
             capped.add(place(raw.name, raw.row_number(int(i)), sid),
@@ -411,18 +459,22 @@ def _returns_wide(raw, holdings, settings, coll) -> ReturnPanel | None:
     if len(dup):
         return None
     matrix = np.column_stack(cols)[ok][order] if cols else np.empty((int(ok.sum()), 0))
+    sorted_rows = rows[order]
     return _finish_panel(raw, matrix, keys[order], ids, holdings, settings, coll, "wide",
-                         lambda j: place(raw.name, 1, ids[j]))
+                         lambda j: place(raw.name, 1, ids[j]),
+                         lambda t, j: place(raw.name, raw.row_number(int(sorted_rows[t])),
+                                            ids[j]),
+                         holdings_raw)
 
 
-def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where_of):
-    """Per-security checks on the P x N matrix; reorder columns to the holdings' order."""
-    finite = np.isfinite(matrix)
-    with np.errstate(all="ignore"):
-        absm = np.where(finite, np.abs(matrix), np.nan)
-        med = np.nanmedian(absm, axis=0) if matrix.size else np.array([])
-        over1 = np.nanmean(np.where(finite, absm > 1.0, np.nan), axis=0) if matrix.size else med
-    pct = (med > PERCENT_MEDIAN[settings.frequency]) | (over1 > 0.5)
+def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where_of, where_cell,
+                  holdings_raw):
+    """Per-security checks on the P x N matrix; reorder columns to the holdings' order.
+
+    ``where_of(j)`` places a message about security ``j`` as a whole, ``where_cell(t, j)`` one
+    about its value in sorted period ``t``.
+    """
+    pct, med = _percent_columns(matrix, settings.frequency)
     for j in np.flatnonzero(pct):
         coll.error(where_of(j), f"returns for {ids[j]} look like percentages (median |return| "
                    f"{med[j]:.3g} is above {PERCENT_MEDIAN[settings.frequency]} for "
@@ -435,32 +487,46 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
     if holdings is None:
         return None
     col_of = {s: j for j, s in enumerate(ids)}
+    source = pd.Index(ids).get_indexer(list(holdings.ids))     # -1 where not in the file
     out = np.full((matrix.shape[0], len(holdings.ids)), np.nan)
-    for k, sid in enumerate(holdings.ids):
-        j = col_of.get(sid)
-        if j is not None:
-            out[:, k] = matrix[:, j]
+    have = source >= 0
+    out[:, have] = matrix[:, source[have]]
     run = longest_zero_run(out)
-    for k, sid in enumerate(holdings.ids):
-        if sid not in col_of:
-            coll.warn(place(settings.inputs["holdings"].display, None, "security_id"),
-                      f"holding {sid} has no return history in {raw.name}")
-        elif run[k] >= settings.stale_zero_run:
-            coll.warn(where_of(col_of[sid]), f"holding {sid} has {run[k]} exact-zero returns "
-                      "in a row: its prices may be stale")
+    for k in np.flatnonzero(~have):
+        # the holdings frame keeps the file's rows in order: holding k is data row k
+        row = holdings_raw.row_number(int(k)) if holdings_raw is not None else None
+        coll.warn(place(settings.inputs["holdings"].display, row, "security_id"),
+                  f"holding {holdings.ids[k]} has no return history in {raw.name}")
+    for k in np.flatnonzero(have & (run >= settings.stale_zero_run)):
+        sid = holdings.ids[k]
+        start = _run_start(out[:, k], int(run[k]))
+        coll.warn(where_cell(start, col_of[sid]), f"holding {sid} has {run[k]} exact-zero "
+                  "returns in a row from here: its prices may be stale")
     return ReturnPanel(period_keys=np.asarray(keys), security_ids=holdings.ids, values=out,
                        shape=shape, n_rows=raw.table.num_rows)
 
 
 def longest_zero_run(matrix: np.ndarray) -> np.ndarray:
-    """Longest run of exact-zero returns in each column (NaN breaks a run); vectorised."""
-    if matrix.size == 0:
-        return np.zeros(matrix.shape[1], dtype=int)
+    """Longest run of exact-zero returns in each column (NaN breaks a run); vectorised, and
+    only over the columns that hold two or more zeros at all."""
     zero = matrix == 0.0
-    idx = np.arange(matrix.shape[0])[:, None]
-    last_break = np.maximum.accumulate(np.where(zero, -1, idx), axis=0)
-    run = np.where(zero, idx - last_break, 0)
-    return run.max(axis=0)
+    counts = zero.sum(axis=0)
+    run = np.minimum(counts, 1)
+    cand = np.flatnonzero(counts >= 2)
+    if len(cand):
+        z = zero[:, cand]
+        idx = np.arange(matrix.shape[0])[:, None]
+        last_break = np.maximum.accumulate(np.where(z, -1, idx), axis=0)
+        run[cand] = np.where(z, idx - last_break, 0).max(axis=0)
+    return run
+
+
+def _run_start(column: np.ndarray, length: int) -> int:
+    """Index where the first run of ``length`` exact zeros in ``column`` starts."""
+    csum = np.concatenate([[0], np.cumsum(column == 0.0)])
+    # a run of `length` zeros starts at i when column[i:i + length] are all zero
+    full = csum[length:] - csum[:-length] == length
+    return int(np.flatnonzero(full)[0])
 
 
 # --------------------------------------------------------------------------- whole pack
@@ -487,7 +553,8 @@ def validate_tables(settings: Settings, raws: dict[str, RawTable], read_problems
         else None
     rf = validate_series(raws["risk_free"], "rate", settings, coll) if "risk_free" in raws \
         else None
-    panel = validate_returns(raws["returns"], holdings, settings, coll) if "returns" in raws \
+    panel = validate_returns(raws["returns"], holdings, settings, coll,
+                             raws.get("holdings")) if "returns" in raws \
         else None
     if market is not None and rf is not None:
         _check_coverage(settings, market, rf, panel, coll)

@@ -1,0 +1,335 @@
+"""Generate the small bad-input packs under ``tests/data/bad/`` (seeded; the output is committed).
+
+Each case is the same small, valid, invented pack (4 holdings, 30 month-ends, window 24,
+min_obs 12) with one thing broken, in a folder named after the case. Every organisation
+and security here is fictional.
+
+Regenerate with::
+
+    .venv/bin/python tests/data/make_bad_cases.py          # writes tests/data/bad/
+    .venv/bin/python tests/data/make_bad_cases.py OUTDIR   # writes OUTDIR/<case>/
+
+The tests check that the committed folders are exactly what this script writes.
+"""
+
+from __future__ import annotations
+
+import copy
+import shutil
+import sys
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+SEED = 20260630
+N_PERIODS = 30
+PERIOD_END = "2026-06-30"
+WINDOW = 24
+MIN_OBS = 12
+SECURITIES = [
+    # security_id, name, sector, weight, beta
+    ("FWX01", "Ashwardine Pumps plc", "Industrials", 0.40, 1.10),
+    ("FWX02", "Brindlecote Foods plc", "Consumer Staples", 0.30, 0.60),
+    ("FWX03", "Quellmoor Instruments plc", "Technology", 0.20, 1.40),
+    ("FWX04", "Thistlebank Shipping plc", "Industrials", 0.10, 0.90),
+]
+HERE = Path(__file__).resolve().parent
+BAD_DIR = HERE / "bad"
+
+
+@dataclass
+class Pack:
+    """A pack in memory: TOML sections (key -> TOML literal) and CSV tables (header, rows)."""
+
+    toml: dict[str, dict[str, str]]
+    tables: dict[str, tuple[list[str], list[list[str]]]]
+    raw: dict[str, str] = field(default_factory=dict)   # files written verbatim
+
+    def column(self, fname: str, name: str) -> int:
+        return self.tables[fname][0].index(name)
+
+    def rows(self, fname: str) -> list[list[str]]:
+        return self.tables[fname][1]
+
+
+def month_ends() -> list[str]:
+    return [d.strftime("%Y-%m-%d")
+            for d in pd.date_range(end=PERIOD_END, periods=N_PERIODS, freq="ME")]
+
+
+def base_pack() -> Pack:
+    """The valid small pack every case starts from (single-index returns, seeded)."""
+    rng = np.random.default_rng(SEED)
+    dates = month_ends()
+    rf = np.round(0.0030 + rng.normal(0, 0.0002, N_PERIODS), 6)
+    market = np.round(0.006 + rng.normal(0, 0.04, N_PERIODS), 6)
+    toml = {
+        "pack": {
+            "title": '"Investment Committee Pack: Test Portfolio"',
+            "organisation": '"Fernwhistle Staff Pension Scheme"',
+            "period_end": PERIOD_END,
+            "frequency": '"monthly"',
+            "currency": '"GBP"',
+        },
+        "inputs": {
+            "holdings": '"holdings.csv"',
+            "returns": '"returns.csv"',
+            "market": '"market.csv"',
+            "risk_free": '"risk_free.csv"',
+        },
+        "analysis": {"window": str(WINDOW), "min_obs": str(MIN_OBS)},
+    }
+    holdings = [[sid, name, sector, f"{w:.6f}"] for sid, name, sector, w, _ in SECURITIES]
+    returns = []
+    for t, date in enumerate(dates):
+        for sid, _, _, _, beta in SECURITIES:
+            r = rf[t] + beta * (market[t] - rf[t]) + rng.normal(0, 0.03)
+            returns.append([date, sid, f"{r:.6f}"])
+    return Pack(toml=toml, tables={
+        "holdings.csv": (["security_id", "name", "sector", "weight"], holdings),
+        "returns.csv": (["date", "security_id", "return"], returns),
+        "market.csv": (["date", "return"], [[d, f"{v:.6f}"] for d, v in zip(dates, market,
+                                                                            strict=True)]),
+        "risk_free.csv": (["date", "rate"], [[d, f"{v:.6f}"] for d, v in zip(dates, rf,
+                                                                           strict=True)]),
+    })
+
+
+def toml_text(toml: dict[str, dict[str, str]]) -> str:
+    out = ["# A small invented pack for the input tests; every name here is fictional."]
+    for section, keys in toml.items():
+        out.append(f"\n[{section}]")
+        out.extend(f"{k} = {v}" for k, v in keys.items())
+    return "\n".join(out) + "\n"
+
+
+def write_pack(pack: Pack, folder: Path) -> None:
+    """Write ``pack`` into ``folder`` (created; must not hold other files)."""
+    folder.mkdir(parents=True, exist_ok=True)
+    (folder / "pack.toml").write_text(toml_text(pack.toml), encoding="utf-8", newline="\n")
+    for fname, (header, rows) in pack.tables.items():
+        lines = [",".join(header)] + [",".join(r) for r in rows]
+        (folder / fname).write_text("\n".join(lines) + "\n", encoding="utf-8", newline="\n")
+    for fname, text in pack.raw.items():
+        (folder / fname).write_text(text, encoding="utf-8", newline="\n")
+
+
+def returns_row(pack: Pack, period: int, security: int) -> list[str]:
+    """The long returns row of 0-based ``period`` and ``security`` (file line = index + 2)."""
+    return pack.rows("returns.csv")[period * len(SECURITIES) + security]
+
+
+def set_weights(pack: Pack, weights: list[float]) -> None:
+    for row, w in zip(pack.rows("holdings.csv"), weights, strict=True):
+        row[3] = f"{w:.6f}"
+
+
+def drop_column(pack: Pack, fname: str, name: str) -> None:
+    header, rows = pack.tables[fname]
+    j = header.index(name)
+    pack.tables[fname] = ([c for c in header if c != name], [r[:j] + r[j + 1:] for r in rows])
+
+
+# --------------------------------------------------------------------------- the cases
+# Each function breaks one thing in a copy of the base pack. Row numbers in the comments
+# are file lines (the header is line 1).
+
+def missing_required_column(p: Pack) -> None:
+    drop_column(p, "holdings.csv", "sector")
+
+
+def unknown_column(p: Pack) -> None:
+    header, rows = p.tables["holdings.csv"]
+    header.append("analyst_note")
+    for r in rows:
+        r.append("none")
+
+
+def duplicate_security_id(p: Pack) -> None:
+    # holdings line 5 repeats the id of line 3; the fourth security's returns go with it
+    p.rows("holdings.csv")[3][0] = "FWX02"
+    p.tables["returns.csv"] = (p.tables["returns.csv"][0],
+                               [r for r in p.rows("returns.csv") if r[1] != "FWX04"])
+
+
+def duplicate_row_same_value(p: Pack) -> None:
+    p.rows("returns.csv").append(list(returns_row(p, 10, 1)))      # line 122 repeats line 43
+
+
+def duplicate_row_different_value(p: Pack) -> None:
+    row = list(returns_row(p, 10, 1))
+    row[2] = "0.012345"
+    p.rows("returns.csv").append(row)                               # line 122 vs line 43
+
+
+def non_numeric_return(p: Pack) -> None:
+    returns_row(p, 5, 2)[2] = "#DIV/0!"                             # line 24
+
+
+def unparseable_date(p: Pack) -> None:
+    returns_row(p, 7, 0)[0] = "31/08/2024"                          # line 30
+
+
+def impossible_date(p: Pack) -> None:
+    row = next(r for r in p.rows("market.csv") if r[0] == "2026-02-28")
+    row[0] = "2026-02-30"                                           # market line 27
+
+
+def return_below_minus_100(p: Pack) -> None:
+    returns_row(p, 12, 3)[2] = "-1.250000"                          # line 53
+
+
+def returns_as_percentages(p: Pack) -> None:
+    for t in range(N_PERIODS):
+        row = returns_row(p, t, 2)                                  # FWX03, first line 4
+        row[2] = f"{float(row[2]) * 100:.4f}"
+
+
+def market_as_percentages(p: Pack) -> None:
+    for row in p.rows("market.csv"):
+        row[1] = f"{float(row[1]) * 100:.4f}"
+
+
+def weights_not_summing_to_one(p: Pack) -> None:
+    set_weights(p, [0.40, 0.30, 0.20, 0.05])
+
+
+def weights_not_summing_normalised(p: Pack) -> None:
+    weights_not_summing_to_one(p)
+    p.toml["checks"] = {"normalise_weights": "true"}
+
+
+def negative_weight(p: Pack) -> None:
+    set_weights(p, [0.50, 0.35, 0.25, -0.10])                       # line 5
+
+
+def negative_weight_allow_short(p: Pack) -> None:
+    negative_weight(p)
+    p.toml["checks"] = {"allow_short": "true"}
+
+
+def holding_without_returns(p: Pack) -> None:
+    p.tables["returns.csv"] = (p.tables["returns.csv"][0],
+                               [r for r in p.rows("returns.csv") if r[1] != "FWX04"])
+
+
+def stale_prices(p: Pack) -> None:
+    for t in range(14, 18):                                         # FWX02, 4 zeros in a row
+        returns_row(p, t, 1)[2] = "0.000000"
+
+
+def market_two_dates_in_one_month(p: Pack) -> None:
+    rows = p.rows("market.csv")
+    i = next(k for k, r in enumerate(rows) if r[0] == "2025-03-31")
+    rows.insert(i, ["2025-03-14", "0.004000"])                      # line 16; 03-31 is line 17
+
+
+def returns_two_dates_in_one_month(p: Pack) -> None:
+    p.rows("returns.csv").append(["2025-03-14", "FWX01", "0.004000"])   # line 122
+
+
+def market_short_history(p: Pack) -> None:
+    del p.rows("market.csv")[:10]                                   # 20 periods left
+
+
+def window_longer_than_data(p: Pack) -> None:
+    p.toml["analysis"]["window"] = "36"
+
+
+def market_gap(p: Pack) -> None:
+    rows = p.rows("market.csv")
+    rows[:] = [r for r in rows if r[0] != "2025-09-30"]
+
+
+def risk_free_missing_periods(p: Pack) -> None:
+    rows = p.rows("risk_free.csv")
+    rows[:] = [r for r in rows if r[0] not in ("2025-05-31", "2025-06-30")]
+
+
+def period_end_after_data(p: Pack) -> None:
+    p.toml["pack"]["period_end"] = "2026-09-30"
+
+
+def pack_toml_unknown_key(p: Pack) -> None:
+    p.toml["analysis"]["window_length"] = "24"
+
+
+def pack_toml_wrong_type(p: Pack) -> None:
+    p.toml["analysis"]["window"] = '"24"'
+
+
+def pack_toml_bad_date_format(p: Pack) -> None:
+    p.toml["inputs"]["date_format"] = '"%Y-%Q"'
+
+
+def path_leaves_pack(p: Pack) -> None:
+    p.toml["inputs"]["holdings"] = '"../holdings.csv"'
+
+
+def missing_input_file(p: Pack) -> None:
+    del p.tables["risk_free.csv"]
+
+
+def risk_free_annual_percentage(p: Pack) -> None:
+    for row in p.rows("risk_free.csv"):                             # e.g. 3.6 for 0.3%/month
+        row[1] = f"{float(row[1]) * 12 * 100:.4f}"
+
+
+def risk_free_annual_decimal(p: Pack) -> None:
+    for row in p.rows("risk_free.csv"):                             # e.g. 0.036 for 0.3%/month
+        row[1] = f"{float(row[1]) * 12:.6f}"
+
+
+def blank_line_then_bad_value(p: Pack) -> None:
+    # a blank line (line 21) must not shift the line numbers of what follows
+    header, rows = p.tables["returns.csv"]
+    returns_row(p, 9, 0)[2] = "n.a."                # line 38, and 39 below the blank line
+    lines = [",".join(header)] + [",".join(r) for r in rows]
+    lines.insert(20, "")
+    del p.tables["returns.csv"]
+    p.raw["returns.csv"] = "\n".join(lines) + "\n"
+
+
+def returns_without_rows(p: Pack) -> None:
+    p.tables["returns.csv"] = (p.tables["returns.csv"][0], [])
+
+
+def ragged_row(p: Pack) -> None:
+    returns_row(p, 3, 1).append("0.001")                            # line 15 has 4 fields
+
+
+CASES: dict[str, Callable[[Pack], None]] = {f.__name__: f for f in (
+    missing_required_column, unknown_column, duplicate_security_id, duplicate_row_same_value,
+    duplicate_row_different_value, non_numeric_return, unparseable_date, impossible_date,
+    return_below_minus_100, returns_as_percentages, market_as_percentages,
+    weights_not_summing_to_one, weights_not_summing_normalised, negative_weight,
+    negative_weight_allow_short, holding_without_returns, stale_prices,
+    market_two_dates_in_one_month, returns_two_dates_in_one_month, market_short_history,
+    window_longer_than_data, market_gap, risk_free_missing_periods, period_end_after_data,
+    pack_toml_unknown_key, pack_toml_wrong_type, pack_toml_bad_date_format, path_leaves_pack,
+    missing_input_file, risk_free_annual_percentage, risk_free_annual_decimal,
+    blank_line_then_bad_value, ragged_row, returns_without_rows,
+)}
+
+
+def make_case(name: str) -> Pack:
+    pack = copy.deepcopy(base_pack())
+    CASES[name](pack)
+    return pack
+
+
+def generate(out: Path) -> None:
+    """Write every case into ``out/<case>/``, replacing what was there."""
+    out.mkdir(parents=True, exist_ok=True)
+    for name in CASES:
+        folder = out / name
+        if folder.exists():
+            shutil.rmtree(folder)
+        write_pack(make_case(name), folder)
+
+
+if __name__ == "__main__":
+    generate(Path(sys.argv[1]) if len(sys.argv) > 1 else BAD_DIR)
