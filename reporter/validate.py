@@ -322,13 +322,20 @@ def _percent_columns(matrix: np.ndarray, frequency: str) -> tuple[np.ndarray, np
     returns the flags and each column's median |value|."""
     if matrix.size == 0:
         return np.zeros(matrix.shape[1], dtype=bool), np.full(matrix.shape[1], np.nan)
-    finite = np.isfinite(matrix)
+    thr = PERCENT_MEDIAN[frequency]
     with np.errstate(all="ignore"), warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)   # a column with no values
-        absm = np.where(finite, np.abs(matrix), np.nan)
-        med = np.nanmedian(absm, axis=0)
-        over1 = np.nanmean(np.where(finite, absm > 1.0, np.nan), axis=0)
-    return (med > PERCENT_MEDIAN[frequency]) | (over1 > 0.5), med
+        absm = np.abs(matrix)                             # NaN stays NaN; comparisons False
+        n = np.isfinite(matrix).sum(axis=0)
+        over_thr = (absm > thr).sum(axis=0)
+        over1 = (absm > 1.0).sum(axis=0)
+        # the median can exceed thr only if at least half the values do: the exact median
+        # is needed (and computed) for those columns alone
+        cand = np.flatnonzero((n > 0) & (2 * over_thr >= n))
+        med = np.full(matrix.shape[1], np.nan)
+        if len(cand):
+            med[cand] = np.nanmedian(absm[:, cand], axis=0)
+    return (med > thr) | (2 * over1 > n), med
 
 
 # --------------------------------------------------------------------------- returns
