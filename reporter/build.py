@@ -136,7 +136,7 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     files.add("results/securities.csv", _results_csv(res))
     files.add("results/portfolio.json", _json(res.portfolio_summary()))
     buf = io.StringIO()
-    res.rolling_table().to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
+    res.rolling_table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
     files.add("results/rolling_beta.csv", buf.getvalue())
     files.add("results/manifest.json", _json({
         "tool_version": __version__,

@@ -117,7 +117,7 @@ def diversification_chart(res: PackResults) -> alt.LayerChart:
 
 def rolling_portfolio_chart(res: PackResults) -> alt.LayerChart:
     """The portfolio's trailing-window beta with its confidence band (OLS errors)."""
-    t = res.rolling_table()
+    t = res.rolling_table
     df = t[t["series"] == PORTFOLIO_SERIES].copy()
     df["date"] = pd.to_datetime(df["date"])
     x = alt.X("date:T", title=None, axis=alt.Axis(format="%Y"))
@@ -137,7 +137,7 @@ def rolling_holdings_chart(res: PackResults, top: int = 10) -> alt.Chart:
     sec = res.securities.sort_values(["weight", "security_id"], ascending=[False, True])
     ids = list(sec["security_id"].head(top))
     names = dict(zip(sec["security_id"], sec["name"], strict=True))
-    t = res.rolling_table()
+    t = res.rolling_table
     df = t[t["series"].isin(ids)].copy()
     df["date"] = pd.to_datetime(df["date"])
     df["holding"] = df["series"].map(names)

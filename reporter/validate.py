@@ -274,8 +274,7 @@ def validate_series(raw: RawTable, value_col: str, settings: Settings,
                       " a year: is this an annual rate? Give the rate per period")
     if len(dup) or not ok.any():
         return None         # (no valid date at all: every row has been reported already)
-    keep = ok
-    d, v = dates[keep], values[keep]
+    d, v = dates[ok], values[ok]
     order = np.argsort(d)
     return DatedSeries(dates=d[order], values=v[order])
 
@@ -284,22 +283,27 @@ def _period_word(settings: Settings) -> str:
     return {"monthly": "month", "weekly": "week", "daily": "day"}[settings.frequency]
 
 
+def _report_below_minus_100(raw: RawTable, values: np.ndarray, label: str, summary: str,
+                            coll: Collector) -> None:
+    """One problem per data row whose return is below -100% (NaN is never below)."""
+    capped = _Capped(coll, summary)
+    for i in np.flatnonzero(values < -1.0):
+        capped.add(place(raw.name, raw.row_number(int(i)), label),
+                   f"return {values[i]:g} is below -100%")
+    capped.close()
+
+
 def _check_return_values(raw: RawTable, values: np.ndarray, column: str, settings: Settings,
-                         coll: Collector, label: str, rows: np.ndarray | None = None) -> None:
+                         coll: Collector, label: str) -> None:
     """Returns below -100%, and a column that looks like percentages (then only that is
     reported: its values below -100% are the same problem)."""
     finite = values[np.isfinite(values)]
     percent = bool(len(finite)) and looks_like_percent(finite, settings.frequency)
-    below = np.flatnonzero(values < -1.0) if not percent else np.array([], dtype=int)
-    capped = _Capped(coll, f"returns below -100% in column {label}")
-    for i in below:
-        r = int(rows[i]) if rows is not None else int(i)
-        capped.add(place(raw.name, raw.row_number(r), label),
-                   f"return {values[i]:g} is below -100%")
-    capped.close()
-    if percent:
-        first = int(rows[np.flatnonzero(np.isfinite(values))[0]]) if rows is not None else int(
-            np.flatnonzero(np.isfinite(values))[0])
+    if not percent:
+        _report_below_minus_100(raw, values, label, f"returns below -100% in column {label}",
+                                coll)
+    else:
+        first = int(np.flatnonzero(np.isfinite(values))[0])
         if column == "rate":
             advice = (f"give the rate per period as a decimal, e.g. "
                       f"{0.036 / settings.periods_per_year:.3g} for 3.6% a year")
@@ -415,14 +419,11 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     row_of[pidx, codes] = rows
 
     # securities that look like percentages are reported once, in _finish_panel
-    pct_code = np.append(_percent_columns(matrix, settings.frequency)[0], False)
+    percent = _percent_columns(matrix, settings.frequency)
+    pct_code = np.append(percent[0], False)
     code_of_row = np.where(id_null, len(ids), id_codes)    # len(ids): the "no id" slot
-    below = np.flatnonzero((values < -1.0) & ~pct_code[code_of_row])
-    capped = _Capped(coll, "returns below -100%")
-    for i in below:
-        capped.add(place(raw.name, raw.row_number(int(i)), "return"),
-                   f"return {values[i]:g} is below -100%")
-    capped.close()
+    _report_below_minus_100(raw, np.where(pct_code[code_of_row], np.nan, values), "return",
+                            "returns below -100%", coll)
 
     first_row = np.full(len(ids), -1, dtype=np.int64)
     # first row of each security, for messages about the whole security
@@ -432,26 +433,20 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
                          lambda j: place(raw.name, raw.row_number(int(first_row[j])), "return"),
                          lambda t, j: place(raw.name, raw.row_number(int(row_of[t, j])),
                                             "return"),
-                         holdings_raw)
+                         holdings_raw, percent)
 
 
 def _returns_wide(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | None:
     spec = settings.inputs["returns"]
     dates = as_dates(raw, "date", spec.date_format, coll)
     ids = [c for c in raw.table.column_names if c != "date"]
-    cols = []
-    for sid in ids:
-        v = as_float(raw, sid, coll, spec.decimal, allow_empty=True)
-        finite = v[np.isfinite(v)]
-        percent = bool(len(finite)) and looks_like_percent(finite, settings.frequency)
-        # a column that looks like percentages is reported once, in _finish_panel
-        below = np.flatnonzero(v < -1.0) if not percent else np.array([], dtype=int)
-        capped = _Capped(coll, f"returns below -100% in column {sid}")
-        for i in below:
-            capped.add(place(raw.name, raw.row_number(int(i)), sid),
-                       f"return {v[i]:g} is below -100%")
-        capped.close()
-        cols.append(v)
+    cols = [as_float(raw, sid, coll, spec.decimal, allow_empty=True) for sid in ids]
+    full = np.column_stack(cols) if cols else np.empty((len(dates), 0))
+    # a column that looks like percentages is reported once, in _finish_panel
+    percent = _percent_columns(full, settings.frequency)
+    for j in np.flatnonzero(~percent[0] & (full < -1.0).any(axis=0)):
+        _report_below_minus_100(raw, full[:, j], ids[j],
+                                f"returns below -100% in column {ids[j]}", coll)
     ok = ~np.isnat(dates)
     keys = period_keys(dates[ok], settings.frequency)
     rows = np.flatnonzero(ok)
@@ -465,23 +460,26 @@ def _returns_wide(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     capped.close()
     if len(dup):
         return None
-    matrix = np.column_stack(cols)[ok][order] if cols else np.empty((int(ok.sum()), 0))
+    matrix = full[ok][order]
     sorted_rows = rows[order]
     return _finish_panel(raw, matrix, keys[order], ids, holdings, settings, coll, "wide",
                          lambda j: place(raw.name, 1, ids[j]),
                          lambda t, j: place(raw.name, raw.row_number(int(sorted_rows[t])),
                                             ids[j]),
-                         holdings_raw)
+                         # column statistics do not depend on row order: reuse them when no
+                         # row was dropped for a bad date
+                         holdings_raw, percent if ok.all() else None)
 
 
 def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where_of, where_cell,
-                  holdings_raw):
+                  holdings_raw, percent=None):
     """Per-security checks on the P x N matrix; reorder columns to the holdings' order.
 
     ``where_of(j)`` places a message about security ``j`` as a whole, ``where_cell(t, j)`` one
-    about its value in sorted period ``t``.
+    about its value in sorted period ``t``. ``percent`` is :func:`_percent_columns` of
+    ``matrix`` when the caller has it already.
     """
-    pct, med = _percent_columns(matrix, settings.frequency)
+    pct, med = percent if percent is not None else _percent_columns(matrix, settings.frequency)
     for j in np.flatnonzero(pct):
         coll.error(where_of(j), f"returns for {ids[j]} look like percentages (median |return| "
                    f"{med[j]:.3g} is above {PERCENT_MEDIAN[settings.frequency]} for "

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 import pandas as pd
@@ -82,6 +83,7 @@ class PackResults:
     portfolio_extra: dict             # up/down and thin-trading betas of the portfolio
     confidence: float
 
+    @cached_property
     def rolling_table(self) -> pd.DataFrame:
         """Long table of rolling betas (:data:`ROLLING_COLUMNS`), portfolio first, complete
         windows only; dates ascending."""

@@ -99,12 +99,10 @@ def fit_market_model(y: np.ndarray, x: np.ndarray, min_obs: int,
         ssr = np.maximum(cyy - beta * cxy, 0.0)
         sigma2 = ssr / (n - 2)
         beta_se = np.sqrt(sigma2 / cxx)
-        alpha_c = ybar - beta * xbar                    # intercept for the centred market
         x_bar_raw = xbar + p.x_mean
         alpha = ybar - beta * x_bar_raw
         alpha_se = np.sqrt(sigma2 * (1.0 / n + x_bar_raw**2 / cxx))
         r2 = 1.0 - ssr / cyy
-    del alpha_c
     nan = np.where(fitted, 1.0, np.nan)
     return MarketModelFits(
         n_obs=n.astype(int), fitted=fitted,
@@ -266,7 +264,7 @@ def hac_standard_errors(y: np.ndarray, x: np.ndarray, fits: MarketModelFits,
     p = prep or Prepared.of(y, x)
     N = p.m.shape[1]
     xr = np.where(p.x_ok, p.xc + p.x_mean, 0.0)
-    n = p.m.sum(axis=0) if prep is None else fits.n_obs.astype(float)
+    n = fits.n_obs.astype(float)        # counted on the same mask as ``p.m``
     L = np.full(N, lags) if lags is not None else newey_west_lags(n)
     alpha = np.nan_to_num(fits.alpha)
     beta = np.nan_to_num(fits.beta)
