@@ -35,10 +35,10 @@ def sml_chart(res: PackResults) -> alt.LayerChart:
     E[r - r_f] = beta x mean market premium, beta error bars (95%), the market and cash."""
     P = res.periods_per_year
     sec = res.securities[res.fits.fitted].copy()
-    z = 1.96
     df = pd.DataFrame({
         "name": sec["name"], "beta": sec["beta"],
-        "beta_lo": sec["beta"] - z * sec["beta_se"], "beta_hi": sec["beta"] + z * sec["beta_se"],
+        # the same intervals as the holdings tables (errors and level from the settings)
+        "beta_lo": sec["beta_ci_low"], "beta_hi": sec["beta_ci_high"],
         "excess": sec["mean_excess_return_ann"], "weight": sec["weight"],
         "position": sec["sml_position"],
     })
@@ -48,7 +48,7 @@ def sml_chart(res: PackResults) -> alt.LayerChart:
     line = pd.DataFrame({"beta": [lo, hi], "excess": [lo * mrp, hi * mrp]})
     anchors = pd.DataFrame({"beta": [0.0, 1.0], "excess": [0.0, mrp],
                             "label": ["Risk-free", "Market proxy"]})
-    x = alt.X("beta:Q", title="Beta (OLS, bars: 95% interval)",
+    x = alt.X("beta:Q", title=f"Beta (bars: {res.confidence:.0%} interval)",
               scale=alt.Scale(domain=[lo, hi], nice=False))
     y = alt.Y("excess:Q", title="Mean excess return, annualised", axis=alt.Axis(format="%"))
     shape_scale = alt.Scale(domain=[ABOVE, WITHIN, BELOW],

@@ -108,7 +108,10 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
                   charts: dict[str, alt.TopLevelMixin], fingerprint: str,
                   build_time: dt.datetime) -> PackContext:
     """Assemble the context for the pack templates."""
-    sec = res.securities
+    sec = res.securities.copy()
+    # the alpha t-statistic from the errors behind the pack's intervals and SML positions
+    se_used = sec["alpha_se_hac"] if settings.errors == "hac" else sec["alpha_se"]
+    sec["alpha_t_used"] = sec["alpha"] / se_used
     by_weight = sec.sort_values(["weight", "security_id"], ascending=[False, True],
                                 kind="stable")
     fitted = sec[sec["status"] == "fitted"]

@@ -59,3 +59,22 @@ def test_display_filters():
     assert pct(0.05, 1, True) == "+5.0%" and pct(float("nan")) == "\u2013"
     assert bp(0.0123) == "+123 bp" and num(1.23456, 3) == "1.235"
     assert longdate("2026-11-30") == "30 November 2026"
+
+
+def test_shown_errors_agree_with_intervals_and_positions():
+    # what a reader sees must hang together: the standard error printed beside the portfolio
+    # beta is the one its interval uses, and every holding called above or below the line
+    # shows an alpha t beyond the critical value (Student t, n - 2 degrees of freedom)
+    from scipy import stats
+
+    a = assemble(load_settings(DEMO))
+    p = a.context.portfolio
+    tcrit = stats.t.ppf(0.975, p["n_obs"] - 2)
+    half = (p["beta_ci_high"] - p["beta_ci_low"]) / 2
+    assert abs(half - tcrit * p["beta_se_hac"]) < 1e-12
+    assert f'<td class="n">{p["beta_se_hac"]:.3f}</td>' in a.html()
+    called = [r for r in a.context.sml_above + a.context.sml_below
+              if r["sml_position"] in ("above the line", "below the line")]
+    assert called
+    for r in called:
+        assert abs(r["alpha_t_used"]) > stats.t.ppf(0.975, r["n_obs"] - 2)
