@@ -168,7 +168,7 @@ def _read_xlsx(spec: InputSpec) -> RawTable:
         raise InputError([Problem(spec.display, "the sheet is empty")])
     header = ["" if h is None else str(h).strip() for h in rows[0]]
     _refuse_duplicate_columns(spec.display, [h for h in header if h])  # unnamed: skipped
-    body = [r for r in rows[1:]]
+    body = rows[1:]
     columns = {}
     for j, name in enumerate(header):
         if not name:

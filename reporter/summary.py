@@ -27,7 +27,7 @@ def check_pack(pack: Path | str, strict: bool = False) -> CheckSummary:
     h = inputs.holdings
     n_obs = np.isfinite(win.returns).sum(axis=0)
     full = int((n_obs == win.n_periods).sum())
-    short = int(((n_obs < settings.min_obs)).sum())
+    short = int((n_obs < settings.min_obs).sum())
     lines = [
         f"pack: {settings.title} ({settings.organisation}), period ending {settings.period_end}",
         f"holdings: {len(h.ids)} from {settings.inputs['holdings'].display}, weights from "

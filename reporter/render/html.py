@@ -33,6 +33,3 @@ def render_html(ctx: PackContext, svgs: dict[str, Markup], *, for_print: bool,
     values = {f.name: getattr(ctx, f.name) for f in fields(ctx)}
     values.pop("charts")
     return env.get_template(template).render(**values, svg=svgs, for_print=for_print)
-
-
-
