@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 import pyarrow as pa
 import pyarrow.csv as pacsv
-from timing import best_of
+from timing import best_of, paired_ratios
 
 from reporter.config import load_settings
 from reporter.validate import validate_pack
@@ -63,11 +63,15 @@ def main() -> None:
         settings = load_settings(folder)
         t_floor = best_of(lambda: pacsv.read_csv(folder / "returns.csv"), 3)
         t_ours = best_of(lambda: validate_pack(settings), 3)
+        r = paired_ratios(lambda: validate_pack(settings),
+                          lambda: pacsv.read_csv(folder / "returns.csv"), 5)
     print(f"machine: {platform.machine()}, pyarrow {pa.__version__}")
     print(f"returns.csv: {N_HOLDINGS * N_PERIODS:,} rows, {size:.0f} MB; best of 3")
     print(f"floor pyarrow.csv.read_csv: {t_floor:6.2f} s")
     print(f"read + validate (all four files): {t_ours:6.2f} s  {t_ours / t_floor:4.2f} x floor "
-          "(target <= 2)")
+          "(best of each)")
+    print(f"{len(r)} alternating pairs: median {r[len(r) // 2]:.2f} x floor "
+          f"(range {r[0]:.2f}-{r[-1]:.2f}; target <= 2)")
 
 
 if __name__ == "__main__":

@@ -62,6 +62,7 @@ class Prepared:
     xc: np.ndarray
     x_mean: float
     x_ok: np.ndarray
+    n_obs: np.ndarray           # observations per column (float), the column sums of ``m``
 
     @classmethod
     def of(cls, y: np.ndarray, x: np.ndarray) -> Prepared:
@@ -71,8 +72,9 @@ class Prepared:
         mask = np.isfinite(y)
         mask &= x_ok[:, None]
         x_mean = float(x[x_ok].mean()) if x_ok.any() else 0.0
-        return cls(y0=np.where(mask, y, 0.0), m=mask.astype(float),
-                   xc=np.where(x_ok, x - x_mean, 0.0), x_mean=x_mean, x_ok=x_ok)
+        m = mask.astype(float)
+        return cls(y0=np.where(mask, y, 0.0), m=m, xc=np.where(x_ok, x - x_mean, 0.0),
+                   x_mean=x_mean, x_ok=x_ok, n_obs=np.ones(m.shape[0]) @ m)
 
 
 def fit_market_model(y: np.ndarray, x: np.ndarray, min_obs: int,
@@ -240,13 +242,21 @@ def _hac_scores_sums_compacted(e: np.ndarray, xc: np.ndarray, L: np.ndarray):
     return s_aa, s_ab, s_bb
 
 
-def interior_gaps(mask: np.ndarray) -> np.ndarray:
-    """Columns of a T x N mask with a missing value between their first and last observation."""
+def interior_gaps(mask: np.ndarray, n_obs: np.ndarray | None = None) -> np.ndarray:
+    """Columns of a T x N mask with a missing value between their first and last observation.
+
+    Only columns with fewer than T observations can have one, so only those are searched.
+    """
     T = mask.shape[0]
-    n = mask.sum(axis=0)
-    first = np.argmax(mask, axis=0)
-    last = T - 1 - np.argmax(mask[::-1], axis=0)
-    return (n > 0) & (n < last - first + 1)
+    n = mask.sum(axis=0) if n_obs is None else np.asarray(n_obs)
+    out = np.zeros(mask.shape[1], dtype=bool)
+    part = np.flatnonzero((n > 0) & (n < T))
+    if len(part):
+        sub = mask[:, part]
+        first = np.argmax(sub, axis=0)
+        last = T - 1 - np.argmax(sub[::-1], axis=0)
+        out[part] = n[part] < last - first + 1
+    return out
 
 
 def hac_standard_errors(y: np.ndarray, x: np.ndarray, fits: MarketModelFits,
@@ -274,7 +284,7 @@ def hac_standard_errors(y: np.ndarray, x: np.ndarray, fits: MarketModelFits,
     np.subtract(p.y0, e, out=e)              # residuals, zero where missing
     s_aa, s_ab, s_bb = _hac_scores_sums(e, xr, L)
     sx, sxx = np.stack([xr, xr * xr]) @ p.m
-    gapped = np.flatnonzero(interior_gaps(p.m > 0))
+    gapped = np.flatnonzero(interior_gaps(p.m > 0, p.n_obs))
     if len(gapped):
         yg = np.where(p.m[:, gapped] > 0, p.y0[:, gapped], np.nan)
         ycomp, xcomp, mcomp = _compact(yg, np.where(p.x_ok, xr, np.nan))
@@ -442,7 +452,7 @@ def rolling_betas(y: np.ndarray, x: np.ndarray, window: int,
     p = prep or Prepared.of(y, x)
     W = window
     # window completeness: only holdings with a missing period anywhere need counting
-    holed = np.flatnonzero(p.m.min(axis=0) < 1.0) if p.m.size else np.array([], dtype=int)
+    holed = np.flatnonzero(p.n_obs < p.m.shape[0])
     incomplete = np.zeros(p.m.shape, dtype=bool)
     if len(holed):
         incomplete[:, holed] = np.abs(trailing_sum(p.m[:, holed], W) - W) > 0.5
