@@ -64,7 +64,7 @@ def main() -> None:
         t_floor = best_of(lambda: pacsv.read_csv(folder / "returns.csv"), 3)
         t_ours = best_of(lambda: validate_pack(settings), 3)
         r = paired_ratios(lambda: validate_pack(settings),
-                          lambda: pacsv.read_csv(folder / "returns.csv"), 5)
+                          lambda: pacsv.read_csv(folder / "returns.csv"), 9)
     print(f"machine: {platform.machine()}, pyarrow {pa.__version__}")
     print(f"returns.csv: {N_HOLDINGS * N_PERIODS:,} rows, {size:.0f} MB; best of 3")
     print(f"floor pyarrow.csv.read_csv: {t_floor:6.2f} s")

@@ -118,7 +118,9 @@ def as_dates(raw: RawTable, column: str, date_format: str, coll: Collector) -> n
     arr = raw.table[column]
     n = len(arr)
     if pa.types.is_date(arr.type) or pa.types.is_timestamp(arr.type):
-        out = arr.cast(pa.timestamp("s")).cast(pa.date32()).to_numpy(zero_copy_only=False)
+        if not pa.types.is_date32(arr.type):       # date64 or timestamp: to calendar days
+            arr = arr.cast(pa.timestamp("s")).cast(pa.date32())
+        out = arr.to_numpy(zero_copy_only=False)
         out = np.asarray(out, dtype="datetime64[D]")
         missing = np.isnat(out)
         bad_rows = {int(i): None for i in np.flatnonzero(missing)}
@@ -368,25 +370,33 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     spec = settings.inputs["returns"]
     dates = as_dates(raw, "date", spec.date_format, coll)
     values = as_float(raw, "return", coll, spec.decimal, allow_empty=False)
-    # ids are trimmed before encoding, so that " FWX01" and "FWX01" are one security, and a
-    # blank id is empty
-    trimmed = pc.utf8_trim_whitespace(raw.table["security_id"].cast(pa.string()))
-    trimmed = pc.if_else(pc.equal(trimmed, ""), pa.scalar(None, pa.string()), trimmed)
-    enc = pc.dictionary_encode(trimmed).combine_chunks()
-    id_null = np.asarray(enc.indices.is_null().to_numpy(zero_copy_only=False))
-    # integer codes (0 where null): an index array with nulls would otherwise come out float
-    id_codes = enc.indices.fill_null(0).to_numpy(zero_copy_only=False).astype(np.int64)
+    # ids are trimmed, so that " FWX01" and "FWX01" are one security, and a blank id is
+    # empty: the distinct values are trimmed (few), then the codes remapped (one pass)
+    enc = _dictionary(raw.table["security_id"])
+    ids: list[str] = []
+    index_of: dict[str, int] = {}
+    remap = np.full(len(enc.dictionary) + 1, -1, dtype=np.int64)   # last slot: null id
+    for k, text in enumerate(enc.dictionary.to_pylist()):
+        text = text.strip()
+        if text:
+            remap[k] = index_of.setdefault(text, len(ids))
+            if remap[k] == len(ids):
+                ids.append(text)
+    raw_codes = enc.indices.fill_null(-1).to_numpy(zero_copy_only=False).astype(np.int64)
+    codes_all = remap[raw_codes]                                     # -1 indexes the last slot
+    id_null = codes_all < 0
+    id_codes = np.where(id_null, 0, codes_all)
     capped = _Capped(coll, "empty security ids")
     for i in np.flatnonzero(id_null):
         capped.add(place(raw.name, raw.row_number(int(i)), "security_id"), "value is empty")
     capped.close()
-    ids = enc.dictionary.to_pylist()
 
     ok = ~np.isnat(dates) & ~id_null
-    rows = np.flatnonzero(ok)
-    keys = period_keys(dates[ok], settings.frequency)
-    codes = id_codes[ok].astype(np.int64)
-    uniq_keys, pidx = np.unique(keys, return_inverse=True)
+    all_ok = bool(ok.all())
+    rows = np.arange(len(ok)) if all_ok else np.flatnonzero(ok)
+    keys = period_keys(dates if all_ok else dates[ok], settings.frequency)
+    codes = id_codes if all_ok else id_codes[ok]
+    uniq_keys, pidx = dense_rank(keys)
     n_ids = max(len(ids), 1)
     combined = pidx.astype(np.int64) * n_ids + codes
     space = len(uniq_keys) * n_ids
@@ -414,9 +424,7 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
         capped.close()
 
     matrix = np.full((len(uniq_keys), len(ids)), np.nan)
-    matrix[pidx, codes] = values[ok]
-    row_of = np.full(matrix.shape, -1, dtype=np.int64)   # file row of each (period, security)
-    row_of[pidx, codes] = rows
+    matrix[pidx, codes] = values if all_ok else values[ok]
 
     # securities that look like percentages are reported once, in _finish_panel
     percent = _percent_columns(matrix, settings.frequency)
@@ -425,15 +433,39 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     _report_below_minus_100(raw, np.where(pct_code[code_of_row], np.nan, values), "return",
                             "returns below -100%", coll)
 
-    first_row = np.full(len(ids), -1, dtype=np.int64)
-    # first row of each security, for messages about the whole security
-    rev = np.arange(len(rows))[::-1]
-    first_row[codes[rev]] = rows[rev]
+    # file rows are looked up only when a message needs one (rare), not for every cell
+    def first_row(j: int) -> int:
+        return int(rows[np.argmax(codes == j)])
+
+    def row_of(t: int, j: int) -> int:
+        return int(rows[np.flatnonzero((pidx == t) & (codes == j))[0]])
+
     return _finish_panel(raw, matrix, uniq_keys, ids, holdings, settings, coll, "long",
-                         lambda j: place(raw.name, raw.row_number(int(first_row[j])), "return"),
-                         lambda t, j: place(raw.name, raw.row_number(int(row_of[t, j])),
-                                            "return"),
+                         lambda j: place(raw.name, raw.row_number(first_row(j)), "return"),
+                         lambda t, j: place(raw.name, raw.row_number(row_of(t, j)), "return"),
                          holdings_raw, percent)
+
+
+def _dictionary(column: pa.ChunkedArray) -> pa.DictionaryArray:
+    """A text column as one dictionary array (the CSV reader may already deliver one)."""
+    if pa.types.is_dictionary(column.type):
+        return pa.table({"c": column}).unify_dictionaries().column(0).combine_chunks()
+    return pc.dictionary_encode(column.cast(pa.string())).combine_chunks()
+
+
+def dense_rank(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``np.unique(keys, return_inverse=True)`` for integer keys, without sorting when their
+    range is small (periods: months, weeks or days), in O(n)."""
+    if len(keys) == 0:
+        return np.unique(keys, return_inverse=True)
+    lo, hi = int(keys.min()), int(keys.max())
+    if hi - lo > 50_000_000:
+        return np.unique(keys, return_inverse=True)
+    present = np.zeros(hi - lo + 1, dtype=bool)
+    present[keys - lo] = True
+    uniq = np.flatnonzero(present) + lo
+    rank = np.cumsum(present) - 1
+    return uniq, rank[keys - lo]
 
 
 def _returns_wide(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | None:
