@@ -607,6 +607,28 @@ def validate_pack(settings: Settings, strict: bool = False) -> ValidInputs:
     return validate_tables(settings, raws, problems, strict=strict)
 
 
+def _check_return_frequency(settings: Settings, panel: ReturnPanel, mkeys: np.ndarray,
+                            coll: Collector) -> None:
+    """A holding's returns must come at the declared frequency: on the market's calendar, at
+    least half of the steps between its consecutive returns must be a single period (a
+    suspension leaves one long step; quarterly data in a monthly pack leave no short one)."""
+    pos = np.searchsorted(mkeys, panel.period_keys)
+    pos_c = np.minimum(pos, len(mkeys) - 1)
+    on_calendar = (pos < len(mkeys)) & (mkeys[pos_c] == panel.period_keys)
+    present = np.zeros((len(mkeys), panel.values.shape[1]), dtype=bool)
+    present[pos_c[on_calendar]] = np.isfinite(panel.values[on_calendar])
+    n = present.sum(axis=0)
+    single = (present[1:] & present[:-1]).sum(axis=0)
+    bad = np.flatnonzero((n >= 3) & (2 * single < n - 1))
+    capped = _Capped(coll, "holdings whose returns are less frequent than declared")
+    for j in bad:
+        capped.add(place(settings.inputs["returns"].display, None, "date"),
+                   f"returns for {panel.security_ids[j]} look less frequent than "
+                   f"{settings.frequency}: {single[j]} of the {n[j] - 1} steps between them are "
+                   f"one {_period_word(settings)}")
+    capped.close()
+
+
 def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
                     panel: ReturnPanel | None, coll: Collector) -> None:
     cfg = settings.config_path.name
@@ -631,6 +653,8 @@ def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
     for g in gaps[:MAX_PER_CHECK]:
         coll.error(mname, f"the dates {market.dates[win][g - 1]} and {market.dates[win][g]} are "
                    f"not consecutive {settings.frequency} periods")
+    if panel is not None:
+        _check_return_frequency(settings, panel, mkeys, coll)
     rkeys = period_keys(rf.dates, settings.frequency)
     missing = np.setdiff1d(mkeys[win], rkeys)
     if len(missing):

@@ -77,6 +77,9 @@ CASES: dict[str, tuple[str, list[str]]] = {
     "returns_two_dates_in_one_month": (ERROR, [
         "returns.csv:122:date: second return for FWX01 in the same month (2025-03-31 and "
         "2025-03-14); the data do not look monthly"]),
+    "returns_less_frequent_than_declared": (ERROR, [
+        "returns.csv:date: returns for FWX02 look less frequent than monthly: 0 of the 14 steps "
+        "between them are one month"]),
     "market_short_history": (ERROR, [
         "pack.toml:analysis.window: the window (24 periods) is longer than the data: market.csv "
         "has 20 periods up to 2026-06-30"]),

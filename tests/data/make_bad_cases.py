@@ -231,6 +231,13 @@ def returns_two_dates_in_one_month(p: Pack) -> None:
     p.rows("returns.csv").append(["2025-03-14", "FWX01", "0.004000"])   # line 122
 
 
+def returns_less_frequent_than_declared(p: Pack) -> None:
+    # FWX02 reports every other month only: 15 returns, none of the 14 steps a single month
+    rows = p.rows("returns.csv")
+    odd = set(month_ends()[1::2])
+    rows[:] = [r for r in rows if not (r[1] == "FWX02" and r[0] in odd)]
+
+
 def market_short_history(p: Pack) -> None:
     del p.rows("market.csv")[:10]                                   # 20 periods left
 
@@ -307,7 +314,8 @@ CASES: dict[str, Callable[[Pack], None]] = {f.__name__: f for f in (
     return_below_minus_100, returns_as_percentages, market_as_percentages,
     weights_not_summing_to_one, weights_not_summing_normalised, negative_weight,
     negative_weight_allow_short, holding_without_returns, stale_prices,
-    market_two_dates_in_one_month, returns_two_dates_in_one_month, market_short_history,
+    market_two_dates_in_one_month, returns_two_dates_in_one_month,
+    returns_less_frequent_than_declared, market_short_history,
     window_longer_than_data, market_gap, risk_free_missing_periods, period_end_after_data,
     pack_toml_unknown_key, pack_toml_wrong_type, pack_toml_bad_date_format, path_leaves_pack,
     missing_input_file, risk_free_annual_percentage, risk_free_annual_decimal,
