@@ -95,14 +95,18 @@ class Assembled:
     svgs: dict
     hashes: dict[str, str]
 
-    def html(self, for_print: bool = False) -> str:
+    def html(self, for_print: bool = False, signoff: dict | None = None) -> str:
         return render_html(self.context, self.svgs, for_print=for_print,
-                           user_templates=self.settings.templates_dir)
+                           user_templates=self.settings.templates_dir, signoff=signoff)
 
 
-def assemble(settings: Settings, *, strict: bool = False,
-             progress: Progress | None = None) -> Assembled:
-    """Read, validate, analyse and chart one pack (no output is written)."""
+def assemble(settings: Settings, *, strict: bool = False, progress: Progress | None = None,
+             at: dt.datetime | None = None) -> Assembled:
+    """Read, validate, analyse and chart one pack (no output is written).
+
+    ``at`` fixes the build time shown in the pack (sign-off re-renders a build with the time
+    it was built); by default it is :func:`build_time`.
+    """
     progress = progress or Progress(quiet=True)
     with progress.stage("read"):
         raws, read_problems = read_inputs(settings)
@@ -113,7 +117,7 @@ def assemble(settings: Settings, *, strict: bool = False,
         hashes = input_hashes(settings)
     with progress.stage("chart"):
         charts = build_charts(res)
-        ctx = build_context(settings, inputs, res, charts, fingerprint(hashes), build_time())
+        ctx = build_context(settings, inputs, res, charts, fingerprint(hashes), at or build_time())
         svgs = export_charts(ctx)
     return Assembled(settings, inputs, res, ctx, svgs, hashes)
 
@@ -140,6 +144,10 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     files.add("results/rolling_beta.csv", buf.getvalue())
     files.add("results/manifest.json", _json({
         "tool_version": __version__,
+        "pack_name": settings.name,
+        "pack_dir": str(settings.pack_dir),
+        # what sign-off checks the build folder against before it signs
+        "output_sha256": {rel: hashlib.sha256(files[rel]).hexdigest() for rel in files.paths},
         "built_utc": ctx.build_time.strftime("%Y-%m-%dT%H:%M:%SZ"),
         "period_end": settings.period_end.isoformat(),
         "title": settings.title,

@@ -9,6 +9,7 @@ TOML file.
 from __future__ import annotations
 
 import datetime as dt
+import re
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
@@ -34,6 +35,8 @@ class PackSection(_Strict):
     period_end: dt.date
     frequency: Literal["monthly", "weekly", "daily"] = "monthly"
     currency: Annotated[str, Field(pattern=r"^[A-Z]{3}$")] = "GBP"
+    # a short identifier for the scheme, used to name archived packs; default: the folder name
+    name: Annotated[str, Field(pattern=r"^[a-z0-9][a-z0-9-]{0,63}$")] | None = None
 
 
 class InputFile(_Strict):
@@ -118,6 +121,7 @@ class Settings:
 
     pack_dir: Path
     config_path: Path
+    name: str                        # the scheme's short identifier (archive file names)
     title: str
     organisation: str
     period_end: dt.date
@@ -254,6 +258,7 @@ def load_settings(pack: Path | str) -> Settings:
     return Settings(
         pack_dir=pack_dir,
         config_path=config_path,
+        name=model.pack.name or pack_name_from_folder(pack_dir),
         title=model.pack.title,
         organisation=model.pack.organisation,
         period_end=model.pack.period_end,
@@ -275,6 +280,12 @@ def load_settings(pack: Path | str) -> Settings:
         stale_zero_run=model.checks.stale_zero_run or DEFAULT_STALE_RUN[freq],
         templates_dir=templates_dir,
     )
+
+
+def pack_name_from_folder(folder: Path) -> str:
+    """A scheme identifier from a folder name: lower case, runs of other characters as '-'."""
+    slug = re.sub(r"[^a-z0-9]+", "-", folder.name.lower()).strip("-")[:64].strip("-")
+    return slug or "pack"
 
 
 def date_format_problem(fmt: str) -> str | None:

@@ -34,6 +34,7 @@ KIND = {"Industrials": "Engineering", "Financials": "Mutual", "Health Care": "Th
 PACK_TOML = """\
 # An invented scheme for the demo: every organisation and security here is fictional.
 [pack]
+name = "tarnbrook-valley"
 title = "Investment Committee Pack: Listed Equity Portfolio"
 organisation = "Tarnbrook Valley Staff Pension Scheme"
 period_end = 2026-11-30

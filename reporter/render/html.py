@@ -27,9 +27,14 @@ def export_charts(ctx: PackContext) -> dict[str, Markup]:
 
 
 def render_html(ctx: PackContext, svgs: dict[str, Markup], *, for_print: bool,
-                user_templates=None, template: str = "pack.html.j2") -> str:
-    """The pack as one self-contained HTML document (CSS and SVG inline)."""
+                user_templates=None, template: str = "pack.html.j2",
+                signoff: dict | None = None) -> str:
+    """The pack as one self-contained HTML document (CSS and SVG inline).
+
+    ``signoff`` (the sign-off record) adds the approval to the cover and a last page.
+    """
     env = make_environment(user_templates)
     values = {f.name: getattr(ctx, f.name) for f in fields(ctx)}
     values.pop("charts")
-    return env.get_template(template).render(**values, svg=svgs, for_print=for_print)
+    return env.get_template(template).render(**values, svg=svgs, for_print=for_print,
+                                                signoff=signoff)

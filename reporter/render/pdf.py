@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
-from weasyprint import HTML
+from collections.abc import Sequence
+
+from weasyprint import HTML, Attachment
 
 
 class _NoFetch:
@@ -12,6 +14,12 @@ class _NoFetch:
         raise ValueError(f"the pack may not fetch {url!r}")
 
 
-def render_pdf(html: str) -> bytes:
-    """PDF bytes for an HTML string that carries its own CSS and SVG."""
-    return HTML(string=html, base_url=None, url_fetcher=_NoFetch()).write_pdf()
+def render_pdf(html: str, *, variant: str | None = None,
+               attachments: Sequence[Attachment] = ()) -> bytes:
+    """PDF bytes for an HTML string that carries its own CSS and SVG.
+
+    ``variant`` is a WeasyPrint PDF variant such as ``"pdf/a-3b"`` (ISO 19005-3, level B);
+    ``attachments`` are embedded files (PDF/A-3 allows any file type as an attachment).
+    """
+    return HTML(string=html, base_url=None, url_fetcher=_NoFetch()).write_pdf(
+        pdf_variant=variant, attachments=list(attachments) or None)
