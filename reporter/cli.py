@@ -59,6 +59,97 @@ def check(pack: Path, strict: bool, debug: bool) -> None:
     click.echo(summary.text)
 
 
+@cli.command("sign-off")
+@click.argument("build_dir", type=click.Path(path_type=Path))
+@click.option("--archive", "-a", required=True, type=click.Path(path_type=Path),
+              help="Archive folder (created when new).")
+@click.option("--by", "signer", required=True, help="Name of the person signing off.")
+@click.option("--role", help="Their role, e.g. chair of the investment committee.")
+@click.option("--minute-ref", help="Reference of the minute that records the approval.")
+@click.option("--note", help="A short note kept with the sign-off.")
+@click.option("--supersedes", is_flag=True,
+              help="Replace this period's signed pack with this one (both are kept).")
+@click.option("--reason", help="Why the earlier sign-off is superseded (with --supersedes).")
+@quiet_option
+@debug_option
+def sign_off_cmd(build_dir: Path, archive: Path, signer: str, role, minute_ref, note,
+                 supersedes: bool, reason, quiet: bool, debug: bool) -> None:
+    """Sign off the reviewed build in BUILD_DIR and archive it as PDF/A-3b."""
+    from reporter.archive.signoff import SignOffRequest, sign_off
+    from reporter.progress import Progress
+
+    request = SignOffRequest(signer=signer, role=role, minute_ref=minute_ref, note=note,
+                             supersedes=supersedes, reason=reason)
+    report = _run(lambda: sign_off(build_dir, archive, request,
+                                   progress=Progress(quiet=quiet)), debug)
+    e = report.entry
+    click.echo(f"signed off {report.pdf}")
+    click.echo(f"  ledger entry {e.seq}, revision {e.revision}"
+               + (f", supersedes entry {e.supersedes}" if e.supersedes else ""))
+    click.echo(f"  pdf sha256   {e.pdf_sha256}")
+    click.echo(f"  ledger head  {e.entry_hash}  (note this in the minutes)")
+
+
+@cli.command()
+@click.argument("file", required=False, type=click.Path(path_type=Path))
+@click.option("--archive", "-a", required=True, type=click.Path(path_type=Path),
+              help="Archive folder.")
+@debug_option
+def verify(file: Path | None, archive: Path, debug: bool) -> None:
+    """Check the whole archive, or (with FILE) whether FILE is a signed pack in it.
+
+    Exit 0 when intact (or FILE is archived), 1 when not, 2 when the archive cannot be read.
+    """
+    from reporter.archive.verify import find_file, verify_archive
+
+    if file is not None:
+        if not file.is_file():
+            click.echo(f"reporter: {file}: no such file", err=True)
+            raise _Exit(EXIT_BAD_INPUT)
+        matches = _run(lambda: find_file(file, archive), debug)
+        if not matches:
+            click.echo(f"{file}: NOT in the archive (its sha256 matches no ledger entry)")
+            raise _Exit(EXIT_FAILED)
+        for m in matches:
+            e = m.entry
+            click.echo(f"{file}: matches {m.path}, ledger entry {e.seq}: {e.title}, period "
+                       f"ending {e.period_end}, signed off by {e.signer} on {e.signed_utc}"
+                       + (f"; superseded by entry {m.superseded_by.seq}"
+                          if m.superseded_by else ""))
+        return
+    report = _run(lambda: verify_archive(archive), debug)
+    for f in report.findings:
+        click.echo(str(f))
+    for n in report.notes:
+        click.echo(f"note: {n}")
+    n_files = sum(len(e.file_hashes) for e in report.entries) if report.intact else None
+    if report.intact:
+        click.echo(f"archive intact: {len(report.entries)} entries, {n_files} files, "
+                   f"ledger head {report.head_hash or '(empty)'}")
+        return
+    click.echo(f"archive NOT intact: {len(report.findings)} problem(s)")
+    raise _Exit(EXIT_FAILED)
+
+
+@cli.command()
+@click.option("--archive", "-a", required=True, type=click.Path(path_type=Path),
+              help="Archive folder.")
+@debug_option
+def repair(archive: Path, debug: bool) -> None:
+    """Move files that no ledger entry records into quarantine/ (nothing is deleted)."""
+    from reporter.archive.verify import repair as repair_archive
+
+    report = _run(lambda: repair_archive(archive), debug)
+    for src, dest in report.moved:
+        click.echo(f"moved {src} -> {dest}")
+    for f in report.unresolved:
+        click.echo(f"cannot repair: {f} (restore it from a backup)")
+    if not report.moved and not report.unresolved:
+        click.echo("nothing to repair")
+    if report.unresolved:
+        raise _Exit(EXIT_FAILED)
+
+
 def _print_warnings(warnings) -> None:
     for w in warnings[:MAX_LINES]:
         click.echo(str(w), err=True)

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import ctypes
 import ctypes.util
+import errno
 import os
 import shutil
 from pathlib import Path, PurePosixPath
@@ -139,3 +140,94 @@ def _alive(pid: int) -> bool:
     except PermissionError:
         return True
     return True
+
+
+# --- the archive: files are added, never replaced ---------------------------------------
+
+STAGING_DIR = ".staging"
+QUARANTINE_DIR = "quarantine"
+READ_ONLY = 0o444
+
+
+def place_in_archive(files: OutputSet, root: Path) -> list[str]:
+    """Add ``files`` to the archive at ``root`` without replacing or removing anything.
+
+    The files are written (and fsynced) into a staging folder inside the archive and made
+    read-only, then moved into place by their first two path levels (``<period>/<name>``
+    folders first, then files such as ``<period>/<name>.pdf``). A move whose destination
+    exists fails, so nothing archived is ever overwritten. Returns the moved paths.
+    """
+    root = Path(root).absolute()
+    parts = [PurePosixPath(rel).parts for rel in files.paths]
+    folders = sorted({"/".join(p[:2]) for p in parts if len(p) > 2})
+    units = folders + sorted({"/".join(p) for p in parts if len(p) <= 2} - set(folders))
+    for unit in units:
+        if (root / unit).exists() or (root / unit).is_symlink():
+            raise OutputError(f"{root / unit}: already in the archive; archived files are "
+                              "never overwritten")
+    staging = root / STAGING_DIR / f"{os.getpid()}-{os.urandom(4).hex()}"
+    staging.mkdir(parents=True)
+    for rel in files.paths:
+        dest = staging / rel
+        dest.parent.mkdir(parents=True, exist_ok=True)
+        fd = os.open(dest, os.O_WRONLY | os.O_CREAT | os.O_EXCL, READ_ONLY)
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(files[rel])
+            fh.flush()
+            os.fsync(fh.fileno())
+    placed = []
+    for unit in units:
+        dest = root / unit
+        dest.parent.mkdir(parents=True, exist_ok=True)
+        _rename_no_replace(staging / unit, dest)
+        _fsync_dir(dest.parent)
+        placed.append(unit)
+    shutil.rmtree(staging)
+    try:
+        staging.parent.rmdir()           # only when no other sign-off is staging
+    except OSError:
+        pass
+    return placed
+
+
+def quarantine(root: Path, rels: list[str], stamp: str) -> list[str]:
+    """Move archive files that no ledger entry records to ``quarantine/<stamp>/`` (kept,
+    never deleted). Returns their new paths relative to ``root``."""
+    root = Path(root).absolute()
+    moved = []
+    for rel in rels:
+        dest_rel = f"{QUARANTINE_DIR}/{stamp}/{rel}"
+        dest = root / dest_rel
+        dest.parent.mkdir(parents=True, exist_ok=True)
+        _rename_no_replace(root / rel, dest)
+        moved.append(dest_rel)
+    if moved:
+        _fsync_dir(root)
+    return moved
+
+
+def _rename_no_replace(src: Path, dest: Path) -> None:
+    """Rename ``src`` to ``dest``, failing if ``dest`` exists (renameat2 RENAME_NOREPLACE;
+    elsewhere a hard link for files, or a checked rename for folders)."""
+    libc_name = ctypes.util.find_library("c")
+    fn = getattr(ctypes.CDLL(libc_name, use_errno=True), "renameat2", None) if libc_name else None
+    if fn is not None:
+        at_fdcwd, rename_noreplace = -100, 1
+        if fn(at_fdcwd, os.fsencode(src), at_fdcwd, os.fsencode(dest), rename_noreplace) == 0:
+            return
+        err = ctypes.get_errno()
+        if err == errno.EEXIST:
+            raise OutputError(f"{dest}: already exists; archived files are never overwritten")
+        if err not in (errno.ENOSYS, errno.EINVAL):
+            raise OSError(err, os.strerror(err), str(dest))
+    if src.is_dir():
+        if dest.exists():
+            raise OutputError(f"{dest}: already exists; archived files are never overwritten")
+        os.rename(src, dest)
+    else:
+        try:
+            os.link(src, dest)
+        except FileExistsError:
+            raise OutputError(f"{dest}: already exists; archived files are never "
+                              "overwritten") from None
+        os.unlink(src)

@@ -40,3 +40,23 @@ def french():
     from linearmodels.datasets import french as ff
 
     return ff.load()
+
+
+SIGNER = {"by": "Ruth Okafor", "role": "Chair of the investment committee",
+          "minute_ref": "IC-2026-11/07", "note": "Approved subject to the minuted comments"}
+
+
+@pytest.fixture(scope="session")
+def signed_archive(demo_build, tmp_path_factory) -> Path:
+    """An archive holding the demo pack signed off (entry 1) and signed again with
+    --supersedes (entry 2). Tests that alter it must work on a copy."""
+    from reporter.cli import main
+
+    archive = tmp_path_factory.mktemp("archive") / "archive"
+    assert main(["sign-off", str(demo_build), "--archive", str(archive), "--quiet",
+                 "--by", SIGNER["by"], "--role", SIGNER["role"],
+                 "--minute-ref", SIGNER["minute_ref"], "--note", SIGNER["note"]]) == 0
+    assert main(["sign-off", str(demo_build), "--archive", str(archive), "--quiet",
+                 "--by", "Tomas Lindqvist", "--supersedes",
+                 "--reason", "Minute reference corrected"]) == 0
+    return archive

@@ -1,0 +1,318 @@
+"""Sign off a reviewed build: a PDF/A-3b that carries its data, archived read-only, and a
+ledger entry chained to the one before it.
+
+What is signed is exactly what was reviewed. Sign-off refuses a build folder whose files no
+longer match its manifest, inputs that changed since the build, or a re-render (with the
+build's own timestamp) that does not reproduce the build's HTML byte for byte. The signed
+PDF is that pack with its cover status set to signed and one sign-off page added at the end,
+so every earlier page keeps its page number.
+
+Order of work, so that a crash leaves nothing half-recorded: everything is rendered in
+memory; the ledger's write lock is taken; the refusal rules are checked again under the
+lock; the files are placed (staging folder, then no-replace renames); then the entry is
+inserted and committed. A kill after the files are placed and before the commit leaves
+files with no entry, which ``verify`` names and ``repair`` moves to quarantine.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+import json
+import sqlite3
+from dataclasses import dataclass
+from pathlib import Path
+
+from weasyprint import Attachment
+
+from reporter import __version__
+from reporter.archive.ledger import (
+    LEDGER_NAME,
+    Entry,
+    append,
+    canonical_json,
+    connect_for_writing,
+    connect_read_only,
+    entries_for,
+    last_entry,
+)
+from reporter.build import assemble
+from reporter.config import INPUT_ROLES, Settings, load_settings
+from reporter.errors import EXIT_FAILED, InputError, OutputError, Problem, ReporterError
+from reporter.progress import Progress
+from reporter.render.pdf import render_pdf
+from reporter.writer import BUILD_MARKER, OutputSet, place_in_archive
+
+PDF_VARIANT = "pdf/a-3b"
+MAX_TEXT = 500
+
+
+class ArchiveError(ReporterError):
+    """A sign-off the archive refuses (already signed, nothing to supersede ...)."""
+
+    exit_code = EXIT_FAILED
+
+
+@dataclass(frozen=True)
+class SignOffRequest:
+    """Who approves the pack, and on what authority."""
+
+    signer: str
+    role: str | None = None
+    minute_ref: str | None = None
+    note: str | None = None
+    supersedes: bool = False
+    reason: str | None = None
+
+
+@dataclass(frozen=True)
+class SignOffReport:
+    entry: Entry
+    pdf: Path
+    superseded: Entry | None
+
+
+@dataclass(frozen=True)
+class ReviewedBuild:
+    """A build folder whose files were checked against its manifest."""
+
+    folder: Path
+    manifest: dict
+    files: dict[str, bytes]      # relative path -> bytes, manifest included
+
+
+def sha256(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
+
+
+def read_build(folder: Path) -> ReviewedBuild:
+    """Load a build folder and check every output against the sha256 in its manifest."""
+    folder = Path(folder)
+    manifest_path = folder / "results" / "manifest.json"
+    if not (folder / BUILD_MARKER).is_file() or not manifest_path.is_file():
+        raise InputError([Problem(str(folder), "not a pack build (no results/manifest.json); "
+                                  "run 'reporter build' first")])
+    try:
+        manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
+        expected = manifest["output_sha256"]
+        _ = manifest["pack_dir"], manifest["pack_name"], manifest["built_utc"]
+    except (ValueError, KeyError, TypeError) as exc:
+        raise InputError([Problem(str(manifest_path), "not a manifest this version can sign "
+                                  f"({exc}); rebuild the pack")]) from None
+    problems, files = [], {"results/manifest.json": manifest_path.read_bytes()}
+    on_disk = {str(p.relative_to(folder)) for p in folder.rglob("*") if p.is_file()}
+    for rel in sorted(on_disk - set(expected) - {BUILD_MARKER, "results/manifest.json"}):
+        problems.append(Problem(str(folder / rel), "not written by the build; remove it or "
+                                "rebuild before signing"))
+    for rel, digest in sorted(expected.items()):
+        path = folder / rel
+        if not path.is_file():
+            problems.append(Problem(str(path), "missing from the build; rebuild the pack"))
+            continue
+        data = path.read_bytes()
+        if sha256(data) != digest:
+            problems.append(Problem(str(path), "changed since the build (sha256 differs from "
+                                    "the manifest); rebuild and review it again"))
+        files[rel] = data
+    if problems:
+        raise InputError(problems)
+    return ReviewedBuild(folder, manifest, files)
+
+
+def archive_name(pack_name: str, period_end: str, revision: int) -> str:
+    """``<pack>-<period>``, with ``-r<n>`` from the second revision on."""
+    base = f"{pack_name}-{period_end}"
+    return base if revision == 1 else f"{base}-r{revision}"
+
+
+def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest, *,
+             progress: Progress | None = None) -> SignOffReport:
+    """Sign off the build in ``build_dir`` into ``archive`` (see the module docstring)."""
+    progress = progress or Progress(quiet=True)
+    archive = Path(archive).absolute()
+    _check_request(request)
+    _check_archive_folder(archive)
+    with progress.stage("check build"):
+        build = read_build(Path(build_dir))
+        settings = load_settings(build.manifest["pack_dir"])
+        _check_inputs_unchanged(settings, build)
+        period = settings.period_end.isoformat()
+        existing = _existing(archive, settings.name, period)
+        _refuse(existing, request, settings.name, period)
+    with progress.stage("re-render"):
+        built_at = dt.datetime.strptime(build.manifest["built_utc"], "%Y-%m-%dT%H:%M:%SZ")
+        a = assemble(settings, at=built_at.replace(tzinfo=dt.UTC))
+        if sha256(a.html(for_print=False).encode("utf-8")) != \
+                build.manifest["output_sha256"]["pack.html"]:
+            raise OutputError(f"{build.folder}: rebuilding from the inputs does not reproduce "
+                              "its pack.html (a different tool version or templates?); "
+                              "rebuild the pack, review it, then sign it off")
+    revision = existing[-1].revision + 1 if existing else 1
+    superseded = existing[-1] if existing else None
+    name = archive_name(settings.name, period, revision)
+    signed_utc = dt.datetime.now(dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
+    with progress.stage("pdf"):
+        pdf = _signed_pdf(a, build, settings, request, name, revision, superseded, signed_utc)
+    files = OutputSet()
+    files.add(f"{period}/{name}.pdf", pdf)
+    files.add(f"{period}/{name}/pack.html", build.files["pack.html"])
+    for rel in sorted(build.files):
+        if rel.startswith("results/"):
+            files.add(f"{period}/{name}/{rel}", build.files[rel])
+
+    archive.mkdir(parents=True, exist_ok=True)
+    con = connect_for_writing(archive)
+    try:
+        con.execute("BEGIN IMMEDIATE")   # waits while another sign-off holds the lock
+        now_existing = entries_for(con, settings.name, period)
+        _refuse(now_existing, request, settings.name, period)
+        if [e.seq for e in now_existing] != [e.seq for e in existing]:
+            raise ArchiveError(f"{settings.name} for {period}: another sign-off was recorded "
+                               "while this one was being prepared; nothing was archived. "
+                               "Check the archive, then run again if still needed")
+        with progress.stage("archive"):
+            place_in_archive(files, archive)
+            entry = append(con, {
+                "pack_name": settings.name, "period_end": period, "revision": revision,
+                "title": settings.title, "organisation": settings.organisation,
+                "signer": request.signer, "role": request.role,
+                "minute_ref": request.minute_ref, "note": request.note,
+                "signed_utc": signed_utc, "pdf_path": f"{period}/{name}.pdf",
+                "pdf_sha256": sha256(pdf),
+                "files": canonical_json({rel: sha256(files[rel]) for rel in files.paths}),
+                "inputs": canonical_json(build.manifest["input_sha256"]),
+                "tool_version": __version__,
+                "supersedes": superseded.seq if superseded else None,
+                "reason": request.reason,
+            })
+            con.execute("COMMIT")
+    except BaseException:
+        if con.in_transaction:
+            con.execute("ROLLBACK")
+        raise
+    finally:
+        con.close()
+    return SignOffReport(entry=entry, pdf=archive / entry.pdf_path, superseded=superseded)
+
+
+def _signed_pdf(a, build: ReviewedBuild, settings: Settings, request: SignOffRequest,
+                name: str, revision: int, superseded: Entry | None, signed_utc: str) -> bytes:
+    """The pack as PDF/A-3b with the sign-off page, carrying pack.toml, the inputs and the
+    results files as embedded attachments."""
+    hashes = build.manifest["input_sha256"]
+    shown = [("pack.toml", hashes["pack.toml"])] + [
+        (settings.inputs[r].display, hashes[r]) for r in INPUT_ROLES]
+    record = {
+        "signer": request.signer, "role": request.role, "minute_ref": request.minute_ref,
+        "note": request.note, "signed_utc": _readable(signed_utc),
+        "archive_name": name, "revision": revision, "reason": request.reason,
+        "supersedes": (f"{superseded.pdf_path} (entry {superseded.seq}, signed by "
+                       f"{superseded.signer} on {_readable(superseded.signed_utc)})")
+                       if superseded else None,
+        "inputs": shown,
+    }
+    attachments, seen = [], set()
+    sources = [("pack.toml", settings.config_path, "the pack's settings")] + [
+        (f"inputs/{settings.inputs[r].display}", settings.inputs[r].path, f"{r} input")
+        for r in INPUT_ROLES]
+    for att_name, path, what in sources:
+        if att_name in seen:
+            continue
+        seen.add(att_name)
+        attachments.append(Attachment(string=path.read_bytes(), name=att_name,
+                                      description=what, relationship="Source"))
+    for rel in sorted(build.files):
+        if rel.startswith("results/"):
+            attachments.append(Attachment(string=build.files[rel], name=rel,
+                                          description="results file", relationship="Data"))
+    return render_pdf(a.html(for_print=True, signoff=record), variant=PDF_VARIANT,
+                      attachments=attachments)
+
+
+def _readable(utc: str) -> str:
+    """``2026-12-02T06:14:48Z`` as ``2026-12-02 06:14:48 UTC``."""
+    return utc.replace("T", " ").replace("Z", " UTC")
+
+
+def _check_request(request: SignOffRequest) -> None:
+    problems = []
+    texts = {"--by": request.signer, "--role": request.role,
+             "--minute-ref": request.minute_ref, "--note": request.note,
+             "--reason": request.reason}
+    for option, text in texts.items():
+        if text is None:
+            continue
+        if not text.strip():
+            problems.append(Problem(option, "must not be empty"))
+        elif len(text) > MAX_TEXT:
+            problems.append(Problem(option, f"longer than {MAX_TEXT} characters"))
+        elif any(ord(c) < 32 for c in text):
+            problems.append(Problem(option, "contains a control character or line break"))
+    if request.supersedes and request.reason is None:
+        problems.append(Problem("--supersedes", "needs --reason TEXT saying why"))
+    if request.reason is not None and not request.supersedes:
+        problems.append(Problem("--reason", "only applies with --supersedes"))
+    if problems:
+        raise InputError(problems)
+
+
+def _check_archive_folder(archive: Path) -> None:
+    if archive.exists() and not archive.is_dir():
+        raise InputError([Problem(str(archive), "exists and is not a folder")])
+    if archive.is_dir() and not (archive / LEDGER_NAME).exists() and any(archive.iterdir()):
+        raise InputError([Problem(str(archive), f"is not empty and has no {LEDGER_NAME}; "
+                                  "not an archive (choose an empty or new folder)")])
+
+
+def _check_inputs_unchanged(settings: Settings, build: ReviewedBuild) -> None:
+    from reporter.build import input_hashes
+
+    now = input_hashes(settings)
+    then = build.manifest["input_sha256"]
+    changed = [k for k in sorted(set(now) | set(then)) if now.get(k) != then.get(k)]
+    if changed:
+        names = {"pack.toml": settings.config_path} | {r: settings.inputs[r].path
+                                                       for r in INPUT_ROLES}
+        raise InputError([Problem(str(names.get(k, k)), "changed since the pack was built; "
+                                  "rebuild and review the new pack before signing it off")
+                          for k in changed])
+
+
+def _existing(archive: Path, pack_name: str, period: str) -> list[Entry]:
+    if not (archive / LEDGER_NAME).exists():
+        return []
+    try:
+        con = connect_read_only(archive)
+    except sqlite3.Error as exc:
+        raise ArchiveError(f"{archive / LEDGER_NAME}: cannot be read ({exc})") from None
+    try:
+        return entries_for(con, pack_name, period)
+    finally:
+        con.close()
+
+
+def _refuse(existing: list[Entry], request: SignOffRequest, pack_name: str,
+            period: str) -> None:
+    if existing and not request.supersedes:
+        last = existing[-1]
+        raise ArchiveError(
+            f"{pack_name} for {period} is already signed off: entry {last.seq}, "
+            f"{last.pdf_path}, by {last.signer} on {last.signed_utc}. A second sign-off "
+            "needs --supersedes --reason TEXT (both documents are then kept)")
+    if request.supersedes and not existing:
+        raise ArchiveError(f"nothing to supersede: {pack_name} for {period} has no sign-off "
+                           "in this archive")
+
+
+def head_hash(archive: Path) -> str | None:
+    """The hash of the ledger's last entry (to note in the minutes)."""
+    con = connect_read_only(archive)
+    try:
+        last = last_entry(con)
+        return last.entry_hash if last else None
+    finally:
+        con.close()
+
+
+__all__ = ["ArchiveError", "SignOffReport", "SignOffRequest", "archive_name", "head_hash",
+           "read_build", "sign_off"]
