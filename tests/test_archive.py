@@ -69,6 +69,28 @@ def test_signed_pdf_declares_pdfa_3b(signed_pdf):
     assert "/OutputIntents" in signed_pdf.trailer["/Root"]
 
 
+def test_signed_pdf_meets_the_pdfa_rules_we_can_check_without_verapdf(signed_pdf):
+    """veraPDF is not in the package registries this project can reach, so these are the
+    ISO 19005 requirements checked here with pypdf: no encryption; an output intent with an
+    embedded ICC profile; every font used on a page embedded; every embedded file listed in
+    the catalogue's /AF array with an /AFRelationship (PDF/A-3, clause 6.8)."""
+    assert not signed_pdf.is_encrypted
+    root = signed_pdf.trailer["/Root"]
+    intent = root["/OutputIntents"][0].get_object()
+    assert intent["/S"] == "/GTS_PDFA1" and "/DestOutputProfile" in intent
+    for i, page in enumerate(signed_pdf.pages):
+        for name, font in (page["/Resources"].get("/Font") or {}).items():
+            font = font.get_object()
+            desc = font.get("/FontDescriptor") or \
+                font["/DescendantFonts"][0].get_object()["/FontDescriptor"]
+            desc = desc.get_object()
+            assert {"/FontFile", "/FontFile2", "/FontFile3"} & set(desc), (i, name)
+    # WeasyPrint 70 lists each file specification twice in /AF (the same objects)
+    af = [a.get_object() for a in {a.idnum: a for a in root["/AF"]}.values()]
+    assert sorted(a["/F"] for a in af) == sorted(signed_pdf.attachments)
+    assert {a["/AFRelationship"] for a in af} == {"/Source", "/Data"}
+
+
 def test_attachments_carry_the_exact_inputs_and_results(signed_pdf, demo_build):
     att = {name: data[0] for name, data in signed_pdf.attachments.items()}
     assert att["pack.toml"] == (DEMO / "pack.toml").read_bytes()
