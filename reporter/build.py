@@ -123,13 +123,16 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
 
 
 def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
-               progress: Progress | None = None) -> BuildReport:
-    """Build ``pack`` (folder or pack.toml) into ``out``: pack.html, pack.pdf, results/."""
+               progress: Progress | None = None, at: dt.datetime | None = None) -> BuildReport:
+    """Build ``pack`` (folder or pack.toml) into ``out``: pack.html, pack.pdf, results/.
+
+    ``at`` fixes the build time (a batch gives all its schemes one); default :func:`build_time`.
+    """
     progress = progress or Progress(quiet=True)
     out = Path(out)
     settings = load_settings(pack)
     check_target(out)
-    a = assemble(settings, strict=strict, progress=progress)
+    a = assemble(settings, strict=strict, progress=progress, at=at)
     with progress.stage("render"):
         html = a.html(for_print=False)
         pdf = render_pdf(a.html(for_print=True))

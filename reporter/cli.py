@@ -150,6 +150,35 @@ def repair(archive: Path, debug: bool) -> None:
         raise _Exit(EXIT_FAILED)
 
 
+@cli.command("build-all")
+@click.argument("schemes_dir", type=click.Path(path_type=Path))
+@click.option("--out", "-o", required=True, type=click.Path(path_type=Path),
+              help="Folder that receives one build folder per scheme.")
+@click.option("--workers", "-j", type=click.IntRange(min=1),
+              help="Local worker processes (default: the number of cores).")
+@click.option("--scheduler", metavar="ADDRESS",
+              help="Run on this Dask distributed scheduler (e.g. tcp://10.0.0.5:8786).")
+@strict_option
+@quiet_option
+@debug_option
+def build_all_cmd(schemes_dir: Path, out: Path, workers, scheduler, strict: bool, quiet: bool,
+                  debug: bool) -> None:
+    """Build every pack folder under SCHEMES_DIR into --out/<scheme>/.
+
+    One failing scheme never stops the others; exit 1 if any failed.
+    """
+    from reporter.batch import FAILED, build_all, summary_table
+    from reporter.progress import BatchProgress
+
+    with BatchProgress(quiet=quiet) as progress:
+        results = _run(lambda: build_all(schemes_dir, out, workers=workers,
+                                         scheduler=scheduler, strict=strict,
+                                         on_result=progress.update), debug)
+    click.echo(summary_table(results))
+    if any(r.status == FAILED for r in results):
+        raise _Exit(EXIT_FAILED)
+
+
 def _print_warnings(warnings) -> None:
     for w in warnings[:MAX_LINES]:
         click.echo(str(w), err=True)

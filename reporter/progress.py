@@ -38,3 +38,43 @@ class Progress:
             yield
             print(f"reporter: {name} done ({time.perf_counter() - start:.2f} s)",
                   file=self.stream, flush=True)
+
+
+class BatchProgress:
+    """Progress of many schemes: a bar on a terminal, one plain line per scheme otherwise."""
+
+    def __init__(self, quiet: bool = False, stream=None) -> None:
+        self.stream = stream or sys.stderr
+        self.quiet = quiet
+        self.live = (not quiet and hasattr(self.stream, "isatty") and self.stream.isatty()
+                     and not os.environ.get("CI"))
+        self._bar = None
+        self._task = None
+
+    def __enter__(self) -> BatchProgress:
+        if self.live:
+            from rich.console import Console
+            from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
+
+            self._bar = Progress("[progress.description]{task.description}", BarColumn(),
+                                 MofNCompleteColumn(), TimeElapsedColumn(),
+                                 console=Console(file=self.stream), transient=True)
+            self._bar.start()
+        return self
+
+    def update(self, result, done: int, total: int) -> None:
+        line = f"[{done}/{total}] {result.scheme} {result.status} ({result.seconds:.1f} s)"
+        if self.quiet:
+            return
+        if self._bar is not None:
+            if self._task is None:
+                self._task = self._bar.add_task("building", total=total)
+            self._bar.update(self._task, completed=done, description=f"built {result.scheme}")
+            if result.status != "built":
+                self._bar.console.print(f"[red]{line}[/red]: {result.reason}")
+        else:
+            print(f"reporter: {line}", file=self.stream, flush=True)
+
+    def __exit__(self, *exc) -> None:
+        if self._bar is not None:
+            self._bar.stop()

@@ -53,10 +53,7 @@ def check_target(target: Path) -> None:
     """Refuse a target that is (or is inside) an archive, or an existing folder that is not a
     previous build's output (so that nobody's files are replaced by mistake)."""
     target = Path(target).absolute()
-    for folder in (target, *target.parents):
-        if (folder / ARCHIVE_MARKER).exists():
-            raise OutputError(f"{target}: refusing to write into the archive at {folder}; "
-                              "signed packs are never overwritten")
+    refuse_archive(target)
     if target.exists():
         if not target.is_dir():
             raise OutputError(f"{target}: exists and is not a folder")
@@ -64,6 +61,15 @@ def check_target(target: Path) -> None:
         if entries and BUILD_MARKER not in entries:
             raise OutputError(f"{target}: folder exists, is not empty and is not a pack build; "
                               "refusing to replace it (choose another --out)")
+
+
+def refuse_archive(target: Path) -> None:
+    """Refuse a path that is, or is inside, a sign-off archive (a folder with a ledger)."""
+    target = Path(target).absolute()
+    for folder in (target, *target.parents):
+        if (folder / ARCHIVE_MARKER).exists():
+            raise OutputError(f"{target}: refusing to write into the archive at {folder}; "
+                              "signed packs are never overwritten")
 
 
 def commit(files: OutputSet, target: Path) -> None:
