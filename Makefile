@@ -5,7 +5,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test lint demo-data golden clean
+.PHONY: demo test lint demo-data golden bench clean
 
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
@@ -31,6 +31,10 @@ demo-data: $(STAMP)
 golden: $(STAMP)
 	SOURCE_DATE_EPOCH=1795996800 $(BIN)/reporter build inputs/demo --out build/golden
 	cp build/golden/results/securities.csv build/golden/results/portfolio.json tests/golden/
+
+# Time every stage against its floor (Small, Large, Batch) and write BENCHMARKS.md (long).
+bench: $(STAMP)
+	$(BIN)/python benchmarks/bench_pack.py
 
 clean:
 	rm -rf build

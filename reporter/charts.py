@@ -115,10 +115,24 @@ def diversification_chart(res: PackResults) -> alt.LayerChart:
     return alt.layer(line, rule, rule_lab, pt, pt_lab).properties(width=WIDTH, height=260)
 
 
+MAX_LINE_POINTS = 300   # a print chart is about 500 px wide: more points add bytes, not detail
+
+
+def thin_series(df: pd.DataFrame, by: str = "series",
+                max_points: int = MAX_LINE_POINTS) -> pd.DataFrame:
+    """At most ``max_points`` evenly spaced rows of each series (first and last kept), for
+    plotting long daily histories; the results files keep every row."""
+    pos = df.groupby(by, sort=False).cumcount().to_numpy()
+    size = df.groupby(by, sort=False)[by].transform("size").to_numpy()
+    step = np.maximum(1, np.ceil((size - 1) / max(1, max_points - 1))).astype(int)
+    keep = (pos % step == 0) | (pos == size - 1)
+    return df[keep]
+
+
 def rolling_portfolio_chart(res: PackResults) -> alt.LayerChart:
     """The portfolio's trailing-window beta with its confidence band (OLS errors)."""
     t = res.rolling_table
-    df = t[t["series"] == PORTFOLIO_SERIES].copy()
+    df = thin_series(t[t["series"] == PORTFOLIO_SERIES]).copy()
     df["date"] = pd.to_datetime(df["date"])
     x = alt.X("date:T", title=None, axis=alt.Axis(format="%Y"))
     band = alt.Chart(df).mark_area(color=TEAL, opacity=0.18).encode(
@@ -138,7 +152,7 @@ def rolling_holdings_chart(res: PackResults, top: int = 10) -> alt.Chart:
     ids = list(sec["security_id"].head(top))
     names = dict(zip(sec["security_id"], sec["name"], strict=True))
     t = res.rolling_table
-    df = t[t["series"].isin(ids)].copy()
+    df = thin_series(t[t["series"].isin(ids)]).copy()
     df["date"] = pd.to_datetime(df["date"])
     df["holding"] = df["series"].map(names)
     order = [names[i] for i in ids]

@@ -1,0 +1,276 @@
+"""Benchmark: every stage of a pack build against its floor, peak memory, and a batch of
+schemes on 1..cores workers. Writes the table to BENCHMARKS.md.
+
+    python benchmarks/bench_pack.py                      # Small, Large and Batch (long)
+    python benchmarks/bench_pack.py --workloads small    # the quick one
+    python benchmarks/bench_pack.py --investigate        # where WeasyPrint spends its time
+
+Each single-scheme workload runs in its own process, so its peak RSS is its own. Floors are
+measured in that same process, after the build: ``pyarrow.csv.read_csv`` of the four input
+files (read), one ``numpy.linalg.lstsq`` of every holding on [1, market] plus one
+``numpy.cov`` (analytics), and WeasyPrint rendering the pack's own print HTML with every
+chart removed (PDF). All data are invented and seeded (see workloads.py).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import platform
+import re
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE))
+
+from workloads import write_scheme  # noqa: E402
+
+WORKLOADS = {  # name: (holdings, periods, frequency)
+    "small": (50, 120, "monthly"),
+    "large": (2000, 2520, "daily"),
+}
+BATCH = (60, 120, "monthly")
+STAGES = ["read", "validate", "analytics", "charts", "html", "pdf"]
+SVG = re.compile(r"<svg\b.*?</svg>", re.S)
+
+
+def _timed(times: dict, name: str, fn):
+    t0 = time.perf_counter()
+    out = fn()
+    times[name] = time.perf_counter() - t0
+    return out
+
+
+def run_stages(folder: Path) -> dict:
+    """Build the pack in ``folder`` stage by stage (in memory), then measure the floors."""
+    import pyarrow.csv as pacsv
+
+    from reporter.analytics.pack import analyse
+    from reporter.build import build_time
+    from reporter.charts import build_charts
+    from reporter.config import load_settings
+    from reporter.context import build_context
+    from reporter.render.html import export_charts, render_html
+    from reporter.render.pdf import render_pdf
+    from reporter.validate import read_inputs, validate_tables
+
+    t: dict[str, float] = {}
+    settings = load_settings(folder)
+    raws, problems = _timed(t, "read", lambda: read_inputs(settings))
+    inputs = _timed(t, "validate", lambda: validate_tables(settings, raws, problems))
+    res = _timed(t, "analytics", lambda: analyse(inputs, settings))
+
+    def charts():
+        ctx = build_context(settings, inputs, res, build_charts(res), "0" * 64, build_time())
+        return ctx, export_charts(ctx)
+
+    ctx, svgs = _timed(t, "charts", charts)
+    html = _timed(t, "html", lambda: (render_html(ctx, svgs, for_print=False),
+                                      render_html(ctx, svgs, for_print=True)))[1]
+    pdf = _timed(t, "pdf", lambda: render_pdf(html))
+    peak_build = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+
+    floors: dict[str, float] = {}
+    files = [settings.inputs[r].path for r in ("holdings", "returns", "market", "risk_free")]
+    _timed(floors, "read", lambda: [pacsv.read_csv(f) for f in files])
+    y = np.nan_to_num(inputs.returns.values[-settings.window:])
+    m = inputs.market.values[-len(y):]
+    x = np.column_stack([np.ones(len(m)), m])
+    y = y[-len(m):]
+    _timed(floors, "analytics", lambda: (np.linalg.lstsq(x, y, rcond=None), np.cov(y.T)))
+    bare = SVG.sub("", html)
+    _timed(floors, "pdf", lambda: render_pdf(bare))
+    return {"stages": t, "floors": floors, "peak_rss": peak_build,
+            "matrix_bytes": int(y.size * 8), "n_holdings": int(y.shape[1]),
+            "n_periods": int(y.shape[0]), "pdf_bytes": len(pdf), "html_bytes": len(html),
+            "pages": _pages(pdf)}
+
+
+APPENDIX = re.compile(r'<section class="chapter" id="holdings">.*?</section>', re.S)
+
+
+def investigate(folder: Path, repeat: int = 1) -> dict:
+    """Time WeasyPrint on variants of the same print HTML: SVG charts (as built), PNG charts
+    at print resolution, no charts, no holdings appendix, and fonts embedded whole."""
+    import base64
+
+    import vl_convert as vlc
+    from weasyprint import HTML
+    from weasyprint.urls import URLFetcher
+
+    from reporter.analytics.pack import analyse
+    from reporter.build import build_time
+    from reporter.charts import THEME_CONFIG, build_charts
+    from reporter.config import load_settings
+    from reporter.context import build_context
+    from reporter.render.html import export_charts, render_html
+    from reporter.validate import validate_pack
+
+    settings = load_settings(folder)
+    inputs = validate_pack(settings)
+    res = analyse(inputs, settings)
+    ctx = build_context(settings, inputs, res, build_charts(res), "0" * 64, build_time())
+    t: dict[str, float] = {}
+    svgs = _timed(t, "export charts as SVG", lambda: export_charts(ctx))
+
+    def pngs():
+        out = {}
+        for name, chart in ctx.charts.items():
+            png = vlc.vegalite_to_png(chart.to_dict(), scale=300 / 72, config=THEME_CONFIG)
+            out[name] = (f'<img alt="" style="max-width:100%" src="data:image/png;base64,'
+                         f'{base64.b64encode(png).decode()}">')
+        return out
+
+    png_markup = _timed(t, "export charts as PNG, 300 dpi", pngs)
+    html_svg = render_html(ctx, svgs, for_print=True)
+    html_png = render_html(ctx, png_markup, for_print=True)
+
+    data_only = URLFetcher()
+
+    def fetch_data_uri(url, *args, **kwargs):
+        if not url.startswith("data:"):
+            raise ValueError(f"refused {url!r}")
+        return data_only.fetch(url)
+
+    def pdf(html, **opts):
+        return HTML(string=html, url_fetcher=fetch_data_uri).write_pdf(**opts)
+
+    sizes = {}
+    for label, html, opts in [
+            ("PDF, SVG charts (as built)", html_svg, {}),
+            ("PDF, PNG charts at 300 dpi", html_png, {}),
+            ("PDF, no charts", SVG.sub("", html_svg), {}),
+            ("PDF, no holdings appendix", APPENDIX.sub("", html_svg), {}),
+            ("PDF, fonts embedded whole (no subsetting)", html_svg, {"full_fonts": True})]:
+        runs: dict[str, float] = {}
+        for _ in range(repeat):        # the fastest of ``repeat`` runs
+            sizes[label] = len(_timed(runs, label, lambda h=html, o=opts: pdf(h, **o)))
+            t[label] = min(t.get(label, float("inf")), runs[label])
+    return {"times": t, "pdf_bytes": sizes}
+
+
+def _pages(pdf: bytes) -> int:
+    import io
+
+    import pypdf
+
+    return len(pypdf.PdfReader(io.BytesIO(pdf)).pages)
+
+
+def child(name: str, folder: Path, study: bool = False) -> None:
+    n, periods, freq = WORKLOADS[name]
+    write_scheme(folder, n, periods, freq, seed=7, label=name[:1].upper(),
+                 window=periods if freq == "daily" else None)
+    repeat = 3 if name == "small" else 1
+    print(json.dumps(investigate(folder, repeat) if study else run_stages(folder)))
+
+
+def single(name: str, study: bool = False) -> dict:
+    with tempfile.TemporaryDirectory() as tmp:
+        out = subprocess.run([sys.executable, __file__, "--child", name, tmp]
+                             + (["--investigate"] if study else []),
+                             capture_output=True, text=True, check=True)
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def batch(n_schemes: int) -> dict:
+    """Per-scheme wall time of build-all over ``n_schemes`` schemes on 1..cores workers."""
+    from reporter.batch import build_all
+
+    cores = os.cpu_count() or 1
+    out = {"n_schemes": n_schemes, "per_scheme": {}}
+    with tempfile.TemporaryDirectory() as tmp:
+        root = Path(tmp) / "schemes"
+        n, periods, freq = BATCH
+        for i in range(n_schemes):
+            write_scheme(root / f"scheme-{i:03d}", n, periods, freq, seed=100 + i,
+                         label=f"S{i:03d}")
+        for workers in range(1, cores + 1):
+            t0 = time.perf_counter()
+            results = build_all(root, Path(tmp) / f"out-{workers}", workers=workers)
+            wall = time.perf_counter() - t0
+            assert all(r.status == "built" for r in results), results
+            out["per_scheme"][workers] = wall / n_schemes
+    return out
+
+
+def table(results: dict[str, dict], batch_result: dict | None) -> str:
+    lines = [f"Machine: {platform.machine()}, {os.cpu_count()} cores, Python "
+             f"{platform.python_version()}, {platform.system()} {platform.release()}.",
+             f"Run on {time.strftime('%Y-%m-%d', time.gmtime())}; one run of each stage "
+             "(machines are noisy: read the ratios, not the seconds).", ""]
+    for name, r in results.items():
+        s, f = r["stages"], r["floors"]
+        total, floor_sum = sum(s.values()), sum(f.values())
+        lines += [f"### {name.capitalize()}: {r['n_holdings']:,} holdings x "
+                  f"{r['n_periods']:,} periods in the window, {r['pages']} PDF pages", "",
+                  "| stage | seconds | floor | ratio |", "| --- | ---: | --- | ---: |"]
+        floor_of = {"read": "read", "validate": None, "analytics": "analytics",
+                    "charts": None, "html": None, "pdf": "pdf"}
+        for st in STAGES:
+            fl = floor_of[st]
+            ratio = (f"{(s['read'] + s['validate']) / f['read']:.2f} (read + validate)"
+                     if st == "validate" else f"{s[st] / f[fl]:.2f}" if fl else "")
+            lines.append(f"| {st} | {s[st]:.2f} | {f'{f[fl]:.2f} s' if fl else ''} | {ratio} |")
+        charts_cost = (s["charts"] + s["pdf"] - f["pdf"]) / f["pdf"]
+        limit = 4 * r["matrix_bytes"] + 400e6
+        lines += ["", f"- whole build {total:.2f} s = {total / floor_sum:.2f} x the sum of the "
+                  f"floors ({floor_sum:.2f} s); target 1.5",
+                  f"- charts (export + their PDF cost) add {charts_cost:.0%} to the chart-free "
+                  "PDF; target 30%",
+                  f"- peak RSS {r['peak_rss'] / 1e6:.0f} MB; limit 4 x the float64 return "
+                  f"matrix ({r['matrix_bytes'] / 1e6:.1f} MB) + 400 MB = {limit / 1e6:.0f} MB",
+                  ""]
+    if batch_result:
+        lines += [f"### Batch: {batch_result['n_schemes']} schemes of {BATCH[0]} holdings x "
+                  f"{BATCH[1]} months", "", "| workers | seconds per scheme |", "| ---: | ---: |"]
+        for w, sec in batch_result["per_scheme"].items():
+            lines.append(f"| {w} | {sec:.2f} |")
+        lines.append("")
+    return "\n".join(lines)
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--child", nargs=2, metavar=("WORKLOAD", "DIR"))
+    ap.add_argument("--workloads", default="small,large,batch")
+    ap.add_argument("--batch-schemes", type=int, default=200)
+    ap.add_argument("--investigate", action="store_true",
+                    help="time WeasyPrint on variants of the pack (with --workloads NAME)")
+    ap.add_argument("--out", type=Path, default=HERE.parent / "BENCHMARKS.md")
+    args = ap.parse_args()
+    if args.child:
+        child(args.child[0], Path(args.child[1]), args.investigate)
+        return
+    if args.investigate:
+        for name in (w for w in args.workloads.split(",") if w in WORKLOADS):
+            r = single(name, study=True)
+            print(f"### Where WeasyPrint spends its time: {name}\n")
+            print("| variant | seconds | PDF bytes |\n| --- | ---: | ---: |")
+            for label, sec in r["times"].items():
+                size = r["pdf_bytes"].get(label)
+                print(f"| {label} | {sec:.2f} | {f'{size:,}' if size else ''} |")
+        return
+    wanted = args.workloads.split(",")
+    results = {}
+    for name in (w for w in wanted if w in WORKLOADS):
+        results[name] = single(name)
+        print(f"{name}: done", file=sys.stderr, flush=True)
+    batch_result = batch(args.batch_schemes) if "batch" in wanted else None
+    text = table(results, batch_result)
+    print(text)
+    if args.out:
+        args.out.write_text("# Benchmarks\n\nWritten by `make bench` "
+                            "(`python benchmarks/bench_pack.py`).\n\n" + text)
+
+
+if __name__ == "__main__":
+    main()
