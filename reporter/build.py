@@ -22,6 +22,7 @@ from reporter.charts import build_charts
 from reporter.config import INPUT_ROLES, Settings, load_settings
 from reporter.context import PackContext, build_context
 from reporter.errors import Problem
+from reporter.limits import LimitsReport, evaluate_limits
 from reporter.models import ValidInputs
 from reporter.progress import Progress
 from reporter.render.html import export_charts, render_html
@@ -94,6 +95,7 @@ class Assembled:
     context: PackContext
     svgs: dict
     hashes: dict[str, str]
+    limits: LimitsReport | None = None
 
     def html(self, for_print: bool = False) -> str:
         return render_html(self.context, self.svgs, for_print=for_print,
@@ -111,11 +113,13 @@ def assemble(settings: Settings, *, strict: bool = False,
     with progress.stage("analyse"):
         res = analyse(inputs, settings)
         hashes = input_hashes(settings)
+        limits = evaluate_limits(settings.limits, res) if settings.limits else None
     with progress.stage("chart"):
-        charts = build_charts(res)
-        ctx = build_context(settings, inputs, res, charts, fingerprint(hashes), build_time())
+        charts = build_charts(res, limits)
+        ctx = build_context(settings, inputs, res, charts, fingerprint(hashes), build_time(),
+                            limits=limits)
         svgs = export_charts(ctx)
-    return Assembled(settings, inputs, res, ctx, svgs, hashes)
+    return Assembled(settings, inputs, res, ctx, svgs, hashes, limits=limits)
 
 
 def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
@@ -138,6 +142,9 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     buf = io.StringIO()
     res.rolling_table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
     files.add("results/rolling_beta.csv", buf.getvalue())
+    if a.limits is not None:
+        files.add("results/limits.json", json.dumps(a.limits.as_json(), indent=2,
+                                                    sort_keys=True) + "\n")
     files.add("results/manifest.json", _json({
         "tool_version": __version__,
         "built_utc": ctx.build_time.strftime("%Y-%m-%dT%H:%M:%SZ"),

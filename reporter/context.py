@@ -16,6 +16,7 @@ from reporter import __version__
 from reporter.analytics.pack import PackResults
 from reporter.analytics.sml import ABOVE, BELOW
 from reporter.config import Settings
+from reporter.limits import LimitsReport
 from reporter.models import ValidInputs
 
 CAUTIONS = (
@@ -90,6 +91,9 @@ class PackContext:
     charts: dict[str, alt.TopLevelMixin] = field(repr=False)
     sections: tuple[Section, ...] = SECTIONS
     cautions: tuple[str, ...] = CAUTIONS
+    limits: LimitsReport | None = None             # None: no [limits] in pack.toml
+    holding_limit_status: dict[str, str] = field(default_factory=dict)  # id -> watch/breach
+    sector_limit_status: dict[str, dict] = field(default_factory=dict)  # sector -> status...
 
 
 def _records(df) -> list[dict]:
@@ -106,7 +110,8 @@ def _holdings_to_remove(res: PackResults, share: float) -> int:
 
 def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
                   charts: dict[str, alt.TopLevelMixin], fingerprint: str,
-                  build_time: dt.datetime) -> PackContext:
+                  build_time: dt.datetime, *, limits: LimitsReport | None = None
+                  ) -> PackContext:
     """Assemble the context for the pack templates."""
     sec = res.securities.copy()
     # the alpha t-statistic from the errors behind the pack's intervals and SML positions
@@ -147,4 +152,7 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         beta_not_one=_records(by_weight[by_weight["beta_differs_from_1"].astype(bool)]),
         curve_90=_holdings_to_remove(res, 0.90), curve_95=_holdings_to_remove(res, 0.95),
         charts=charts,
+        limits=limits,
+        holding_limit_status=limits.holding_status() if limits else {},
+        sector_limit_status=limits.sector_status() if limits else {},
     )

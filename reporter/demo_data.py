@@ -49,6 +49,17 @@ risk_free = "risk_free.csv"
 [analysis]
 window = 60
 min_obs = 24
+
+# The scheme's policy limits for this mandate (invented).
+[limits]
+beta_min = 0.85
+beta_max = 1.05
+max_holding_weight = 0.08
+max_sector_weight = { "*" = 0.15, Energy = 0.12 }
+min_effective_n = 25
+min_holdings = 40
+max_tracking_error_ann = 0.05
+max_idiosyncratic_share = 0.10
 """
 
 
