@@ -132,7 +132,8 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     a = assemble(settings, strict=strict, progress=progress)
     with progress.stage("render"):
         html = a.html(for_print=False)
-        pdf = render_pdf(a.html(for_print=True))
+        pdf = render_pdf(a.html(for_print=True), base_dir=settings.pack_dir,
+                         allowed=(settings.pack_dir,))
     res, ctx = a.results, a.context
     files = OutputSet()
     files.add("pack.html", html)
