@@ -11,17 +11,19 @@ import hashlib
 import io
 import json
 import os
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
 from reporter import __version__
+from reporter.analytics.changes import PackChanges, compare_packs
 from reporter.analytics.pack import PackResults, analyse
+from reporter.changes import read_previous
 from reporter.charts import build_charts
 from reporter.config import INPUT_ROLES, Settings, load_settings
 from reporter.context import PackContext, build_context
-from reporter.errors import Problem
+from reporter.errors import InputError, Problem
 from reporter.limits import LimitsReport, evaluate_limits
 from reporter.models import ValidInputs
 from reporter.progress import Progress
@@ -96,6 +98,8 @@ class Assembled:
     svgs: dict
     hashes: dict[str, str]
     limits: LimitsReport | None = None
+    changes: PackChanges | None = None
+    compare_warnings: list[Problem] = field(default_factory=list)
 
     def html(self, for_print: bool = False) -> str:
         return render_html(self.context, self.svgs, for_print=for_print,
@@ -108,18 +112,29 @@ def assemble(settings: Settings, *, strict: bool = False,
     progress = progress or Progress(quiet=True)
     with progress.stage("read"):
         raws, read_problems = read_inputs(settings)
+        previous, compare_warnings = read_previous(settings)
+        if strict and compare_warnings:
+            raise InputError(compare_warnings)
     with progress.stage("validate"):
         inputs = validate_tables(settings, raws, read_problems, strict=strict)
     with progress.stage("analyse"):
         res = analyse(inputs, settings)
         hashes = input_hashes(settings)
         limits = evaluate_limits(settings.limits, res) if settings.limits else None
+        changes = None
+        if previous is not None:
+            changes = compare_packs(previous, res,
+                                    limits.as_json()["limits"] if limits else None,
+                                    settings.confidence)
     with progress.stage("chart"):
         charts = build_charts(res, limits)
         ctx = build_context(settings, inputs, res, charts, fingerprint(hashes), build_time(),
-                            limits=limits)
+                            limits=limits, changes=changes,
+                            compare_note=compare_warnings[0].message if compare_warnings
+                            else None)
         svgs = export_charts(ctx)
-    return Assembled(settings, inputs, res, ctx, svgs, hashes, limits=limits)
+    return Assembled(settings, inputs, res, ctx, svgs, hashes, limits=limits, changes=changes,
+                     compare_warnings=compare_warnings)
 
 
 def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
@@ -146,6 +161,10 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     if a.limits is not None:
         files.add("results/limits.json", json.dumps(a.limits.as_json(), indent=2,
                                                     sort_keys=True) + "\n")
+    if settings.compare_build is not None or settings.compare_archive is not None:
+        doc = a.changes.as_json() if a.changes is not None else {
+            "previous": None, "note": ctx.compare_note}
+        files.add("results/changes.json", json.dumps(doc, indent=2, sort_keys=True) + "\n")
     files.add("results/manifest.json", _json({
         "tool_version": __version__,
         "built_utc": ctx.build_time.strftime("%Y-%m-%dT%H:%M:%SZ"),
@@ -159,4 +178,5 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     }))
     with progress.stage("write"):
         commit(files, out)
-    return BuildReport(out=out, files=files.paths, warnings=a.inputs.warnings, results=res)
+    return BuildReport(out=out, files=files.paths,
+                       warnings=a.inputs.warnings + a.compare_warnings, results=res)
