@@ -21,6 +21,7 @@ from reporter.analytics.changes import PackChanges, compare_packs
 from reporter.analytics.pack import PackResults, analyse
 from reporter.changes import read_previous
 from reporter.charts import build_charts
+from reporter.commentary import CommentarySet, read_commentary
 from reporter.config import INPUT_ROLES, Settings, load_settings
 from reporter.context import PackContext, build_context
 from reporter.errors import InputError, Problem
@@ -100,6 +101,7 @@ class Assembled:
     limits: LimitsReport | None = None
     changes: PackChanges | None = None
     compare_warnings: list[Problem] = field(default_factory=list)
+    commentary: CommentarySet = field(default_factory=CommentarySet)
 
     def html(self, for_print: bool = False) -> str:
         return render_html(self.context, self.svgs, for_print=for_print,
@@ -113,6 +115,7 @@ def assemble(settings: Settings, *, strict: bool = False,
     with progress.stage("read"):
         raws, read_problems = read_inputs(settings)
         previous, compare_warnings = read_previous(settings)
+        commentary = read_commentary(settings.pack_dir)
         if strict and compare_warnings:
             raise InputError(compare_warnings)
     with progress.stage("validate"):
@@ -120,6 +123,7 @@ def assemble(settings: Settings, *, strict: bool = False,
     with progress.stage("analyse"):
         res = analyse(inputs, settings)
         hashes = input_hashes(settings)
+        hashes.update(commentary.hashes)        # the commentary files and their images
         limits = evaluate_limits(settings.limits, res) if settings.limits else None
         changes = None
         if previous is not None:
@@ -131,10 +135,10 @@ def assemble(settings: Settings, *, strict: bool = False,
         ctx = build_context(settings, inputs, res, charts, fingerprint(hashes), build_time(),
                             limits=limits, changes=changes,
                             compare_note=compare_warnings[0].message if compare_warnings
-                            else None)
+                            else None, commentary=commentary.by_section)
         svgs = export_charts(ctx)
     return Assembled(settings, inputs, res, ctx, svgs, hashes, limits=limits, changes=changes,
-                     compare_warnings=compare_warnings)
+                     compare_warnings=compare_warnings, commentary=commentary)
 
 
 def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,

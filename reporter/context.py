@@ -98,6 +98,8 @@ class PackContext:
     sector_limit_status: dict[str, dict] = field(default_factory=dict)  # sector -> status...
     changes: PackChanges | None = None             # None: no [compare], or nothing found
     compare_note: str | None = None                # why there is nothing to compare
+    # section anchor -> reporter.commentary.Commentary (author, date, title, sanitised html)
+    commentary: dict = field(default_factory=dict)
 
 
 def _records(df) -> list[dict]:
@@ -115,8 +117,8 @@ def _holdings_to_remove(res: PackResults, share: float) -> int:
 def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
                   charts: dict[str, alt.TopLevelMixin], fingerprint: str,
                   build_time: dt.datetime, *, limits: LimitsReport | None = None,
-                  changes: PackChanges | None = None, compare_note: str | None = None
-                  ) -> PackContext:
+                  changes: PackChanges | None = None, compare_note: str | None = None,
+                  commentary: dict | None = None) -> PackContext:
     """Assemble the context for the pack templates. The "Since last pack" section is
     listed only when there is a comparison (or a note saying why there is none)."""
     shown = tuple(s for s in SECTIONS
@@ -164,4 +166,5 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         holding_limit_status=limits.holding_status() if limits else {},
         sector_limit_status=limits.sector_status() if limits else {},
         changes=changes, compare_note=compare_note, sections=shown,
+        commentary=dict(commentary or {}),
     )
