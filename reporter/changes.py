@@ -50,7 +50,10 @@ def latest_signed_pack(archive: Path, before: dt.date) -> Path | None:
     that it can be switched to the archive's ledger."""
     best: tuple[dt.date, Path] | None = None
     problems = []
-    for manifest in sorted(Path(archive).glob("*/*/results/manifest.json")):
+    # sorted by (period folder, pack folder) names, so that the last of a period wins
+    manifests = sorted(Path(archive).glob("*/*/results/manifest.json"),
+                       key=lambda m: (m.parents[2].name, m.parents[1].name))
+    for manifest in manifests:
         try:
             period_end = dt.date.fromisoformat(
                 json.loads(manifest.read_text(encoding="utf-8"))["period_end"])
