@@ -116,6 +116,11 @@ def assemble(settings: Settings, *, strict: bool = False,
         raws, read_problems = read_inputs(settings)
         previous, compare_warnings = read_previous(settings)
         commentary = read_commentary(settings.pack_dir)
+        compare_note = compare_warnings[0].message if compare_warnings else None
+        if "changes" in commentary.by_section and previous is None and compare_note is None:
+            compare_warnings.append(Problem(
+                "commentary/changes.md", "not shown: there is no [compare] table in "
+                "pack.toml, so the pack has no 'Since last pack' section", "warning"))
         if strict and compare_warnings:
             raise InputError(compare_warnings)
     with progress.stage("validate"):
@@ -134,8 +139,7 @@ def assemble(settings: Settings, *, strict: bool = False,
         charts = build_charts(res, limits)
         ctx = build_context(settings, inputs, res, charts, fingerprint(hashes), build_time(),
                             limits=limits, changes=changes,
-                            compare_note=compare_warnings[0].message if compare_warnings
-                            else None, commentary=commentary.by_section)
+                            compare_note=compare_note, commentary=commentary.by_section)
         svgs = export_charts(ctx)
     return Assembled(settings, inputs, res, ctx, svgs, hashes, limits=limits, changes=changes,
                      compare_warnings=compare_warnings, commentary=commentary)

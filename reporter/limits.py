@@ -286,6 +286,10 @@ def evaluate_limits(cfg: LimitsSection, res: PackResults) -> LimitsReport:
                               cfg.max_idiosyncratic_share, m))
     target = None
     beta_out = [c for c in checks if c.limit in ("beta_min", "beta_max") and c.status == BREACH]
+    for c in checks:
+        if not np.isfinite(c.value):
+            notes.append(f"{c.label}: the figure could not be computed, so this limit was "
+                         "not tested")
     if beta_out:
         target = beta_target(p["beta_regression"], cfg.beta_min, cfg.beta_max,
                              p["mean_excess_return"], res.periods_per_year)

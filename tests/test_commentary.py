@@ -150,3 +150,23 @@ def test_bad_commentary_fails_the_build(tmp_path, capsys):
     assert ("commentary/sml.md:7: raw HTML is not allowed in commentary (found "
             "'<img src=\"https://example.org/t.gif\">')") in err
     assert "Traceback" not in err and not out.exists()
+
+
+def test_front_matter_strings_are_escaped_and_orphan_changes_note_warns(tmp_path):
+    from reporter.build import assemble
+    from reporter.config import load_settings
+
+    pack = tmp_path / "pack"
+    shutil.copytree(DEMO, pack)
+    (pack / "commentary" / "beta.md").write_text(
+        "---\nauthor: \"<b>Bold</b> & Co\"\ndate: 2026-12-01\n---\nOn beta.\n")
+    (pack / "commentary" / "changes.md").write_text(HEAD + "Since then.\n")
+    a = assemble(load_settings(pack))
+    html = a.html()
+    assert "Commentary by &lt;b&gt;Bold&lt;/b&gt; &amp; Co, 1 December 2026" in html
+    assert "<b>Bold</b>" not in html
+    # no [compare] table: the changes note cannot be shown, and the user is told
+    assert [str(w) for w in a.compare_warnings] == [
+        "commentary/changes.md: warning: not shown: there is no [compare] table in "
+        "pack.toml, so the pack has no 'Since last pack' section"]
+    assert 'id="changes"' not in html

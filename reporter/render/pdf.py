@@ -52,6 +52,8 @@ class PackFetcher(URLFetcher):
         return path
 
     def fetch(self, url: str, headers=None) -> URLFetcherResponse:
+        """Serve ``url`` if it is a ``data:`` URL or a file inside the allowed folders;
+        otherwise record it and raise :class:`RefusedFetch`."""
         if urlsplit(url).scheme.lower() == "data":
             return super().fetch(url, headers)
         path = self.local_path(url)
