@@ -127,8 +127,8 @@ def test_unknown_file_name_and_names_follow_sections(tmp_path):
 
 def test_demo_commentary_in_the_pack(demo_build):
     reader = pypdf.PdfReader(demo_build / "pack.pdf")
-    pages = [re.sub(r"\s+", " ", pg.extract_text()) for pg in reader.pages]
-    summary = next(t for t in pages if "Policy limits: exceptions" in t)
+    pages = (re.sub(r"\s+", " ", pg.extract_text()) for pg in reader.pages)
+    summary = next(t for t in pages if "Policy limits: exceptions" in t)   # stops there
     assert "Commentary by Morwenna Ashdale, Investment Officer, 3 December 2026" in summary
     assert summary.index("Policy limits: exceptions") < summary.index("Commentary by")
     html = (demo_build / "pack.html").read_text(encoding="utf-8")
