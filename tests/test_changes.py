@@ -203,3 +203,23 @@ def test_archive_with_nothing_earlier(tmp_path):
     assert "no signed pack with a period end before 2026-11-30" in a.html()
     with pytest.raises(InputError):
         assemble(load_settings(tmp_path / "pack"), strict=True)
+
+
+@pytest.mark.parametrize("b0,b1,se0,se1,beyond", [
+    (1.00, 1.10, 0.03, 0.04, True),      # z = 0.10 / 0.05 = 2.0 > 1.96
+    (1.00, 1.09, 0.03, 0.04, False),     # z = 1.8
+    (1.20, 0.95, 0.06, 0.08, True),      # z = -0.25 / 0.10 = -2.5
+    (1.20, 1.05, 0.06, 0.08, False),     # z = -1.5
+])
+def test_beta_change_test(b0, b1, se0, se1, beyond):
+    from reporter.analytics.changes import beta_change
+
+    now = {"beta_regression": b1, "beta_se": 9.0, "beta_se_hac": se1, "errors": "hac"}
+    # an older build that used OLS errors: its own OLS error is the one taken
+    before = {"beta_regression": b0, "beta_se": se0, "beta_se_hac": 9.0, "errors": "ols"}
+    got = beta_change(now, before, 0.95)
+    se = np.hypot(se0, se1)                    # 3-4-5 triangles: 0.05 and 0.10
+    z = (b1 - b0) / se
+    assert got.se == pytest.approx(se) and got.z == pytest.approx(z)
+    assert got.critical == pytest.approx(stats.norm.ppf(0.975))   # scipy, 1.959964
+    assert got.beyond_error == bool(abs(z) > stats.norm.ppf(0.975)) == beyond

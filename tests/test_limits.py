@@ -15,6 +15,8 @@ import pandas as pd
 import pypdf
 import pytest
 import statsmodels.api as sm
+from hypothesis import given
+from hypothesis import strategies as st
 
 from reporter.analytics.pack import analyse
 from reporter.config import LimitsSection, load_settings
@@ -189,6 +191,18 @@ def test_classify_edges():
     assert list(got) == [WITHIN, WATCH, WATCH, BREACH, WITHIN]
     got = classify(np.array([2.0, 1.1, 1.0, 0.99]), 1.0, "min", 0.1)
     assert list(got) == [WITHIN, WATCH, WATCH, BREACH]
+
+
+@given(st.floats(-10, 10), st.floats(-10, 10), st.floats(-5, 5), st.floats(0, 0.99))
+def test_classify_is_monotone(a, b, limit, margin):
+    # a larger value is never better against a maximum, never worse against a minimum
+    # (common practice, no source)
+    lo, hi = sorted([a, b])
+    rank = {WITHIN: 0, WATCH: 1, BREACH: 2}
+    s_lo, s_hi = classify(np.array([lo, hi]), limit, "max", margin)
+    assert rank[s_lo] <= rank[s_hi]
+    s_lo, s_hi = classify(np.array([lo, hi]), limit, "min", margin)
+    assert rank[s_lo] >= rank[s_hi]
 
 
 @pytest.mark.parametrize("band", [(0.5, 0.8), (1.5, 2.0)])
