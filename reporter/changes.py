@@ -109,6 +109,17 @@ def read_build(folder: Path, source: str, period_end: dt.date) -> PreviousPack:
             if col not in sec.columns:
                 problems.append(Problem(f"{results / 'securities.csv'}:1:{col}",
                                         "required column is missing"))
+        for col in ("weight", "beta", "sml_residual"):
+            if col in sec.columns:
+                values = pd.to_numeric(sec[col], errors="coerce")
+                bad = values.isna() & sec[col].notna()
+                if col == "weight":
+                    bad |= sec[col].isna()
+                if bad.any():
+                    row = int(bad.to_numpy().nonzero()[0][0]) + 2   # header is line 1
+                    problems.append(Problem(f"{results / 'securities.csv'}:{row}:{col}",
+                                            f"not a number: {sec[col].iloc[row - 2]!r}"))
+                sec[col] = values
     prev_end = None
     if manifest is not None:
         try:

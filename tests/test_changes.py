@@ -223,3 +223,17 @@ def test_beta_change_test(b0, b1, se0, se1, beyond):
     assert got.se == pytest.approx(se) and got.z == pytest.approx(z)
     assert got.critical == pytest.approx(stats.norm.ppf(0.975))   # scipy, 1.959964
     assert got.beyond_error == bool(abs(z) > stats.norm.ppf(0.975)) == beyond
+
+
+def test_unreadable_previous_weight_is_an_input_error(demo_build, tmp_path):
+    old = tmp_path / "old"
+    shutil.copytree(demo_build, old)
+    sec = (old / "results/securities.csv").read_text().splitlines()
+    cells = sec[3].split(",")
+    cells[3] = "n/a"                      # the weight of the third holding: line 4
+    sec[3] = ",".join(cells)
+    (old / "results/securities.csv").write_text("\n".join(sec) + "\n")
+    with pytest.raises(InputError) as exc:
+        assemble(load_settings(make_swapped(tmp_path / "pack", str(old))))
+    assert [str(p) for p in exc.value.problems] == [
+        f"{old / 'results/securities.csv'}:4:weight: not a number: 'n/a'"]

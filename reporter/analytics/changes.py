@@ -93,16 +93,24 @@ def _clean(v):
     return v
 
 
+def _number(v) -> float:
+    try:
+        return float(v)
+    except (TypeError, ValueError):
+        return float("nan")
+
+
 def _beta_se(portfolio: dict) -> float:
     """The standard error behind a build's own intervals: Newey-West when it used them."""
     if portfolio.get("errors", "ols") == "hac" and portfolio.get("beta_se_hac") is not None:
-        return float(portfolio["beta_se_hac"])
-    return float(portfolio.get("beta_se", np.nan))
+        return _number(portfolio["beta_se_hac"])
+    return _number(portfolio.get("beta_se"))
 
 
 def beta_change(now: dict, before: dict, confidence: float) -> BetaChange:
-    """Change in portfolio beta (regression beta) and the test of it against its error."""
-    b1, b0 = float(now["beta_regression"]), float(before.get("beta_regression", np.nan))
+    """Change in portfolio beta (regression beta) and the test of it against its error.
+    A figure missing from the earlier pack gives NaN and no call beyond error."""
+    b1, b0 = _number(now["beta_regression"]), _number(before.get("beta_regression"))
     s1, s0 = _beta_se(now), _beta_se(before)
     se = float(np.hypot(s1, s0))
     change = b1 - b0
