@@ -181,7 +181,8 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
         "organisation": settings.organisation,
         "input_fingerprint": ctx.fingerprint,
         "input_sha256": a.hashes,
-        "input_files": {r: settings.inputs[r].display for r in INPUT_ROLES},
+        "input_files": {r: settings.inputs[r].display for r in INPUT_ROLES}
+        | {rel: rel for rel in a.commentary.hashes},     # commentary files and images
         "warnings": [str(w) for w in a.inputs.warnings],
     }))
     with progress.stage("write"):

@@ -137,6 +137,8 @@ def test_demo_commentary_in_the_pack(demo_build):
     manifest = json.loads((demo_build / "results/manifest.json").read_text())
     assert manifest["input_sha256"]["commentary/summary.md"] == hashlib.sha256(
         (DEMO / "commentary/summary.md").read_bytes()).hexdigest()
+    # every hashed input is named in input_files
+    assert set(manifest["input_files"]) == set(manifest["input_sha256"]) - {"pack.toml"}
 
 
 def test_bad_commentary_fails_the_build(tmp_path, capsys):
