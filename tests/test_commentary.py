@@ -172,3 +172,17 @@ def test_front_matter_strings_are_escaped_and_orphan_changes_note_warns(tmp_path
         "commentary/changes.md: warning: not shown: there is no [compare] table in "
         "pack.toml, so the pack has no 'Since last pack' section"]
     assert 'id="changes"' not in html
+
+
+def test_symlink_out_of_the_pack_is_refused(tmp_path):
+    outside = tmp_path / "outside.png"
+    png(outside)
+    pack = tmp_path / "pack"
+    (pack / "commentary" / "img").mkdir(parents=True)
+    (pack / "commentary" / "img" / "link.png").symlink_to(outside)
+    with pytest.raises(InputError) as exc:
+        render_commentary("summary", "commentary/summary.md", HEAD + "![x](img/link.png)\n",
+                          pack / "commentary", pack)
+    assert [str(p) for p in exc.value.problems] == [
+        "commentary/summary.md:5: image 'img/link.png' is not allowed: it leaves the pack "
+        "folder"]
