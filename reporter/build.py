@@ -11,17 +11,21 @@ import hashlib
 import io
 import json
 import os
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
 from reporter import __version__
+from reporter.analytics.changes import PackChanges, compare_packs
 from reporter.analytics.pack import PackResults, analyse
+from reporter.changes import read_previous
 from reporter.charts import build_charts
+from reporter.commentary import CommentarySet, read_commentary
 from reporter.config import INPUT_ROLES, Settings, load_settings
 from reporter.context import PackContext, build_context
-from reporter.errors import Problem
+from reporter.errors import InputError, Problem
+from reporter.limits import LimitsReport, evaluate_limits
 from reporter.models import ValidInputs
 from reporter.progress import Progress
 from reporter.render.html import export_charts, render_html
@@ -94,6 +98,10 @@ class Assembled:
     context: PackContext
     svgs: dict
     hashes: dict[str, str]
+    limits: LimitsReport | None = None
+    changes: PackChanges | None = None
+    compare_warnings: list[Problem] = field(default_factory=list)
+    commentary: CommentarySet = field(default_factory=CommentarySet)
 
     def html(self, for_print: bool = False, signoff: dict | None = None) -> str:
         return render_html(self.context, self.svgs, for_print=for_print,
@@ -110,16 +118,35 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
     progress = progress or Progress(quiet=True)
     with progress.stage("read"):
         raws, read_problems = read_inputs(settings)
+        previous, compare_warnings = read_previous(settings)
+        commentary = read_commentary(settings.pack_dir)
+        compare_note = compare_warnings[0].message if compare_warnings else None
+        if "changes" in commentary.by_section and previous is None and compare_note is None:
+            compare_warnings.append(Problem(
+                "commentary/changes.md", "not shown: there is no [compare] table in "
+                "pack.toml, so the pack has no 'Since last pack' section", "warning"))
+        if strict and compare_warnings:
+            raise InputError(compare_warnings)
     with progress.stage("validate"):
         inputs = validate_tables(settings, raws, read_problems, strict=strict)
     with progress.stage("analyse"):
         res = analyse(inputs, settings)
         hashes = input_hashes(settings)
+        hashes.update(commentary.hashes)        # the commentary files and their images
+        limits = evaluate_limits(settings.limits, res) if settings.limits else None
+        changes = None
+        if previous is not None:
+            changes = compare_packs(previous, res,
+                                    limits.as_json()["limits"] if limits else None,
+                                    settings.confidence)
     with progress.stage("chart"):
-        charts = build_charts(res)
-        ctx = build_context(settings, inputs, res, charts, fingerprint(hashes), at or build_time())
+        charts = build_charts(res, limits)
+        ctx = build_context(settings, inputs, res, charts, fingerprint(hashes),
+                            at or build_time(), limits=limits, changes=changes,
+                            compare_note=compare_note, commentary=commentary.by_section)
         svgs = export_charts(ctx)
-    return Assembled(settings, inputs, res, ctx, svgs, hashes)
+    return Assembled(settings, inputs, res, ctx, svgs, hashes, limits=limits, changes=changes,
+                     compare_warnings=compare_warnings, commentary=commentary)
 
 
 def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
@@ -135,7 +162,8 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     a = assemble(settings, strict=strict, progress=progress, at=at)
     with progress.stage("render"):
         html = a.html(for_print=False)
-        pdf = render_pdf(a.html(for_print=True))
+        pdf = render_pdf(a.html(for_print=True), base_dir=settings.pack_dir,
+                         allowed=(settings.pack_dir,))
     res, ctx = a.results, a.context
     files = OutputSet()
     files.add("pack.html", html)
@@ -145,6 +173,13 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     buf = io.StringIO()
     res.rolling_table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
     files.add("results/rolling_beta.csv", buf.getvalue())
+    if a.limits is not None:
+        files.add("results/limits.json", json.dumps(a.limits.as_json(), indent=2,
+                                                    sort_keys=True) + "\n")
+    if settings.compare_build is not None or settings.compare_archive is not None:
+        doc = a.changes.as_json() if a.changes is not None else {
+            "previous": None, "note": ctx.compare_note}
+        files.add("results/changes.json", json.dumps(doc, indent=2, sort_keys=True) + "\n")
     files.add("results/manifest.json", _json({
         "tool_version": __version__,
         "pack_name": settings.name,
@@ -157,9 +192,11 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
         "organisation": settings.organisation,
         "input_fingerprint": ctx.fingerprint,
         "input_sha256": a.hashes,
-        "input_files": {r: settings.inputs[r].display for r in INPUT_ROLES},
+        "input_files": {r: settings.inputs[r].display for r in INPUT_ROLES}
+        | {rel: rel for rel in a.commentary.hashes},     # commentary files and images
         "warnings": [str(w) for w in a.inputs.warnings],
     }))
     with progress.stage("write"):
         commit(files, out)
-    return BuildReport(out=out, files=files.paths, warnings=a.inputs.warnings, results=res)
+    return BuildReport(out=out, files=files.paths,
+                       warnings=a.inputs.warnings + a.compare_warnings, results=res)

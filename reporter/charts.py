@@ -73,10 +73,17 @@ def sml_chart(res: PackResults) -> alt.LayerChart:
     return alt.layer(bars, sml, pts, anc, lab).properties(width=WIDTH, height=HEIGHT)
 
 
-def sector_chart(res: PackResults) -> alt.Chart:
-    """Horizontal bars of weight by sector, largest first."""
+STATUS_MARK = {"breach": "\u2716 breach", "watch": "\u25c6 watch"}
+
+
+def sector_chart(res: PackResults, sector_limits: dict[str, dict] | None = None) -> alt.Chart:
+    """Horizontal bars of weight by sector, largest first. With ``sector_limits`` (sector ->
+    {status, threshold}) each sector's maximum is drawn as a tick and a sector on watch or in
+    breach is named so in words and a symbol beside its bar, not by colour alone."""
     df = res.sectors.copy()
     order = list(df["sector"])
+    if sector_limits:
+        return _sector_chart_with_limits(df, order, sector_limits)
     return alt.Chart(df).mark_bar(color=TEAL, height=14).encode(
         y=alt.Y("sector:N", sort=order, title=None),
         x=alt.X("weight:Q", title="Weight", axis=alt.Axis(format="%")),
@@ -84,6 +91,33 @@ def sector_chart(res: PackResults) -> alt.Chart:
     ).properties(width=WIDTH - 140, height=max(120, 22 * len(df))) + alt.Chart(df).mark_text(
         align="left", dx=4, color=INK, fontSize=10).encode(
         y=alt.Y("sector:N", sort=order), x="weight:Q", text=alt.Text("weight:Q", format=".1%"))
+
+
+def _sector_chart_with_limits(df: pd.DataFrame, order: list[str],
+                              sector_limits: dict[str, dict]) -> alt.LayerChart:
+    info = df["sector"].map(lambda s: sector_limits.get(s, {}))
+    df["status"] = info.map(lambda d: d.get("status", "no limit"))
+    df["limit"] = info.map(lambda d: d.get("threshold", np.nan))
+    df["label"] = [f"{w:.1%}" + (f"  {STATUS_MARK[st]} (max {lim:.0%})" if st in STATUS_MARK
+                                 else "")
+                   for w, st, lim in zip(df["weight"], df["status"], df["limit"], strict=True)]
+    y = alt.Y("sector:N", sort=order, title=None)
+    colour = alt.Color("status:N", title="Sector limit",
+                       scale=alt.Scale(domain=["within", "watch", "breach", "no limit"],
+                                       range=[TEAL, OCHRE, BRICK, GREY]))
+    bars = alt.Chart(df).mark_bar(height=14).encode(
+        y=y, x=alt.X("weight:Q", title="Weight (tick: the sector's maximum)",
+                     axis=alt.Axis(format="%")),
+        color=colour,
+        tooltip=["sector:N", alt.Tooltip("weight:Q", format=".1%"), "n_holdings:Q",
+                 "status:N"])
+    ticks = alt.Chart(df[df["limit"].notna()]).mark_tick(
+        color=INK, thickness=2, size=20).encode(y=y, x="limit:Q")
+    text = alt.Chart(df).mark_text(align="left", dx=4, color=INK, fontSize=10).encode(
+        y=y, x=alt.X("xpos:Q"), text="label:N").transform_calculate(
+        xpos="max(datum.weight, isValid(datum.limit) ? datum.limit : 0)")
+    return alt.layer(bars, ticks, text).properties(width=WIDTH - 200,
+                                                   height=max(120, 22 * len(df)))
 
 
 def diversification_chart(res: PackResults) -> alt.LayerChart:
@@ -166,12 +200,13 @@ def rolling_holdings_chart(res: PackResults, top: int = 10) -> alt.Chart:
                         header=alt.Header(labelFontSize=9, labelLimit=150)), columns=3)
 
 
-def build_charts(res: PackResults) -> dict[str, alt.TopLevelMixin]:
-    """Every chart of the pack, keyed by the name the templates use."""
+def build_charts(res: PackResults, limits=None) -> dict[str, alt.TopLevelMixin]:
+    """Every chart of the pack, keyed by the name the templates use. ``limits`` (a
+    :class:`reporter.limits.LimitsReport`, optional) marks sector limits on the sector chart."""
     return {
         "rolling_portfolio": rolling_portfolio_chart(res),
         "rolling_holdings": rolling_holdings_chart(res),
         "sml": sml_chart(res),
-        "sectors": sector_chart(res),
+        "sectors": sector_chart(res, limits.sector_status() if limits is not None else None),
         "diversification": diversification_chart(res),
     }

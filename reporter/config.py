@@ -94,12 +94,43 @@ class RenderSection(_Strict):
     templates: str | None = None
 
 
+Fraction = Annotated[float, Field(gt=0.0, le=1.0)]
+
+
+class LimitsSection(_Strict):
+    """``[limits]``: the investment policy's limits, each optional (see README, Limits).
+
+    ``max_sector_weight`` is one maximum for every sector, or a table of per-sector maxima
+    in which the key ``"*"`` covers every sector not named. ``watch_margin`` is a fraction
+    of each limit: a value within that distance inside the limit is on watch.
+    """
+
+    beta_min: float | None = None
+    beta_max: float | None = None
+    max_holding_weight: Fraction | None = None
+    max_sector_weight: Fraction | dict[str, Fraction] | None = None
+    min_effective_n: Annotated[float, Field(gt=0.0)] | None = None
+    min_holdings: Annotated[int, Field(ge=1)] | None = None
+    max_tracking_error_ann: Annotated[float, Field(gt=0.0, le=5.0)] | None = None
+    max_idiosyncratic_share: Fraction | None = None
+    watch_margin: Annotated[float, Field(ge=0.0, lt=1.0)] = 0.10
+
+
+class CompareSection(_Strict):
+    """``[compare]``: the earlier pack to compare with: a build folder, or
+    ``"archive:ARCHIVE_DIR"`` for the latest signed pack before this period."""
+
+    previous: Annotated[str, Field(min_length=1)]
+
+
 class PackFile(_Strict):
     pack: PackSection
     inputs: InputsSection
     analysis: AnalysisSection = AnalysisSection()
     checks: ChecksSection = ChecksSection()
     render: RenderSection = RenderSection()
+    limits: LimitsSection | None = None
+    compare: CompareSection | None = None
 
 
 @dataclass(frozen=True)
@@ -142,6 +173,9 @@ class Settings:
     allow_short: bool
     stale_zero_run: int
     templates_dir: Path | None
+    limits: LimitsSection | None = None      # None: no [limits] table
+    compare_build: Path | None = None        # [compare] previous = a build folder
+    compare_archive: Path | None = None      # [compare] previous = "archive:DIR"
 
     @property
     def periods_per_year(self) -> int:
@@ -156,14 +190,15 @@ def _loc(loc: tuple) -> str:
     return ".".join(str(p) for p in loc if not isinstance(p, int) and p not in _UNION_TAGS)
 
 
-_UNION_TAGS = {"str", "InputFile"}  # pydantic names the alternatives of a str | table field
+# pydantic names the alternatives of a str | table (or number | table) field
+_UNION_TAGS = {"str", "InputFile", "constrained-float", "dict[str,constrained-float]"}
 
 
 def _pydantic_problems(err: ValidationError, fname: str) -> list[Problem]:
     problems: dict[str, Problem] = {}
     for e in err.errors():
         loc = tuple(e["loc"])
-        if "str" in loc and isinstance(e.get("input"), dict):
+        if ("str" in loc or "constrained-float" in loc) and isinstance(e.get("input"), dict):
             # a table given for a `str | table` field: only the table's own errors matter
             continue
         key = _loc(loc) or "(top level)"
@@ -251,6 +286,8 @@ def load_settings(pack: Path | str) -> Settings:
         templates_dir = _guarded_path(pack_dir, model.render.templates,
                                       f"{fname}:render.templates", problems, must_exist=True,
                                       want_dir=True)
+    problems += limits_problems(model.limits, fname)
+    compare_build, compare_archive = resolve_compare(model.compare, pack_dir, fname, problems)
     if problems:
         raise InputError(problems)
 
@@ -279,6 +316,9 @@ def load_settings(pack: Path | str) -> Settings:
         allow_short=model.checks.allow_short,
         stale_zero_run=model.checks.stale_zero_run or DEFAULT_STALE_RUN[freq],
         templates_dir=templates_dir,
+        limits=model.limits,
+        compare_build=compare_build,
+        compare_archive=compare_archive,
     )
 
 
@@ -286,6 +326,45 @@ def pack_name_from_folder(folder: Path) -> str:
     """A scheme identifier from a folder name: lower case, runs of other characters as '-'."""
     slug = re.sub(r"[^a-z0-9]+", "-", folder.name.lower()).strip("-")[:64].strip("-")
     return slug or "pack"
+
+
+def limits_problems(limits: LimitsSection | None, fname: str) -> list[Problem]:
+    """Checks across the keys of ``[limits]`` that the schema cannot express."""
+    if limits is None:
+        return []
+    out = []
+    if (limits.beta_min is not None and limits.beta_max is not None
+            and limits.beta_min > limits.beta_max):
+        out.append(Problem(f"{fname}:limits.beta_min",
+                           f"beta_min ({limits.beta_min}) is above beta_max ({limits.beta_max})"))
+    if isinstance(limits.max_sector_weight, dict) and not limits.max_sector_weight:
+        out.append(Problem(f"{fname}:limits.max_sector_weight", "the table names no sector"))
+    return out
+
+
+ARCHIVE_PREFIX = "archive:"
+
+
+def resolve_compare(compare: CompareSection | None, pack_dir: Path, fname: str,
+                    problems: list[Problem]) -> tuple[Path | None, Path | None]:
+    """``[compare] previous`` as (build folder, archive folder); one of them or neither.
+
+    The path may be absolute or relative to the pack folder, and may lie outside it (an
+    earlier build is usually elsewhere); it is only read, never written."""
+    if compare is None:
+        return None, None
+    raw = compare.previous
+    is_archive = raw.startswith(ARCHIVE_PREFIX)
+    rel = raw[len(ARCHIVE_PREFIX):] if is_archive else raw
+    where = f"{fname}:compare.previous"
+    if not rel:
+        problems.append(Problem(where, "give the archive folder after 'archive:'"))
+        return None, None
+    path = (pack_dir / Path(rel).expanduser()).resolve()
+    if not path.is_dir():
+        problems.append(Problem(where, f"folder {rel!r} does not exist"))
+        return None, None
+    return (None, path) if is_archive else (path, None)
 
 
 def date_format_problem(fmt: str) -> str | None:

@@ -13,9 +13,11 @@ import altair as alt
 import numpy as np
 
 from reporter import __version__
+from reporter.analytics.changes import PackChanges
 from reporter.analytics.pack import PackResults
 from reporter.analytics.sml import ABOVE, BELOW
 from reporter.config import Settings
+from reporter.limits import LimitsReport
 from reporter.models import ValidInputs
 
 CAUTIONS = (
@@ -40,6 +42,7 @@ class Section:
 
 SECTIONS = (
     Section("summary", "Summary"),
+    Section("changes", "Since last pack"),
     Section("market-risk", "Market risk"),
     Section("beta", "Beta estimates"),
     Section("sml", "Security market line"),
@@ -90,6 +93,13 @@ class PackContext:
     charts: dict[str, alt.TopLevelMixin] = field(repr=False)
     sections: tuple[Section, ...] = SECTIONS
     cautions: tuple[str, ...] = CAUTIONS
+    limits: LimitsReport | None = None             # None: no [limits] in pack.toml
+    holding_limit_status: dict[str, str] = field(default_factory=dict)  # id -> watch/breach
+    sector_limit_status: dict[str, dict] = field(default_factory=dict)  # sector -> status...
+    changes: PackChanges | None = None             # None: no [compare], or nothing found
+    compare_note: str | None = None                # why there is nothing to compare
+    # section anchor -> reporter.commentary.Commentary (author, date, title, sanitised html)
+    commentary: dict = field(default_factory=dict)
 
 
 def _records(df) -> list[dict]:
@@ -106,8 +116,13 @@ def _holdings_to_remove(res: PackResults, share: float) -> int:
 
 def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
                   charts: dict[str, alt.TopLevelMixin], fingerprint: str,
-                  build_time: dt.datetime) -> PackContext:
-    """Assemble the context for the pack templates."""
+                  build_time: dt.datetime, *, limits: LimitsReport | None = None,
+                  changes: PackChanges | None = None, compare_note: str | None = None,
+                  commentary: dict | None = None) -> PackContext:
+    """Assemble the context for the pack templates. The "Since last pack" section is
+    listed only when there is a comparison (or a note saying why there is none)."""
+    shown = tuple(s for s in SECTIONS
+                  if s.anchor != "changes" or changes is not None or compare_note)
     sec = res.securities.copy()
     # the alpha t-statistic from the errors behind the pack's intervals and SML positions
     se_used = sec["alpha_se_hac"] if settings.errors == "hac" else sec["alpha_se"]
@@ -147,4 +162,9 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         beta_not_one=_records(by_weight[by_weight["beta_differs_from_1"].astype(bool)]),
         curve_90=_holdings_to_remove(res, 0.90), curve_95=_holdings_to_remove(res, 0.95),
         charts=charts,
+        limits=limits,
+        holding_limit_status=limits.holding_status() if limits else {},
+        sector_limit_status=limits.sector_status() if limits else {},
+        changes=changes, compare_note=compare_note, sections=shown,
+        commentary=dict(commentary or {}),
     )

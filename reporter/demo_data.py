@@ -50,6 +50,39 @@ risk_free = "risk_free.csv"
 [analysis]
 window = 60
 min_obs = 24
+
+# The scheme's policy limits for this mandate (invented).
+[limits]
+beta_min = 0.85
+beta_max = 1.05
+max_holding_weight = 0.08
+max_sector_weight = { "*" = 0.15, Energy = 0.12 }
+min_effective_n = 25
+min_holdings = 40
+max_tracking_error_ann = 0.05
+max_idiosyncratic_share = 0.10
+"""
+
+# The investment officer's note for the summary page (invented, like everything here).
+SUMMARY_COMMENTARY = """\
+---
+author: Morwenna Ashdale, Investment Officer
+date: 2026-12-03
+title: Officer's note for the December meeting
+---
+The portfolio's beta is **above the policy band**. The estimate is close to the upper
+limit and its interval reaches back inside the band, so we propose to watch it for one
+more quarter rather than act now. The cash mix shown above is for scale only.
+
+Two items are on watch:
+
+- the largest single holding is within a percentage point of its 8% cap after a strong
+  quarter, and the manager has been asked not to add to it;
+- the Energy sector sits just under its 12% maximum.
+
+Four holdings sit off the security market line beyond estimation error. With 59 holdings
+fitted, about three would do so by chance alone at the 95% level, so the committee is asked
+not to read the chart as a league table.
 """
 
 
@@ -102,6 +135,8 @@ def generate(out: Path, n_holdings: int = 60) -> None:
 
     out.mkdir(parents=True, exist_ok=True)
     (out / "pack.toml").write_text(PACK_TOML, encoding="utf-8")
+    (out / "commentary").mkdir(exist_ok=True)
+    (out / "commentary" / "summary.md").write_text(SUMMARY_COMMENTARY, encoding="utf-8")
     _write(out / "holdings.csv", ["security_id", "name", "sector", "weight"],
            [[ids[i], names[i], sector_of[i], f"{w[i]:.6f}"] for i in range(n_holdings)])
     iso = [d.strftime("%Y-%m-%d") for d in dates]

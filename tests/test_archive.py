@@ -101,7 +101,13 @@ def test_attachments_carry_the_exact_inputs_and_results(signed_pdf, demo_build):
     assert len(results) >= 4
     for rel in results:
         assert att[rel] == (demo_build / rel).read_bytes(), rel
-    assert len(att) == 1 + len(INPUT_FILES) + len(results)
+    # the commentary files are inputs too (hashed into the fingerprint)
+    commentary = sorted(p.relative_to(DEMO).as_posix() for p in (DEMO / "commentary").rglob("*")
+                        if p.is_file())
+    assert commentary
+    for rel in commentary:
+        assert att[rel] == (DEMO / rel).read_bytes(), rel
+    assert len(att) == 1 + len(INPUT_FILES) + len(results) + len(commentary)
 
 
 def test_sign_off_page_states_who_when_and_the_input_hashes(signed_pdf, signed_archive):

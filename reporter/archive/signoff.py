@@ -135,13 +135,13 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
     with progress.stage("check build"):
         build = read_build(Path(build_dir))
         settings = load_settings(build.manifest["pack_dir"])
-        _check_inputs_unchanged(settings, build)
         period = settings.period_end.isoformat()
         existing = _existing(archive, settings.name, period)
         _refuse(existing, request, settings.name, period)
     with progress.stage("re-render"):
         built_at = dt.datetime.strptime(build.manifest["built_utc"], "%Y-%m-%dT%H:%M:%SZ")
         a = assemble(settings, at=built_at.replace(tzinfo=dt.UTC))
+        _check_inputs_unchanged(settings, a.hashes, build)
         if sha256(a.html(for_print=False).encode("utf-8")) != \
                 build.manifest["output_sha256"]["pack.html"]:
             raise OutputError(f"{build.folder}: rebuilding from the inputs does not reproduce "
@@ -200,8 +200,9 @@ def _signed_pdf(a, build: ReviewedBuild, settings: Settings, request: SignOffReq
     """The pack as PDF/A-3b with the sign-off page, carrying pack.toml, the inputs and the
     results files as embedded attachments."""
     hashes = build.manifest["input_sha256"]
-    shown = [("pack.toml", hashes["pack.toml"])] + [
-        (settings.inputs[r].display, hashes[r]) for r in INPUT_ROLES]
+    order = ["pack.toml", *INPUT_ROLES]
+    keys = order + sorted(set(hashes) - set(order))
+    shown = [(_input_name(settings, k).removeprefix("inputs/"), hashes[k]) for k in keys]
     record = {
         "signer": request.signer, "role": request.role, "minute_ref": request.minute_ref,
         "note": request.note, "signed_utc": _readable(signed_utc),
@@ -212,20 +213,21 @@ def _signed_pdf(a, build: ReviewedBuild, settings: Settings, request: SignOffReq
         "inputs": shown,
     }
     attachments, seen = [], set()
-    sources = [("pack.toml", settings.config_path, "the pack's settings")] + [
-        (f"inputs/{settings.inputs[r].display}", settings.inputs[r].path, f"{r} input")
-        for r in INPUT_ROLES]
-    for att_name, path, what in sources:
-        if att_name in seen:
+    for key in keys:
+        name = _input_name(settings, key)
+        if name in seen:
             continue
-        seen.add(att_name)
-        attachments.append(Attachment(string=path.read_bytes(), name=att_name,
-                                      description=what, relationship="Source"))
+        seen.add(name)
+        what = ("the pack's settings" if key == "pack.toml" else f"{key} input"
+                if key in settings.inputs else "commentary")
+        attachments.append(Attachment(string=_input_path(settings, key).read_bytes(),
+                                      name=name, description=what, relationship="Source"))
     for rel in sorted(build.files):
         if rel.startswith("results/"):
             attachments.append(Attachment(string=build.files[rel], name=rel,
                                           description="results file", relationship="Data"))
-    return render_pdf(a.html(for_print=True, signoff=record), variant=PDF_VARIANT,
+    return render_pdf(a.html(for_print=True, signoff=record), base_dir=settings.pack_dir,
+                      allowed=(settings.pack_dir,), variant=PDF_VARIANT,
                       attachments=attachments)
 
 
@@ -264,18 +266,32 @@ def _check_archive_folder(archive: Path) -> None:
                                   "not an archive (choose an empty or new folder)")])
 
 
-def _check_inputs_unchanged(settings: Settings, build: ReviewedBuild) -> None:
-    from reporter.build import input_hashes
+def _input_path(settings: Settings, key: str) -> Path:
+    """The file behind a key of the manifest's ``input_sha256`` (a role, or a path)."""
+    if key == "pack.toml":
+        return settings.config_path
+    if key in settings.inputs:
+        return settings.inputs[key].path
+    return settings.pack_dir / key
 
-    now = input_hashes(settings)
+
+def _input_name(settings: Settings, key: str) -> str:
+    """How an input is named on the sign-off page and in the PDF's attachments."""
+    if key == "pack.toml":
+        return key
+    if key in settings.inputs:
+        return f"inputs/{settings.inputs[key].display}"
+    return key                                # commentary files and images, by path
+
+
+def _check_inputs_unchanged(settings: Settings, now: dict[str, str],
+                            build: ReviewedBuild) -> None:
     then = build.manifest["input_sha256"]
     changed = [k for k in sorted(set(now) | set(then)) if now.get(k) != then.get(k)]
     if changed:
-        names = {"pack.toml": settings.config_path} | {r: settings.inputs[r].path
-                                                       for r in INPUT_ROLES}
-        raise InputError([Problem(str(names.get(k, k)), "changed since the pack was built; "
-                                  "rebuild and review the new pack before signing it off")
-                          for k in changed])
+        raise InputError([Problem(str(_input_path(settings, k)), "changed since the pack was "
+                                  "built; rebuild and review the new pack before signing it "
+                                  "off") for k in changed])
 
 
 def _existing(archive: Path, pack_name: str, period: str) -> list[Entry]:

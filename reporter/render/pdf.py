@@ -1,25 +1,91 @@
-"""Render HTML to PDF with WeasyPrint, refusing every network or file fetch."""
+"""Render HTML to PDF with WeasyPrint, serving only files inside the allowed folders.
+
+WeasyPrint asks its URL fetcher for every stylesheet, image or font a document names. Ours
+serves a ``file:`` URL only when the file lies inside one of the allowed folders (the pack
+folder and the packaged templates) and inline ``data:`` URLs; every other request (http,
+https, ftp, a file elsewhere, a path that climbs out with ``..``) stops the render with an
+:class:`~reporter.errors.InputError` naming the URL. Nothing is ever fetched from a network.
+"""
 
 from __future__ import annotations
 
+import mimetypes
 from collections.abc import Sequence
+from pathlib import Path
+from urllib.parse import unquote, urlsplit
+from urllib.request import url2pathname
 
 from weasyprint import HTML, Attachment
+from weasyprint.urls import FatalURLFetchingError, URLFetcher, URLFetcherResponse
+
+from reporter.errors import InputError, Problem
 
 
-class _NoFetch:
-    """A URL fetcher that refuses everything: the pack must be self-contained."""
+class RefusedFetch(FatalURLFetchingError):
+    """A fetch outside the allowed folders; stops the render (WeasyPrint does not catch it)."""
 
-    def __call__(self, url: str, *args, **kwargs):
-        raise ValueError(f"the pack may not fetch {url!r}")
+    def __init__(self, url: str) -> None:
+        super().__init__(url)
+        self.url = url
 
 
-def render_pdf(html: str, *, variant: str | None = None,
-               attachments: Sequence[Attachment] = ()) -> bytes:
-    """PDF bytes for an HTML string that carries its own CSS and SVG.
+class PackFetcher(URLFetcher):
+    """A URL fetcher that serves files inside ``roots`` and ``data:`` URLs, nothing else.
+
+    Every refused URL is recorded in :attr:`refused` and raises :class:`RefusedFetch`.
+    """
+
+    def __init__(self, roots: Sequence[Path]) -> None:
+        super().__init__(fail_on_errors=True, allowed_protocols=("data",))
+        self.roots = tuple(Path(r).resolve() for r in roots)
+        self.refused: list[str] = []
+        self.served: list[Path] = []
+
+    def local_path(self, url: str) -> Path | None:
+        """The file a ``file:`` URL names when it lies inside an allowed folder, else None."""
+        parts = urlsplit(url)
+        if parts.scheme.lower() != "file" or parts.netloc not in ("", "localhost"):
+            return None
+        path = Path(url2pathname(unquote(parts.path))).resolve()
+        if not any(path.is_relative_to(root) for root in self.roots) or not path.is_file():
+            return None
+        return path
+
+    def fetch(self, url: str, headers=None) -> URLFetcherResponse:
+        """Serve ``url`` if it is a ``data:`` URL or a file inside the allowed folders;
+        otherwise record it and raise :class:`RefusedFetch`."""
+        if urlsplit(url).scheme.lower() == "data":
+            return super().fetch(url, headers)
+        path = self.local_path(url)
+        if path is None:
+            self.refused.append(url)
+            raise RefusedFetch(url)
+        self.served.append(path)
+        kind = mimetypes.guess_type(path.name)[0] or "application/octet-stream"
+        return URLFetcherResponse(path.as_uri(), path.read_bytes(),
+                                  headers={"Content-Type": kind})
+
+
+def render_pdf(html: str, *, base_dir: Path | None = None, allowed: Sequence[Path] = (),
+               variant: str | None = None, attachments: Sequence[Attachment] = ()) -> bytes:
+    """PDF bytes for an HTML string. Relative URLs resolve against ``base_dir`` (the pack
+    folder); only files inside ``allowed`` (and ``data:`` URLs) may be used; any other
+    request raises :class:`InputError`.
 
     ``variant`` is a WeasyPrint PDF variant such as ``"pdf/a-3b"`` (ISO 19005-3, level B);
     ``attachments`` are embedded files (PDF/A-3 allows any file type as an attachment).
     """
-    return HTML(string=html, base_url=None, url_fetcher=_NoFetch()).write_pdf(
-        pdf_variant=variant, attachments=list(attachments) or None)
+    from reporter.render.environment import default_templates_dir
+
+    roots = [default_templates_dir(), *allowed]
+    fetcher = PackFetcher(roots)
+    base_url = base_dir.resolve().as_uri() + "/" if base_dir is not None else None
+    try:
+        return HTML(string=html, base_url=base_url, url_fetcher=fetcher).write_pdf(
+            pdf_variant=variant, attachments=list(attachments) or None)
+    except RefusedFetch as exc:
+        where = ", ".join(str(r) for r in fetcher.roots)
+        raise InputError([Problem(
+            "pack.pdf", f"refused to fetch {exc.url!r}: a pack may use only files inside "
+            f"the pack folder and the packaged templates ({where}); nothing is fetched from "
+            "a network")]) from None

@@ -1,0 +1,153 @@
+"""Read the earlier pack that ``[compare] previous`` names (read-only; never written).
+
+Two forms: a build folder (``reporter build``'s output) or ``archive:ARCHIVE_DIR``, the latest
+signed pack whose period ends strictly before this pack's. Only the build's ``results/`` are
+read: ``manifest.json``, ``portfolio.json``, ``securities.csv`` and, when present,
+``limits.json`` (older builds have none). The comparison itself is pure and lives in
+:mod:`reporter.analytics.changes`.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+
+from reporter.config import Settings
+from reporter.errors import InputError, Problem
+
+WHERE = "pack.toml:compare.previous"
+SECURITY_COLUMNS = ("security_id", "weight")     # required in an earlier securities.csv
+TEXT_COLUMNS = ("security_id", "name", "sector", "status", "sml_position")
+
+
+@dataclass(frozen=True)
+class PreviousPack:
+    """The results of an earlier pack, as written by its build.
+
+    ``securities`` has at least ``security_id, weight`` (decimals) and, from builds of this
+    tool, ``name, status, beta, sml_residual, sml_position``. ``limits`` is the list under
+    ``"limits"`` in its limits.json, or None when the build has no limits.json.
+    """
+
+    folder: Path
+    source: str                     # "build" | "archive"
+    period_end: dt.date
+    manifest: dict
+    portfolio: dict
+    securities: pd.DataFrame
+    limits: list[dict] | None
+
+
+def latest_signed_pack(archive: Path, before: dt.date) -> Path | None:
+    """The archive folder ``ARCHIVE/<date>/<pack-name>/`` of the signed pack with the latest
+    ``period_end`` strictly before ``before``, found by scanning
+    ``ARCHIVE/*/*/results/manifest.json``; among several for that period, the folder listed
+    last in sorted order. None when there is none. Read-only; kept to this one function so
+    that it can be switched to the archive's ledger."""
+    best: tuple[dt.date, Path] | None = None
+    problems = []
+    # sorted by (period folder, pack folder) names, so that the last of a period wins
+    manifests = sorted(Path(archive).glob("*/*/results/manifest.json"),
+                       key=lambda m: (m.parents[2].name, m.parents[1].name))
+    for manifest in manifests:
+        try:
+            period_end = dt.date.fromisoformat(
+                json.loads(manifest.read_text(encoding="utf-8"))["period_end"])
+        except (OSError, UnicodeDecodeError, ValueError, KeyError, TypeError) as exc:
+            problems.append(Problem(str(manifest), f"cannot read the period end of this "
+                                    f"signed pack ({type(exc).__name__}: {exc})"))
+            continue
+        if period_end < before and (best is None or period_end >= best[0]):
+            best = (period_end, manifest.parent.parent)
+    if problems:
+        raise InputError(problems)
+    return best[1] if best else None
+
+
+def read_previous(settings: Settings) -> tuple[PreviousPack | None, list[Problem]]:
+    """The earlier pack named in ``[compare]``, and warnings (an archive with no earlier
+    pack). (None, []) when there is no ``[compare]`` table. Raises :class:`InputError` when
+    the folder is not a pack build or its files cannot be read."""
+    if settings.compare_archive is not None:
+        folder = latest_signed_pack(settings.compare_archive, settings.period_end)
+        if folder is None:
+            return None, [Problem(WHERE, f"no signed pack with a period end before "
+                                  f"{settings.period_end} in the archive at "
+                                  f"{settings.compare_archive}; nothing to compare",
+                                  "warning")]
+        return read_build(folder, "archive", settings.period_end), []
+    if settings.compare_build is not None:
+        return read_build(settings.compare_build, "build", settings.period_end), []
+    return None, []
+
+
+def read_build(folder: Path, source: str, period_end: dt.date) -> PreviousPack:
+    """Read the results of one earlier build (see :class:`PreviousPack`)."""
+    results = Path(folder) / "results"
+    missing = [n for n in ("manifest.json", "portfolio.json", "securities.csv")
+               if not (results / n).is_file()]
+    if missing:
+        raise InputError([Problem(WHERE, f"{folder} is not a pack build: results/"
+                                  f"{missing[0]} is missing")])
+    problems: list[Problem] = []
+    manifest = _json(results / "manifest.json", problems)
+    portfolio = _json(results / "portfolio.json", problems)
+    limits_doc = _json(results / "limits.json", problems) if (
+        results / "limits.json").is_file() else None
+    try:
+        sec = pd.read_csv(results / "securities.csv", dtype={c: str for c in TEXT_COLUMNS},
+                          keep_default_na=False, na_values=[""])
+    except (OSError, ValueError, pd.errors.ParserError) as exc:
+        problems.append(Problem(str(results / "securities.csv"), f"cannot be read: {exc}"))
+        sec = None
+    if sec is not None:
+        for col in SECURITY_COLUMNS:
+            if col not in sec.columns:
+                problems.append(Problem(f"{results / 'securities.csv'}:1:{col}",
+                                        "required column is missing"))
+        for col in ("weight", "beta", "sml_residual"):
+            if col in sec.columns:
+                values = pd.to_numeric(sec[col], errors="coerce")
+                bad = values.isna() & sec[col].notna()
+                if col == "weight":
+                    bad |= sec[col].isna()
+                if bad.any():
+                    row = int(bad.to_numpy().nonzero()[0][0]) + 2   # header is line 1
+                    problems.append(Problem(f"{results / 'securities.csv'}:{row}:{col}",
+                                            f"not a number: {sec[col].iloc[row - 2]!r}"))
+                sec[col] = values
+    prev_end = None
+    if manifest is not None:
+        try:
+            prev_end = dt.date.fromisoformat(manifest["period_end"])
+        except (KeyError, TypeError, ValueError):
+            problems.append(Problem(f"{results / 'manifest.json'}:period_end",
+                                    "missing or not an ISO date"))
+    if prev_end is not None and prev_end > period_end:
+        problems.append(Problem(WHERE, f"the earlier pack's period end ({prev_end}) is after "
+                                f"this pack's ({period_end})"))
+    if problems:
+        raise InputError(problems)
+    for col in TEXT_COLUMNS:
+        if col in sec.columns:
+            sec[col] = sec[col].fillna("")
+    limits = limits_doc.get("limits") if isinstance(limits_doc, dict) else None
+    return PreviousPack(folder=Path(folder), source=source, period_end=prev_end,
+                        manifest=manifest, portfolio=portfolio, securities=sec,
+                        limits=limits if isinstance(limits, list) else None)
+
+
+def _json(path: Path, problems: list[Problem]) -> dict | None:
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        problems.append(Problem(str(path), f"cannot be read as JSON: {exc}"))
+        return None
+    if not isinstance(doc, dict):
+        problems.append(Problem(str(path), "is not a JSON object"))
+        return None
+    return doc

@@ -1,0 +1,319 @@
+"""Policy limits: each ``[limits]`` key checked against the pack's figures (pure; no I/O).
+
+Every limit gets a status: ``breach`` when the value is beyond the limit, ``watch`` when it is
+inside the limit but within ``watch_margin x |limit|`` of it (the limit itself counts as
+watch), ``within`` otherwise. Comparing a figure with a policy threshold and flagging an
+early-warning band is common practice, no source.
+
+When portfolio beta is outside its band, :func:`beta_target` gives the mix with the
+risk-free asset that would reach the band's midpoint: a share c in cash gives
+beta_new = (1 - c) beta, because the risk-free asset has zero beta and zero excess return
+(Tobin 1958 separation; the capital market line of Sharpe 1964).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from reporter.analytics.pack import PackResults
+from reporter.config import LimitsSection
+
+WITHIN, WATCH, BREACH = "within", "watch", "breach"
+STATUS_ORDER = {WITHIN: 0, WATCH: 1, BREACH: 2}
+OTHER_SECTORS = "*"
+
+LABELS = {
+    "beta_min": "Portfolio beta, minimum",
+    "beta_max": "Portfolio beta, maximum",
+    "max_holding_weight": "Largest holding weight",
+    "max_sector_weight": "Sector weight",
+    "min_effective_n": "Effective number of holdings, minimum",
+    "min_holdings": "Number of holdings, minimum",
+    "max_tracking_error_ann": "Tracking error (annualised), maximum",
+    "max_idiosyncratic_share": "Specific share of variance, maximum",
+}
+# the order in which limits are listed (and compared between packs)
+LIMIT_KEYS = tuple(LABELS)
+
+
+@dataclass(frozen=True)
+class LimitCheck:
+    """One limit against its figure. ``kind`` is ``max`` (breach above) or ``min``.
+
+    ``scope`` is None for a portfolio-wide or every-holding/every-sector limit, a sector's
+    name for a per-sector maximum, and ``"*"`` for the maximum on the sectors not named.
+    ``holdings`` / ``sectors`` list the ones on watch or in breach, worst first, as dicts
+    with ``security_id, name, value, status`` / ``sector, value, status``. Values and
+    thresholds are decimals (weights, shares, annualised tracking error) or counts.
+    """
+
+    limit: str
+    scope: str | None
+    kind: str
+    value: float
+    threshold: float
+    watch_from: float
+    status: str
+    holdings: tuple[dict, ...] = ()
+    sectors: tuple[dict, ...] = ()
+
+    @property
+    def label(self) -> str:
+        base = LABELS[self.limit]
+        if self.scope == OTHER_SECTORS:
+            return f"{base}, other sectors"
+        return f"{base}: {self.scope}" if self.scope else base
+
+    @property
+    def key(self) -> str:
+        """A stable key for comparing packs: the limit, and the sector for per-sector ones."""
+        return self.limit if self.scope is None else f"{self.limit}:{self.scope}"
+
+    def as_json(self) -> dict:
+        return {
+            "limit": self.limit, "scope": self.scope, "label": self.label, "kind": self.kind,
+            "value": _clean(self.value), "threshold": self.threshold,
+            "watch_from": self.watch_from, "status": self.status,
+            "holdings": [{k: _clean(v) for k, v in h.items()} for h in self.holdings],
+            "sectors": [{k: _clean(v) for k, v in s.items()} for s in self.sectors],
+        }
+
+
+@dataclass(frozen=True)
+class BetaTarget:
+    """The mix with the risk-free asset that moves portfolio beta to ``target``.
+
+    ``cash_share`` c is the share of the portfolio moved into the risk-free asset (negative:
+    borrowed at the risk-free rate and invested in the portfolio); beta becomes (1 - c) beta.
+    ``mean_excess`` is the mixed position's mean excess return per period over the window,
+    (1 - c) x the portfolio's; ``_ann`` is x P.
+    """
+
+    beta: float
+    target: float
+    cash_share: float
+    mean_excess: float
+    mean_excess_ann: float
+    portfolio_mean_excess_ann: float
+    band_midpoint: bool            # True: target is the middle of [beta_min, beta_max]
+
+    def as_json(self) -> dict:
+        return {k: _clean(getattr(self, k)) for k in (
+            "beta", "target", "cash_share", "mean_excess", "mean_excess_ann",
+            "portfolio_mean_excess_ann", "band_midpoint")}
+
+
+@dataclass(frozen=True)
+class LimitsReport:
+    """Every configured limit, checked; the beta mix when beta is outside its band."""
+
+    checks: tuple[LimitCheck, ...]
+    watch_margin: float
+    beta_target: BetaTarget | None = None
+    notes: tuple[str, ...] = field(default=())
+    # every sector a sector maximum applies to: {sector, value, threshold, status}
+    sector_marks: tuple[dict, ...] = field(default=())
+
+    @property
+    def exceptions(self) -> list[LimitCheck]:
+        """Limits on watch or in breach, breaches first, in the listing order."""
+        return sorted((c for c in self.checks if c.status != WITHIN),
+                      key=lambda c: -STATUS_ORDER[c.status])
+
+    @property
+    def counts(self) -> dict[str, int]:
+        return {s: sum(c.status == s for c in self.checks) for s in STATUS_ORDER}
+
+    def holding_status(self) -> dict[str, str]:
+        """security_id -> worst status from the holding-weight limit (only watch/breach)."""
+        return {h["security_id"]: h["status"] for c in self.checks for h in c.holdings}
+
+    def sector_status(self) -> dict[str, dict]:
+        """sector -> {status, threshold} for every sector a sector maximum applies to."""
+        return {s["sector"]: {"status": s["status"], "threshold": s["threshold"]}
+                for s in self.sector_marks}
+
+    def as_json(self) -> dict:
+        """The content of ``results/limits.json``."""
+        return {
+            "watch_margin": self.watch_margin,
+            "counts": self.counts,
+            "limits": [c.as_json() for c in self.checks],
+            "beta_target": self.beta_target.as_json() if self.beta_target else None,
+            "notes": list(self.notes),
+        }
+
+
+def _clean(v):
+    if isinstance(v, float | np.floating):
+        return float(v) if np.isfinite(v) else None
+    if isinstance(v, np.integer):
+        return int(v)
+    if isinstance(v, np.bool_):
+        return bool(v)
+    return v
+
+
+def classify(values: np.ndarray | float, threshold: float, kind: str,
+             margin: float) -> np.ndarray:
+    """Status of each value against one limit (vectorised).
+
+    ``kind="max"``: breach if value > threshold; watch if threshold - m|threshold| <= value
+    <= threshold. ``kind="min"``: breach if value < threshold; watch if threshold <= value
+    <= threshold + m|threshold|. NaN values are ``within`` (nothing to test); the caller
+    reports them. Common practice, no source.
+    """
+    v = np.atleast_1d(np.asarray(values, dtype=float))
+    band = margin * abs(threshold)
+    with np.errstate(invalid="ignore"):
+        if kind == "max":
+            breach = v > threshold
+            watch = ~breach & (v >= threshold - band)
+        else:
+            breach = v < threshold
+            watch = ~breach & (v <= threshold + band)
+    return np.where(breach, BREACH, np.where(watch, WATCH, WITHIN)).astype(object)
+
+
+def _watch_from(threshold: float, kind: str, margin: float) -> float:
+    band = margin * abs(threshold)
+    return threshold - band if kind == "max" else threshold + band
+
+
+def _scalar(limit: str, kind: str, value: float, threshold: float,
+            margin: float) -> LimitCheck:
+    status = str(classify(value, threshold, kind, margin)[0])
+    return LimitCheck(limit=limit, scope=None, kind=kind, value=float(value),
+                      threshold=float(threshold),
+                      watch_from=_watch_from(threshold, kind, margin), status=status)
+
+
+def _worst(statuses) -> str:
+    order = [STATUS_ORDER[s] for s in statuses]
+    return [WITHIN, WATCH, BREACH][max(order)] if order else WITHIN
+
+
+def _sector_check(scope: str | None, names: np.ndarray, weights: np.ndarray,
+                  threshold: float, margin: float) -> tuple[LimitCheck, tuple[dict, ...]]:
+    status = classify(weights, threshold, "max", margin)
+    flagged = np.flatnonzero(status != WITHIN)
+    order = flagged[np.lexsort((names[flagged], -weights[flagged]))]
+    sectors = tuple({"sector": str(names[i]), "value": float(weights[i]),
+                     "threshold": float(threshold), "status": str(status[i])}
+                    for i in order)
+    # every sector this maximum applies to carries its status for the sector chart
+    applies = tuple({"sector": str(names[i]), "value": float(weights[i]),
+                     "threshold": float(threshold), "status": str(status[i])}
+                    for i in range(len(names)))
+    value = float(weights.max()) if len(weights) else 0.0
+    check = LimitCheck(limit="max_sector_weight", scope=scope, kind="max", value=value,
+                       threshold=float(threshold),
+                       watch_from=_watch_from(threshold, "max", margin),
+                       status=_worst(status), sectors=sectors)
+    return check, applies
+
+
+def evaluate_limits(cfg: LimitsSection, res: PackResults) -> LimitsReport:
+    """Check each configured limit against the pack's results.
+
+    Figures used: portfolio beta is the regression beta (``beta_regression``); holding
+    weights are absolute weights |w|; sector weights are net sums of weights; effective N
+    is 1/sum(w^2); tracking error is sd(r_p - r_m) x sqrt(P); the specific share is
+    1 - the single-index systematic share.
+    """
+    m = cfg.watch_margin
+    p = res.portfolio_summary()
+    checks: list[LimitCheck] = []
+    notes: list[str] = []
+    sector_flags: list[dict] = []
+    if cfg.beta_min is not None:
+        checks.append(_scalar("beta_min", "min", p["beta_regression"], cfg.beta_min, m))
+    if cfg.beta_max is not None:
+        checks.append(_scalar("beta_max", "max", p["beta_regression"], cfg.beta_max, m))
+    if cfg.max_holding_weight is not None:
+        sec = res.securities
+        w = np.abs(sec["weight"].to_numpy(dtype=float))
+        status = classify(w, cfg.max_holding_weight, "max", m)
+        flagged = np.flatnonzero(status != WITHIN)
+        ids = sec["security_id"].to_numpy()
+        order = flagged[np.lexsort((ids[flagged], -w[flagged]))]
+        names = sec["name"].to_numpy()
+        holdings = tuple({"security_id": str(ids[i]), "name": str(names[i]),
+                          "value": float(w[i]), "status": str(status[i])} for i in order)
+        checks.append(LimitCheck(
+            limit="max_holding_weight", scope=None, kind="max", value=float(w.max()),
+            threshold=float(cfg.max_holding_weight),
+            watch_from=_watch_from(cfg.max_holding_weight, "max", m),
+            status=_worst(status), holdings=holdings))
+    if cfg.max_sector_weight is not None:
+        names = res.sectors["sector"].to_numpy().astype(str)
+        weights = res.sectors["weight"].to_numpy(dtype=float)
+        table = cfg.max_sector_weight
+        if isinstance(table, float | int):
+            check, applies = _sector_check(None, names, weights, float(table), m)
+            checks.append(check)
+            sector_flags += applies
+        else:
+            named = [s for s in sorted(table) if s != OTHER_SECTORS]
+            for s in named:
+                if s not in set(names):
+                    notes.append(f"limits.max_sector_weight names the sector {s!r}, which no "
+                                 "holding belongs to (weight 0)")
+                hit = names == s
+                check, applies = _sector_check(s, np.array([s]),
+                                               np.array([weights[hit].sum()]), table[s], m)
+                checks.append(check)
+                sector_flags += applies if hit.any() else []
+            if OTHER_SECTORS in table:
+                rest = ~np.isin(names, named)
+                check, applies = _sector_check(OTHER_SECTORS, names[rest], weights[rest],
+                                               table[OTHER_SECTORS], m)
+                checks.append(check)
+                sector_flags += applies
+    if cfg.min_effective_n is not None:
+        checks.append(_scalar("min_effective_n", "min", p["effective_n"], cfg.min_effective_n,
+                              m))
+    if cfg.min_holdings is not None:
+        checks.append(_scalar("min_holdings", "min", float(p["n_holdings"]),
+                              float(cfg.min_holdings), m))
+    if cfg.max_tracking_error_ann is not None:
+        checks.append(_scalar("max_tracking_error_ann", "max", p["tracking_error_ann"],
+                              cfg.max_tracking_error_ann, m))
+    if cfg.max_idiosyncratic_share is not None:
+        checks.append(_scalar("max_idiosyncratic_share", "max", p["idiosyncratic_share"],
+                              cfg.max_idiosyncratic_share, m))
+    target = None
+    beta_out = [c for c in checks if c.limit in ("beta_min", "beta_max") and c.status == BREACH]
+    for c in checks:
+        if not np.isfinite(c.value):
+            notes.append(f"{c.label}: the figure could not be computed, so this limit was "
+                         "not tested")
+    if beta_out:
+        target = beta_target(p["beta_regression"], cfg.beta_min, cfg.beta_max,
+                             p["mean_excess_return"], res.periods_per_year)
+        if target is None:
+            notes.append("portfolio beta is not positive, so no mix with cash can reach "
+                         "the band")
+    return LimitsReport(checks=tuple(checks), watch_margin=m, beta_target=target,
+                        notes=tuple(notes), sector_marks=tuple(sector_flags))
+
+
+def beta_target(beta: float, beta_min: float | None, beta_max: float | None,
+                mean_excess: float, periods_per_year: int) -> BetaTarget | None:
+    """The risk-free mix that moves ``beta`` to the band's midpoint (or to the one bound
+    given): cash share c = 1 - target / beta, so that (1 - c) beta = target; the mixed
+    position's mean excess return is (1 - c) x ``mean_excess`` (per period). None when beta
+    is not positive (no such mix). Source: two-fund separation (Tobin 1958); the line
+    through the risk-free asset is linear in beta (Sharpe 1964)."""
+    if not np.isfinite(beta) or beta <= 0:
+        return None
+    bounds = [b for b in (beta_min, beta_max) if b is not None]
+    target = float(np.mean(bounds))
+    scale = target / beta
+    return BetaTarget(beta=float(beta), target=target, cash_share=float(1.0 - scale),
+                      mean_excess=float(scale * mean_excess),
+                      mean_excess_ann=float(scale * mean_excess * periods_per_year),
+                      portfolio_mean_excess_ann=float(mean_excess * periods_per_year),
+                      band_midpoint=len(bounds) == 2)

@@ -1,0 +1,239 @@
+"""Changes since the last pack: the demo against its own earlier build with three holdings
+swapped (and one holding's returns raised so that it crosses the security market line),
+the archive lookup, and an earlier build without limits.json.
+
+Expected values are worked out from how the modified pack is made, not copied from output.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+import os
+import re
+import shutil
+
+import numpy as np
+import pandas as pd
+import pypdf
+import pytest
+from scipy import stats
+
+from reporter.build import assemble
+from reporter.changes import latest_signed_pack
+from reporter.cli import main
+from reporter.config import load_settings
+from reporter.errors import InputError
+from tests.conftest import DEMO, FIXED_EPOCH
+
+SWAPPED = {"TVX010": "TVX901", "TVX020": "TVX902", "TVX050": "TVX903"}
+RAISED = "TVX012"        # its returns are raised by 2% a month in the new pack
+RAISE = 0.02
+
+
+def make_swapped(folder, previous: str, limits_edit: tuple[str, str] | None = None):
+    """The demo with three holdings replaced by new securities (same weights, same return
+    histories under new ids and names) and one holding's returns raised."""
+    shutil.copytree(DEMO, folder)
+    h = pd.read_csv(folder / "holdings.csv", dtype={"security_id": str})
+    r = pd.read_csv(folder / "returns.csv", dtype={"security_id": str})
+    for old, new in SWAPPED.items():
+        h.loc[h["security_id"] == old, ["security_id", "name"]] = [new, f"{new} Newco plc"]
+        r.loc[r["security_id"] == old, "security_id"] = new
+    r.loc[r["security_id"] == RAISED, "return"] += RAISE
+    h.to_csv(folder / "holdings.csv", index=False)
+    r.to_csv(folder / "returns.csv", index=False, float_format="%.6f")
+    toml = (folder / "pack.toml").read_text()
+    if limits_edit:
+        toml = toml.replace(*limits_edit)
+    (folder / "pack.toml").write_text(toml + f'\n[compare]\nprevious = "{previous}"\n')
+    return folder
+
+
+@pytest.fixture(scope="module")
+def swapped_build(demo_build, tmp_path_factory):
+    base = tmp_path_factory.mktemp("changes")
+    # a tighter holding limit in the new pack: the largest holding (7.6%) goes from watch
+    # (limit 8%) to breach (limit 7.5%)
+    pack = make_swapped(base / "pack", str(demo_build),
+                        ("max_holding_weight = 0.08", "max_holding_weight = 0.075"))
+    out = base / "out"
+    old = os.environ.get("SOURCE_DATE_EPOCH")
+    os.environ["SOURCE_DATE_EPOCH"] = FIXED_EPOCH
+    try:
+        assert main(["build", str(pack), "--out", str(out), "--quiet"]) == 0
+    finally:
+        if old is None:
+            os.environ.pop("SOURCE_DATE_EPOCH", None)
+        else:
+            os.environ["SOURCE_DATE_EPOCH"] = old
+    return out
+
+
+def test_new_removed_and_weight_changes(demo_build, swapped_build):
+    ch = json.loads((swapped_build / "results/changes.json").read_text())
+    h = pd.read_csv(DEMO / "holdings.csv").set_index("security_id")["weight"]
+    assert ch["previous"]["period_end"] == "2026-11-30"
+    assert ch["previous"]["source"] == "build"
+    assert [x["security_id"] for x in ch["new_holdings"]] == sorted(SWAPPED.values())
+    assert [x["security_id"] for x in ch["removed_holdings"]] == sorted(SWAPPED)
+    for old, new in SWAPPED.items():
+        got_new = next(x for x in ch["new_holdings"] if x["security_id"] == new)
+        got_old = next(x for x in ch["removed_holdings"] if x["security_id"] == old)
+        assert got_new["weight"] == pytest.approx(h[old])
+        assert got_old["weight_before"] == pytest.approx(h[old])
+    # only the six swapped ids changed weight: +w for the new, -w for the removed
+    want = {new: h[old] for old, new in SWAPPED.items()} | {old: -h[old] for old in SWAPPED}
+    got = {x["security_id"]: x["change"] for x in ch["weight_changes"]}
+    assert got.keys() == want.keys()
+    for k, v in want.items():
+        assert got[k] == pytest.approx(v)
+    changes = [abs(x["change"]) for x in ch["weight_changes"]]
+    assert changes == sorted(changes, reverse=True)
+
+
+def test_sml_crossing(demo_build, swapped_build):
+    ch = json.loads((swapped_build / "results/changes.json").read_text())
+    before = pd.read_csv(demo_build / "results/securities.csv").set_index("security_id")
+    now = pd.read_csv(swapped_build / "results/securities.csv").set_index("security_id")
+    # raising every return by 2% a month raises the mean excess return by 0.02 and leaves
+    # beta and the line unchanged, so the distance from the line rises by 0.02 (CAPM algebra)
+    assert now.loc[RAISED, "sml_residual"] == pytest.approx(
+        before.loc[RAISED, "sml_residual"] + RAISE, abs=2e-6)
+    # the demo's RAISED holding sits below the line by less than 2% a month: it crosses,
+    # and no other holding (same returns in both packs) does
+    assert -RAISE < before.loc[RAISED, "sml_residual"] < 0
+    (crossed,) = ch["crossed_sml"]
+    assert crossed["security_id"] == RAISED and crossed["direction"] == "now above the line"
+
+
+def test_beta_change_and_its_error(demo_build, swapped_build):
+    ch = json.loads((swapped_build / "results/changes.json").read_text())["beta"]
+    p0 = json.loads((demo_build / "results/portfolio.json").read_text())
+    p1 = json.loads((swapped_build / "results/portfolio.json").read_text())
+    assert ch["before"] == pytest.approx(p0["beta_regression"])
+    assert ch["change"] == pytest.approx(p1["beta_regression"] - p0["beta_regression"])
+    # the same return histories under other ids, plus a constant: beta hardly moves
+    assert abs(ch["change"]) < 1e-4 and ch["beyond_error"] is False
+    se = np.hypot(p0["beta_se_hac"], p1["beta_se_hac"])     # the packs use Newey-West
+    assert ch["se_change"] == pytest.approx(se)
+    assert ch["critical"] == pytest.approx(stats.norm.ppf(0.975))   # scipy
+
+
+def test_limit_status_change(swapped_build):
+    ch = json.loads((swapped_build / "results/changes.json").read_text())
+    assert ch["limits_compared"] is True
+    assert [(c["limit"], c["status_before"], c["status_now"]) for c in ch["limit_changes"]] \
+        == [("max_holding_weight", "watch", "breach")]
+
+
+def test_since_last_pack_section(swapped_build):
+    reader = pypdf.PdfReader(swapped_build / "pack.pdf")
+    text = ""
+    for page in reader.pages:                     # the contents and the section, no further
+        text += " " + re.sub(r"\s+", " ", page.extract_text())
+        if "Crossings of the security market line" in text:
+            break
+    assert "Since last pack" in text.split("Market risk")[0]    # listed in the contents
+    for phrase in ("3 new holding(s) and 3 removed", "TVX901 Newco plc",
+                   "within estimation error", "Largest weight changes",
+                   "Crossings of the security market line"):
+        assert phrase in text, phrase
+
+
+def test_previous_build_without_limits_json(demo_build, tmp_path):
+    old = tmp_path / "old"
+    shutil.copytree(demo_build, old)
+    (old / "results/limits.json").unlink()
+    a = assemble(load_settings(make_swapped(tmp_path / "pack", str(old))))
+    assert a.changes.limits_compared is False and a.changes.limit_changes == []
+    assert "no record of limits" in a.html()
+    assert len(a.changes.new_holdings) == 3
+
+
+def test_not_a_build_is_an_input_error(tmp_path):
+    (tmp_path / "empty").mkdir()
+    with pytest.raises(InputError) as exc:
+        assemble(load_settings(make_swapped(tmp_path / "pack", str(tmp_path / "empty"))))
+    assert [str(p) for p in exc.value.problems] == [
+        f"pack.toml:compare.previous: {tmp_path / 'empty'} is not a pack build: "
+        "results/manifest.json is missing"]
+
+
+def _signed(archive, date: str, name: str, period_end: str):
+    folder = archive / date / name / "results"
+    folder.mkdir(parents=True)
+    (folder / "manifest.json").write_text(json.dumps({"period_end": period_end}))
+    return folder.parent
+
+
+def test_latest_signed_pack(tmp_path):
+    a = tmp_path / "archive"
+    a.mkdir()
+    (a / "ledger.sqlite").write_bytes(b"")
+    _signed(a, "2026-09-30", "equity", "2026-09-30")
+    _signed(a, "2026-10-31", "equity", "2026-10-31")
+    want = _signed(a, "2026-10-31", "equity-restated", "2026-10-31")  # sorts last
+    _signed(a, "2026-11-30", "equity", "2026-11-30")   # this period: not "before"
+    assert latest_signed_pack(a, dt.date(2026, 11, 30)) == want
+    assert latest_signed_pack(a, dt.date(2026, 10, 31)).name == "equity"
+    assert latest_signed_pack(a, dt.date(2026, 9, 30)) is None
+
+
+def test_archive_form(demo_build, tmp_path):
+    archive = tmp_path / "archive"
+    signed = archive / "2026-10-31" / "equity"
+    shutil.copytree(demo_build, signed)
+    m = json.loads((signed / "results/manifest.json").read_text())
+    m["period_end"] = "2026-10-31"
+    (signed / "results/manifest.json").write_text(json.dumps(m))
+    _signed(archive, "2026-12-31", "equity", "2026-12-31")   # later: ignored
+    a = assemble(load_settings(make_swapped(tmp_path / "pack", f"archive:{archive}")))
+    assert a.changes.previous_source == "archive"
+    assert a.changes.previous_period_end == "2026-10-31"
+    assert a.changes.previous_folder == str(signed)
+
+
+def test_archive_with_nothing_earlier(tmp_path):
+    archive = tmp_path / "archive"
+    _signed(archive, "2026-12-31", "equity", "2026-12-31")
+    a = assemble(load_settings(make_swapped(tmp_path / "pack", f"archive:{archive}")))
+    assert a.changes is None
+    assert [p.severity for p in a.compare_warnings] == ["warning"]
+    assert "no signed pack with a period end before 2026-11-30" in a.html()
+    with pytest.raises(InputError):
+        assemble(load_settings(tmp_path / "pack"), strict=True)
+
+
+@pytest.mark.parametrize("b0,b1,se0,se1,beyond", [
+    (1.00, 1.10, 0.03, 0.04, True),      # z = 0.10 / 0.05 = 2.0 > 1.96
+    (1.00, 1.09, 0.03, 0.04, False),     # z = 1.8
+    (1.20, 0.95, 0.06, 0.08, True),      # z = -0.25 / 0.10 = -2.5
+    (1.20, 1.05, 0.06, 0.08, False),     # z = -1.5
+])
+def test_beta_change_test(b0, b1, se0, se1, beyond):
+    from reporter.analytics.changes import beta_change
+
+    now = {"beta_regression": b1, "beta_se": 9.0, "beta_se_hac": se1, "errors": "hac"}
+    # an older build that used OLS errors: its own OLS error is the one taken
+    before = {"beta_regression": b0, "beta_se": se0, "beta_se_hac": 9.0, "errors": "ols"}
+    got = beta_change(now, before, 0.95)
+    se = np.hypot(se0, se1)                    # 3-4-5 triangles: 0.05 and 0.10
+    z = (b1 - b0) / se
+    assert got.se == pytest.approx(se) and got.z == pytest.approx(z)
+    assert got.critical == pytest.approx(stats.norm.ppf(0.975))   # scipy, 1.959964
+    assert got.beyond_error == bool(abs(z) > stats.norm.ppf(0.975)) == beyond
+
+
+def test_unreadable_previous_weight_is_an_input_error(demo_build, tmp_path):
+    old = tmp_path / "old"
+    shutil.copytree(demo_build, old)
+    sec = (old / "results/securities.csv").read_text().splitlines()
+    cells = sec[3].split(",")
+    cells[3] = "n/a"                      # the weight of the third holding: line 4
+    sec[3] = ",".join(cells)
+    (old / "results/securities.csv").write_text("\n".join(sec) + "\n")
+    with pytest.raises(InputError) as exc:
+        assemble(load_settings(make_swapped(tmp_path / "pack", str(old))))
+    assert [str(p) for p in exc.value.problems] == [
+        f"{old / 'results/securities.csv'}:4:weight: not a number: 'n/a'"]
