@@ -5,7 +5,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test lint demo-data golden bench clean
+.PHONY: demo test lint demo-data bad-cases golden bench clean
 
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
@@ -26,6 +26,10 @@ lint: $(STAMP)
 # Regenerate the invented demo scheme (seeded, so the files come out identical).
 demo-data: $(STAMP)
 	$(BIN)/python -m reporter.demo_data inputs/demo
+
+# Regenerate the small bad-input packs under tests/data/bad/ (one folder per case).
+bad-cases: $(STAMP)
+	$(BIN)/python -m tests.data.make_bad_cases
 
 # Regenerate the golden results files after an intended change in the figures.
 golden: $(STAMP)

@@ -37,6 +37,9 @@ class DatedSeries:
 
     dates: np.ndarray   # datetime64[D]
     values: np.ndarray  # float64, decimals per period
+    rows: np.ndarray | None = None   # each date's row in its file, as the user sees it
+    # rows whose date could not be read (already reported): a gap across one is not new
+    unread_rows: np.ndarray | None = None
 
 
 @dataclass(frozen=True)

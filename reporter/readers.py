@@ -40,6 +40,11 @@ class RawTable:
     # user-visible row number of each data row, when blank rows were dropped (else None)
     rows: np.ndarray | None = None
 
+    def row_numbers(self, indices: np.ndarray) -> np.ndarray:
+        """:meth:`row_number` of many data rows at once."""
+        indices = np.asarray(indices, dtype=np.int64)
+        return self.rows[indices] if self.rows is not None else self.first_row + indices
+
     def row_number(self, index: int) -> int:
         """The user-visible row number of 0-based data row ``index``."""
         if self.rows is not None:
@@ -87,8 +92,19 @@ def _read_csv(spec: InputSpec) -> RawTable:
             problems.append(Problem(spec.display, f"... and {len(bad) - MAX_BAD_LINES} more "
                                     "lines with the wrong number of fields"))
         raise InputError(problems)
+    table = _drop_trailing_empty_columns(table)
     table, rows = _drop_blank_rows(table, first_row=2)
     return RawTable(spec.display, table, 2, "csv", rows)
+
+
+def _drop_trailing_empty_columns(table: pa.Table) -> pa.Table:
+    """Drop the nameless, empty column that a delimiter at the end of every line makes (a
+    common habit of spreadsheet and custodian exports). A nameless column with any value in
+    it is kept, and validation reports it as an unknown column."""
+    while table.num_columns and not table.column_names[-1].strip() \
+            and table.column(table.num_columns - 1).null_count == table.num_rows:
+        table = table.remove_column(table.num_columns - 1)
+    return table
 
 
 def _refuse_duplicate_columns(display: str, names: list[str]) -> None:

@@ -268,6 +268,8 @@ def validate_series(raw: RawTable, value_col: str, settings: Settings,
                    + ("" if same else f"; the data do not look {settings.frequency}"))
     capped.close()
     _check_return_values(raw, values, value_col, settings, coll, label=value_col)
+    if value_col == "return":
+        _warn_extreme_index_moves(raw, values, settings, coll)
     if value_col == "rate":
         med = np.nanmedian(values) if np.isfinite(values).any() else 0.0
         if med * settings.periods_per_year > 0.25 and med <= PERCENT_MEDIAN[settings.frequency]:
@@ -278,7 +280,31 @@ def validate_series(raw: RawTable, value_col: str, settings: Settings,
         return None         # (no valid date at all: every row has been reported already)
     d, v = dates[ok], values[ok]
     order = np.argsort(d)
-    return DatedSeries(dates=d[order], values=v[order])
+    return DatedSeries(dates=d[order], values=v[order],
+                       rows=raw.row_numbers(np.flatnonzero(ok)[order]),
+                       unread_rows=raw.row_numbers(np.flatnonzero(~ok)))
+
+
+# The largest one-period move a broad market index makes: a common-practice bound, no
+# source (the worst calendar months of broad equity indices in the last century were near
+# -30%, recalled from memory). A move beyond it in a market proxy is almost always a data error.
+INDEX_MOVE_LIMIT = {"monthly": 0.5, "weekly": 0.35, "daily": 0.25}
+
+
+def _warn_extreme_index_moves(raw: RawTable, values: np.ndarray, settings: Settings,
+                              coll: Collector) -> None:
+    """A warning per market-proxy return beyond :data:`INDEX_MOVE_LIMIT` (not a percentage
+    column, which is reported as such, and not below -100%, which is an error)."""
+    limit = INDEX_MOVE_LIMIT[settings.frequency]
+    finite = values[np.isfinite(values)]
+    if not len(finite) or looks_like_percent(finite, settings.frequency):
+        return
+    capped = _Capped(coll, "extreme market moves", warning=True)
+    for i in np.flatnonzero((np.abs(values) > limit) & (values >= -1.0)):
+        capped.add(place(raw.name, raw.row_number(int(i)), "return"),
+                   f"return {values[i]:g} in one {_period_word(settings)} is beyond what a broad "
+                   f"market index does (more than {limit:.0%} either way); check the data")
+    capped.close()
 
 
 def _period_word(settings: Settings) -> str:
@@ -650,14 +676,37 @@ def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
         return
     win = upto[-settings.window:]
     gaps = frequency_gaps(market.dates[win], settings.frequency)
+    if market.rows is not None and market.unread_rows is not None and len(market.unread_rows):
+        lo, hi = market.rows[win][gaps - 1], market.rows[win][gaps]
+        unread = np.sort(market.unread_rows)
+        explained = np.searchsorted(unread, hi) > np.searchsorted(unread, lo, side="right")
+        gaps = gaps[~explained]     # a date that could not be read is reported already
     for g in gaps[:MAX_PER_CHECK]:
-        coll.error(mname, f"the dates {market.dates[win][g - 1]} and {market.dates[win][g]} are "
-                   f"not consecutive {settings.frequency} periods")
+        where = (place(mname, int(market.rows[win][g]), "date") if market.rows is not None
+                 else mname)
+        coll.error(where, f"the dates {market.dates[win][g - 1]} and {market.dates[win][g]} "
+                   f"are not consecutive {settings.frequency} periods (a period is missing "
+                   "between them)")
+    if len(gaps) > MAX_PER_CHECK:
+        coll.error(mname, f"... and {len(gaps) - MAX_PER_CHECK} more gaps in the window")
     if panel is not None:
         _check_return_frequency(settings, panel, mkeys, coll)
     rkeys = period_keys(rf.dates, settings.frequency)
     missing = np.setdiff1d(mkeys[win], rkeys)
     if len(missing):
-        first = market.dates[win][np.isin(mkeys[win], missing)]
-        coll.error(rname, f"the risk-free series does not cover the window: {len(missing)} "
-                   f"period(s) missing, first {first[0]}")
+        at = np.isin(mkeys[win], missing)
+        dates, mrows = market.dates[win][at], (market.rows[win][at] if market.rows is not None
+                                                else [None] * int(at.sum()))
+        after = np.searchsorted(rkeys, missing)     # the risk-free row it is missing before
+        for k in range(min(len(missing), MAX_PER_CHECK)):
+            if rf.rows is not None and after[k] < len(rf.rows):
+                where = place(rname, int(rf.rows[after[k]]), "date")
+                hint = "missing before this row"
+            else:
+                where, hint = rname, "missing after the last row"
+            market_at = f" ({mname} row {mrows[k]})" if mrows[k] is not None else ""
+            coll.error(where, f"no rate for the period of {dates[k]}{market_at}, which the "
+                       f"window needs; {hint}")
+        if len(missing) > MAX_PER_CHECK:
+            coll.error(rname, f"... and {len(missing) - MAX_PER_CHECK} more periods of the "
+                       "window with no rate")

@@ -41,10 +41,10 @@ CASES: dict[str, tuple[str, list[str]]] = {
         "returns.csv:24:return: not a number: '#DIV/0!'"]),
     "unparseable_date": (ERROR, [
         "returns.csv:30:date: not a valid date in the format '%Y-%m-%d': '31/08/2024'"]),
-    # the impossible date drops the market's February, which also breaks the window
+    # the impossible date drops the market's February; the gap it leaves is not reported
+    # again as a missing period
     "impossible_date": (ERROR, [
-        "market.csv:27:date: not a valid date in the format '%Y-%m-%d': '2026-02-30'",
-        "market.csv: the dates 2026-01-31 and 2026-03-31 are not consecutive monthly periods"]),
+        "market.csv:27:date: not a valid date in the format '%Y-%m-%d': '2026-02-30'"]),
     "return_below_minus_100": (ERROR, [
         "returns.csv:53:return: return -1.25 is below -100%"]),
     # one line for the whole security, not one per value below -100%
@@ -64,6 +64,10 @@ CASES: dict[str, tuple[str, list[str]]] = {
         "holdings.csv:5:weight: negative weight -0.1: short positions are not allowed "
         "(set checks.allow_short = true)"]),
     "negative_weight_allow_short": (OK, []),
+    "trailing_delimiter": (OK, []),
+    "market_extreme_return": (WARNING, [
+        "market.csv:22:return: warning: return 4.2 in one month is beyond what a broad market "
+        "index does (more than 50% either way); check the data"]),
     "holding_without_returns": (WARNING, [
         "holdings.csv:5:security_id: warning: holding FWX04 has no return history in "
         "returns.csv"]),
@@ -87,10 +91,13 @@ CASES: dict[str, tuple[str, list[str]]] = {
         "pack.toml:analysis.window: the window (36 periods) is longer than the data: market.csv "
         "has 30 periods up to 2026-06-30"]),
     "market_gap": (ERROR, [
-        "market.csv: the dates 2025-08-31 and 2025-10-31 are not consecutive monthly periods"]),
+        "market.csv:22:date: the dates 2025-08-31 and 2025-10-31 are not consecutive monthly "
+        "periods (a period is missing between them)"]),
     "risk_free_missing_periods": (ERROR, [
-        "risk_free.csv: the risk-free series does not cover the window: 2 period(s) missing, "
-        "first 2025-05-31"]),
+        "risk_free.csv:18:date: no rate for the period of 2025-05-31 (market.csv row 18), which "
+        "the window needs; missing before this row",
+        "risk_free.csv:18:date: no rate for the period of 2025-06-30 (market.csv row 19), which "
+        "the window needs; missing before this row"]),
     "period_end_after_data": (ERROR, [
         "pack.toml:pack.period_end: period_end 2026-09-30 is after the last date in market.csv "
         "(2026-06-30)"]),

@@ -308,6 +308,19 @@ def ragged_row(p: Pack) -> None:
     returns_row(p, 3, 1).append("0.001")                            # line 15 has 4 fields
 
 
+def trailing_delimiter(p: Pack) -> None:
+    # every line of market.csv ends with the delimiter, as some exports write them: the
+    # nameless empty column this makes is no problem at all
+    header, rows = p.tables["market.csv"]
+    lines = [",".join(header) + ","] + [",".join(r) + "," for r in rows]
+    del p.tables["market.csv"]
+    p.raw["market.csv"] = "\n".join(lines) + "\n"
+
+
+def market_extreme_return(p: Pack) -> None:
+    p.rows("market.csv")[20][1] = "4.2"                  # line 22: +420% in one month
+
+
 CASES: dict[str, Callable[[Pack], None]] = {f.__name__: f for f in (
     missing_required_column, unknown_column, duplicate_security_id, duplicate_row_same_value,
     duplicate_row_different_value, non_numeric_return, unparseable_date, impossible_date,
@@ -319,7 +332,8 @@ CASES: dict[str, Callable[[Pack], None]] = {f.__name__: f for f in (
     window_longer_than_data, market_gap, risk_free_missing_periods, period_end_after_data,
     pack_toml_unknown_key, pack_toml_wrong_type, pack_toml_bad_date_format, path_leaves_pack,
     missing_input_file, risk_free_annual_percentage, risk_free_annual_decimal,
-    blank_line_then_bad_value, ragged_row, returns_without_rows,
+    blank_line_then_bad_value, ragged_row, returns_without_rows, trailing_delimiter,
+    market_extreme_return,
 )}
 
 
