@@ -152,6 +152,34 @@ def rolling_holdings_chart(res: PackResults, top: int = 10) -> alt.Chart:
                         header=alt.Header(labelFontSize=9, labelLimit=150)), columns=3)
 
 
+def growth_chart(res: PackResults) -> alt.LayerChart:
+    """Growth of one unit invested in the portfolio (current weights) and in the market proxy
+    over the whole history, on a log scale; the lines differ in dash as well as colour."""
+    g = res.growth_table
+    df = pd.concat([
+        pd.DataFrame({"date": g["date"], "value": g["portfolio"], "series": "Portfolio"}),
+        pd.DataFrame({"date": g["date"], "value": g["market"], "series": "Market proxy"}),
+    ], ignore_index=True)
+    df["date"] = pd.to_datetime(df["date"])
+    domain = ["Portfolio", "Market proxy"]
+    lo, hi = float(min(df["value"].min(), 1.0)), float(max(df["value"].max(), 1.0))
+    line = alt.Chart(df).mark_line(strokeWidth=2).encode(
+        x=alt.X("date:T", title=None, axis=alt.Axis(format="%Y")),
+        y=alt.Y("value:Q", title="Value of 1 invested (log scale)",
+                scale=alt.Scale(type="log", domain=[lo * 0.95, hi * 1.05], nice=False)),
+        color=alt.Color("series:N", scale=alt.Scale(domain=domain, range=[TEAL, INK]),
+                        title=None),
+        strokeDash=alt.StrokeDash("series:N", scale=alt.Scale(domain=domain,
+                                                              range=[[1, 0], [5, 3]]),
+                                  title=None),
+        tooltip=["series:N", alt.Tooltip("date:T", format="%Y-%m-%d"),
+                 alt.Tooltip("value:Q", format=".3f")],
+    )
+    one = alt.Chart(pd.DataFrame({"y": [1.0]})).mark_rule(color=GREY, strokeDash=[2, 2]).encode(
+        y="y:Q")
+    return alt.layer(one, line).properties(width=WIDTH, height=240)
+
+
 def build_charts(res: PackResults) -> dict[str, alt.TopLevelMixin]:
     """Every chart of the pack, keyed by the name the templates use."""
     return {
@@ -160,4 +188,5 @@ def build_charts(res: PackResults) -> dict[str, alt.TopLevelMixin]:
         "sml": sml_chart(res),
         "sectors": sector_chart(res),
         "diversification": diversification_chart(res),
+        "growth": growth_chart(res),
     }

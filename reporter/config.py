@@ -74,6 +74,13 @@ class AnalysisSection(_Strict):
     blume_slope: float = 0.67
     dimson_lags: Annotated[int, Field(ge=1, le=10)] = 1
     rolling_window: Annotated[int, Field(ge=6, le=100_000)] | None = None
+    # minimum acceptable return for downside deviation and Sortino: "risk_free" (each
+    # period's rate) or a fixed annual decimal rate
+    mar: Literal["risk_free"] | Annotated[float, Field(ge=-1.0, le=1.0)] = "risk_free"
+    # covariance behind risk contributions: "auto" (Ledoit-Wolf when holdings >= window / 10)
+    covariance: Literal["auto", "ledoit_wolf", "sample"] = "auto"
+    random_subsets: Annotated[int, Field(ge=10, le=10_000)] = 200
+    seed: Annotated[int, Field(ge=0)] = 20261130
 
 
 class ChecksSection(_Strict):
@@ -138,6 +145,10 @@ class Settings:
     allow_short: bool
     stale_zero_run: int
     templates_dir: Path | None
+    mar: float | None = None             # fixed annual MAR; None = the risk-free rate
+    covariance: str = "auto"             # "auto" | "ledoit_wolf" | "sample"
+    random_subsets: int = 200            # random equal-weight portfolios per size
+    seed: int = 20261130                 # seed of those random draws
 
     @property
     def periods_per_year(self) -> int:
@@ -274,6 +285,10 @@ def load_settings(pack: Path | str) -> Settings:
         allow_short=model.checks.allow_short,
         stale_zero_run=model.checks.stale_zero_run or DEFAULT_STALE_RUN[freq],
         templates_dir=templates_dir,
+        mar=None if model.analysis.mar == "risk_free" else float(model.analysis.mar),
+        covariance=model.analysis.covariance,
+        random_subsets=model.analysis.random_subsets,
+        seed=model.analysis.seed,
     )
 
 

@@ -40,6 +40,7 @@ class Section:
 
 SECTIONS = (
     Section("summary", "Summary"),
+    Section("returns", "Returns and ratios"),
     Section("market-risk", "Market risk"),
     Section("beta", "Beta estimates"),
     Section("sml", "Security market line"),
@@ -90,6 +91,9 @@ class PackContext:
     charts: dict[str, alt.TopLevelMixin] = field(repr=False)
     sections: tuple[Section, ...] = SECTIONS
     cautions: tuple[str, ...] = CAUTIONS
+    trailing_returns: list[dict] = field(default_factory=list)   # period_returns.csv, trailing
+    calendar_returns: list[dict] = field(default_factory=list)   # and calendar-year rows
+    mar_fixed: float | None = None   # fixed annual MAR, or None for the risk-free rate
 
 
 def _records(df) -> list[dict]:
@@ -147,4 +151,7 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         beta_not_one=_records(by_weight[by_weight["beta_differs_from_1"].astype(bool)]),
         curve_90=_holdings_to_remove(res, 0.90), curve_95=_holdings_to_remove(res, 0.95),
         charts=charts,
+        trailing_returns=_records(res.period_table[res.period_table["kind"] == "trailing"]),
+        calendar_returns=_records(res.period_table[res.period_table["kind"] == "calendar"]),
+        mar_fixed=settings.mar,
     )

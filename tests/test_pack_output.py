@@ -16,8 +16,9 @@ from tests.conftest import DEMO, GOLDEN
 REQUIRED = ["security_id", "name", "sector", "weight", "n_obs", "alpha", "alpha_se", "alpha_t",
             "beta", "beta_se", "beta_t", "r_squared", "residual_vol", "mean_excess_return",
             "sml_expected_excess", "sml_residual", "treynor"]
-SECTION_TITLES = ["Contents", "Summary", "Market risk", "Beta estimates", "Security market line",
-                  "Diversification", "Holdings appendix", "Methodology", "Cautions"]
+SECTION_TITLES = ["Contents", "Summary", "Returns and ratios", "Market risk", "Beta estimates",
+                  "Security market line", "Diversification", "Holdings appendix", "Methodology",
+                  "Cautions"]
 
 
 @pytest.fixture(scope="module")
@@ -92,7 +93,7 @@ def test_html_is_self_contained(html):
     assert not re.search(r"(?i)\b(?:https?:)?//[a-z0-9.-]+\.[a-z]{2,}", html.replace(
         "http://www.w3.org/2000/svg", "").replace("http://www.w3.org/1999/xlink", ""))
     assert "<script" not in html.lower()
-    assert html.count("<svg") == 5
+    assert html.count("<svg") == 6
     assert "<style>" in html
 
 
@@ -160,3 +161,32 @@ def test_beta_columns_and_rolling_file(demo_build):
     # the holding suspended for five months has no value in windows that span the gap
     gapped = roll[roll["series"] == "TVX042"]
     assert 0 < len(gapped) < 85
+
+
+def test_period_returns_file(demo_build):
+    t = pd.read_csv(demo_build / "results/period_returns.csv")
+    assert list(t.columns) == ["kind", "period", "label", "start", "end", "n_periods", "basis",
+                               "portfolio", "market", "difference"]
+    trailing = t[t["kind"] == "trailing"].set_index("period")
+    assert list(trailing.index) == ["1m", "3m", "ytd", "1y", "3y", "5y", "all"]
+    # GIPS: cumulative under a year, annualised at a year or more
+    assert (trailing["basis"] == np.where(trailing["n_periods"] >= 12, "annualised",
+                                          "cumulative")).all()
+    # the market proxy's month is its last return in market.csv; its year to date the
+    # compounded 2026 returns (arithmetic by hand from the input file)
+    mkt = pd.read_csv(DEMO / "market.csv")
+    assert trailing.loc["1m", "market"] == pytest.approx(mkt["return"].iloc[-1], rel=1e-9)
+    ytd = mkt[mkt["date"].str.startswith("2026")]["return"]
+    assert trailing.loc["ytd", "market"] == pytest.approx(np.prod(1 + ytd) - 1, rel=1e-9)
+    five = mkt["return"].iloc[-60:]
+    assert trailing.loc["5y", "market"] == pytest.approx(np.prod(1 + five) ** (12 / 60) - 1,
+                                                         rel=1e-9)
+    np.testing.assert_allclose(t["difference"], t["portfolio"] - t["market"], atol=1e-12)
+    cal = t[t["kind"] == "calendar"]
+    assert cal["label"].iloc[-1] == "2026 (to date)"
+    p = json.loads((demo_build / "results/portfolio.json").read_text())
+    # the five-year period is the 60-month window: its geometric rate is the ratio table's
+    assert trailing.loc["5y", "portfolio"] == pytest.approx(p["return_geometric_ann"], rel=1e-9)
+    for key in ("sharpe_se", "sharpe_ann_lo", "appraisal_ratio", "m2", "max_drawdown",
+                "downside_deviation", "sortino", "mar", "return_arithmetic_ann"):
+        assert key in p and p[key] is not None, key

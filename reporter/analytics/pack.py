@@ -18,6 +18,13 @@ from reporter.analytics.diversification import (
     sector_weights,
     variance_split,
 )
+from reporter.analytics.performance import (
+    PerformanceRatios,
+    growth_of_one,
+    holding_ratios,
+    performance,
+    period_returns,
+)
 from reporter.analytics.regression import (
     MarketModelFits,
     PortfolioFit,
@@ -53,6 +60,7 @@ SECURITY_COLUMNS = [
     "alpha_se_hac", "beta_se_hac", "beta_ci_low", "beta_ci_high", "beta_differs_from_1",
     "alpha_differs_from_0", "beta_blume", "beta_vasicek", "beta_up", "beta_down",
     "beta_dimson", "beta_scholes_williams",
+    "mean_excess_return_se", "sharpe", "sharpe_ann", "appraisal_ratio", "appraisal_ratio_ann",
 ]
 ROLLING_COLUMNS = ["date", "series", "beta", "beta_se", "beta_ci_low", "beta_ci_high"]
 PORTFOLIO_SERIES = "PORTFOLIO"
@@ -82,6 +90,56 @@ class PackResults:
     rolling_portfolio: RollingBetas   # the portfolio (one column), over history_dates
     portfolio_extra: dict             # up/down and thin-trading betas of the portfolio
     confidence: float
+    performance: PerformanceRatios    # the portfolio's ratios over the window
+    period_table: pd.DataFrame        # trailing and calendar-year returns (PERIOD_RETURN_COLUMNS)
+    history_portfolio: np.ndarray     # r_p per period over history_dates (current weights)
+    history_market: np.ndarray        # r_m per period over history_dates
+
+    @cached_property
+    def growth_table(self) -> pd.DataFrame:
+        """Growth of one unit, portfolio and market, from the first period with a portfolio
+        return: columns ``date, portfolio, market``."""
+        ok = np.flatnonzero(np.isfinite(self.history_portfolio))
+        start = int(ok[0]) if len(ok) else len(self.history_dates)
+        return pd.DataFrame({
+            "date": np.asarray(self.history_dates[start:]).astype(str),
+            "portfolio": growth_of_one(self.history_portfolio[start:]),
+            "market": growth_of_one(self.history_market[start:]),
+        })
+
+    def performance_summary(self) -> dict:
+        """The performance figures added to ``results/portfolio.json`` (see README)."""
+        P, q = self.periods_per_year, self.performance
+        return {
+            "sharpe_se": q.sharpe_se,
+            "sharpe_ann_se": q.sharpe_se * np.sqrt(P),
+            "sharpe_ann_lo": q.sharpe_ann_lo,
+            "sharpe_ann_lo_se": q.sharpe_ann_lo_se,
+            "lo_scale": q.lo_scale,
+            "first_autocorrelation": q.first_autocorrelation,
+            "appraisal_ratio": q.appraisal_ratio,
+            "appraisal_ratio_ann": q.appraisal_ratio * np.sqrt(P),
+            "m2": q.m2,
+            "m2_ann": q.m2 * P,
+            "m2_excess": q.m2_excess,
+            "m2_excess_ann": q.m2_excess * P,
+            "max_drawdown": q.max_drawdown,
+            "drawdown_peak": q.drawdown_peak,
+            "drawdown_trough": q.drawdown_trough,
+            "drawdown_recovery": q.drawdown_recovery,
+            "market_max_drawdown": q.market_max_drawdown,
+            "downside_deviation": q.downside_deviation,
+            "downside_deviation_ann": q.downside_deviation * np.sqrt(P),
+            "sortino": q.sortino,
+            "sortino_ann": q.sortino * np.sqrt(P),
+            "mar": q.mar,
+            "mar_ann": q.mar * P,
+            "mar_source": q.mar_source,
+            "return_arithmetic_ann": q.return_arithmetic_ann,
+            "return_geometric_ann": q.return_geometric_ann,
+            "market_return_arithmetic_ann": q.market_return_arithmetic_ann,
+            "market_return_geometric_ann": q.market_return_geometric_ann,
+        }
 
     @cached_property
     def rolling_table(self) -> pd.DataFrame:
@@ -161,6 +219,7 @@ class PackResults:
             "average_covariance": self.curve.average_covariance,
             "rolling_window": self.rolling.window,
             **self.portfolio_extra,
+            **self.performance_summary(),
         }
 
 
@@ -231,7 +290,12 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
 
     hist = build_window(inputs, settings, periods=0)
     rolling = rolling_betas(hist.excess_returns, hist.market_excess, settings.rolling_window)
-    hist_port = portfolio_returns(hist.returns, weights) - hist.risk_free
+    hist_raw = portfolio_returns(hist.returns, weights)
+    hist_port = hist_raw - hist.risk_free
+    perf = performance(win.dates, port, win.market, win.risk_free, pfit.alpha,
+                       pfit.residual_vol, P, settings.mar)
+    periods = period_returns(hist.dates, hist_raw, hist.market, settings.period_end,
+                             settings.frequency, P)
     rolling_port = rolling_betas(hist_port[:, None], hist.market_excess, settings.rolling_window)
 
     with np.errstate(invalid="ignore"):
@@ -267,6 +331,12 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
     sec["beta_down"] = np.where(ok, beta_down, np.nan)
     sec["beta_dimson"] = np.where(ok, dimson[1:], np.nan)
     sec["beta_scholes_williams"] = np.where(ok, sw[1:], np.nan)
+    per_holding = holding_ratios(y, fits.alpha, fits.residual_vol)
+    sec["mean_excess_return_se"] = np.where(ok, per_holding["mean_excess_se"], np.nan)
+    sec["sharpe"] = np.where(ok, per_holding["sharpe"], np.nan)
+    sec["sharpe_ann"] = sec["sharpe"] * np.sqrt(P)
+    sec["appraisal_ratio"] = per_holding["appraisal_ratio"]
+    sec["appraisal_ratio_ann"] = sec["appraisal_ratio"] * np.sqrt(P)
     extra = [c for c in ("asset_class", "currency", "country", "market_value") if c in hold]
     for c in extra:
         sec[c] = hold[c].to_numpy()
@@ -284,5 +354,6 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
         concentration=conc, sectors=sectors, variance=var, curve=curve, securities=sec,
         periods_per_year=P, errors=settings.errors, history_dates=hist.dates,
         rolling=rolling, rolling_portfolio=rolling_port, portfolio_extra=portfolio_extra,
-        confidence=settings.confidence,
+        confidence=settings.confidence, performance=perf, period_table=periods,
+        history_portfolio=hist_raw, history_market=hist.market,
     )
