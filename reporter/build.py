@@ -141,6 +141,9 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     buf = io.StringIO()
     res.period_table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
     files.add("results/period_returns.csv", buf.getvalue())
+    buf = io.StringIO()
+    res.risk_table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
+    files.add("results/risk_contributions.csv", buf.getvalue())
     files.add("results/manifest.json", _json({
         "tool_version": __version__,
         "built_utc": ctx.build_time.strftime("%Y-%m-%dT%H:%M:%SZ"),

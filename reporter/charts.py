@@ -99,7 +99,7 @@ def diversification_chart(res: PackResults) -> alt.LayerChart:
                          "vol": [res.ratios.volatility * np.sqrt(P)],
                          "label": ["This portfolio (effective N)"]})
     x = alt.X("n:Q", title="Number of equally weighted holdings (log scale)",
-              scale=alt.Scale(type="log", domain=[1, n_max]))
+              scale=alt.Scale(type="log", domain=[1, n_max], nice=False))
     y = alt.Y("vol:Q", title="Volatility, annualised", axis=alt.Axis(format="%"),
               scale=alt.Scale(zero=True))
     line = alt.Chart(curve).mark_line(color=TEAL, strokeWidth=2).encode(x=x, y=y)
@@ -107,12 +107,45 @@ def diversification_chart(res: PackResults) -> alt.LayerChart:
         color=GREY, strokeDash=[4, 3]).encode(y="vol:Q")
     rule_lab = alt.Chart(pd.DataFrame({"vol": [floor], "n": [n_max],
                                        "label": ["Floor: average covariance"]})).mark_text(
-        align="right", dy=-7, color=GREY, fontSize=10).encode(x="n:Q", y="vol:Q", text="label:N")
+        align="right", dy=11, color=GREY, fontSize=10).encode(x="n:Q", y="vol:Q", text="label:N")
     pt = alt.Chart(port).mark_point(shape="diamond", size=120, filled=True,
                                     color=OCHRE).encode(x="n:Q", y="vol:Q")
-    pt_lab = alt.Chart(port).mark_text(align="left", dx=9, color=INK, fontSize=11).encode(
-        x="n:Q", y="vol:Q", text="label:N")
-    return alt.layer(line, rule, rule_lab, pt, pt_lab).properties(width=WIDTH, height=260)
+    pt_lab = alt.Chart(port).mark_text(align="left", dx=9, dy=-12, color=INK,
+                                       fontSize=11).encode(x="n:Q", y="vol:Q", text="label:N")
+    b = res.band
+    root = np.sqrt(P)
+    band_df = pd.DataFrame({"n": b.n, "lo": b.low * root, "hi": b.high * root,
+                            "med": b.median * root})
+    band = alt.Chart(band_df).mark_area(color=TEAL, opacity=0.15).encode(
+        x=x, y=alt.Y("lo:Q", title="Volatility, annualised", axis=alt.Axis(format="%"),
+                     scale=alt.Scale(zero=True)), y2="hi:Q")
+    med = alt.Chart(band_df).mark_point(shape="cross", size=30, color=GREY).encode(
+        x=x, y="med:Q")
+    return alt.layer(band, med, line, rule, rule_lab, pt, pt_lab).properties(width=WIDTH,
+                                                                             height=260)
+
+
+def risk_contribution_chart(res: PackResults, top: int = 12) -> alt.HConcatChart:
+    """The largest contributors to volatility, with their shares of volatility and of
+    tracking error side by side (Euler contributions; shares of each total)."""
+    t = res.risk_table
+    h = t[t["level"] == "holding"].head(top)
+    order = list(h["name"])
+    panels = []
+    for col, title in (("vol_share", "Share of volatility"),
+                       ("te_share", "Share of tracking error")):
+        df = pd.DataFrame({"name": h["name"], "share": h[col], "weight": h["weight"]})
+        bars = alt.Chart(df).mark_bar(color=TEAL if col == "vol_share" else INK,
+                                      height=11).encode(
+            y=alt.Y("name:N", sort=order, title=None,
+                    axis=alt.Axis(labels=col == "vol_share", labelLimit=170)),
+            x=alt.X("share:Q", title=title, axis=alt.Axis(format="%", tickCount=4)),
+            tooltip=["name:N", alt.Tooltip("share:Q", format=".1%"),
+                     alt.Tooltip("weight:Q", format=".1%")])
+        ticks = alt.Chart(df).mark_tick(color=OCHRE, thickness=2, size=14).encode(
+            y=alt.Y("name:N", sort=order), x="weight:Q")
+        panels.append(alt.layer(bars, ticks).properties(width=150, height=16 * len(h)))
+    return alt.hconcat(*panels, spacing=12)
 
 
 def rolling_portfolio_chart(res: PackResults) -> alt.LayerChart:
@@ -189,4 +222,5 @@ def build_charts(res: PackResults) -> dict[str, alt.TopLevelMixin]:
         "sectors": sector_chart(res),
         "diversification": diversification_chart(res),
         "growth": growth_chart(res),
+        "risk_contributions": risk_contribution_chart(res),
     }

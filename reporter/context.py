@@ -94,6 +94,9 @@ class PackContext:
     trailing_returns: list[dict] = field(default_factory=list)   # period_returns.csv, trailing
     calendar_returns: list[dict] = field(default_factory=list)   # and calendar-year rows
     mar_fixed: float | None = None   # fixed annual MAR, or None for the risk-free rate
+    risk_holdings: list[dict] = field(default_factory=list)   # largest risk contributors
+    risk_sectors: list[dict] = field(default_factory=list)    # contributions by sector
+    covariance_auto: bool = True     # the method was chosen by the "auto" rule
 
 
 def _records(df) -> list[dict]:
@@ -154,4 +157,7 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         trailing_returns=_records(res.period_table[res.period_table["kind"] == "trailing"]),
         calendar_returns=_records(res.period_table[res.period_table["kind"] == "calendar"]),
         mar_fixed=settings.mar,
+        risk_holdings=_records(res.risk_table[res.risk_table["level"] == "holding"].head(12)),
+        risk_sectors=_records(res.risk_table[res.risk_table["level"] == "sector"]),
+        covariance_auto=settings.covariance == "auto",
     )

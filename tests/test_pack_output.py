@@ -93,7 +93,7 @@ def test_html_is_self_contained(html):
     assert not re.search(r"(?i)\b(?:https?:)?//[a-z0-9.-]+\.[a-z]{2,}", html.replace(
         "http://www.w3.org/2000/svg", "").replace("http://www.w3.org/1999/xlink", ""))
     assert "<script" not in html.lower()
-    assert html.count("<svg") == 6
+    assert html.count("<svg") == 7
     assert "<style>" in html
 
 
@@ -190,3 +190,24 @@ def test_period_returns_file(demo_build):
     for key in ("sharpe_se", "sharpe_ann_lo", "appraisal_ratio", "m2", "max_drawdown",
                 "downside_deviation", "sortino", "mar", "return_arithmetic_ann"):
         assert key in p and p[key] is not None, key
+
+
+def test_risk_contributions_file(demo_build):
+    t = pd.read_csv(demo_build / "results/risk_contributions.csv")
+    p = json.loads((demo_build / "results/portfolio.json").read_text())
+    h, g = t[t["level"] == "holding"], t[t["level"] == "sector"]
+    total = t[t["level"] == "total"].iloc[0]
+    assert len(h) == 60 and len(g) == len(set(h["sector"]))
+    # Euler contributions add up to the totals, by holding and by sector (the file keeps
+    # 10 significant figures)
+    for col in ("vol_contribution", "te_contribution"):
+        assert h[col].sum() == pytest.approx(total[col], rel=1e-8)
+        assert g[col].sum() == pytest.approx(total[col], rel=1e-8)
+    assert h["vol_share"].sum() == pytest.approx(1.0, rel=1e-8)
+    assert total["vol_contribution"] == pytest.approx(p["model_volatility"], rel=1e-9)
+    assert total["te_contribution"] == pytest.approx(p["model_tracking_error"], rel=1e-9)
+    # 60 holdings against a 60-period window: the "auto" rule shrinks (Ledoit-Wolf)
+    assert p["covariance_method"] == "ledoit_wolf" and 0 < p["covariance_shrinkage"] < 1
+    assert p["diversification_ratio"] > 1
+    assert -1 < p["average_correlation"] < 1
+    assert list(h["vol_contribution"]) == sorted(h["vol_contribution"], reverse=True)

@@ -8,13 +8,19 @@ from functools import cached_property
 import numpy as np
 import pandas as pd
 
+from reporter.analytics.covariance import CovarianceEstimate, choose_method, holdings_and_active
 from reporter.analytics.diversification import (
     Concentration,
     EqualWeightCurve,
+    RandomSubsetBand,
+    RiskContributions,
     VarianceSplit,
+    average_pairwise_correlation,
     concentration,
     equal_weight_curve,
     pairwise_covariance,
+    random_subset_band,
+    risk_contributions,
     sector_weights,
     variance_split,
 )
@@ -62,6 +68,9 @@ SECURITY_COLUMNS = [
     "beta_dimson", "beta_scholes_williams",
     "mean_excess_return_se", "sharpe", "sharpe_ann", "appraisal_ratio", "appraisal_ratio_ann",
 ]
+RISK_COLUMNS = ["level", "security_id", "name", "sector", "weight", "volatility",
+                "vol_contribution", "vol_share", "te_contribution", "te_share",
+                "volatility_ann", "vol_contribution_ann", "te_contribution_ann"]
 ROLLING_COLUMNS = ["date", "series", "beta", "beta_se", "beta_ci_low", "beta_ci_high"]
 PORTFOLIO_SERIES = "PORTFOLIO"
 
@@ -94,6 +103,67 @@ class PackResults:
     period_table: pd.DataFrame        # trailing and calendar-year returns (PERIOD_RETURN_COLUMNS)
     history_portfolio: np.ndarray     # r_p per period over history_dates (current weights)
     history_market: np.ndarray        # r_m per period over history_dates
+    covariance: CovarianceEstimate    # the holdings' returns over the window
+    covariance_active: CovarianceEstimate  # their returns relative to the market proxy
+    risk: RiskContributions           # Euler contributions from ``covariance``
+    average_correlation: float        # mean pairwise correlation of the fitted holdings
+    band: RandomSubsetBand            # random equal-weight portfolios of the fitted holdings
+
+    @cached_property
+    def risk_table(self) -> pd.DataFrame:
+        """Euler risk contributions (:data:`RISK_COLUMNS`): one row per holding (largest
+        contribution to volatility first), one per sector, and the total. Per-period decimals;
+        ``*_share`` is the contribution over the total; ``_ann`` columns are x sqrt(P)."""
+        rc, sec = self.risk, self.securities
+        h = pd.DataFrame({
+            "level": "holding", "security_id": sec["security_id"].to_numpy(),
+            "name": sec["name"].to_numpy(), "sector": sec["sector"].to_numpy(),
+            "weight": sec["weight"].to_numpy(), "volatility": rc.asset_vol,
+            "vol_contribution": rc.vol_contribution, "vol_share": rc.vol_share,
+            "te_contribution": rc.te_contribution, "te_share": rc.te_share,
+        }).sort_values(["vol_contribution", "security_id"], ascending=[False, True],
+                       kind="stable")
+        cols = ["weight", "vol_contribution", "vol_share", "te_contribution", "te_share"]
+        g = h.groupby("sector", sort=True)[cols].sum().reset_index().sort_values(
+            ["vol_contribution", "sector"], ascending=[False, True], kind="stable")
+        g.insert(0, "level", "sector")
+        g["security_id"], g["name"], g["volatility"] = "", g["sector"], np.nan
+        total = pd.DataFrame([{
+            "level": "total", "security_id": "", "name": "Portfolio", "sector": "",
+            "weight": float(sec["weight"].sum()), "volatility": rc.volatility,
+            "vol_contribution": rc.volatility, "vol_share": 1.0,
+            "te_contribution": rc.tracking_error, "te_share": 1.0}])
+        out = pd.concat([h, g, total], ignore_index=True)
+        root = np.sqrt(self.periods_per_year)
+        for c in ("volatility", "vol_contribution", "te_contribution"):
+            out[f"{c}_ann"] = out[c] * root
+        return out[RISK_COLUMNS]
+
+    def diversification_summary(self) -> dict:
+        """The covariance and risk figures added to ``results/portfolio.json``."""
+        root = np.sqrt(self.periods_per_year)
+        rc, cv = self.risk, self.covariance
+        n_eff = int(round(self.concentration.effective_n))
+        return {
+            "covariance_method": cv.method,
+            "covariance_shrinkage": cv.shrinkage,
+            "covariance_active_shrinkage": self.covariance_active.shrinkage,
+            "model_volatility": rc.volatility,
+            "model_volatility_ann": rc.volatility * root,
+            "model_tracking_error": rc.tracking_error,
+            "model_tracking_error_ann": rc.tracking_error * root,
+            "diversification_ratio": rc.diversification_ratio,
+            "average_correlation": self.average_correlation,
+            "random_subset_draws": self.band.draws,
+            "random_subset_seed": self.band.seed,
+            "random_share_below_portfolio": self.band.share_below(n_eff,
+                                                                  self.ratios.volatility),
+            "equal_weight_volatility_at_effective_n_ann": float(
+                np.sqrt(self.curve.variance(self.concentration.effective_n)) * root),
+            # smallest n with 1 - 1/n >= share on the equal-weight curve
+            "holdings_for_90pct_diversifiable": int(np.ceil(1 / (1 - 0.90) - 1e-9)),
+            "holdings_for_95pct_diversifiable": int(np.ceil(1 / (1 - 0.95) - 1e-9)),
+        }
 
     @cached_property
     def growth_table(self) -> pd.DataFrame:
@@ -220,6 +290,7 @@ class PackResults:
             "rolling_window": self.rolling.window,
             **self.portfolio_extra,
             **self.performance_summary(),
+            **self.diversification_summary(),
         }
 
 
@@ -278,7 +349,17 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
     hold = inputs.holdings.frame
     sectors = sector_weights(hold["sector"], weights)
     var = variance_split(weights, fits.beta, fits.residual_vol, x)
-    curve = equal_weight_curve(pairwise_covariance(win.returns[:, ok]))
+    pair_cov = pairwise_covariance(win.returns[:, ok])
+    curve = equal_weight_curve(pair_cov)
+    cov_method = choose_method(settings.covariance, len(weights), win.n_periods)
+    cov, cov_active = holdings_and_active(win.returns, win.market, cov_method)
+    risk = risk_contributions(weights, cov.matrix, cov_active.matrix)
+    avg_corr = average_pairwise_correlation(win.returns[:, ok])
+    n_fit = int(ok.sum())
+    sizes = np.unique(np.concatenate([
+        np.round(np.geomspace(1, max(n_fit, 1), 16)),
+        [np.clip(round(conc.effective_n), 1, max(n_fit, 1))]]).astype(int))
+    band = random_subset_band(pair_cov, sizes, settings.random_subsets, settings.seed)
 
     beta_up, beta_down = up_down_betas(y, x, settings.min_obs, prep=prep)
     port_ex = (port - win.risk_free)[:, None]
@@ -356,4 +437,6 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
         rolling=rolling, rolling_portfolio=rolling_port, portfolio_extra=portfolio_extra,
         confidence=settings.confidence, performance=perf, period_table=periods,
         history_portfolio=hist_raw, history_market=hist.market,
+        covariance=cov, covariance_active=cov_active, risk=risk, average_correlation=avg_corr,
+        band=band,
     )
