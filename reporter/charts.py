@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from reporter.analytics.pack import PORTFOLIO_SERIES, PackResults
+from reporter.analytics.regression import t_critical
 from reporter.analytics.sml import ABOVE, BELOW, WITHIN
 
 INK, TEAL, OCHRE, BRICK, GREY = "#1d2b36", "#2a6f6f", "#b8741a", "#9c3b2e", "#6b7780"
@@ -42,6 +43,10 @@ def sml_chart(res: PackResults) -> alt.LayerChart:
         "excess": sec["mean_excess_return_ann"], "weight": sec["weight"],
         "position": sec["sml_position"],
     })
+    # the mean excess return's interval: t (n - 1 df) x sd / sqrt(n), annualised x P
+    half = t_critical(res.confidence, sec["n_obs"].to_numpy() - 1) * sec[
+        "mean_excess_return_se"].to_numpy() * P
+    df["excess_lo"], df["excess_hi"] = df["excess"] - half, df["excess"] + half
     mrp = res.sml.mean_market_premium * P
     hi = float(max(2.0, np.nanmax(df["beta_hi"]) if len(df) else 2.0))
     lo = float(min(0.0, np.nanmin(df["beta_lo"]) if len(df) else 0.0))
@@ -57,6 +62,8 @@ def sml_chart(res: PackResults) -> alt.LayerChart:
     base = alt.Chart(df)
     bars = base.mark_rule(color="#b9c0c5", strokeWidth=1).encode(x="beta_lo:Q", x2="beta_hi:Q",
                                                                    y="excess:Q")
+    vbars = base.mark_rule(color="#b9c0c5", strokeWidth=1).encode(x="beta:Q", y="excess_lo:Q",
+                                                                    y2="excess_hi:Q")
     pts = base.mark_point(filled=True, opacity=0.9, size=60).encode(
         x=x, y=y,
         shape=alt.Shape("position:N", scale=shape_scale, title="Alpha vs zero"),
@@ -70,7 +77,7 @@ def sml_chart(res: PackResults) -> alt.LayerChart:
     lab = alt.Chart(anchors).mark_text(align="left", dx=8, dy=-8, color=INK,
                                        fontSize=11).encode(x="beta:Q", y="excess:Q",
                                                            text="label:N")
-    return alt.layer(bars, sml, pts, anc, lab).properties(width=WIDTH, height=HEIGHT)
+    return alt.layer(bars, vbars, sml, pts, anc, lab).properties(width=WIDTH, height=HEIGHT)
 
 
 def sector_chart(res: PackResults) -> alt.Chart:

@@ -211,3 +211,27 @@ def test_risk_contributions_file(demo_build):
     assert p["diversification_ratio"] > 1
     assert -1 < p["average_correlation"] < 1
     assert list(h["vol_contribution"]) == sorted(h["vol_contribution"], reverse=True)
+
+
+def test_line_tests_in_results_and_pack(demo_build, pdf_text):
+    p = json.loads((demo_build / "results/portfolio.json").read_text())
+    sec = pd.read_csv(demo_build / "results/securities.csv")
+    fitted = sec[sec["status"] == "fitted"]
+    assert p["sml_cs_n_assets"] == len(fitted) and p["sml_fm_n_periods"] == 60
+    # both tests set the slope against the window's realised premium
+    assert p["sml_cs_premium"] == pytest.approx(p["mean_market_premium"], rel=1e-12)
+    assert p["sml_fm_premium"] == pytest.approx(p["mean_market_premium"], rel=1e-12)
+    # the cross-section is the OLS of the file's own columns (scipy.stats.linregress)
+    from scipy import stats
+
+    ref = stats.linregress(fitted["beta"], fitted["mean_excess_return"])
+    assert p["sml_cs_slope"] == pytest.approx(ref.slope, rel=1e-8)
+    assert p["sml_cs_slope_se"] == pytest.approx(ref.stderr, rel=1e-8)
+    # GRS: 60 periods; holdings with a complete window (the late listings and the
+    # suspended holding drop out) and the sector portfolios
+    assert p["grs_holdings_applies"] and p["grs_holdings_df_den"] == 60 - p[
+        "grs_holdings_n_assets"] - 1
+    assert p["grs_sectors_applies"] and p["grs_sectors_n_assets"] == 10
+    assert 0 <= p["grs_sectors_p_value"] <= 1
+    text = re.sub(r"\s+", " ", "\n".join(pdf_text))
+    assert "Testing the line itself" in text and "Gibbons" in text

@@ -49,8 +49,13 @@ from reporter.analytics.regression import (
 )
 from reporter.analytics.returns import Window, period_keys, portfolio_returns
 from reporter.analytics.sml import (
+    GRSTest,
+    LineTest,
     Ratios,
     SecurityMarketLine,
+    cross_sectional_test,
+    fama_macbeth,
+    grs_test,
     performance_ratios,
     security_market_line,
 )
@@ -108,6 +113,30 @@ class PackResults:
     risk: RiskContributions           # Euler contributions from ``covariance``
     average_correlation: float        # mean pairwise correlation of the fitted holdings
     band: RandomSubsetBand            # random equal-weight portfolios of the fitted holdings
+    line_cross_section: LineTest      # mean excess return on beta across fitted holdings
+    line_fama_macbeth: LineTest       # period-by-period cross-sections (Fama-MacBeth 1973)
+    grs_holdings: GRSTest             # GRS on the holdings with a complete window
+    grs_sectors: GRSTest              # GRS on sector portfolios (current weights)
+
+    def line_tests_summary(self) -> dict:
+        """The tests of the security market line added to ``results/portfolio.json``."""
+        out: dict = {}
+        for tag, t in (("sml_cs", self.line_cross_section), ("sml_fm", self.line_fama_macbeth)):
+            out.update({
+                f"{tag}_n_assets": t.n_assets, f"{tag}_n_periods": t.n_periods,
+                f"{tag}_intercept": t.intercept, f"{tag}_intercept_se": t.intercept_se,
+                f"{tag}_intercept_t": t.intercept_t,
+                f"{tag}_slope": t.slope, f"{tag}_slope_se": t.slope_se,
+                f"{tag}_premium": t.premium, f"{tag}_slope_gap_t": t.slope_gap_t,
+            })
+        for tag, g in (("grs_holdings", self.grs_holdings), ("grs_sectors", self.grs_sectors)):
+            out.update({
+                f"{tag}_applies": g.applies, f"{tag}_reason": g.reason,
+                f"{tag}_n_assets": g.n_assets, f"{tag}_n_periods": g.n_periods,
+                f"{tag}_f": g.f_stat, f"{tag}_df_num": g.df_num, f"{tag}_df_den": g.df_den,
+                f"{tag}_p_value": g.p_value,
+            })
+        return out
 
     @cached_property
     def risk_table(self) -> pd.DataFrame:
@@ -291,6 +320,7 @@ class PackResults:
             **self.portfolio_extra,
             **self.performance_summary(),
             **self.diversification_summary(),
+            **self.line_tests_summary(),
         }
 
 
@@ -369,6 +399,19 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
                          scholes_williams_beta(y, x, settings.min_obs)])
     p_up, p_down = up_down_betas(port_ex, x, settings.min_obs)
 
+    line_cs = cross_sectional_test(fits.mean_excess[ok], fits.beta[ok],
+                                   float(np.mean(x)), win.n_periods)
+    line_fm, _ = fama_macbeth(y[:, ok], fits.beta[ok], x)
+    complete = ok & np.isfinite(y).all(axis=0)
+    grs_h = grs_test(y[:, complete], x, "holdings")
+    sector_names = sorted(set(hold["sector"]))
+    sector_of = hold["sector"].to_numpy()
+    sector_ex = np.column_stack([
+        portfolio_returns(win.returns[:, sector_of == name], weights[sector_of == name])
+        for name in sector_names]) - win.risk_free[:, None]
+    full = np.isfinite(sector_ex).all(axis=0)
+    grs_s = grs_test(sector_ex[:, full], x, "sector portfolios")
+
     hist = build_window(inputs, settings, periods=0)
     rolling = rolling_betas(hist.excess_returns, hist.market_excess, settings.rolling_window)
     hist_raw = portfolio_returns(hist.returns, weights)
@@ -438,5 +481,6 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
         confidence=settings.confidence, performance=perf, period_table=periods,
         history_portfolio=hist_raw, history_market=hist.market,
         covariance=cov, covariance_active=cov_active, risk=risk, average_correlation=avg_corr,
-        band=band,
+        band=band, line_cross_section=line_cs, line_fama_macbeth=line_fm,
+        grs_holdings=grs_h, grs_sectors=grs_s,
     )
