@@ -18,8 +18,9 @@ import numpy as np
 
 from reporter import __version__
 from reporter.analytics.pack import PackResults, analyse
+from reporter.benchmark import validate_benchmark
 from reporter.charts import build_charts
-from reporter.config import INPUT_ROLES, Settings, load_settings
+from reporter.config import INPUT_ROLES, OPTIONAL_ROLES, Settings, load_settings
 from reporter.context import PackContext, build_context
 from reporter.errors import Problem
 from reporter.models import ValidInputs
@@ -51,6 +52,9 @@ def input_hashes(settings: Settings) -> dict[str, str]:
     out = {"pack.toml": _sha256(settings.config_path)}
     for role in INPUT_ROLES:
         out[role] = _sha256(settings.inputs[role].path)
+    for role in OPTIONAL_ROLES:
+        if role in settings.inputs:
+            out[role] = _sha256(settings.inputs[role].path)
     return out
 
 
@@ -107,9 +111,11 @@ def assemble(settings: Settings, *, strict: bool = False,
     with progress.stage("read"):
         raws, read_problems = read_inputs(settings)
     with progress.stage("validate"):
-        inputs = validate_tables(settings, raws, read_problems, strict=strict)
+        benchmark, bench_problems = validate_benchmark(settings, raws)
+        inputs = validate_tables(settings, raws, [*read_problems, *bench_problems],
+                                 strict=strict)
     with progress.stage("analyse"):
-        res = analyse(inputs, settings)
+        res = analyse(inputs, settings, benchmark=benchmark)
         hashes = input_hashes(settings)
     with progress.stage("chart"):
         charts = build_charts(res)
@@ -152,7 +158,8 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
         "organisation": settings.organisation,
         "input_fingerprint": ctx.fingerprint,
         "input_sha256": a.hashes,
-        "input_files": {r: settings.inputs[r].display for r in INPUT_ROLES},
+        "input_files": {r: settings.inputs[r].display for r in INPUT_ROLES}
+        | {r: settings.inputs[r].display for r in OPTIONAL_ROLES if r in settings.inputs},
         "warnings": [str(w) for w in a.inputs.warnings],
     }))
     with progress.stage("write"):

@@ -199,19 +199,20 @@ def growth_chart(res: PackResults) -> alt.LayerChart:
     df = pd.concat([
         pd.DataFrame({"date": g["date"], "value": g["portfolio"], "series": "Portfolio"}),
         pd.DataFrame({"date": g["date"], "value": g["market"], "series": "Market proxy"}),
-    ], ignore_index=True)
+    ] + ([pd.DataFrame({"date": g["date"], "value": g["benchmark"], "series": "Benchmark"})]
+         if "benchmark" in g else []), ignore_index=True).dropna(subset=["value"])
     df["date"] = pd.to_datetime(df["date"])
-    domain = ["Portfolio", "Market proxy"]
+    domain = ["Portfolio", "Market proxy"] + (["Benchmark"] if "benchmark" in g else [])
     lo, hi = float(min(df["value"].min(), 1.0)), float(max(df["value"].max(), 1.0))
     line = alt.Chart(df).mark_line(strokeWidth=2).encode(
         x=alt.X("date:T", title=None, axis=alt.Axis(format="%Y")),
         y=alt.Y("value:Q", title="Value of 1 invested (log scale)",
                 scale=alt.Scale(type="log", domain=[lo * 0.95, hi * 1.05], nice=False)),
-        color=alt.Color("series:N", scale=alt.Scale(domain=domain, range=[TEAL, INK]),
+        color=alt.Color("series:N", scale=alt.Scale(domain=domain,
+                                                    range=[TEAL, INK, OCHRE][: len(domain)]),
                         title=None),
-        strokeDash=alt.StrokeDash("series:N", scale=alt.Scale(domain=domain,
-                                                              range=[[1, 0], [5, 3]]),
-                                  title=None),
+        strokeDash=alt.StrokeDash("series:N", scale=alt.Scale(
+            domain=domain, range=[[1, 0], [5, 3], [1, 2]][: len(domain)]), title=None),
         tooltip=["series:N", alt.Tooltip("date:T", format="%Y-%m-%d"),
                  alt.Tooltip("value:Q", format=".3f")],
     )

@@ -20,6 +20,7 @@ from reporter.errors import InputError, Problem
 
 PERIODS_PER_YEAR = {"monthly": 12, "weekly": 52, "daily": 252}
 INPUT_ROLES = ("holdings", "returns", "market", "risk_free")
+OPTIONAL_ROLES = ("benchmark",)   # read and checked only when pack.toml names them
 
 
 class _Strict(BaseModel):
@@ -57,6 +58,7 @@ class InputsSection(_Strict):
     returns: str | InputFile
     market: str | InputFile
     risk_free: str | InputFile
+    benchmark: str | InputFile | None = None   # optional `date, return` series
     delimiter: Annotated[str, Field(min_length=1, max_length=1)] = ","
     decimal: Literal[".", ","] = "."
     date_format: Annotated[str, Field(min_length=2)] = "%Y-%m-%d"
@@ -226,7 +228,7 @@ def load_settings(pack: Path | str) -> Settings:
     fmt_problem = date_format_problem(defaults.date_format)
     if fmt_problem:
         problems.append(Problem(f"{fname}:inputs.date_format", fmt_problem))
-    for role in INPUT_ROLES:
+    for role in INPUT_ROLES + tuple(r for r in OPTIONAL_ROLES if getattr(defaults, r) is not None):
         entry = getattr(defaults, role)
         spec = entry if isinstance(entry, InputFile) else InputFile(path=entry)
         key = f"inputs.{role}" + (".path" if isinstance(entry, InputFile) else "")

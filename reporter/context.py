@@ -97,6 +97,7 @@ class PackContext:
     risk_holdings: list[dict] = field(default_factory=list)   # largest risk contributors
     risk_sectors: list[dict] = field(default_factory=list)    # contributions by sector
     covariance_auto: bool = True     # the method was chosen by the "auto" rule
+    has_benchmark: bool = False      # an optional benchmark series was given
 
 
 def _records(df) -> list[dict]:
@@ -160,4 +161,5 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         risk_holdings=_records(res.risk_table[res.risk_table["level"] == "holding"].head(12)),
         risk_sectors=_records(res.risk_table[res.risk_table["level"] == "sector"]),
         covariance_auto=settings.covariance == "auto",
+        has_benchmark="benchmark" in settings.inputs,
     )

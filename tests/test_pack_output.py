@@ -166,7 +166,9 @@ def test_beta_columns_and_rolling_file(demo_build):
 def test_period_returns_file(demo_build):
     t = pd.read_csv(demo_build / "results/period_returns.csv")
     assert list(t.columns) == ["kind", "period", "label", "start", "end", "n_periods", "basis",
-                               "portfolio", "market", "difference"]
+                               "portfolio", "market", "difference", "benchmark",
+                               "benchmark_difference"]
+    assert t["benchmark"].isna().all()          # the demo names no benchmark
     trailing = t[t["kind"] == "trailing"].set_index("period")
     assert list(trailing.index) == ["1m", "3m", "ytd", "1y", "3y", "5y", "all"]
     # GIPS: cumulative under a year, annualised at a year or more

@@ -117,6 +117,8 @@ class PackResults:
     line_fama_macbeth: LineTest       # period-by-period cross-sections (Fama-MacBeth 1973)
     grs_holdings: GRSTest             # GRS on the holdings with a complete window
     grs_sectors: GRSTest              # GRS on sector portfolios (current weights)
+    tracking_reference: str           # "market proxy" | "benchmark": what risk TE is against
+    history_benchmark: np.ndarray | None  # r_b per period over history_dates (NaN if absent)
 
     def line_tests_summary(self) -> dict:
         """The tests of the security market line added to ``results/portfolio.json``."""
@@ -196,15 +198,18 @@ class PackResults:
 
     @cached_property
     def growth_table(self) -> pd.DataFrame:
-        """Growth of one unit, portfolio and market, from the first period with a portfolio
-        return: columns ``date, portfolio, market``."""
+        """Growth of one unit, portfolio and market (and benchmark, when given), from the first
+        period with a portfolio return: columns ``date, portfolio, market[, benchmark]``.
+        The benchmark's line starts at its own first return."""
         ok = np.flatnonzero(np.isfinite(self.history_portfolio))
         start = int(ok[0]) if len(ok) else len(self.history_dates)
         return pd.DataFrame({
             "date": np.asarray(self.history_dates[start:]).astype(str),
             "portfolio": growth_of_one(self.history_portfolio[start:]),
             "market": growth_of_one(self.history_market[start:]),
-        })
+        } | ({} if self.history_benchmark is None else {
+            "benchmark": np.where(np.isfinite(self.history_benchmark[start:]).cumsum() > 0,
+                                  growth_of_one(self.history_benchmark[start:]), np.nan)}))
 
     def performance_summary(self) -> dict:
         """The performance figures added to ``results/portfolio.json`` (see README)."""
@@ -238,7 +243,26 @@ class PackResults:
             "return_geometric_ann": q.return_geometric_ann,
             "market_return_arithmetic_ann": q.market_return_arithmetic_ann,
             "market_return_geometric_ann": q.market_return_geometric_ann,
+            "tracking_reference": self.tracking_reference,
+            **self._benchmark_figures(),
         }
+
+    def _benchmark_figures(self) -> dict:
+        """Figures against the optional benchmark; None (null in JSON) without one."""
+        P, q = self.periods_per_year, self.performance
+        figures = {
+            "benchmark_active_return": q.benchmark_active_return,
+            "benchmark_active_return_ann": q.benchmark_active_return * P,
+            "benchmark_tracking_error": q.benchmark_tracking_error,
+            "benchmark_tracking_error_ann": q.benchmark_tracking_error * np.sqrt(P),
+            "benchmark_information_ratio": q.benchmark_information_ratio,
+            "benchmark_information_ratio_ann": q.benchmark_information_ratio * np.sqrt(P),
+            "benchmark_return_arithmetic_ann": q.benchmark_return_arithmetic_ann,
+            "benchmark_return_geometric_ann": q.benchmark_return_geometric_ann,
+        }
+        if self.tracking_reference != "benchmark":
+            return dict.fromkeys(figures)
+        return figures
 
     @cached_property
     def rolling_table(self) -> pd.DataFrame:
@@ -352,8 +376,22 @@ def _align(series: DatedSeries, keys: np.ndarray, freq: str) -> np.ndarray:
     return series.values[pos]
 
 
-def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
-    """Compute every figure of the pack."""
+def _align_optional(series: DatedSeries | None, dates: np.ndarray,
+                    freq: str) -> np.ndarray | None:
+    """``series`` on the periods of ``dates`` (NaN where it has none), or None."""
+    if series is None:
+        return None
+    keys = period_keys(dates, freq)
+    skeys = period_keys(series.dates, freq)
+    pos = np.minimum(np.searchsorted(skeys, keys), len(skeys) - 1)
+    return np.where(skeys[pos] == keys, series.values[pos], np.nan)
+
+
+def analyse(inputs: ValidInputs, settings: Settings,
+            benchmark: DatedSeries | None = None) -> PackResults:
+    """Compute every figure of the pack. ``benchmark`` (optional) is the series tracking error,
+    the information ratio and the risk contributions to tracking error are measured against,
+    in place of the market proxy."""
     P = settings.periods_per_year
     win = build_window(inputs, settings)
     weights = inputs.holdings.weights
@@ -382,7 +420,9 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
     pair_cov = pairwise_covariance(win.returns[:, ok])
     curve = equal_weight_curve(pair_cov)
     cov_method = choose_method(settings.covariance, len(weights), win.n_periods)
-    cov, cov_active = holdings_and_active(win.returns, win.market, cov_method)
+    bench_win = _align_optional(benchmark, win.dates, settings.frequency)
+    cov, cov_active = holdings_and_active(
+        win.returns, win.market if bench_win is None else bench_win, cov_method)
     risk = risk_contributions(weights, cov.matrix, cov_active.matrix)
     avg_corr = average_pairwise_correlation(win.returns[:, ok])
     n_fit = int(ok.sum())
@@ -417,9 +457,10 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
     hist_raw = portfolio_returns(hist.returns, weights)
     hist_port = hist_raw - hist.risk_free
     perf = performance(win.dates, port, win.market, win.risk_free, pfit.alpha,
-                       pfit.residual_vol, P, settings.mar)
+                       pfit.residual_vol, P, settings.mar, benchmark=bench_win)
+    bench_hist = _align_optional(benchmark, hist.dates, settings.frequency)
     periods = period_returns(hist.dates, hist_raw, hist.market, settings.period_end,
-                             settings.frequency, P)
+                             settings.frequency, P, benchmark=bench_hist)
     rolling_port = rolling_betas(hist_port[:, None], hist.market_excess, settings.rolling_window)
 
     with np.errstate(invalid="ignore"):
@@ -483,4 +524,6 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
         covariance=cov, covariance_active=cov_active, risk=risk, average_correlation=avg_corr,
         band=band, line_cross_section=line_cs, line_fama_macbeth=line_fm,
         grs_holdings=grs_h, grs_sectors=grs_s,
+        tracking_reference="market proxy" if benchmark is None else "benchmark",
+        history_benchmark=bench_hist,
     )

@@ -26,7 +26,8 @@ TRAILING = (
     ("all", "Whole history", None),
 )
 PERIOD_RETURN_COLUMNS = ["kind", "period", "label", "start", "end", "n_periods", "basis",
-                         "portfolio", "market", "difference"]
+                         "portfolio", "market", "difference", "benchmark",
+                         "benchmark_difference"]
 
 
 def _months_back(d: dt.date, months: int) -> dt.date:
@@ -49,7 +50,8 @@ def annualised_geometric(cumulative: float, n_periods: int, periods_per_year: in
 
 
 def period_returns(dates: np.ndarray, portfolio: np.ndarray, market: np.ndarray,
-                   period_end: dt.date, frequency: str, periods_per_year: int) -> pd.DataFrame:
+                   period_end: dt.date, frequency: str, periods_per_year: int,
+                   benchmark: np.ndarray | None = None) -> pd.DataFrame:
     """Trailing-period and calendar-year returns of the portfolio and the market proxy.
 
     ``dates`` are the market's period dates up to ``period_end`` (ascending), ``portfolio`` and
@@ -70,13 +72,16 @@ def period_returns(dates: np.ndarray, portfolio: np.ndarray, market: np.ndarray,
     def row(kind, key, label, idx, annualise):
         n = len(idx)
         p, m = compound(portfolio[idx]), compound(market[idx])
+        b = compound(benchmark[idx]) if benchmark is not None else float("nan")
         if annualise:
             p = annualised_geometric(p, n, periods_per_year)
             m = annualised_geometric(m, n, periods_per_year)
+            b = annualised_geometric(b, n, periods_per_year)
         rows.append({"kind": kind, "period": key, "label": label, "start": str(d[idx[0]]),
                      "end": str(d[idx[-1]]), "n_periods": n,
                      "basis": "annualised" if annualise else "cumulative",
-                     "portfolio": p, "market": m, "difference": p - m})
+                     "portfolio": p, "market": m, "difference": p - m,
+                     "benchmark": b, "benchmark_difference": p - b})
 
     for key, label, months in TRAILING:
         if months is None:
@@ -190,11 +195,18 @@ class PerformanceRatios:
     market_return_arithmetic_ann: float
     market_return_geometric_ann: float
     market_max_drawdown: float
+    # against the optional benchmark (NaN without one): mean and sd of r_p - r_b, their ratio
+    benchmark_active_return: float = float("nan")
+    benchmark_tracking_error: float = float("nan")
+    benchmark_information_ratio: float = float("nan")
+    benchmark_return_arithmetic_ann: float = float("nan")
+    benchmark_return_geometric_ann: float = float("nan")
 
 
 def performance(dates: np.ndarray, port: np.ndarray, market: np.ndarray,
                 risk_free: np.ndarray, alpha: float, residual_vol: float,
-                periods_per_year: int, mar: float | None = None) -> PerformanceRatios:
+                periods_per_year: int, mar: float | None = None,
+                benchmark: np.ndarray | None = None) -> PerformanceRatios:
     """The ratios of :class:`PerformanceRatios` from aligned per-period series over the window.
 
     ``mar`` is a fixed annual minimum acceptable return (decimal), applied as mar / P per
@@ -217,6 +229,15 @@ def performance(dates: np.ndarray, port: np.ndarray, market: np.ndarray,
     dd_dev = float(np.sqrt(np.mean(shortfall**2)))
     dd = max_drawdown(p)
     dm = max_drawdown(m)
+    bench = {}
+    if benchmark is not None:
+        b = np.asarray(benchmark, dtype=float)[ok]
+        act = p - b
+        te = float(np.std(act, ddof=1))
+        bench = dict(benchmark_active_return=float(act.mean()), benchmark_tracking_error=te,
+                     benchmark_information_ratio=float(act.mean() / te) if te > 0 else
+                     float("nan"), benchmark_return_arithmetic_ann=float(b.mean() * P),
+                     benchmark_return_geometric_ann=annualised_geometric(compound(b), n, P))
 
     def when(i: int) -> str:
         return str(d[i]) if 0 <= i < n else ""
@@ -239,6 +260,7 @@ def performance(dates: np.ndarray, port: np.ndarray, market: np.ndarray,
         market_return_arithmetic_ann=float(m.mean() * P),
         market_return_geometric_ann=annualised_geometric(compound(m), n, P),
         market_max_drawdown=dm.max_drawdown,
+        **bench,
     )
 
 
