@@ -14,7 +14,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Annotated, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, ValidationError
 
 from reporter.errors import InputError, Problem
 
@@ -78,7 +78,8 @@ class AnalysisSection(_Strict):
     rolling_window: Annotated[int, Field(ge=6, le=100_000)] | None = None
     # minimum acceptable return for downside deviation and Sortino: "risk_free" (each
     # period's rate) or a fixed annual decimal rate
-    mar: Literal["risk_free"] | Annotated[float, Field(ge=-1.0, le=1.0)] = "risk_free"
+    mar: Annotated[Annotated[float, Field(ge=-1.0, le=1.0)] | None,
+                   BeforeValidator(lambda v: None if v == "risk_free" else v)] = None
     # covariance behind risk contributions: "auto" (Ledoit-Wolf when holdings >= window / 10)
     covariance: Literal["auto", "ledoit_wolf", "sample"] = "auto"
     random_subsets: Annotated[int, Field(ge=10, le=10_000)] = 200
@@ -287,7 +288,7 @@ def load_settings(pack: Path | str) -> Settings:
         allow_short=model.checks.allow_short,
         stale_zero_run=model.checks.stale_zero_run or DEFAULT_STALE_RUN[freq],
         templates_dir=templates_dir,
-        mar=None if model.analysis.mar == "risk_free" else float(model.analysis.mar),
+        mar=None if model.analysis.mar is None else float(model.analysis.mar),
         covariance=model.analysis.covariance,
         random_subsets=model.analysis.random_subsets,
         seed=model.analysis.seed,
