@@ -171,3 +171,16 @@ def test_a_few_dozen_random_holdings_remove_most_diversifiable_variance():
     removed = (var1 - var30) / (var1 - curve.average_covariance)
     assert removed > 0.9
     assert curve.diversifiable_removed(30) > 0.9
+
+
+def test_shared_pairwise_moments_match_the_separate_ones():
+    # the one-pass covariance and correlation equal pandas' pairwise-complete cov() and
+    # corr(), with gaps and without (reference: pandas DataFrame.cov / DataFrame.corr)
+    from reporter.analytics.diversification import pairwise_covariance_and_correlation
+
+    rng = np.random.default_rng(4)
+    r = rng.normal(size=(70, 9)) + rng.normal(size=(70, 1))
+    for data in (r, np.where(rng.random(r.shape) < 0.1, np.nan, r)):
+        cov, corr = pairwise_covariance_and_correlation(data)
+        np.testing.assert_allclose(cov, pd.DataFrame(data).cov().to_numpy(), rtol=1e-10)
+        np.testing.assert_allclose(corr, pd.DataFrame(data).corr().to_numpy(), rtol=1e-10)

@@ -127,9 +127,38 @@ def pairwise_correlation(returns: np.ndarray) -> np.ndarray:
     return corr
 
 
-def average_pairwise_correlation(returns: np.ndarray) -> float:
-    """Mean of the off-diagonal pairwise correlations (each pair once)."""
-    c = pairwise_correlation(returns)
+def pairwise_covariance_and_correlation(returns: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`pairwise_covariance` and :func:`pairwise_correlation` from one set of masked
+    cross-products (four matrix products; one when no return is missing)."""
+    mask = np.isfinite(returns)
+    if mask.all():
+        cov = np.atleast_2d(np.cov(returns, rowvar=False))
+        sd = np.sqrt(np.diagonal(cov))
+        with np.errstate(invalid="ignore", divide="ignore"):
+            corr = cov / np.outer(sd, sd)
+        if len(returns) < 2:
+            cov[:], corr[:] = np.nan, np.nan
+        return cov, corr
+    m = mask.astype(float)
+    x = np.where(mask, returns, 0.0)
+    n = m.T @ m
+    sx = x.T @ m
+    sxx = (x * x).T @ m
+    with np.errstate(invalid="ignore", divide="ignore"):
+        cxy = x.T @ x - sx * sx.T / n
+        cov = cxy / (n - 1)
+        vx = sxx - sx * sx / n
+        corr = cxy / np.sqrt(vx * vx.T)
+    cov[n < 2] = np.nan
+    corr[n < 2] = np.nan
+    return cov, corr
+
+
+def average_pairwise_correlation(returns: np.ndarray | None = None, *,
+                                 corr: np.ndarray | None = None) -> float:
+    """Mean of the off-diagonal pairwise correlations (each pair once), from ``returns`` or
+    from a correlation matrix ``corr`` already computed."""
+    c = pairwise_correlation(returns) if corr is None else corr
     iu = np.triu_indices(c.shape[0], k=1)
     vals = c[iu]
     vals = vals[np.isfinite(vals)]
@@ -206,7 +235,8 @@ def random_subset_band(cov: np.ndarray, sizes: np.ndarray, draws: int,
                        seed: int) -> RandomSubsetBand:
     """For each size n, ``draws`` random sets of n distinct holdings (numpy ``default_rng``
     with ``seed``), each equally weighted; volatility sqrt(1' C_sub 1) / n from ``cov``.
-    Vectorised over draws and holdings (one loop over the few sizes)."""
+    Vectorised over draws and holdings (one loop over the few sizes); the cost is
+    draws x n^2 per size, so callers keep the sizes to a few hundred at most."""
     rng = np.random.default_rng(seed)
     N = cov.shape[0]
     c = np.nan_to_num(cov)
@@ -215,9 +245,8 @@ def random_subset_band(cov: np.ndarray, sizes: np.ndarray, draws: int,
         if n < 1 or n > N:
             continue
         pick = np.argsort(rng.random((draws, N)), axis=1)[:, :n]
-        ind = np.zeros((draws, N))
-        np.put_along_axis(ind, pick, 1.0, axis=1)
-        var = np.einsum("kn,kn->k", ind @ c, ind) / n**2
+        # sum of each draw's n x n block of the covariance: draws x n x n gathered values
+        var = c[pick[:, :, None], pick[:, None, :]].sum(axis=(1, 2)) / n**2
         vol = np.sqrt(np.maximum(var, 0.0))
         q = np.percentile(vol, [5, 50, 95])
         ns.append(n)

@@ -18,7 +18,7 @@ from reporter.analytics.diversification import (
     average_pairwise_correlation,
     concentration,
     equal_weight_curve,
-    pairwise_covariance,
+    pairwise_covariance_and_correlation,
     random_subset_band,
     risk_contributions,
     sector_weights,
@@ -78,6 +78,7 @@ RISK_COLUMNS = ["level", "security_id", "name", "sector", "weight", "volatility"
                 "volatility_ann", "vol_contribution_ann", "te_contribution_ann"]
 ROLLING_COLUMNS = ["date", "series", "beta", "beta_se", "beta_ci_low", "beta_ci_high"]
 PORTFOLIO_SERIES = "PORTFOLIO"
+BAND_MAX_SIZE = 120   # largest random equal-weight portfolio drawn for the curve's band
 
 
 @dataclass(frozen=True)
@@ -417,17 +418,18 @@ def analyse(inputs: ValidInputs, settings: Settings,
     hold = inputs.holdings.frame
     sectors = sector_weights(hold["sector"], weights)
     var = variance_split(weights, fits.beta, fits.residual_vol, x)
-    pair_cov = pairwise_covariance(win.returns[:, ok])
+    pair_cov, pair_corr = pairwise_covariance_and_correlation(win.returns[:, ok])
     curve = equal_weight_curve(pair_cov)
     cov_method = choose_method(settings.covariance, len(weights), win.n_periods)
     bench_win = _align_optional(benchmark, win.dates, settings.frequency)
     cov, cov_active = holdings_and_active(
         win.returns, win.market if bench_win is None else bench_win, cov_method)
     risk = risk_contributions(weights, cov.matrix, cov_active.matrix)
-    avg_corr = average_pairwise_correlation(win.returns[:, ok])
+    avg_corr = average_pairwise_correlation(corr=pair_corr)
     n_fit = int(ok.sum())
+    top = max(min(n_fit, BAND_MAX_SIZE), 1)     # beyond a few hundred the band is a line
     sizes = np.unique(np.concatenate([
-        np.round(np.geomspace(1, max(n_fit, 1), 16)),
+        np.round(np.geomspace(1, top, 16)),
         [np.clip(round(conc.effective_n), 1, max(n_fit, 1))]]).astype(int))
     band = random_subset_band(pair_cov, sizes, settings.random_subsets, settings.seed)
 
