@@ -73,3 +73,21 @@ def test_period_returns_daily_and_weekly():
     assert tw.loc["1y", "n_periods"] == 52
     assert tw.loc["1y", "portfolio"] == pytest.approx(1.002**52 - 1, rel=1e-12)
     assert list(tw[tw["kind"] == "calendar"]["label"]) == ["2024", "2025", "2026 (to date)"]
+
+
+def test_two_holdings_skip_the_line_tests_and_say_why(tmp_path):
+    # two holdings: no cross-section can test a line, GRS still applies (T = 60 > N + 1)
+    folder = tmp_path / "small"
+    shutil.copytree(DEMO, folder)
+    h = pd.read_csv(DEMO / "holdings.csv").head(2).assign(weight=0.5)
+    r = pd.read_csv(DEMO / "returns.csv")
+    h.to_csv(folder / "holdings.csv", index=False)
+    r[r["security_id"].isin(h["security_id"])].to_csv(folder / "returns.csv", index=False)
+    a = assemble(load_settings(folder))
+    p = a.results.portfolio_summary()
+    assert p["sml_cs_n_assets"] == 2 and np.isnan(p["sml_cs_slope"])
+    assert np.isnan(p["sml_fm_slope"])
+    assert p["grs_holdings_applies"] and p["grs_holdings_df_num"] == 2
+    assert "need at least three fitted holdings" in a.html()
+    rc = a.results.risk
+    assert abs(rc.vol_contribution.sum() - rc.volatility) <= 1e-15

@@ -109,6 +109,12 @@ class LineTest:
         return self.slope / self.slope_se
 
 
+def _no_line_test(method: str, n_assets: int, n_periods: int, premium: float) -> LineTest:
+    """A test that could not be run (fewer than three assets, or under two usable periods)."""
+    nan = float("nan")
+    return LineTest(method, n_assets, n_periods, nan, nan, nan, nan, float(premium), nan, nan)
+
+
 def cross_sectional_test(mean_excess: np.ndarray, beta: np.ndarray,
                          premium: float, n_periods: int) -> LineTest:
     """OLS across holdings of mean excess return on beta, mean_i = g0 + g1 beta_i + e_i,
@@ -118,6 +124,8 @@ def cross_sectional_test(mean_excess: np.ndarray, beta: np.ndarray,
     import statsmodels.api as sm
 
     ok = np.isfinite(mean_excess) & np.isfinite(beta)
+    if ok.sum() < 3:
+        return _no_line_test("cross-section", int(ok.sum()), int(n_periods), premium)
     X = sm.add_constant(beta[ok], has_constant="add")
     res = sm.OLS(mean_excess[ok], X).fit()
     g0, g1 = (float(v) for v in res.params)
@@ -151,6 +159,9 @@ def fama_macbeth(excess: np.ndarray, beta: np.ndarray, market_excess: np.ndarray
     g = np.full((len(n), 2), np.nan)
     g[keep, 0], g[keep, 1] = g0[keep], g1[keep]
     T = int(keep.sum())
+    if T < 2:
+        return _no_line_test("Fama-MacBeth", int(use.sum()), T,
+                             float(np.mean(market_excess))), g
     root = np.sqrt(T)
     gap = g1[keep] - market_excess[keep]
     s0 = float(np.std(g0[keep], ddof=1) / root)
