@@ -7,6 +7,8 @@ d^2 = ||S - mu I||_F^2 / N and b^2 = (1/(N T^2)) sum_t ||x_t x_t' - S||_F^2.
 The normalisation (S with divisor T) is scikit-learn's ``LedoitWolf``, which the tests use as
 the reference. Gaps: each column is centred on its own mean over the periods it has, and a
 missing period contributes a zero deviation (nothing is filled into the returns themselves).
+For returns relative to the market proxy this means a holding's missing period counts as the
+holding at its own mean, so its relative deviation that period is minus the market's.
 """
 
 from __future__ import annotations
