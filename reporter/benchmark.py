@@ -1,9 +1,10 @@
-"""The optional benchmark series (``[inputs] benchmark``): checked like the market proxy.
+"""The optional return series: ``[inputs] benchmark`` and ``[inputs] portfolio_returns``.
 
-A benchmark is a ``date, return`` file of decimal returns per period. Its problems are
-gathered with every other input problem (the build passes them to validation), and it must
-cover the estimation window. Without one, tracking error and the information ratio are
-measured against the market proxy.
+Each is a ``date, return`` file of decimal returns per period, checked like the market proxy.
+Their problems are gathered with every other input problem (the build passes them to
+validation), and each must cover the estimation window. Without a benchmark, tracking error
+and the information ratio are measured against the market proxy; without a portfolio returns
+file, the portfolio's return is built from today's weights.
 """
 
 from __future__ import annotations
@@ -22,20 +23,33 @@ from reporter.validate import validate_series
 
 def validate_benchmark(settings: Settings,
                        raws: dict[str, RawTable]) -> tuple[DatedSeries | None, list[Problem]]:
-    """The benchmark series and its problems (errors and warnings), or (None, []) when the
-    pack names none or its file could not be read (that problem is already reported).
+    """The benchmark series and its problems; see :func:`validate_optional_series`."""
+    return validate_optional_series(settings, raws, "benchmark", "benchmark series")
+
+
+def validate_portfolio_returns(settings: Settings, raws: dict[str, RawTable]
+                               ) -> tuple[DatedSeries | None, list[Problem]]:
+    """The portfolio's own returns and their problems; see :func:`validate_optional_series`."""
+    return validate_optional_series(settings, raws, "portfolio_returns",
+                                    "portfolio returns series")
+
+
+def validate_optional_series(settings: Settings, raws: dict[str, RawTable], role: str,
+                             label: str) -> tuple[DatedSeries | None, list[Problem]]:
+    """The optional series ``role`` and its problems (errors and warnings), or (None, []) when
+    the pack names none or its file could not be read (that problem is already reported).
 
     Checks: the columns ``date, return``, valid dates, one return per period, numbers,
     no return below -100% and none that look like percentages (as for the market proxy),
     and every period of the window present.
     """
-    if "benchmark" not in raws:
+    if role not in raws:
         return None, []
-    spec = settings.inputs["benchmark"]
-    # validate_series reads the market's options; hand it the benchmark's own
+    spec = settings.inputs[role]
+    # validate_series reads the market's options; hand it the series' own
     as_market = dataclasses.replace(settings, inputs={**settings.inputs, "market": spec})
     coll = Collector()
-    series = validate_series(raws["benchmark"], "return", as_market, coll)
+    series = validate_series(raws[role], "return", as_market, coll)
     market = validate_series(raws["market"], "return", settings, Collector()) \
         if "market" in raws else None
     if series is not None and market is not None:
@@ -46,6 +60,6 @@ def validate_benchmark(settings: Settings,
         missing = np.setdiff1d(win, period_keys(series.dates, freq))
         if len(missing):
             first = market.dates[np.isin(mkeys, missing)][0]
-            coll.error(spec.display, f"the benchmark series does not cover the window: "
+            coll.error(spec.display, f"the {label} does not cover the window: "
                        f"{len(missing)} period(s) missing, first {first}")
     return series, coll.problems

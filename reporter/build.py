@@ -18,7 +18,7 @@ import numpy as np
 
 from reporter import __version__
 from reporter.analytics.pack import PackResults, analyse
-from reporter.benchmark import validate_benchmark
+from reporter.benchmark import validate_benchmark, validate_portfolio_returns
 from reporter.charts import build_charts
 from reporter.config import INPUT_ROLES, OPTIONAL_ROLES, Settings, load_settings
 from reporter.context import PackContext, build_context
@@ -112,10 +112,11 @@ def assemble(settings: Settings, *, strict: bool = False,
         raws, read_problems = read_inputs(settings)
     with progress.stage("validate"):
         benchmark, bench_problems = validate_benchmark(settings, raws)
-        inputs = validate_tables(settings, raws, [*read_problems, *bench_problems],
-                                 strict=strict)
+        own, own_problems = validate_portfolio_returns(settings, raws)
+        inputs = validate_tables(settings, raws,
+                                 [*read_problems, *bench_problems, *own_problems], strict=strict)
     with progress.stage("analyse"):
-        res = analyse(inputs, settings, benchmark=benchmark)
+        res = analyse(inputs, settings, benchmark=benchmark, portfolio=own)
         hashes = input_hashes(settings)
     with progress.stage("chart"):
         charts = build_charts(res)

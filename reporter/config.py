@@ -20,7 +20,7 @@ from reporter.errors import InputError, Problem
 
 PERIODS_PER_YEAR = {"monthly": 12, "weekly": 52, "daily": 252}
 INPUT_ROLES = ("holdings", "returns", "market", "risk_free")
-OPTIONAL_ROLES = ("benchmark",)   # read and checked only when pack.toml names them
+OPTIONAL_ROLES = ("benchmark", "portfolio_returns")   # read only when pack.toml names them
 
 
 class _Strict(BaseModel):
@@ -59,6 +59,7 @@ class InputsSection(_Strict):
     market: str | InputFile
     risk_free: str | InputFile
     benchmark: str | InputFile | None = None   # optional `date, return` series
+    portfolio_returns: str | InputFile | None = None   # optional: the portfolio's own returns
     delimiter: Annotated[str, Field(min_length=1, max_length=1)] = ","
     decimal: Literal[".", ","] = "."
     date_format: Annotated[str, Field(min_length=2)] = "%Y-%m-%d"

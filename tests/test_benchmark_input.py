@@ -88,3 +88,33 @@ def test_benchmark_problems_are_reported_with_the_others(tmp_path, capsys):
     assert "benchmark.csv: the benchmark series does not cover the window: 2 period(s) " \
            "missing, first 2026-02-28" in err
     assert not out.exists()
+
+
+def test_portfolio_returns_file_replaces_the_weighted_series(tmp_path):
+    # the scheme's own returns: every portfolio figure comes from them. Reference values:
+    # statsmodels OLS of the file's excess returns on the market's, and compounding by hand
+    import statsmodels.api as sm
+
+    folder = tmp_path / "own"
+    shutil.copytree(DEMO, folder)
+    mkt = pd.read_csv(DEMO / "market.csv")
+    rf = pd.read_csv(DEMO / "risk_free.csv")
+    own = pd.DataFrame({"date": mkt["date"], "return": (1.1 * mkt["return"] + 0.0005
+                                                        + 0.002 * np.sin(np.arange(120)))})
+    own.to_csv(folder / "own.csv", index=False)
+    text = (folder / "pack.toml").read_text(encoding="utf-8")
+    (folder / "pack.toml").write_text(text.replace(
+        'risk_free = "risk_free.csv"', 'risk_free = "risk_free.csv"\nportfolio_returns = '
+        '"own.csv"'), encoding="utf-8")
+    a = assemble(load_settings(folder))
+    p = a.results.portfolio_summary()
+    assert p["portfolio_source"] == "portfolio returns file"
+    y = (own["return"] - rf["rate"]).to_numpy()[-60:]
+    x = (mkt["return"] - rf["rate"]).to_numpy()[-60:]
+    ref = sm.OLS(y, sm.add_constant(x)).fit()
+    assert p["beta_regression"] == pytest.approx(ref.params[1], rel=1e-10)
+    assert p["alpha"] == pytest.approx(ref.params[0], rel=1e-10)
+    t = a.results.period_table.set_index("period")
+    assert t.loc["ytd", "portfolio"] == pytest.approx(
+        np.prod(1 + own["return"].to_numpy()[-11:]) - 1, rel=1e-10)
+    assert "own.csv" in a.html() and "portfolio_returns" in a.hashes

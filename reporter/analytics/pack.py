@@ -120,6 +120,7 @@ class PackResults:
     grs_sectors: GRSTest              # GRS on sector portfolios (current weights)
     tracking_reference: str           # "market proxy" | "benchmark": what risk TE is against
     history_benchmark: np.ndarray | None  # r_b per period over history_dates (NaN if absent)
+    portfolio_source: str             # "current weights" | "portfolio returns file"
 
     def line_tests_summary(self) -> dict:
         """The tests of the security market line added to ``results/portfolio.json``."""
@@ -245,6 +246,7 @@ class PackResults:
             "market_return_arithmetic_ann": q.market_return_arithmetic_ann,
             "market_return_geometric_ann": q.market_return_geometric_ann,
             "tracking_reference": self.tracking_reference,
+            "portfolio_source": self.portfolio_source,
             **self._benchmark_figures(),
         }
 
@@ -389,10 +391,14 @@ def _align_optional(series: DatedSeries | None, dates: np.ndarray,
 
 
 def analyse(inputs: ValidInputs, settings: Settings,
-            benchmark: DatedSeries | None = None) -> PackResults:
+            benchmark: DatedSeries | None = None,
+            portfolio: DatedSeries | None = None) -> PackResults:
     """Compute every figure of the pack. ``benchmark`` (optional) is the series tracking error,
     the information ratio and the risk contributions to tracking error are measured against,
-    in place of the market proxy."""
+    in place of the market proxy. ``portfolio`` (optional) is the portfolio's own return
+    series, used in place of today's weights for every figure of the portfolio's returns
+    (regression, ratios, period returns, rolling beta); risk contributions still use the
+    weights."""
     P = settings.periods_per_year
     win = build_window(inputs, settings)
     weights = inputs.holdings.weights
@@ -408,6 +414,8 @@ def analyse(inputs: ValidInputs, settings: Settings,
     tcrit = t_critical(settings.confidence, np.maximum(fits.n_obs - 2, 1))
 
     port = portfolio_returns(win.returns, weights)
+    if portfolio is not None:
+        port = _align_optional(portfolio, win.dates, settings.frequency)
     pfit = fit_portfolio(port - win.risk_free, x, settings.confidence, settings.errors,
                          settings.hac_lags)
     ok = fits.fitted
@@ -457,6 +465,8 @@ def analyse(inputs: ValidInputs, settings: Settings,
     hist = build_window(inputs, settings, periods=0)
     rolling = rolling_betas(hist.excess_returns, hist.market_excess, settings.rolling_window)
     hist_raw = portfolio_returns(hist.returns, weights)
+    if portfolio is not None:
+        hist_raw = _align_optional(portfolio, hist.dates, settings.frequency)
     hist_port = hist_raw - hist.risk_free
     perf = performance(win.dates, port, win.market, win.risk_free, pfit.alpha,
                        pfit.residual_vol, P, settings.mar, benchmark=bench_win)
@@ -528,4 +538,5 @@ def analyse(inputs: ValidInputs, settings: Settings,
         grs_holdings=grs_h, grs_sectors=grs_s,
         tracking_reference="market proxy" if benchmark is None else "benchmark",
         history_benchmark=bench_hist,
+        portfolio_source="current weights" if portfolio is None else "portfolio returns file",
     )
