@@ -148,3 +148,20 @@ def test_period_returns_part_first_year_and_short_history():
     assert t.loc["all", "basis"] == "cumulative"
     assert t.loc["all", "portfolio"] == pytest.approx(np.prod(1 + r) - 1, rel=1e-12)
     assert t[t["kind"] == "calendar"]["label"].tolist() == ["2026 (part year)"]
+
+
+def test_period_returns_start_at_the_portfolios_first_return():
+    # periods before the portfolio's first return are not part of its history: the whole
+    # history and the first (part) year start there (arithmetic by hand, 1% a month)
+    d = _month_ends("2023-01-31", 47)          # Jan 2023 .. Nov 2026
+    port = np.full(47, 0.01)
+    port[:5] = np.nan                           # first return in June 2023
+    t = period_returns(d, port, np.zeros(47), dt.date(2026, 11, 30), "monthly", 12)
+    t = t.set_index("period")
+    assert t.loc["all", "start"] == "2023-06-30" and t.loc["all", "n_periods"] == 42
+    assert t.loc["all", "portfolio"] == pytest.approx(1.01**12 - 1, rel=1e-12)
+    assert t.loc["3y", "n_periods"] == 36
+    assert t.loc["2023", "label"] == "2023 (part year)" and t.loc["2023", "n_periods"] == 7
+    empty = period_returns(d, np.full(47, np.nan), np.zeros(47), dt.date(2026, 11, 30),
+                           "monthly", 12)
+    assert empty.empty

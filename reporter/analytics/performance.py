@@ -55,14 +55,23 @@ def period_returns(dates: np.ndarray, portfolio: np.ndarray, market: np.ndarray,
     """Trailing-period and calendar-year returns of the portfolio and the market proxy.
 
     ``dates`` are the market's period dates up to ``period_end`` (ascending), ``portfolio`` and
-    ``market`` the per-period decimal returns on them. A trailing period of k months holds the
+    ``market`` the per-period decimal returns on them; the history starts at the portfolio's
+    first return. A trailing period of k months holds the
     periods dated after ``period_end`` less k months; it is reported only when the history
     covers all of it. Under a year the return is cumulative (``basis = "cumulative"``); at a year
     or more it is annualised geometrically, (1 + R)^(P/n) - 1 (``basis = "annualised"``), as GIPS
     requires. ``difference`` is portfolio minus market (arithmetic). Calendar years are
     cumulative; a part year is labelled as such. Columns: :data:`PERIOD_RETURN_COLUMNS`.
     """
-    d = np.asarray(dates, dtype="datetime64[D]")
+    # the history starts at the portfolio's first return (periods before it are not held)
+    finite = np.flatnonzero(np.isfinite(np.asarray(portfolio, dtype=float)))
+    start = int(finite[0]) if len(finite) else len(portfolio)
+    d = np.asarray(dates, dtype="datetime64[D]")[start:]
+    portfolio, market = np.asarray(portfolio)[start:], np.asarray(market)[start:]
+    if benchmark is not None:
+        benchmark = np.asarray(benchmark)[start:]
+    if len(d) == 0:
+        return pd.DataFrame([], columns=PERIOD_RETURN_COLUMNS)
     keys = period_keys(d, frequency)
     # how far (in period keys) a first or last period may sit from a boundary and still cover it
     slack = {"monthly": 1, "weekly": 1, "daily": 5}[frequency]
