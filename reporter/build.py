@@ -19,10 +19,11 @@ import numpy as np
 from reporter import __version__
 from reporter.analytics.changes import PackChanges, compare_packs
 from reporter.analytics.pack import PackResults, analyse
+from reporter.benchmark import validate_benchmark, validate_portfolio_returns
 from reporter.changes import read_previous
 from reporter.charts import build_charts
 from reporter.commentary import CommentarySet, read_commentary
-from reporter.config import INPUT_ROLES, Settings, load_settings
+from reporter.config import INPUT_ROLES, OPTIONAL_ROLES, Settings, load_settings
 from reporter.context import PackContext, build_context
 from reporter.errors import InputError, Problem
 from reporter.limits import LimitsReport, evaluate_limits
@@ -55,6 +56,9 @@ def input_hashes(settings: Settings) -> dict[str, str]:
     out = {"pack.toml": _sha256(settings.config_path)}
     for role in INPUT_ROLES:
         out[role] = _sha256(settings.inputs[role].path)
+    for role in OPTIONAL_ROLES:
+        if role in settings.inputs:
+            out[role] = _sha256(settings.inputs[role].path)
     return out
 
 
@@ -128,9 +132,12 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
         if strict and compare_warnings:
             raise InputError(compare_warnings)
     with progress.stage("validate"):
-        inputs = validate_tables(settings, raws, read_problems, strict=strict)
+        benchmark, bench_problems = validate_benchmark(settings, raws)
+        own, own_problems = validate_portfolio_returns(settings, raws)
+        inputs = validate_tables(settings, raws,
+                                 [*read_problems, *bench_problems, *own_problems], strict=strict)
     with progress.stage("analyse"):
-        res = analyse(inputs, settings)
+        res = analyse(inputs, settings, benchmark=benchmark, portfolio=own)
         hashes = input_hashes(settings)
         hashes.update(commentary.hashes)        # the commentary files and their images
         limits = evaluate_limits(settings.limits, res) if settings.limits else None
@@ -180,6 +187,12 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
         doc = a.changes.as_json() if a.changes is not None else {
             "previous": None, "note": ctx.compare_note}
         files.add("results/changes.json", json.dumps(doc, indent=2, sort_keys=True) + "\n")
+    buf = io.StringIO()
+    res.period_table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
+    files.add("results/period_returns.csv", buf.getvalue())
+    buf = io.StringIO()
+    res.risk_table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
+    files.add("results/risk_contributions.csv", buf.getvalue())
     files.add("results/manifest.json", _json({
         "tool_version": __version__,
         "pack_name": settings.name,
@@ -193,7 +206,8 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
         "input_fingerprint": ctx.fingerprint,
         "input_sha256": a.hashes,
         "input_files": {r: settings.inputs[r].display for r in INPUT_ROLES}
-        | {rel: rel for rel in a.commentary.hashes},     # commentary files and images
+        | {rel: rel for rel in a.commentary.hashes}      # commentary files and images
+        | {r: settings.inputs[r].display for r in OPTIONAL_ROLES if r in settings.inputs},
         "warnings": [str(w) for w in a.inputs.warnings],
     }))
     with progress.stage("write"):

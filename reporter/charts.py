@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from reporter.analytics.pack import PORTFOLIO_SERIES, PackResults
+from reporter.analytics.regression import t_critical
 from reporter.analytics.sml import ABOVE, BELOW, WITHIN
 
 INK, TEAL, OCHRE, BRICK, GREY = "#1d2b36", "#2a6f6f", "#b8741a", "#9c3b2e", "#6b7780"
@@ -42,6 +43,10 @@ def sml_chart(res: PackResults) -> alt.LayerChart:
         "excess": sec["mean_excess_return_ann"], "weight": sec["weight"],
         "position": sec["sml_position"],
     })
+    # the mean excess return's interval: t (n - 1 df) x sd / sqrt(n), annualised x P
+    half = t_critical(res.confidence, sec["n_obs"].to_numpy() - 1) * sec[
+        "mean_excess_return_se"].to_numpy() * P
+    df["excess_lo"], df["excess_hi"] = df["excess"] - half, df["excess"] + half
     mrp = res.sml.mean_market_premium * P
     hi = float(max(2.0, np.nanmax(df["beta_hi"]) if len(df) else 2.0))
     lo = float(min(0.0, np.nanmin(df["beta_lo"]) if len(df) else 0.0))
@@ -57,6 +62,8 @@ def sml_chart(res: PackResults) -> alt.LayerChart:
     base = alt.Chart(df)
     bars = base.mark_rule(color="#b9c0c5", strokeWidth=1).encode(x="beta_lo:Q", x2="beta_hi:Q",
                                                                    y="excess:Q")
+    vbars = base.mark_rule(color="#b9c0c5", strokeWidth=1).encode(x="beta:Q", y="excess_lo:Q",
+                                                                    y2="excess_hi:Q")
     pts = base.mark_point(filled=True, opacity=0.9, size=60).encode(
         x=x, y=y,
         shape=alt.Shape("position:N", scale=shape_scale, title="Alpha vs zero"),
@@ -70,7 +77,7 @@ def sml_chart(res: PackResults) -> alt.LayerChart:
     lab = alt.Chart(anchors).mark_text(align="left", dx=8, dy=-8, color=INK,
                                        fontSize=11).encode(x="beta:Q", y="excess:Q",
                                                            text="label:N")
-    return alt.layer(bars, sml, pts, anc, lab).properties(width=WIDTH, height=HEIGHT)
+    return alt.layer(bars, vbars, sml, pts, anc, lab).properties(width=WIDTH, height=HEIGHT)
 
 
 STATUS_MARK = {"breach": "\u2716 breach", "watch": "\u25c6 watch"}
@@ -133,7 +140,7 @@ def diversification_chart(res: PackResults) -> alt.LayerChart:
                          "vol": [res.ratios.volatility * np.sqrt(P)],
                          "label": ["This portfolio (effective N)"]})
     x = alt.X("n:Q", title="Number of equally weighted holdings (log scale)",
-              scale=alt.Scale(type="log", domain=[1, n_max]))
+              scale=alt.Scale(type="log", domain=[1, n_max], nice=False))
     y = alt.Y("vol:Q", title="Volatility, annualised", axis=alt.Axis(format="%"),
               scale=alt.Scale(zero=True))
     line = alt.Chart(curve).mark_line(color=TEAL, strokeWidth=2).encode(x=x, y=y)
@@ -141,12 +148,45 @@ def diversification_chart(res: PackResults) -> alt.LayerChart:
         color=GREY, strokeDash=[4, 3]).encode(y="vol:Q")
     rule_lab = alt.Chart(pd.DataFrame({"vol": [floor], "n": [n_max],
                                        "label": ["Floor: average covariance"]})).mark_text(
-        align="right", dy=-7, color=GREY, fontSize=10).encode(x="n:Q", y="vol:Q", text="label:N")
+        align="right", dy=11, color=GREY, fontSize=10).encode(x="n:Q", y="vol:Q", text="label:N")
     pt = alt.Chart(port).mark_point(shape="diamond", size=120, filled=True,
                                     color=OCHRE).encode(x="n:Q", y="vol:Q")
-    pt_lab = alt.Chart(port).mark_text(align="left", dx=9, color=INK, fontSize=11).encode(
-        x="n:Q", y="vol:Q", text="label:N")
-    return alt.layer(line, rule, rule_lab, pt, pt_lab).properties(width=WIDTH, height=260)
+    pt_lab = alt.Chart(port).mark_text(align="left", dx=9, dy=-12, color=INK,
+                                       fontSize=11).encode(x="n:Q", y="vol:Q", text="label:N")
+    b = res.band
+    root = np.sqrt(P)
+    band_df = pd.DataFrame({"n": b.n, "lo": b.low * root, "hi": b.high * root,
+                            "med": b.median * root})
+    band = alt.Chart(band_df).mark_area(color=TEAL, opacity=0.15).encode(
+        x=x, y=alt.Y("lo:Q", title="Volatility, annualised", axis=alt.Axis(format="%"),
+                     scale=alt.Scale(zero=True)), y2="hi:Q")
+    med = alt.Chart(band_df).mark_point(shape="cross", size=30, color=GREY).encode(
+        x=x, y="med:Q")
+    return alt.layer(band, med, line, rule, rule_lab, pt, pt_lab).properties(width=WIDTH,
+                                                                             height=260)
+
+
+def risk_contribution_chart(res: PackResults, top: int = 12) -> alt.HConcatChart:
+    """The largest contributors to volatility, with their shares of volatility and of
+    tracking error side by side (Euler contributions; shares of each total)."""
+    t = res.risk_table
+    h = t[t["level"] == "holding"].head(top)
+    order = list(h["name"])
+    panels = []
+    for col, title in (("vol_share", "Share of volatility"),
+                       ("te_share", "Share of tracking error")):
+        df = pd.DataFrame({"name": h["name"], "share": h[col], "weight": h["weight"]})
+        bars = alt.Chart(df).mark_bar(color=TEAL if col == "vol_share" else INK,
+                                      height=11).encode(
+            y=alt.Y("name:N", sort=order, title=None,
+                    axis=alt.Axis(labels=col == "vol_share", labelLimit=170)),
+            x=alt.X("share:Q", title=title, axis=alt.Axis(format="%", tickCount=4)),
+            tooltip=["name:N", alt.Tooltip("share:Q", format=".1%"),
+                     alt.Tooltip("weight:Q", format=".1%")])
+        ticks = alt.Chart(df).mark_tick(color=OCHRE, thickness=2, size=14).encode(
+            y=alt.Y("name:N", sort=order), x="weight:Q")
+        panels.append(alt.layer(bars, ticks).properties(width=150, height=16 * len(h)))
+    return alt.hconcat(*panels, spacing=12)
 
 
 MAX_LINE_POINTS = 300   # a print chart is about 500 px wide: more points add bytes, not detail
@@ -200,6 +240,36 @@ def rolling_holdings_chart(res: PackResults, top: int = 10) -> alt.Chart:
                         header=alt.Header(labelFontSize=9, labelLimit=150)), columns=3)
 
 
+def growth_chart(res: PackResults) -> alt.LayerChart:
+    """Growth of one unit invested in the portfolio (current weights) and in the market proxy
+    over the whole history, on a log scale; the lines differ in dash as well as colour."""
+    g = res.growth_table
+    df = pd.concat([
+        pd.DataFrame({"date": g["date"], "value": g["portfolio"], "series": "Portfolio"}),
+        pd.DataFrame({"date": g["date"], "value": g["market"], "series": "Market proxy"}),
+    ] + ([pd.DataFrame({"date": g["date"], "value": g["benchmark"], "series": "Benchmark"})]
+         if "benchmark" in g else []), ignore_index=True).dropna(subset=["value"])
+    df = thin_series(df).copy()
+    df["date"] = pd.to_datetime(df["date"])
+    domain = ["Portfolio", "Market proxy"] + (["Benchmark"] if "benchmark" in g else [])
+    lo, hi = float(min(df["value"].min(), 1.0)), float(max(df["value"].max(), 1.0))
+    line = alt.Chart(df).mark_line(strokeWidth=2).encode(
+        x=alt.X("date:T", title=None, axis=alt.Axis(format="%Y")),
+        y=alt.Y("value:Q", title="Value of 1 invested (log scale)",
+                scale=alt.Scale(type="log", domain=[lo * 0.95, hi * 1.05], nice=False)),
+        color=alt.Color("series:N", scale=alt.Scale(domain=domain,
+                                                    range=[TEAL, INK, OCHRE][: len(domain)]),
+                        title=None),
+        strokeDash=alt.StrokeDash("series:N", scale=alt.Scale(
+            domain=domain, range=[[1, 0], [5, 3], [1, 2]][: len(domain)]), title=None),
+        tooltip=["series:N", alt.Tooltip("date:T", format="%Y-%m-%d"),
+                 alt.Tooltip("value:Q", format=".3f")],
+    )
+    one = alt.Chart(pd.DataFrame({"y": [1.0]})).mark_rule(color=GREY, strokeDash=[2, 2]).encode(
+        y="y:Q")
+    return alt.layer(one, line).properties(width=WIDTH, height=240)
+
+
 def build_charts(res: PackResults, limits=None) -> dict[str, alt.TopLevelMixin]:
     """Every chart of the pack, keyed by the name the templates use. ``limits`` (a
     :class:`reporter.limits.LimitsReport`, optional) marks sector limits on the sector chart."""
@@ -209,4 +279,6 @@ def build_charts(res: PackResults, limits=None) -> dict[str, alt.TopLevelMixin]:
         "sml": sml_chart(res),
         "sectors": sector_chart(res, limits.sector_status() if limits is not None else None),
         "diversification": diversification_chart(res),
+        "growth": growth_chart(res),
+        "risk_contributions": risk_contribution_chart(res),
     }

@@ -15,12 +15,13 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Annotated, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, ValidationError
 
 from reporter.errors import InputError, Problem
 
 PERIODS_PER_YEAR = {"monthly": 12, "weekly": 52, "daily": 252}
 INPUT_ROLES = ("holdings", "returns", "market", "risk_free")
+OPTIONAL_ROLES = ("benchmark", "portfolio_returns")   # read only when pack.toml names them
 
 
 class _Strict(BaseModel):
@@ -60,6 +61,8 @@ class InputsSection(_Strict):
     returns: str | InputFile
     market: str | InputFile
     risk_free: str | InputFile
+    benchmark: str | InputFile | None = None   # optional `date, return` series
+    portfolio_returns: str | InputFile | None = None   # optional: the portfolio's own returns
     delimiter: Annotated[str, Field(min_length=1, max_length=1)] = ","
     decimal: Literal[".", ","] = "."
     date_format: Annotated[str, Field(min_length=2)] = "%Y-%m-%d"
@@ -77,6 +80,14 @@ class AnalysisSection(_Strict):
     blume_slope: float = 0.67
     dimson_lags: Annotated[int, Field(ge=1, le=10)] = 1
     rolling_window: Annotated[int, Field(ge=6, le=100_000)] | None = None
+    # minimum acceptable return for downside deviation and Sortino: "risk_free" (each
+    # period's rate) or a fixed annual decimal rate
+    mar: Annotated[Annotated[float, Field(ge=-1.0, le=1.0)] | None,
+                   BeforeValidator(lambda v: None if v == "risk_free" else v)] = None
+    # covariance behind risk contributions: "auto" (Ledoit-Wolf when holdings >= window / 10)
+    covariance: Literal["auto", "ledoit_wolf", "sample"] = "auto"
+    random_subsets: Annotated[int, Field(ge=10, le=10_000)] = 200
+    seed: Annotated[int, Field(ge=0)] = 20261130
 
 
 class ChecksSection(_Strict):
@@ -176,6 +187,10 @@ class Settings:
     limits: LimitsSection | None = None      # None: no [limits] table
     compare_build: Path | None = None        # [compare] previous = a build folder
     compare_archive: Path | None = None      # [compare] previous = "archive:DIR"
+    mar: float | None = None             # fixed annual MAR; None = the risk-free rate
+    covariance: str = "auto"             # "auto" | "ledoit_wolf" | "sample"
+    random_subsets: int = 200            # random equal-weight portfolios per size
+    seed: int = 20261130                 # seed of those random draws
 
     @property
     def periods_per_year(self) -> int:
@@ -254,7 +269,7 @@ def load_settings(pack: Path | str) -> Settings:
     fmt_problem = date_format_problem(defaults.date_format)
     if fmt_problem:
         problems.append(Problem(f"{fname}:inputs.date_format", fmt_problem))
-    for role in INPUT_ROLES:
+    for role in INPUT_ROLES + tuple(r for r in OPTIONAL_ROLES if getattr(defaults, r) is not None):
         entry = getattr(defaults, role)
         spec = entry if isinstance(entry, InputFile) else InputFile(path=entry)
         key = f"inputs.{role}" + (".path" if isinstance(entry, InputFile) else "")
@@ -319,6 +334,10 @@ def load_settings(pack: Path | str) -> Settings:
         limits=model.limits,
         compare_build=compare_build,
         compare_archive=compare_archive,
+        mar=None if model.analysis.mar is None else float(model.analysis.mar),
+        covariance=model.analysis.covariance,
+        random_subsets=model.analysis.random_subsets,
+        seed=model.analysis.seed,
     )
 
 

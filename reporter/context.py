@@ -43,6 +43,7 @@ class Section:
 SECTIONS = (
     Section("summary", "Summary"),
     Section("changes", "Since last pack"),
+    Section("returns", "Returns and ratios"),
     Section("market-risk", "Market risk"),
     Section("beta", "Beta estimates"),
     Section("sml", "Security market line"),
@@ -100,6 +101,13 @@ class PackContext:
     compare_note: str | None = None                # why there is nothing to compare
     # section anchor -> reporter.commentary.Commentary (author, date, title, sanitised html)
     commentary: dict = field(default_factory=dict)
+    trailing_returns: list[dict] = field(default_factory=list)   # period_returns.csv, trailing
+    calendar_returns: list[dict] = field(default_factory=list)   # and calendar-year rows
+    mar_fixed: float | None = None   # fixed annual MAR, or None for the risk-free rate
+    risk_holdings: list[dict] = field(default_factory=list)   # largest risk contributors
+    risk_sectors: list[dict] = field(default_factory=list)    # contributions by sector
+    covariance_auto: bool = True     # the method was chosen by the "auto" rule
+    has_benchmark: bool = False      # an optional benchmark series was given
 
 
 def _records(df) -> list[dict]:
@@ -167,4 +175,11 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         sector_limit_status=limits.sector_status() if limits else {},
         changes=changes, compare_note=compare_note, sections=shown,
         commentary=dict(commentary or {}),
+        trailing_returns=_records(res.period_table[res.period_table["kind"] == "trailing"]),
+        calendar_returns=_records(res.period_table[res.period_table["kind"] == "calendar"]),
+        mar_fixed=settings.mar,
+        risk_holdings=_records(res.risk_table[res.risk_table["level"] == "holding"].head(12)),
+        risk_sectors=_records(res.risk_table[res.risk_table["level"] == "sector"]),
+        covariance_auto=settings.covariance == "auto",
+        has_benchmark="benchmark" in settings.inputs,
     )

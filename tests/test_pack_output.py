@@ -16,8 +16,9 @@ from tests.conftest import DEMO, GOLDEN
 REQUIRED = ["security_id", "name", "sector", "weight", "n_obs", "alpha", "alpha_se", "alpha_t",
             "beta", "beta_se", "beta_t", "r_squared", "residual_vol", "mean_excess_return",
             "sml_expected_excess", "sml_residual", "treynor"]
-SECTION_TITLES = ["Contents", "Summary", "Market risk", "Beta estimates", "Security market line",
-                  "Diversification", "Holdings appendix", "Methodology", "Cautions"]
+SECTION_TITLES = ["Contents", "Summary", "Returns and ratios", "Market risk", "Beta estimates",
+                  "Security market line", "Diversification", "Holdings appendix", "Methodology",
+                  "Cautions"]
 
 
 @pytest.fixture(scope="module")
@@ -92,7 +93,7 @@ def test_html_is_self_contained(html):
     assert not re.search(r"(?i)\b(?:https?:)?//[a-z0-9.-]+\.[a-z]{2,}", html.replace(
         "http://www.w3.org/2000/svg", "").replace("http://www.w3.org/1999/xlink", ""))
     assert "<script" not in html.lower()
-    assert html.count("<svg") == 5
+    assert html.count("<svg") == 7
     assert "<style>" in html
 
 
@@ -160,3 +161,79 @@ def test_beta_columns_and_rolling_file(demo_build):
     # the holding suspended for five months has no value in windows that span the gap
     gapped = roll[roll["series"] == "TVX042"]
     assert 0 < len(gapped) < 85
+
+
+def test_period_returns_file(demo_build):
+    t = pd.read_csv(demo_build / "results/period_returns.csv")
+    assert list(t.columns) == ["kind", "period", "label", "start", "end", "n_periods", "basis",
+                               "portfolio", "market", "difference", "benchmark",
+                               "benchmark_difference"]
+    assert t["benchmark"].isna().all()          # the demo names no benchmark
+    trailing = t[t["kind"] == "trailing"].set_index("period")
+    assert list(trailing.index) == ["1m", "3m", "ytd", "1y", "3y", "5y", "all"]
+    # GIPS: cumulative under a year, annualised at a year or more
+    assert (trailing["basis"] == np.where(trailing["n_periods"] >= 12, "annualised",
+                                          "cumulative")).all()
+    # the market proxy's month is its last return in market.csv; its year to date the
+    # compounded 2026 returns (arithmetic by hand from the input file)
+    mkt = pd.read_csv(DEMO / "market.csv")
+    assert trailing.loc["1m", "market"] == pytest.approx(mkt["return"].iloc[-1], rel=1e-9)
+    ytd = mkt[mkt["date"].str.startswith("2026")]["return"]
+    assert trailing.loc["ytd", "market"] == pytest.approx(np.prod(1 + ytd) - 1, rel=1e-9)
+    five = mkt["return"].iloc[-60:]
+    assert trailing.loc["5y", "market"] == pytest.approx(np.prod(1 + five) ** (12 / 60) - 1,
+                                                         rel=1e-9)
+    np.testing.assert_allclose(t["difference"], t["portfolio"] - t["market"], atol=1e-12)
+    cal = t[t["kind"] == "calendar"]
+    assert cal["label"].iloc[-1] == "2026 (to date)"
+    p = json.loads((demo_build / "results/portfolio.json").read_text())
+    # the five-year period is the 60-month window: its geometric rate is the ratio table's
+    assert trailing.loc["5y", "portfolio"] == pytest.approx(p["return_geometric_ann"], rel=1e-9)
+    for key in ("sharpe_se", "sharpe_ann_lo", "appraisal_ratio", "m2", "max_drawdown",
+                "downside_deviation", "sortino", "mar", "return_arithmetic_ann"):
+        assert key in p and p[key] is not None, key
+
+
+def test_risk_contributions_file(demo_build):
+    t = pd.read_csv(demo_build / "results/risk_contributions.csv")
+    p = json.loads((demo_build / "results/portfolio.json").read_text())
+    h, g = t[t["level"] == "holding"], t[t["level"] == "sector"]
+    total = t[t["level"] == "total"].iloc[0]
+    assert len(h) == 60 and len(g) == len(set(h["sector"]))
+    # Euler contributions add up to the totals, by holding and by sector (the file keeps
+    # 10 significant figures)
+    for col in ("vol_contribution", "te_contribution"):
+        assert h[col].sum() == pytest.approx(total[col], rel=1e-8)
+        assert g[col].sum() == pytest.approx(total[col], rel=1e-8)
+    assert h["vol_share"].sum() == pytest.approx(1.0, rel=1e-8)
+    assert total["vol_contribution"] == pytest.approx(p["model_volatility"], rel=1e-9)
+    assert total["te_contribution"] == pytest.approx(p["model_tracking_error"], rel=1e-9)
+    # 60 holdings against a 60-period window: the "auto" rule shrinks (Ledoit-Wolf)
+    assert p["covariance_method"] == "ledoit_wolf" and 0 < p["covariance_shrinkage"] < 1
+    assert p["diversification_ratio"] > 1
+    assert -1 < p["average_correlation"] < 1
+    assert list(h["vol_contribution"]) == sorted(h["vol_contribution"], reverse=True)
+
+
+def test_line_tests_in_results_and_pack(demo_build, pdf_text):
+    p = json.loads((demo_build / "results/portfolio.json").read_text())
+    sec = pd.read_csv(demo_build / "results/securities.csv")
+    fitted = sec[sec["status"] == "fitted"]
+    assert p["sml_cs_n_assets"] == len(fitted) and p["sml_fm_n_periods"] == 60
+    # both tests set the slope against the window's realised premium
+    assert p["sml_cs_premium"] == pytest.approx(p["mean_market_premium"], rel=1e-12)
+    assert p["sml_fm_premium"] == pytest.approx(p["mean_market_premium"], rel=1e-12)
+    # the cross-section is the OLS of the file's own columns (scipy.stats.linregress)
+    from scipy import stats
+
+    ref = stats.linregress(fitted["beta"], fitted["mean_excess_return"])
+    assert p["sml_cs_slope"] == pytest.approx(ref.slope, rel=1e-8)
+    assert p["sml_cs_slope_se"] == pytest.approx(ref.stderr, rel=1e-8)
+    # GRS: 60 periods; holdings with a complete window (the late listings and the
+    # suspended holding drop out) and the sector portfolios
+    assert p["grs_holdings_applies"] and p["grs_holdings_df_den"] == 60 - p[
+        "grs_holdings_n_assets"] - 1
+    assert p["grs_sectors_applies"] and p["grs_sectors_n_assets"] == 10
+    assert 0 <= p["grs_sectors_p_value"] <= 1
+    text = re.sub(r"\s+", " ", "\n".join(pdf_text))
+    assert "Testing the line itself" in text and "Gibbons" in text

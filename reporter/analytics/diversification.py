@@ -107,3 +107,152 @@ def equal_weight_curve(cov: np.ndarray) -> EqualWeightCurve:
     off = cov[~np.eye(n, dtype=bool)]
     return EqualWeightCurve(average_variance=float(np.nanmean(diag)),
                             average_covariance=float(np.nanmean(off)) if n > 1 else 0.0)
+
+
+def pairwise_correlation(returns: np.ndarray) -> np.ndarray:
+    """Pearson correlation of every pair of columns on the periods both have (as pandas
+    ``DataFrame.corr()``); NaN where a pair shares fewer than two periods. Vectorised with
+    masked cross-products."""
+    mask = np.isfinite(returns)
+    m = mask.astype(float)
+    x = np.where(mask, returns, 0.0)
+    n = m.T @ m
+    sx = x.T @ m                 # sum of x_i over the periods j has too
+    sxx = (x * x).T @ m          # sum of x_i^2 over the same periods
+    with np.errstate(invalid="ignore", divide="ignore"):
+        cxy = x.T @ x - sx * sx.T / n
+        vx = sxx - sx * sx / n
+        corr = cxy / np.sqrt(vx * vx.T)
+    corr[n < 2] = np.nan
+    return corr
+
+
+def pairwise_covariance_and_correlation(returns: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`pairwise_covariance` and :func:`pairwise_correlation` from one set of masked
+    cross-products (four matrix products; one when no return is missing)."""
+    mask = np.isfinite(returns)
+    if mask.all():
+        cov = np.atleast_2d(np.cov(returns, rowvar=False))
+        sd = np.sqrt(np.diagonal(cov))
+        with np.errstate(invalid="ignore", divide="ignore"):
+            corr = cov / np.outer(sd, sd)
+        if len(returns) < 2:
+            cov[:], corr[:] = np.nan, np.nan
+        return cov, corr
+    m = mask.astype(float)
+    x = np.where(mask, returns, 0.0)
+    n = m.T @ m
+    sx = x.T @ m
+    sxx = (x * x).T @ m
+    with np.errstate(invalid="ignore", divide="ignore"):
+        cxy = x.T @ x - sx * sx.T / n
+        cov = cxy / (n - 1)
+        vx = sxx - sx * sx / n
+        corr = cxy / np.sqrt(vx * vx.T)
+    cov[n < 2] = np.nan
+    corr[n < 2] = np.nan
+    return cov, corr
+
+
+def average_pairwise_correlation(returns: np.ndarray | None = None, *,
+                                 corr: np.ndarray | None = None) -> float:
+    """Mean of the off-diagonal pairwise correlations (each pair once), from ``returns`` or
+    from a correlation matrix ``corr`` already computed."""
+    c = pairwise_correlation(returns) if corr is None else corr
+    iu = np.triu_indices(c.shape[0], k=1)
+    vals = c[iu]
+    vals = vals[np.isfinite(vals)]
+    return float(vals.mean()) if len(vals) else float("nan")
+
+
+@dataclass(frozen=True)
+class RiskContributions:
+    """Euler decomposition of portfolio volatility and tracking error (per period).
+
+    sigma_p = sqrt(w' S w) and contribution_i = w_i (S w)_i / sigma_p, which sum to sigma_p
+    exactly (Euler's theorem for a function homogeneous of degree one). Tracking error uses
+    the covariance of r_i - r_m, since r_p - r_m = sum w_i (r_i - r_m) when sum w = 1.
+    """
+
+    volatility: float            # sqrt(w' S w) from the estimated covariance
+    vol_contribution: np.ndarray
+    tracking_error: float        # sqrt(w' S_d w), S_d = covariance of r_i - r_m
+    te_contribution: np.ndarray
+    asset_vol: np.ndarray        # sqrt(diag S)
+    diversification_ratio: float  # w' sigma / sigma_p (Choueifaty and Coignard 2008)
+
+    @property
+    def vol_share(self) -> np.ndarray:
+        return self.vol_contribution / self.volatility
+
+    @property
+    def te_share(self) -> np.ndarray:
+        return self.te_contribution / self.tracking_error
+
+
+def risk_contributions(weights: np.ndarray, cov: np.ndarray,
+                       cov_active: np.ndarray) -> RiskContributions:
+    """Euler risk contributions to volatility and to tracking error against the market.
+
+    ``cov`` is the N x N covariance of the holdings' returns, ``cov_active`` that of their
+    returns relative to the market proxy, r_i - r_m (Euler 1755; Litterman 1996 for its use
+    in risk budgeting; Choueifaty and Coignard 2008 for the diversification ratio). Two
+    matrix-vector products.
+    """
+    w = np.asarray(weights, dtype=float)
+    sw = cov @ w
+    vol = float(np.sqrt(max(float(w @ sw), 0.0)))
+    sdw = cov_active @ w
+    te = float(np.sqrt(max(float(w @ sdw), 0.0)))
+    asset_vol = np.sqrt(np.maximum(np.diagonal(cov), 0.0))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return RiskContributions(
+            volatility=vol, vol_contribution=w * sw / vol, tracking_error=te,
+            te_contribution=w * sdw / te, asset_vol=asset_vol,
+            diversification_ratio=float(w @ asset_vol / vol))
+
+
+@dataclass(frozen=True)
+class RandomSubsetBand:
+    """Volatility of random equal-weight portfolios of n holdings (per period)."""
+
+    n: np.ndarray            # portfolio sizes
+    low: np.ndarray          # 5th percentile of volatility across the draws
+    median: np.ndarray
+    high: np.ndarray         # 95th percentile
+    draws: int
+    seed: int
+    vols: np.ndarray         # sizes x draws: every draw's volatility
+
+    def share_below(self, n: int, vol: float) -> float:
+        """Share of the random portfolios of size ``n`` (nearest size drawn) with a lower
+        volatility than ``vol``."""
+        i = int(np.argmin(np.abs(self.n - n)))
+        return float(np.mean(self.vols[i] < vol))
+
+
+def random_subset_band(cov: np.ndarray, sizes: np.ndarray, draws: int,
+                       seed: int) -> RandomSubsetBand:
+    """For each size n, ``draws`` random sets of n distinct holdings (numpy ``default_rng``
+    with ``seed``), each equally weighted; volatility sqrt(1' C_sub 1) / n from ``cov``.
+    Vectorised over draws and holdings (one loop over the few sizes); the cost is
+    draws x n^2 per size, so callers keep the sizes to a few hundred at most."""
+    rng = np.random.default_rng(seed)
+    N = cov.shape[0]
+    c = np.nan_to_num(cov)
+    lo, med, hi, ns, all_vols = [], [], [], [], []
+    for n in np.asarray(sizes, dtype=int):
+        if n < 1 or n > N:
+            continue
+        pick = np.argsort(rng.random((draws, N)), axis=1)[:, :n]
+        # sum of each draw's n x n block of the covariance: draws x n x n gathered values
+        var = c[pick[:, :, None], pick[:, None, :]].sum(axis=(1, 2)) / n**2
+        vol = np.sqrt(np.maximum(var, 0.0))
+        q = np.percentile(vol, [5, 50, 95])
+        ns.append(n)
+        all_vols.append(vol)
+        lo.append(q[0])
+        med.append(q[1])
+        hi.append(q[2])
+    return RandomSubsetBand(np.array(ns), np.array(lo), np.array(med), np.array(hi), draws,
+                            seed, np.array(all_vols).reshape(len(ns), draws))

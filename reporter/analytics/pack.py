@@ -8,15 +8,28 @@ from functools import cached_property
 import numpy as np
 import pandas as pd
 
+from reporter.analytics.covariance import CovarianceEstimate, choose_method, holdings_and_active
 from reporter.analytics.diversification import (
     Concentration,
     EqualWeightCurve,
+    RandomSubsetBand,
+    RiskContributions,
     VarianceSplit,
+    average_pairwise_correlation,
     concentration,
     equal_weight_curve,
-    pairwise_covariance,
+    pairwise_covariance_and_correlation,
+    random_subset_band,
+    risk_contributions,
     sector_weights,
     variance_split,
+)
+from reporter.analytics.performance import (
+    PerformanceRatios,
+    growth_of_one,
+    holding_ratios,
+    performance,
+    period_returns,
 )
 from reporter.analytics.regression import (
     MarketModelFits,
@@ -36,8 +49,13 @@ from reporter.analytics.regression import (
 )
 from reporter.analytics.returns import Window, period_keys, portfolio_returns
 from reporter.analytics.sml import (
+    GRSTest,
+    LineTest,
     Ratios,
     SecurityMarketLine,
+    cross_sectional_test,
+    fama_macbeth,
+    grs_test,
     performance_ratios,
     security_market_line,
 )
@@ -53,9 +71,14 @@ SECURITY_COLUMNS = [
     "alpha_se_hac", "beta_se_hac", "beta_ci_low", "beta_ci_high", "beta_differs_from_1",
     "alpha_differs_from_0", "beta_blume", "beta_vasicek", "beta_up", "beta_down",
     "beta_dimson", "beta_scholes_williams",
+    "mean_excess_return_se", "sharpe", "sharpe_ann", "appraisal_ratio", "appraisal_ratio_ann",
 ]
+RISK_COLUMNS = ["level", "security_id", "name", "sector", "weight", "volatility",
+                "vol_contribution", "vol_share", "te_contribution", "te_share",
+                "volatility_ann", "vol_contribution_ann", "te_contribution_ann"]
 ROLLING_COLUMNS = ["date", "series", "beta", "beta_se", "beta_ci_low", "beta_ci_high"]
 PORTFOLIO_SERIES = "PORTFOLIO"
+BAND_MAX_SIZE = 120   # largest random equal-weight portfolio drawn for the curve's band
 
 
 @dataclass(frozen=True)
@@ -82,6 +105,167 @@ class PackResults:
     rolling_portfolio: RollingBetas   # the portfolio (one column), over history_dates
     portfolio_extra: dict             # up/down and thin-trading betas of the portfolio
     confidence: float
+    performance: PerformanceRatios    # the portfolio's ratios over the window
+    period_table: pd.DataFrame        # trailing and calendar-year returns (PERIOD_RETURN_COLUMNS)
+    history_portfolio: np.ndarray     # r_p per period over history_dates (current weights)
+    history_market: np.ndarray        # r_m per period over history_dates
+    covariance: CovarianceEstimate    # the holdings' returns over the window
+    covariance_active: CovarianceEstimate  # their returns relative to the market proxy
+    risk: RiskContributions           # Euler contributions from ``covariance``
+    average_correlation: float        # mean pairwise correlation of the fitted holdings
+    band: RandomSubsetBand            # random equal-weight portfolios of the fitted holdings
+    line_cross_section: LineTest      # mean excess return on beta across fitted holdings
+    line_fama_macbeth: LineTest       # period-by-period cross-sections (Fama-MacBeth 1973)
+    grs_holdings: GRSTest             # GRS on the holdings with a complete window
+    grs_sectors: GRSTest              # GRS on sector portfolios (current weights)
+    tracking_reference: str           # "market proxy" | "benchmark": what risk TE is against
+    history_benchmark: np.ndarray | None  # r_b per period over history_dates (NaN if absent)
+    portfolio_source: str             # "current weights" | "portfolio returns file"
+
+    def line_tests_summary(self) -> dict:
+        """The tests of the security market line added to ``results/portfolio.json``."""
+        out: dict = {}
+        for tag, t in (("sml_cs", self.line_cross_section), ("sml_fm", self.line_fama_macbeth)):
+            out.update({
+                f"{tag}_n_assets": t.n_assets, f"{tag}_n_periods": t.n_periods,
+                f"{tag}_intercept": t.intercept, f"{tag}_intercept_se": t.intercept_se,
+                f"{tag}_intercept_t": t.intercept_t,
+                f"{tag}_slope": t.slope, f"{tag}_slope_se": t.slope_se,
+                f"{tag}_premium": t.premium, f"{tag}_slope_gap_t": t.slope_gap_t,
+            })
+        for tag, g in (("grs_holdings", self.grs_holdings), ("grs_sectors", self.grs_sectors)):
+            out.update({
+                f"{tag}_applies": g.applies, f"{tag}_reason": g.reason,
+                f"{tag}_n_assets": g.n_assets, f"{tag}_n_periods": g.n_periods,
+                f"{tag}_f": g.f_stat, f"{tag}_df_num": g.df_num, f"{tag}_df_den": g.df_den,
+                f"{tag}_p_value": g.p_value,
+            })
+        return out
+
+    @cached_property
+    def risk_table(self) -> pd.DataFrame:
+        """Euler risk contributions (:data:`RISK_COLUMNS`): one row per holding (largest
+        contribution to volatility first), one per sector, and the total. Per-period decimals;
+        ``*_share`` is the contribution over the total; ``_ann`` columns are x sqrt(P)."""
+        rc, sec = self.risk, self.securities
+        h = pd.DataFrame({
+            "level": "holding", "security_id": sec["security_id"].to_numpy(),
+            "name": sec["name"].to_numpy(), "sector": sec["sector"].to_numpy(),
+            "weight": sec["weight"].to_numpy(), "volatility": rc.asset_vol,
+            "vol_contribution": rc.vol_contribution, "vol_share": rc.vol_share,
+            "te_contribution": rc.te_contribution, "te_share": rc.te_share,
+        }).sort_values(["vol_contribution", "security_id"], ascending=[False, True],
+                       kind="stable")
+        cols = ["weight", "vol_contribution", "vol_share", "te_contribution", "te_share"]
+        g = h.groupby("sector", sort=True)[cols].sum().reset_index().sort_values(
+            ["vol_contribution", "sector"], ascending=[False, True], kind="stable")
+        g.insert(0, "level", "sector")
+        g["security_id"], g["name"], g["volatility"] = "", g["sector"], np.nan
+        total = pd.DataFrame([{
+            "level": "total", "security_id": "", "name": "Portfolio", "sector": "",
+            "weight": float(sec["weight"].sum()), "volatility": rc.volatility,
+            "vol_contribution": rc.volatility, "vol_share": 1.0,
+            "te_contribution": rc.tracking_error, "te_share": 1.0}])
+        out = pd.concat([h, g, total], ignore_index=True)
+        root = np.sqrt(self.periods_per_year)
+        for c in ("volatility", "vol_contribution", "te_contribution"):
+            out[f"{c}_ann"] = out[c] * root
+        return out[RISK_COLUMNS]
+
+    def diversification_summary(self) -> dict:
+        """The covariance and risk figures added to ``results/portfolio.json``."""
+        root = np.sqrt(self.periods_per_year)
+        rc, cv = self.risk, self.covariance
+        n_eff = int(round(self.concentration.effective_n))
+        return {
+            "covariance_method": cv.method,
+            "covariance_shrinkage": cv.shrinkage,
+            "covariance_active_shrinkage": self.covariance_active.shrinkage,
+            "model_volatility": rc.volatility,
+            "model_volatility_ann": rc.volatility * root,
+            "model_tracking_error": rc.tracking_error,
+            "model_tracking_error_ann": rc.tracking_error * root,
+            "diversification_ratio": rc.diversification_ratio,
+            "average_correlation": self.average_correlation,
+            "random_subset_draws": self.band.draws,
+            "random_subset_seed": self.band.seed,
+            "random_share_below_portfolio": self.band.share_below(n_eff,
+                                                                  self.ratios.volatility),
+            "equal_weight_volatility_at_effective_n_ann": float(
+                np.sqrt(self.curve.variance(self.concentration.effective_n)) * root),
+            # smallest n with 1 - 1/n >= share on the equal-weight curve
+            "holdings_for_90pct_diversifiable": int(np.ceil(1 / (1 - 0.90) - 1e-9)),
+            "holdings_for_95pct_diversifiable": int(np.ceil(1 / (1 - 0.95) - 1e-9)),
+        }
+
+    @cached_property
+    def growth_table(self) -> pd.DataFrame:
+        """Growth of one unit, portfolio and market (and benchmark, when given), from the first
+        period with a portfolio return: columns ``date, portfolio, market[, benchmark]``.
+        The benchmark's line starts at its own first return."""
+        ok = np.flatnonzero(np.isfinite(self.history_portfolio))
+        start = int(ok[0]) if len(ok) else len(self.history_dates)
+        return pd.DataFrame({
+            "date": np.asarray(self.history_dates[start:]).astype(str),
+            "portfolio": growth_of_one(self.history_portfolio[start:]),
+            "market": growth_of_one(self.history_market[start:]),
+        } | ({} if self.history_benchmark is None else {
+            "benchmark": np.where(np.isfinite(self.history_benchmark[start:]).cumsum() > 0,
+                                  growth_of_one(self.history_benchmark[start:]), np.nan)}))
+
+    def performance_summary(self) -> dict:
+        """The performance figures added to ``results/portfolio.json`` (see README)."""
+        P, q = self.periods_per_year, self.performance
+        return {
+            "sharpe_se": q.sharpe_se,
+            "sharpe_ann_se": q.sharpe_se * np.sqrt(P),
+            "sharpe_ann_lo": q.sharpe_ann_lo,
+            "sharpe_ann_lo_se": q.sharpe_ann_lo_se,
+            "lo_scale": q.lo_scale,
+            "first_autocorrelation": q.first_autocorrelation,
+            "appraisal_ratio": q.appraisal_ratio,
+            "appraisal_ratio_ann": q.appraisal_ratio * np.sqrt(P),
+            "m2": q.m2,
+            "m2_ann": q.m2 * P,
+            "m2_excess": q.m2_excess,
+            "m2_excess_ann": q.m2_excess * P,
+            "max_drawdown": q.max_drawdown,
+            "drawdown_peak": q.drawdown_peak,
+            "drawdown_trough": q.drawdown_trough,
+            "drawdown_recovery": q.drawdown_recovery,
+            "market_max_drawdown": q.market_max_drawdown,
+            "downside_deviation": q.downside_deviation,
+            "downside_deviation_ann": q.downside_deviation * np.sqrt(P),
+            "sortino": q.sortino,
+            "sortino_ann": q.sortino * np.sqrt(P),
+            "mar": q.mar,
+            "mar_ann": q.mar * P,
+            "mar_source": q.mar_source,
+            "return_arithmetic_ann": q.return_arithmetic_ann,
+            "return_geometric_ann": q.return_geometric_ann,
+            "market_return_arithmetic_ann": q.market_return_arithmetic_ann,
+            "market_return_geometric_ann": q.market_return_geometric_ann,
+            "tracking_reference": self.tracking_reference,
+            "portfolio_source": self.portfolio_source,
+            **self._benchmark_figures(),
+        }
+
+    def _benchmark_figures(self) -> dict:
+        """Figures against the optional benchmark; None (null in JSON) without one."""
+        P, q = self.periods_per_year, self.performance
+        figures = {
+            "benchmark_active_return": q.benchmark_active_return,
+            "benchmark_active_return_ann": q.benchmark_active_return * P,
+            "benchmark_tracking_error": q.benchmark_tracking_error,
+            "benchmark_tracking_error_ann": q.benchmark_tracking_error * np.sqrt(P),
+            "benchmark_information_ratio": q.benchmark_information_ratio,
+            "benchmark_information_ratio_ann": q.benchmark_information_ratio * np.sqrt(P),
+            "benchmark_return_arithmetic_ann": q.benchmark_return_arithmetic_ann,
+            "benchmark_return_geometric_ann": q.benchmark_return_geometric_ann,
+        }
+        if self.tracking_reference != "benchmark":
+            return dict.fromkeys(figures)
+        return figures
 
     @cached_property
     def rolling_table(self) -> pd.DataFrame:
@@ -161,6 +345,9 @@ class PackResults:
             "average_covariance": self.curve.average_covariance,
             "rolling_window": self.rolling.window,
             **self.portfolio_extra,
+            **self.performance_summary(),
+            **self.diversification_summary(),
+            **self.line_tests_summary(),
         }
 
 
@@ -192,8 +379,26 @@ def _align(series: DatedSeries, keys: np.ndarray, freq: str) -> np.ndarray:
     return series.values[pos]
 
 
-def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
-    """Compute every figure of the pack."""
+def _align_optional(series: DatedSeries | None, dates: np.ndarray,
+                    freq: str) -> np.ndarray | None:
+    """``series`` on the periods of ``dates`` (NaN where it has none), or None."""
+    if series is None:
+        return None
+    keys = period_keys(dates, freq)
+    skeys = period_keys(series.dates, freq)
+    pos = np.minimum(np.searchsorted(skeys, keys), len(skeys) - 1)
+    return np.where(skeys[pos] == keys, series.values[pos], np.nan)
+
+
+def analyse(inputs: ValidInputs, settings: Settings,
+            benchmark: DatedSeries | None = None,
+            portfolio: DatedSeries | None = None) -> PackResults:
+    """Compute every figure of the pack. ``benchmark`` (optional) is the series tracking error,
+    the information ratio and the risk contributions to tracking error are measured against,
+    in place of the market proxy. ``portfolio`` (optional) is the portfolio's own return
+    series, used in place of today's weights for every figure of the portfolio's returns
+    (regression, ratios, period returns, rolling beta); risk contributions still use the
+    weights."""
     P = settings.periods_per_year
     win = build_window(inputs, settings)
     weights = inputs.holdings.weights
@@ -209,6 +414,8 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
     tcrit = t_critical(settings.confidence, np.maximum(fits.n_obs - 2, 1))
 
     port = portfolio_returns(win.returns, weights)
+    if portfolio is not None:
+        port = _align_optional(portfolio, win.dates, settings.frequency)
     pfit = fit_portfolio(port - win.risk_free, x, settings.confidence, settings.errors,
                          settings.hac_lags)
     ok = fits.fitted
@@ -219,7 +426,20 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
     hold = inputs.holdings.frame
     sectors = sector_weights(hold["sector"], weights)
     var = variance_split(weights, fits.beta, fits.residual_vol, x)
-    curve = equal_weight_curve(pairwise_covariance(win.returns[:, ok]))
+    pair_cov, pair_corr = pairwise_covariance_and_correlation(win.returns[:, ok])
+    curve = equal_weight_curve(pair_cov)
+    cov_method = choose_method(settings.covariance, len(weights), win.n_periods)
+    bench_win = _align_optional(benchmark, win.dates, settings.frequency)
+    cov, cov_active = holdings_and_active(
+        win.returns, win.market if bench_win is None else bench_win, cov_method)
+    risk = risk_contributions(weights, cov.matrix, cov_active.matrix)
+    avg_corr = average_pairwise_correlation(corr=pair_corr)
+    n_fit = int(ok.sum())
+    top = max(min(n_fit, BAND_MAX_SIZE), 1)     # beyond a few hundred the band is a line
+    sizes = np.unique(np.concatenate([
+        np.round(np.geomspace(1, top, 16)),
+        [np.clip(round(conc.effective_n), 1, max(n_fit, 1))]]).astype(int))
+    band = random_subset_band(pair_cov, sizes, settings.random_subsets, settings.seed)
 
     beta_up, beta_down = up_down_betas(y, x, settings.min_obs, prep=prep)
     port_ex = (port - win.risk_free)[:, None]
@@ -229,9 +449,30 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
                          scholes_williams_beta(y, x, settings.min_obs)])
     p_up, p_down = up_down_betas(port_ex, x, settings.min_obs)
 
+    line_cs = cross_sectional_test(fits.mean_excess[ok], fits.beta[ok],
+                                   float(np.mean(x)), win.n_periods)
+    line_fm, _ = fama_macbeth(y[:, ok], fits.beta[ok], x)
+    complete = ok & np.isfinite(y).all(axis=0)
+    grs_h = grs_test(y[:, complete], x, "holdings")
+    sector_names = sorted(set(hold["sector"]))
+    sector_of = hold["sector"].to_numpy()
+    sector_ex = np.column_stack([
+        portfolio_returns(win.returns[:, sector_of == name], weights[sector_of == name])
+        for name in sector_names]) - win.risk_free[:, None]
+    full = np.isfinite(sector_ex).all(axis=0)
+    grs_s = grs_test(sector_ex[:, full], x, "sector portfolios")
+
     hist = build_window(inputs, settings, periods=0)
     rolling = rolling_betas(hist.excess_returns, hist.market_excess, settings.rolling_window)
-    hist_port = portfolio_returns(hist.returns, weights) - hist.risk_free
+    hist_raw = portfolio_returns(hist.returns, weights)
+    if portfolio is not None:
+        hist_raw = _align_optional(portfolio, hist.dates, settings.frequency)
+    hist_port = hist_raw - hist.risk_free
+    perf = performance(win.dates, port, win.market, win.risk_free, pfit.alpha,
+                       pfit.residual_vol, P, settings.mar, benchmark=bench_win)
+    bench_hist = _align_optional(benchmark, hist.dates, settings.frequency)
+    periods = period_returns(hist.dates, hist_raw, hist.market, settings.period_end,
+                             settings.frequency, P, benchmark=bench_hist)
     rolling_port = rolling_betas(hist_port[:, None], hist.market_excess, settings.rolling_window)
 
     with np.errstate(invalid="ignore"):
@@ -267,6 +508,12 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
     sec["beta_down"] = np.where(ok, beta_down, np.nan)
     sec["beta_dimson"] = np.where(ok, dimson[1:], np.nan)
     sec["beta_scholes_williams"] = np.where(ok, sw[1:], np.nan)
+    per_holding = holding_ratios(y, fits.alpha, fits.residual_vol)
+    sec["mean_excess_return_se"] = np.where(ok, per_holding["mean_excess_se"], np.nan)
+    sec["sharpe"] = np.where(ok, per_holding["sharpe"], np.nan)
+    sec["sharpe_ann"] = sec["sharpe"] * np.sqrt(P)
+    sec["appraisal_ratio"] = per_holding["appraisal_ratio"]
+    sec["appraisal_ratio_ann"] = sec["appraisal_ratio"] * np.sqrt(P)
     extra = [c for c in ("asset_class", "currency", "country", "market_value") if c in hold]
     for c in extra:
         sec[c] = hold[c].to_numpy()
@@ -284,5 +531,12 @@ def analyse(inputs: ValidInputs, settings: Settings) -> PackResults:
         concentration=conc, sectors=sectors, variance=var, curve=curve, securities=sec,
         periods_per_year=P, errors=settings.errors, history_dates=hist.dates,
         rolling=rolling, rolling_portfolio=rolling_port, portfolio_extra=portfolio_extra,
-        confidence=settings.confidence,
+        confidence=settings.confidence, performance=perf, period_table=periods,
+        history_portfolio=hist_raw, history_market=hist.market,
+        covariance=cov, covariance_active=cov_active, risk=risk, average_correlation=avg_corr,
+        band=band, line_cross_section=line_cs, line_fama_macbeth=line_fm,
+        grs_holdings=grs_h, grs_sectors=grs_s,
+        tracking_reference="market proxy" if benchmark is None else "benchmark",
+        history_benchmark=bench_hist,
+        portfolio_source="current weights" if portfolio is None else "portfolio returns file",
     )

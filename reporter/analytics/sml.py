@@ -84,3 +84,135 @@ def performance_ratios(port: np.ndarray, market: np.ndarray, risk_free: np.ndarr
         information_ratio=float(active.mean() / te) if te > 0 else float("nan"),
         market_sharpe=float((m - f).mean() / np.std(m - f, ddof=1)),
     )
+
+
+# ------------------------------------------------------------------ tests of the line itself
+
+@dataclass(frozen=True)
+class LineTest:
+    """A test of the security market line: intercept and slope of mean excess return on beta
+    (per period), their standard errors, and the slope set against the realised premium."""
+
+    method: str                  # "cross-section" | "Fama-MacBeth"
+    n_assets: int
+    n_periods: int
+    intercept: float
+    intercept_se: float
+    slope: float
+    slope_se: float
+    premium: float               # the realised mean market premium over the same periods
+    slope_gap_t: float           # t-statistic of slope - premium
+    intercept_t: float
+
+    @property
+    def slope_t(self) -> float:
+        return self.slope / self.slope_se
+
+
+def _no_line_test(method: str, n_assets: int, n_periods: int, premium: float) -> LineTest:
+    """A test that could not be run (fewer than three assets, or under two usable periods)."""
+    nan = float("nan")
+    return LineTest(method, n_assets, n_periods, nan, nan, nan, nan, float(premium), nan, nan)
+
+
+def cross_sectional_test(mean_excess: np.ndarray, beta: np.ndarray,
+                         premium: float, n_periods: int) -> LineTest:
+    """OLS across holdings of mean excess return on beta, mean_i = g0 + g1 beta_i + e_i,
+    with classical standard errors (Black, Jensen and Scholes 1972; Fama and MacBeth 1973).
+    Under the CAPM g0 = 0 and g1 = the market premium. The errors ignore that betas are
+    estimated (errors in variables), so they are too small. Fitted holdings only."""
+    import statsmodels.api as sm
+
+    ok = np.isfinite(mean_excess) & np.isfinite(beta)
+    if ok.sum() < 3:
+        return _no_line_test("cross-section", int(ok.sum()), int(n_periods), premium)
+    X = sm.add_constant(beta[ok], has_constant="add")
+    res = sm.OLS(mean_excess[ok], X).fit()
+    g0, g1 = (float(v) for v in res.params)
+    s0, s1 = (float(v) for v in res.bse)
+    return LineTest("cross-section", int(ok.sum()), int(n_periods), g0, s0, g1, s1,
+                    float(premium), (g1 - premium) / s1, g0 / s0)
+
+
+def fama_macbeth(excess: np.ndarray, beta: np.ndarray, market_excess: np.ndarray,
+                 min_assets: int = 3) -> tuple[LineTest, np.ndarray]:
+    """Fama and MacBeth (1973): each period, OLS across the holdings that have a return of
+    r_i,t - r_f,t on [1, beta_i]; the line's estimates are the means of the period slopes and
+    intercepts, with standard errors sd(gamma_t)/sqrt(T) (ddof = 1). The slope is compared
+    with the market premium through the mean of gamma1_t - (r_m,t - r_f,t) and its standard
+    error. Vectorised over periods with masked sums; periods with fewer than ``min_assets``
+    holdings are dropped. Returns the test and the T x 2 period estimates (NaN if dropped)."""
+    b = np.asarray(beta, dtype=float)
+    use = np.isfinite(b)
+    y = excess[:, use]
+    b = b[use]
+    mask = np.isfinite(y)
+    m = mask.astype(float)
+    y0 = np.where(mask, y, 0.0)
+    n = m.sum(axis=1)
+    sb, sbb = m @ b, m @ (b * b)
+    sy, sby = y0.sum(axis=1), y0 @ b
+    with np.errstate(invalid="ignore", divide="ignore"):
+        g1 = (sby - sb * sy / n) / (sbb - sb * sb / n)
+        g0 = (sy - g1 * sb) / n
+    keep = (n >= min_assets) & np.isfinite(g1) & np.isfinite(market_excess)
+    g = np.full((len(n), 2), np.nan)
+    g[keep, 0], g[keep, 1] = g0[keep], g1[keep]
+    T = int(keep.sum())
+    if T < 2:
+        return _no_line_test("Fama-MacBeth", int(use.sum()), T,
+                             float(np.mean(market_excess))), g
+    root = np.sqrt(T)
+    gap = g1[keep] - market_excess[keep]
+    s0 = float(np.std(g0[keep], ddof=1) / root)
+    s1 = float(np.std(g1[keep], ddof=1) / root)
+    test = LineTest("Fama-MacBeth", int(use.sum()), T, float(g0[keep].mean()), s0,
+                    float(g1[keep].mean()), s1, float(market_excess[keep].mean()),
+                    float(gap.mean() / (np.std(gap, ddof=1) / root)),
+                    float(g0[keep].mean()) / s0)
+    return test, g
+
+
+@dataclass(frozen=True)
+class GRSTest:
+    """Gibbons, Ross and Shanken (1989) F-test that every alpha is zero."""
+
+    applies: bool
+    reason: str                 # why it does not apply ("" when it does)
+    assets: str                 # what was tested: "holdings" or "sector portfolios"
+    n_assets: int
+    n_periods: int
+    f_stat: float
+    df_num: int
+    df_den: int
+    p_value: float
+
+
+def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdings") -> GRSTest:
+    """GRS statistic F = (T - N - 1)/N x a' S^-1 a / (1 + m^2 / s^2) ~ F(N, T - N - 1) under
+    normal errors, with a the N market-model alphas, S the residual covariance and m, s^2 the
+    market premium's mean and variance, both maximum-likelihood (divisor T) (Gibbons, Ross
+    and Shanken 1989; the form in Cochrane, *Asset Pricing*, ch. 12). Needs complete
+    T x N returns and T > N + 1; otherwise the result says why it does not apply."""
+    from scipy import stats
+
+    y = np.asarray(excess, dtype=float)
+    x = np.asarray(market_excess, dtype=float)
+    T, N = y.shape
+    nan = float("nan")
+    if N == 0:
+        return GRSTest(False, "no assets with a complete history", assets, 0, T, nan, 0, 0, nan)
+    if not (T > N + 1):
+        return GRSTest(False, f"needs more periods than assets plus one (T = {T}, N = {N})",
+                       assets, N, T, nan, N, T - N - 1, nan)
+    X = np.column_stack([np.ones(T), x])
+    coef, *_ = np.linalg.lstsq(X, y, rcond=None)
+    e = y - X @ coef
+    alpha = coef[0]
+    sigma = e.T @ e / T
+    mu = float(x.mean())
+    var_m = float(np.mean((x - mu) ** 2))
+    quad = float(alpha @ np.linalg.solve(sigma, alpha))
+    f = (T - N - 1) / N * quad / (1.0 + mu * mu / var_m)
+    return GRSTest(True, "", assets, N, T, float(f), N, T - N - 1,
+                   float(stats.f.sf(f, N, T - N - 1)))
