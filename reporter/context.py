@@ -34,6 +34,13 @@ CAUTIONS = (
 )
 
 
+# Holdings listed in the body's "beta differs from 1" table (the appendix marks all of them),
+# and the number of holdings above which the appendix is set densely: a long pack stays
+# readable and WeasyPrint lays out fewer pages (see BENCHMARKS.md).
+BETA_LIST_MAX = 25
+COMPACT_APPENDIX_FROM = 250
+
+
 @dataclass(frozen=True)
 class Section:
     anchor: str
@@ -88,7 +95,7 @@ class PackContext:
     blume: tuple[float, float]       # intercept, slope
     dimson_lags: int
     show_thin_trading: bool          # daily or weekly data
-    beta_not_one: list[dict]         # holdings whose beta interval excludes 1
+    beta_not_one: list[dict]         # the largest BETA_LIST_MAX whose beta interval excludes 1
     curve_90: int                    # holdings at which 90% of diversifiable variance is gone
     curve_95: int
     charts: dict[str, alt.TopLevelMixin] = field(repr=False)
@@ -105,6 +112,8 @@ class PackContext:
     calendar_returns: list[dict] = field(default_factory=list)   # and calendar-year rows
     mar_fixed: float | None = None   # fixed annual MAR, or None for the risk-free rate
     risk_holdings: list[dict] = field(default_factory=list)   # largest risk contributors
+    beta_not_one_total: int = 0      # how many holdings' beta intervals exclude 1
+    compact_appendix: bool = False   # a long holdings appendix set in a denser layout
     risk_sectors: list[dict] = field(default_factory=list)    # contributions by sector
     covariance_auto: bool = True     # the method was chosen by the "auto" rule
     has_benchmark: bool = False      # an optional benchmark series was given
@@ -167,7 +176,10 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         blume=(settings.blume_intercept, settings.blume_slope),
         dimson_lags=settings.dimson_lags,
         show_thin_trading=settings.frequency in ("daily", "weekly"),
-        beta_not_one=_records(by_weight[by_weight["beta_differs_from_1"].astype(bool)]),
+        beta_not_one=_records(by_weight[by_weight["beta_differs_from_1"].astype(bool)]
+                              .head(BETA_LIST_MAX)),
+        beta_not_one_total=int(by_weight["beta_differs_from_1"].astype(bool).sum()),
+        compact_appendix=len(by_weight) > COMPACT_APPENDIX_FROM,
         curve_90=_holdings_to_remove(res, 0.90), curve_95=_holdings_to_remove(res, 0.95),
         charts=charts,
         limits=limits,
