@@ -5,7 +5,10 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test lint demo-data golden clean
+AXE_VERSION := 4.14.1
+AXE := build/npm/node_modules/axe-core/axe.min.js
+
+.PHONY: demo test lint demo-data golden clean browser
 
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
@@ -16,7 +19,21 @@ $(STAMP): pyproject.toml
 demo: $(STAMP)
 	$(BIN)/reporter build inputs/demo --out build/demo
 
-test: $(STAMP)
+# Browser tests need Debian's chromium; PDF checks need poppler-utils (CI runs as root on a
+# fresh Debian machine). Playwright drives /usr/bin/chromium: its own browser download is
+# never used.
+browser:
+	@command -v chromium >/dev/null && command -v pdftoppm >/dev/null || \
+	  (apt-get update && apt-get install -y chromium poppler-utils)
+
+# axe-core (accessibility checks run inside the page) from the npm registry, into build/.
+$(AXE):
+	command -v npm >/dev/null || (apt-get update && apt-get install -y npm)
+	mkdir -p build/npm
+	npm install --prefix build/npm --no-save --no-audit --no-fund --loglevel=error \
+	  axe-core@$(AXE_VERSION)
+
+test: $(STAMP) browser $(AXE)
 	$(BIN)/ruff check reporter tests
 	$(BIN)/python -m pytest
 

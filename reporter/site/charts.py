@@ -35,6 +35,11 @@ def _utc_x(field: str, title: str | None = None) -> alt.X:
                  axis=alt.Axis(format="%b %Y", labelAngle=0))
 
 
+def _period_x() -> alt.X:
+    # signed period ends are a few discrete dates: one evenly spaced label each
+    return alt.X("period_end:O", title="Period end", axis=alt.Axis(labelAngle=0))
+
+
 def sml_chart(pack: SignedPack) -> alt.LayerChart:
     """Each fitted holding's beta against its annualised mean excess return, with the
     ex post security market line E[r - r_f] = beta x mean market premium (annualised),
@@ -84,7 +89,6 @@ def rolling_chart(pack: SignedPack) -> alt.LayerChart:
     """The portfolio's trailing-window OLS beta with its confidence band; hovering picks
     the nearest window end, marks it with a rule and shows its figures."""
     df = pack.rolling.rename(columns={"beta_ci_low": "lo", "beta_ci_high": "hi"}).copy()
-    df["label"] = df["date"]
     window = int(pack.portfolio["rolling_window"])
     x = _utc_x("date")
     hover = alt.selection_point(name="rolling_hover", nearest=True, on="pointerover",
@@ -96,7 +100,9 @@ def rolling_chart(pack: SignedPack) -> alt.LayerChart:
         color=GREY, strokeDash=[4, 3]).encode(y="y:Q").properties(name="rolling_one")
     line = alt.Chart(df).mark_line(color=TEAL, strokeWidth=2).encode(
         x=x, y="beta:Q").properties(name="rolling_line")
-    tips = [alt.Tooltip("label:N", title="Window ending"),
+    # a temporal field (Vega-Lite 6.4's nearest-point tooltips read text fields from the
+    # wrong datum); the UTC time unit shows the calendar date in every time zone
+    tips = [alt.Tooltip("utcyearmonthdate(date):T", title="Window ending", format="%Y-%m-%d"),
             alt.Tooltip("beta:Q", title="Beta", format=".3f"),
             alt.Tooltip("lo:Q", title="Interval from", format=".3f"),
             alt.Tooltip("hi:Q", title="Interval to", format=".3f")]
@@ -119,7 +125,7 @@ def trend_chart(rows: pd.DataFrame, value: str, title: str, fmt: str, *,
     interval bar when ``lo``/``hi`` are given; the tooltip names pack, period and value."""
     df = rows.copy()
     packs = sorted(df["pack"].unique())
-    x = _utc_x("period_end", "Period end")
+    x = _period_x()
     y = alt.Y(f"{value}:Q", title=title, scale=alt.Scale(zero=False),
               axis=alt.Axis(format=fmt))
     colour = alt.Color("pack:N", title="Pack", scale=alt.Scale(
@@ -151,7 +157,7 @@ def limits_chart(rows: pd.DataFrame) -> alt.Chart:
             alt.Tooltip("threshold:Q", title="Threshold", format=".4~g")]
     n_limits = max(1, rows["limit"].nunique())
     return alt.Chart(rows).mark_point(filled=True, size=220, opacity=1).encode(
-        x=_utc_x("period_end", "Period end"),
+        x=_period_x(),
         y=alt.Y("limit:N", title=None, sort=sorted(rows["limit"].unique())),
         shape=alt.Shape("status:N", title="Status", scale=alt.Scale(
             domain=list(LIMIT_STATUSES), range=[LIMIT_SHAPES[s] for s in LIMIT_STATUSES])),
