@@ -7,6 +7,9 @@ STAMP := $(VENV)/.installed
 
 AXE_VERSION := 4.14.1
 AXE := build/npm/node_modules/axe-core/axe.min.js
+DEMO_RUN := build/demo-run
+DEMO_PERIODS := 2026-09-30 2026-10-31
+SIGNER := --by "Ruth Okafor" --role "Chair of the investment committee"
 
 .PHONY: demo test lint demo-data golden clean browser
 
@@ -16,8 +19,23 @@ $(STAMP): pyproject.toml
 	$(BIN)/python -m pip install --quiet -e ".[test]"
 	touch $(STAMP)
 
+# The demo pack, then a demo archive of three signed periods (the demo pack re-dated to
+# the two month-ends before it) made from scratch in a fresh $(DEMO_RUN) each time (build/
+# is scratch: no real archive lives there), and the trustees' site built from it into site/.
 demo: $(STAMP)
 	$(BIN)/reporter build inputs/demo --out build/demo
+	rm -rf $(DEMO_RUN) && mkdir -p $(DEMO_RUN)
+	for p in $(DEMO_PERIODS); do \
+	  mkdir -p $(DEMO_RUN)/inputs-$$p && cp inputs/demo/*.csv $(DEMO_RUN)/inputs-$$p/ && \
+	  sed "s/^period_end = .*/period_end = $$p/" inputs/demo/pack.toml \
+	    > $(DEMO_RUN)/inputs-$$p/pack.toml && \
+	  $(BIN)/reporter build $(DEMO_RUN)/inputs-$$p --out $(DEMO_RUN)/build-$$p --quiet && \
+	  $(BIN)/reporter sign-off $(DEMO_RUN)/build-$$p --archive $(DEMO_RUN)/archive \
+	    $(SIGNER) --minute-ref IC-$$p --quiet || exit 1; \
+	done
+	$(BIN)/reporter sign-off build/demo --archive $(DEMO_RUN)/archive $(SIGNER) \
+	  --minute-ref IC-2026-11-30 --quiet
+	$(BIN)/reporter site --archive $(DEMO_RUN)/archive --out site
 
 # Browser tests need Debian's chromium; PDF checks need poppler-utils (CI runs as root on a
 # fresh Debian machine). Playwright drives /usr/bin/chromium: its own browser download is
