@@ -359,3 +359,17 @@ def test_bad_limits_file_names_item_and_key():
     ]
     with pytest.raises(InputError, match="not valid JSON"):
         read_limits(b"{", "limits.json")
+
+
+def test_empty_archive_gives_a_site_that_says_so(tmp_path, capsys):
+    from reporter.archive.ledger import connect_for_writing
+
+    archive = tmp_path / "archive"
+    archive.mkdir()
+    connect_for_writing(archive).close()          # a new ledger with no entries
+    out = tmp_path / "site"
+    code, stdout, _ = run(capsys, "site", "--archive", archive, "--out", out, "--quiet")
+    assert code == 0 and "0 signed pack(s)" in stdout
+    assert "The archive holds no signed packs yet." in (out / "index.html").read_text()
+    assert "no limit status to show yet" in (out / "trends" / "limits.html").read_text()
+    assert not (out / "packs").exists()

@@ -301,7 +301,7 @@ def test_holdings_table_sorts_from_the_keyboard(browser, site_dir, site_archive,
         # Tab reaches the next sort button: every control is keyboard operable
         page.keyboard.press("Tab")
         focused = page.evaluate("document.activeElement.textContent.trim()")
-        assert focused == "Beta interval"
+        assert focused == "Beta interval from"
         assert "Sorted by Beta, descending." in page.locator(
             "table.holdings + p[aria-live]").inner_text()
         assert not v.console

@@ -92,6 +92,7 @@ def relative(target: str, here: str) -> str:
 
 
 def pack_page(pack: SignedPack) -> str:
+    """The site path of a sign-off's own page."""
     return f"packs/{pack.name}/index.html"
 
 
@@ -101,10 +102,12 @@ def entry_page(entry) -> str:
 
 
 def pack_pdf(pack: SignedPack) -> str:
+    """The site path of the copy of the signed PDF (it keeps its archive name)."""
     return f"packs/{pack.name}/{pack.name}.pdf"
 
 
 def pack_html(pack: SignedPack) -> str:
+    """The site path of the copy of the archived HTML pack."""
     return f"packs/{pack.name}/pack.html"
 
 
