@@ -42,11 +42,11 @@ demo: $(STAMP)
 # never used.
 browser:
 	@command -v chromium >/dev/null && command -v pdftoppm >/dev/null || \
-	  (apt-get update && apt-get install -y chromium poppler-utils)
+	  (apt-get update && DEBIAN_FRONTEND=noninteractive apt-get install -y chromium poppler-utils)
 
 # axe-core (accessibility checks run inside the page) from the npm registry, into build/.
 $(AXE):
-	command -v npm >/dev/null || (apt-get update && apt-get install -y npm)
+	command -v npm >/dev/null || (apt-get update && DEBIAN_FRONTEND=noninteractive apt-get install -y npm)
 	mkdir -p build/npm
 	npm install --prefix build/npm --no-save --no-audit --no-fund --loglevel=error \
 	  axe-core@$(AXE_VERSION)

@@ -373,3 +373,28 @@ def test_empty_archive_gives_a_site_that_says_so(tmp_path, capsys):
     assert "The archive holds no signed packs yet." in (out / "index.html").read_text()
     assert "no limit status to show yet" in (out / "trends" / "limits.html").read_text()
     assert not (out / "packs").exists()
+
+
+def test_chart_spec_text_cannot_close_its_script_element():
+    import altair as alt
+    import pandas as pd
+
+    from reporter.site.charts import spec_json
+
+    name = "</script><script>alert(1)</script> & <!-- Co"
+    chart = alt.Chart(pd.DataFrame({"holding": [name], "beta": [1.2]})).mark_point().encode(
+        x="beta:Q", tooltip=["holding:N"])
+    text = spec_json(chart)
+    assert "<" not in text and ">" not in text and "&" not in text
+    spec = json.loads(text)                        # still JSON, with the name intact
+    assert _values(spec) == [{"holding": name, "beta": 1.2}]
+    assert spec_json(chart) == text                # the same chart, the same text
+
+
+def test_relative_links_between_pages():
+    from reporter.site.build import relative
+
+    assert relative("assets/site.css", "index.html") == "assets/site.css"
+    assert relative("assets/site.css", "packs/x/index.html") == "../../assets/site.css"
+    assert relative("trends/beta.html", "trends/limits.html") == "beta.html"
+    assert relative("index.html", "trends/beta.html") == "../index.html"
