@@ -71,6 +71,7 @@ class Trend:
     fmt: str
     lo: str | None = None
     hi: str | None = None
+    axis: str = ""                     # the value axis title
 
     @property
     def path(self) -> str:
@@ -141,16 +142,16 @@ def trends(packs: list[SignedPack]) -> list[Trend]:
         Trend("beta", "Portfolio beta", "Portfolio beta at each signed period",
               frame({"beta": "beta_regression", "beta_lo": "beta_ci_low",
                      "beta_hi": "beta_ci_high", "beta_weighted": "beta_weighted"}),
-              "beta", ".2f", "beta_lo", "beta_hi"),
+              "beta", ".2f", "beta_lo", "beta_hi", "Portfolio beta"),
         Trend("effective-holdings", "Effective number of holdings",
               "Effective number of holdings at each signed period",
               frame({"effective_n": "effective_n", "n_holdings": "n_holdings"}),
-              "effective_n", ".1f"),
+              "effective_n", ".1f", axis="Effective number of holdings"),
         Trend("tracking-error", "Tracking error",
               "Tracking error (annualised) at each signed period",
               frame({"tracking_error_ann": "tracking_error_ann",
                      "information_ratio_ann": "information_ratio_ann"}),
-              "tracking_error_ann", ".2%"),
+              "tracking_error_ann", ".2%", axis="Tracking error, annualised"),
         Trend("limits", "Limit status", "Policy limit status at each signed period",
               limits, None, ""),
     ]
@@ -234,8 +235,8 @@ def render_site(archive: Path, packs: list[SignedPack], head_hash: str | None) -
     for t in trend_pages:
         spec = None
         if len(t.rows):
-            chart = (site_charts.limits_chart(t.rows) if t.value is None else
-                     site_charts.trend_chart(t.rows, t.value, t.title, t.fmt, lo=t.lo, hi=t.hi))
+            chart = (site_charts.limits_chart(t.rows, periods) if t.value is None else
+                     site_charts.trend_chart(t.rows, t.value, t.axis, t.fmt, lo=t.lo, hi=t.hi))
             spec = site_charts.spec_json(chart)
         page(t.path, "trend.html.j2", trend=t, spec=spec,
              records=t.rows.to_dict(orient="records"),

@@ -35,9 +35,11 @@ def _utc_x(field: str, title: str | None = None) -> alt.X:
                  axis=alt.Axis(format="%b %Y", labelAngle=0))
 
 
-def _period_x() -> alt.X:
+def _period_x(periods: list[str] | None = None) -> alt.X:
     # signed period ends are a few discrete dates: one evenly spaced label each
-    return alt.X("period_end:O", title="Period end", axis=alt.Axis(labelAngle=0))
+    scale = alt.Scale(domain=periods) if periods else alt.Undefined
+    return alt.X("period_end:O", title="Period end", axis=alt.Axis(labelAngle=0),
+                 scale=scale)
 
 
 def sml_chart(pack: SignedPack) -> alt.LayerChart:
@@ -149,15 +151,16 @@ def trend_chart(rows: pd.DataFrame, value: str, title: str, fmt: str, *,
     return alt.layer(*layers).properties(width="container", height=HEIGHT)
 
 
-def limits_chart(rows: pd.DataFrame) -> alt.Chart:
-    """Each limit's status at each signed period end: marker shape and colour by status."""
+def limits_chart(rows: pd.DataFrame, periods: list[str]) -> alt.Chart:
+    """Each limit's status at each signed period end (every one in ``periods`` has a place,
+    reported or not): marker shape and colour by status."""
     tips = [alt.Tooltip("limit:N", title="Limit"), alt.Tooltip("period_end:N", title="Period"),
             alt.Tooltip("status:N", title="Status"),
             alt.Tooltip("value:Q", title="Value", format=".4~g"),
             alt.Tooltip("threshold:Q", title="Threshold", format=".4~g")]
     n_limits = max(1, rows["limit"].nunique())
     return alt.Chart(rows).mark_point(filled=True, size=220, opacity=1).encode(
-        x=_period_x(),
+        x=_period_x(periods),
         y=alt.Y("limit:N", title=None, sort=sorted(rows["limit"].unique())),
         shape=alt.Shape("status:N", title="Status", scale=alt.Scale(
             domain=list(LIMIT_STATUSES), range=[LIMIT_SHAPES[s] for s in LIMIT_STATUSES])),
