@@ -5,7 +5,13 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test lint demo-data bad-cases golden bench clean
+AXE_VERSION := 4.14.1
+AXE := build/npm/node_modules/axe-core/axe.min.js
+DEMO_RUN := build/demo-run
+DEMO_PERIODS := 2026-09-30 2026-10-31
+SIGNER := --by "Ruth Okafor" --role "Chair of the investment committee"
+
+.PHONY: demo test lint demo-data bad-cases golden bench clean browser
 
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
@@ -13,10 +19,39 @@ $(STAMP): pyproject.toml
 	$(BIN)/python -m pip install --quiet -e ".[test]"
 	touch $(STAMP)
 
+# The demo pack, then a demo archive of three signed periods (the demo pack re-dated to
+# the two month-ends before it) made from scratch in a fresh $(DEMO_RUN) each time (build/
+# is scratch: no real archive lives there), and the trustees' site built from it into site/.
 demo: $(STAMP)
 	$(BIN)/reporter build inputs/demo --out build/demo
+	rm -rf $(DEMO_RUN) && mkdir -p $(DEMO_RUN)
+	for p in $(DEMO_PERIODS); do \
+	  mkdir -p $(DEMO_RUN)/inputs-$$p && cp inputs/demo/*.csv $(DEMO_RUN)/inputs-$$p/ && \
+	  sed "s/^period_end = .*/period_end = $$p/" inputs/demo/pack.toml \
+	    > $(DEMO_RUN)/inputs-$$p/pack.toml && \
+	  $(BIN)/reporter build $(DEMO_RUN)/inputs-$$p --out $(DEMO_RUN)/build-$$p --quiet && \
+	  $(BIN)/reporter sign-off $(DEMO_RUN)/build-$$p --archive $(DEMO_RUN)/archive \
+	    $(SIGNER) --minute-ref IC-$$p --quiet || exit 1; \
+	done
+	$(BIN)/reporter sign-off build/demo --archive $(DEMO_RUN)/archive $(SIGNER) \
+	  --minute-ref IC-2026-11-30 --quiet
+	$(BIN)/reporter site --archive $(DEMO_RUN)/archive --out site
 
-test: $(STAMP)
+# Browser tests need Debian's chromium; PDF checks need poppler-utils (CI runs as root on a
+# fresh Debian machine). Playwright drives /usr/bin/chromium: its own browser download is
+# never used.
+browser:
+	@command -v chromium >/dev/null && command -v pdftoppm >/dev/null || \
+	  (apt-get update && DEBIAN_FRONTEND=noninteractive apt-get install -y chromium poppler-utils)
+
+# axe-core (accessibility checks run inside the page) from the npm registry, into build/.
+$(AXE):
+	command -v npm >/dev/null || (apt-get update && DEBIAN_FRONTEND=noninteractive apt-get install -y npm)
+	mkdir -p build/npm
+	npm install --prefix build/npm --no-save --no-audit --no-fund --loglevel=error \
+	  axe-core@$(AXE_VERSION)
+
+test: $(STAMP) browser $(AXE)
 	$(BIN)/ruff check reporter tests
 	$(BIN)/python -m pytest
 

@@ -179,6 +179,26 @@ def build_all_cmd(schemes_dir: Path, out: Path, workers, scheduler, strict: bool
         raise _Exit(EXIT_FAILED)
 
 
+@cli.command()
+@click.option("--archive", "-a", required=True, type=click.Path(path_type=Path),
+              help="Archive folder to publish (it must pass 'reporter verify').")
+@click.option("--out", "-o", required=True, type=click.Path(path_type=Path),
+              help="Site folder; replaced whole and atomically when the build succeeds.")
+@quiet_option
+@debug_option
+def site(archive: Path, out: Path, quiet: bool, debug: bool) -> None:
+    """Build the trustees' static site from the signed packs in --archive into --out.
+
+    Exit 1 (nothing written) when the archive fails verification.
+    """
+    from reporter.progress import Progress
+    from reporter.site import build_site
+
+    report = _run(lambda: build_site(archive, out, progress=Progress(quiet=quiet)), debug)
+    click.echo(f"wrote {report.out}: {report.n_packs} signed pack(s), {len(report.files)} "
+               f"files, {report.n_bytes:,} bytes; ledger head {report.head_hash or '(empty)'}")
+
+
 def _print_warnings(warnings) -> None:
     for w in warnings[:MAX_LINES]:
         click.echo(str(w), err=True)
