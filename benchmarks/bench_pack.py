@@ -58,6 +58,7 @@ def run_stages(folder: Path) -> dict:
     from reporter.charts import build_charts
     from reporter.config import load_settings
     from reporter.context import build_context
+    from reporter.readers import release_read_buffers
     from reporter.render.html import export_charts, render_html
     from reporter.render.pdf import render_pdf
     from reporter.validate import read_inputs, validate_tables
@@ -66,6 +67,8 @@ def run_stages(folder: Path) -> dict:
     settings = load_settings(folder)
     raws, problems = _timed(t, "read", lambda: read_inputs(settings))
     inputs = _timed(t, "validate", lambda: validate_tables(settings, raws, problems))
+    raws.clear()                                    # as reporter.build.assemble does
+    release_read_buffers()
     res = _timed(t, "analytics", lambda: analyse(inputs, settings))
 
     def charts():

@@ -29,6 +29,7 @@ from reporter.errors import InputError, Problem
 from reporter.limits import LimitsReport, evaluate_limits
 from reporter.models import ValidInputs
 from reporter.progress import Progress
+from reporter.readers import release_read_buffers
 from reporter.render.html import export_charts, render_html
 from reporter.render.pdf import render_pdf
 from reporter.validate import read_inputs, validate_tables
@@ -136,6 +137,8 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
         own, own_problems = validate_portfolio_returns(settings, raws)
         inputs = validate_tables(settings, raws,
                                  [*read_problems, *bench_problems, *own_problems], strict=strict)
+        del raws                    # the typed inputs hold everything needed from here on
+        release_read_buffers()
     with progress.stage("analyse"):
         res = analyse(inputs, settings, benchmark=benchmark, portfolio=own)
         hashes = input_hashes(settings)
