@@ -10,11 +10,10 @@ import platform
 import tempfile
 from pathlib import Path
 
-import numpy as np
-import pandas as pd
 import pyarrow as pa
 import pyarrow.csv as pacsv
 from timing import best_of, paired_ratios
+from workloads import write_scheme
 
 from reporter.config import load_settings
 from reporter.validate import validate_pack
@@ -23,36 +22,9 @@ N_HOLDINGS, N_PERIODS = 2000, 2520
 
 
 def write_pack(folder: Path) -> None:
-    rng = np.random.default_rng(3)
-    dates = pd.bdate_range(end="2026-11-30", periods=N_PERIODS)
-    iso = dates.strftime("%Y-%m-%d").to_numpy()
-    ids = np.array([f"BX{i:05d}" for i in range(N_HOLDINGS)])
-    market = rng.normal(0.0003, 0.011, N_PERIODS)
-    rets = market[:, None] * rng.uniform(0.3, 1.8, N_HOLDINGS) + rng.normal(
-        0, 0.015, (N_PERIODS, N_HOLDINGS))
-    table = pa.table({"date": np.repeat(iso, N_HOLDINGS), "security_id": np.tile(ids, N_PERIODS),
-                      "return": rets.ravel().round(6)})
-    pacsv.write_csv(table, folder / "returns.csv")
-    pd.DataFrame({"date": iso, "return": market.round(6)}).to_csv(folder / "market.csv",
-                                                                  index=False)
-    pd.DataFrame({"date": iso, "rate": 0.0001}).to_csv(folder / "risk_free.csv", index=False)
-    w = np.full(N_HOLDINGS, 1 / N_HOLDINGS)
-    pd.DataFrame({"security_id": ids, "name": ids, "sector": "Equity", "weight": w}).to_csv(
-        folder / "holdings.csv", index=False)
-    (folder / "pack.toml").write_text("""[pack]
-title = "Load benchmark"
-organisation = "Invented"
-period_end = 2026-11-30
-frequency = "daily"
-[inputs]
-holdings = "holdings.csv"
-returns = "returns.csv"
-market = "market.csv"
-risk_free = "risk_free.csv"
-[analysis]
-window = 2520
-min_obs = 24
-""")
+    """The invented workload: every holding has every daily return (no late listings)."""
+    write_scheme(folder, N_HOLDINGS, N_PERIODS, "daily", seed=3, label="BX", window=N_PERIODS,
+                 late_share=0.0)
 
 
 def main() -> None:

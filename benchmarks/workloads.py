@@ -35,8 +35,10 @@ min_obs = {min_obs}
 
 
 def write_scheme(folder: Path, n_holdings: int, n_periods: int, frequency: str = "monthly",
-                 seed: int = 1, label: str = "", window: int | None = None) -> Path:
-    """Write a pack folder with ``n_holdings`` holdings over ``n_periods`` periods."""
+                 seed: int = 1, label: str = "", window: int | None = None,
+                 late_share: float = 0.05) -> Path:
+    """Write a pack folder with ``n_holdings`` holdings over ``n_periods`` periods, of which
+    a share ``late_share`` list part-way through the first half."""
     folder.mkdir(parents=True, exist_ok=True)
     rng = np.random.default_rng(seed)
     end = "2026-11-30"
@@ -53,7 +55,7 @@ def write_scheme(folder: Path, n_holdings: int, n_periods: int, frequency: str =
     rets = (rf[:, None] + beta * mkt_excess[:, None] + 0.8 * shocks[:, sector]
             + rng.normal(0, 1, (n_periods, n_holdings)) * idio).round(6)
     start = np.zeros(n_holdings, dtype=int)
-    late = rng.random(n_holdings) < 0.05                       # 5% listed part-way through
+    late = rng.random(n_holdings) < late_share                 # listed part-way through
     start[late] = rng.integers(0, n_periods // 2, late.sum())
     present = np.arange(n_periods)[:, None] >= start[None, :]
     ids = np.array([f"{label or 'BX'}{i:05d}" for i in range(n_holdings)])

@@ -51,9 +51,32 @@ class OutputSet:
         return sorted(self._files)
 
 
-def check_target(target: Path) -> None:
-    """Refuse a target that is (or is inside) an archive, or an existing folder that is not a
-    previous build's output (so that nobody's files are replaced by mistake)."""
+# What the marker file says: which kind of output the folder holds.
+MARKER_TEXT = {"pack": b"committee-pack-reporter build output\n",
+               "site": b"committee-pack-reporter site output\n"}
+KIND_NAME = {"pack": "a pack build", "site": "a trustees' site"}
+
+
+def marker_kind(folder: Path) -> str | None:
+    """The kind of output (``pack`` or ``site``) a folder's marker names; None without one.
+    Sites made before sites had a marker of their own carry the pack text: a folder with that
+    text, an ``index.html`` and no ``pack.pdf`` is taken for a site."""
+    try:
+        text = (Path(folder) / BUILD_MARKER).read_bytes()
+    except OSError:
+        return None
+    if text == MARKER_TEXT["site"]:
+        return "site"
+    legacy_site = (Path(folder) / "index.html").is_file() and not (
+        Path(folder) / "pack.pdf").exists()
+    return "site" if legacy_site else "pack"
+
+
+def check_target(target: Path, kind: str = "pack") -> None:
+    """Refuse a target that is (or is inside) an archive, an existing folder that is not an
+    earlier output of this tool, or an earlier output of the other ``kind`` (a pack build
+    never replaces a trustees' site, nor the reverse), so that nobody's files are replaced by
+    mistake."""
     target = Path(target).absolute()
     refuse_archive(target)
     if target.exists():
@@ -61,7 +84,11 @@ def check_target(target: Path) -> None:
             raise OutputError(f"{target}: exists and is not a folder")
         entries = [e for e in os.listdir(target)]
         if entries and BUILD_MARKER not in entries:
-            raise OutputError(f"{target}: folder exists, is not empty and is not a pack build; "
+            raise OutputError(f"{target}: folder exists, is not empty and is not "
+                              f"{KIND_NAME[kind]}; refusing to replace it (choose another --out)")
+        found = marker_kind(target) if entries else None
+        if found is not None and found != kind:
+            raise OutputError(f"{target}: holds {KIND_NAME[found]}, not {KIND_NAME[kind]}; "
                               "refusing to replace it (choose another --out)")
 
 
@@ -74,10 +101,12 @@ def refuse_archive(target: Path) -> None:
                               "signed packs are never overwritten")
 
 
-def commit(files: OutputSet, target: Path) -> None:
-    """Write ``files`` into ``target`` atomically: all of them appear at once, or none."""
+def commit(files: OutputSet, target: Path, kind: str = "pack") -> None:
+    """Write ``files`` into ``target`` atomically: all of them appear at once, or none.
+    ``kind`` (``pack`` or ``site``) is written in the folder's marker and checked against an
+    earlier output there (see :func:`check_target`)."""
     target = Path(target).absolute()
-    check_target(target)
+    check_target(target, kind)
     target.parent.mkdir(parents=True, exist_ok=True)
     _remove_stale_temps(target)
     tmp = target.parent / f".{target.name}{_TMP_TAG}{os.getpid()}"
@@ -85,7 +114,7 @@ def commit(files: OutputSet, target: Path) -> None:
         shutil.rmtree(tmp)
     tmp.mkdir()
     try:
-        (tmp / BUILD_MARKER).write_bytes(b"committee-pack-reporter build output\n")
+        (tmp / BUILD_MARKER).write_bytes(MARKER_TEXT[kind])
         for rel in files.paths:
             dest = tmp / rel
             dest.parent.mkdir(parents=True, exist_ok=True)

@@ -141,3 +141,25 @@ def site_dir(site_archive, tmp_path_factory) -> Path:
     out = tmp_path_factory.mktemp("site") / "site"
     assert main(["site", "--archive", str(site_archive), "--out", str(out), "--quiet"]) == 0
     return out
+
+
+def ledger_entries(archive: Path) -> list[dict]:
+    """Every row of an archive's ledger, oldest first, read with plain sqlite3 (independent of
+    the tool's own ledger code)."""
+    import sqlite3
+
+    con = sqlite3.connect(archive / "ledger.sqlite")
+    con.row_factory = sqlite3.Row
+    try:
+        return [dict(r) for r in con.execute("SELECT * FROM entries ORDER BY seq")]
+    finally:
+        con.close()
+
+
+def run_cli(capsys, *argv) -> tuple[int, str, str]:
+    """``reporter`` called in-process: its exit code, stdout and stderr."""
+    from reporter.cli import main
+
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err

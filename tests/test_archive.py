@@ -17,8 +17,7 @@ from pathlib import Path
 import pypdf
 import pytest
 
-from reporter.cli import main
-from tests.conftest import DEMO, SIGNER
+from tests.conftest import DEMO, SIGNER, ledger_entries, run_cli
 
 PERIOD = "2026-11-30"
 FIRST = f"{PERIOD}/tarnbrook-valley-{PERIOD}.pdf"
@@ -30,19 +29,6 @@ def sha(path: Path) -> str:
     return hashlib.sha256(path.read_bytes()).hexdigest()
 
 
-def rows(archive: Path) -> list[dict]:
-    con = sqlite3.connect(archive / "ledger.sqlite")
-    con.row_factory = sqlite3.Row
-    try:
-        return [dict(r) for r in con.execute("SELECT * FROM entries ORDER BY seq")]
-    finally:
-        con.close()
-
-
-def run(capsys, *argv) -> tuple[int, str, str]:
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 @pytest.fixture
@@ -115,7 +101,7 @@ def test_sign_off_page_states_who_when_and_the_input_hashes(signed_pdf, signed_a
     assert "Sign-off record" in last
     for value in (SIGNER["by"], SIGNER["role"], SIGNER["minute_ref"], SIGNER["note"]):
         assert value in last, value
-    entry = rows(signed_archive)[0]
+    entry = ledger_entries(signed_archive)[0]
     assert entry["signed_utc"].replace("T", " ").replace("Z", " UTC") in last
     for name in ["pack.toml", *INPUT_FILES]:
         assert sha(DEMO / name) in last.replace(" ", ""), name
@@ -147,7 +133,7 @@ def test_archive_layout_is_read_only_copies_of_the_build(signed_archive, demo_bu
 
 
 def test_ledger_entries_and_hash_chain_recomputed_independently(signed_archive, demo_build):
-    entries = rows(signed_archive)
+    entries = ledger_entries(signed_archive)
     assert [e["seq"] for e in entries] == [1, 2]
     first, second = entries
     assert first["signer"] == SIGNER["by"] and first["role"] == SIGNER["role"]
@@ -174,29 +160,29 @@ def test_ledger_entries_and_hash_chain_recomputed_independently(signed_archive, 
 def test_verify_intact_archive_and_files(signed_archive, demo_build, capsys):
     # per entry: the PDF, pack.html and each results file of the build
     per_entry = 2 + len(list((demo_build / "results").iterdir()))
-    code, out, _ = run(capsys, "verify", "--archive", signed_archive)
+    code, out, _ = run_cli(capsys, "verify", "--archive", signed_archive)
     assert code == 0 and f"archive intact: 2 entries, {2 * per_entry} files" in out
-    assert rows(signed_archive)[-1]["entry_hash"] in out
-    code, out, _ = run(capsys, "verify", signed_archive / FIRST, "--archive", signed_archive)
+    assert ledger_entries(signed_archive)[-1]["entry_hash"] in out
+    code, out, _ = run_cli(capsys, "verify", signed_archive / FIRST, "--archive", signed_archive)
     assert code == 0 and "ledger entry 1" in out and "superseded by entry 2" in out
-    code, out, _ = run(capsys, "verify", signed_archive / SECOND, "--archive", signed_archive)
+    code, out, _ = run_cli(capsys, "verify", signed_archive / SECOND, "--archive", signed_archive)
     assert code == 0 and "ledger entry 2" in out and "superseded" not in out
     # the unsigned draft is not the signed document
-    code, out, _ = run(capsys, "verify", demo_build / "pack.pdf", "--archive", signed_archive)
+    code, out, _ = run_cli(capsys, "verify", demo_build / "pack.pdf", "--archive", signed_archive)
     assert code == 1 and "NOT in the archive" in out
 
 
 def test_second_sign_off_refused_without_supersedes(archive_copy, demo_build, capsys):
-    before = rows(archive_copy)
-    code, _, err = run(capsys, "sign-off", demo_build, "--archive", archive_copy, "--by", "A N",
+    before = ledger_entries(archive_copy)
+    code, _, err = run_cli(capsys, "sign-off", demo_build, "--archive", archive_copy, "--by", "A N",
                        "--quiet")
     assert code == 1
     assert "already signed off: entry 2" in err and "--supersedes --reason" in err
-    assert rows(archive_copy) == before
-    code, _, err = run(capsys, "sign-off", demo_build, "--archive", archive_copy, "--by", "A N",
+    assert ledger_entries(archive_copy) == before
+    code, _, err = run_cli(capsys, "sign-off", demo_build, "--archive", archive_copy, "--by", "A N",
                        "--supersedes", "--quiet")
     assert code == 2 and "--supersedes: needs --reason" in err
-    assert rows(archive_copy) == before
+    assert ledger_entries(archive_copy) == before
 
 
 # --- tampering is caught ------------------------------------------------------------------
@@ -211,9 +197,9 @@ def test_flipped_byte_is_caught(archive_copy, capsys):
     data = bytearray(pdf.read_bytes())
     data[len(data) // 2] ^= 0x01
     pdf.write_bytes(bytes(data))
-    code, out, _ = run(capsys, "verify", "--archive", archive_copy)
+    code, out, _ = run_cli(capsys, "verify", "--archive", archive_copy)
     assert code == 1 and f"{FIRST}: changed: sha256 differs from entry 1" in out
-    code, out, _ = run(capsys, "verify", pdf, "--archive", archive_copy)
+    code, out, _ = run_cli(capsys, "verify", pdf, "--archive", archive_copy)
     assert code == 1 and "NOT in the archive" in out
 
 
@@ -222,7 +208,7 @@ def test_edited_signer_is_caught(archive_copy, capsys):
     con.execute("UPDATE entries SET signer = 'Someone Else' WHERE seq = 1")
     con.commit()
     con.close()
-    code, out, _ = run(capsys, "verify", "--archive", archive_copy)
+    code, out, _ = run_cli(capsys, "verify", "--archive", archive_copy)
     assert code == 1 and "entry 1: ledger-edited" in out
 
 
@@ -231,7 +217,7 @@ def test_deleted_ledger_row_is_caught(archive_copy, capsys):
     con.execute("DELETE FROM entries WHERE seq = 1")
     con.commit()
     con.close()
-    code, out, _ = run(capsys, "verify", "--archive", archive_copy)
+    code, out, _ = run_cli(capsys, "verify", "--archive", archive_copy)
     assert code == 1
     assert "entry 2: ledger-chain: entries 1 to 1 are missing (deleted)" in out
     # the deleted entry's files are now files with no entry
@@ -243,37 +229,37 @@ def test_deleted_last_row_leaves_unrecorded_files(archive_copy, capsys):
     con.execute("DELETE FROM entries WHERE seq = 2")
     con.commit()
     con.close()
-    code, out, _ = run(capsys, "verify", "--archive", archive_copy)
+    code, out, _ = run_cli(capsys, "verify", "--archive", archive_copy)
     assert code == 1 and f"{SECOND}: unrecorded" in out
 
 
 def test_removed_file_is_caught(archive_copy, capsys):
     rel = f"{PERIOD}/tarnbrook-valley-{PERIOD}/results/securities.csv"
     (archive_copy / rel).unlink()
-    code, out, _ = run(capsys, "verify", "--archive", archive_copy)
+    code, out, _ = run_cli(capsys, "verify", "--archive", archive_copy)
     assert code == 1 and f"{rel}: missing: recorded by entry 1" in out
-    code, out, _ = run(capsys, "repair", "--archive", archive_copy)
+    code, out, _ = run_cli(capsys, "repair", "--archive", archive_copy)
     assert code == 1 and "cannot repair" in out and rel in out
 
 
 def test_unreadable_archive_exits_2(tmp_path, capsys):
-    code, _, err = run(capsys, "verify", "--archive", tmp_path / "nowhere")
+    code, _, err = run_cli(capsys, "verify", "--archive", tmp_path / "nowhere")
     assert code == 2 and "no such archive folder" in err
     (tmp_path / "ledger.sqlite").write_bytes(b"not a database at all" * 100)
-    code, _, err = run(capsys, "verify", "--archive", tmp_path)
+    code, _, err = run_cli(capsys, "verify", "--archive", tmp_path)
     assert code == 2 and "cannot be read as a ledger" in err
 
 
 def test_unrecorded_file_is_quarantined_by_repair_never_deleted(archive_copy, capsys):
     stray = archive_copy / PERIOD / "unexpected.pdf"
     stray.write_bytes(b"%PDF-1.7 a file nobody signed")
-    code, out, _ = run(capsys, "verify", "--archive", archive_copy)
+    code, out, _ = run_cli(capsys, "verify", "--archive", archive_copy)
     assert code == 1 and f"{PERIOD}/unexpected.pdf: unrecorded" in out
-    code, out, _ = run(capsys, "repair", "--archive", archive_copy)
+    code, out, _ = run_cli(capsys, "repair", "--archive", archive_copy)
     assert code == 0 and f"moved {PERIOD}/unexpected.pdf -> quarantine/" in out
     kept = list((archive_copy / "quarantine").rglob("unexpected.pdf"))
     assert len(kept) == 1 and kept[0].read_bytes() == b"%PDF-1.7 a file nobody signed"
-    code, out, _ = run(capsys, "verify", "--archive", archive_copy)
+    code, out, _ = run_cli(capsys, "verify", "--archive", archive_copy)
     assert code == 0 and "archive intact" in out
 
 
@@ -289,7 +275,7 @@ def test_build_altered_after_review_is_refused(demo_build, tmp_path, capsys):
     build = _build_copy(demo_build, tmp_path)
     html = build / "pack.html"
     html.write_text(html.read_text().replace("Cautions", "Caution"))
-    code, _, err = run(capsys, "sign-off", build, "--archive", tmp_path / "a", "--by", "A N")
+    code, _, err = run_cli(capsys, "sign-off", build, "--archive", tmp_path / "a", "--by", "A N")
     assert code == 2 and "pack.html: changed since the build" in err
     assert not (tmp_path / "a" / "ledger.sqlite").exists()
 
@@ -300,7 +286,7 @@ def test_inputs_changed_since_build_are_refused(demo_build, tmp_path, capsys):
     m = json.loads(manifest.read_text())
     m["input_sha256"]["returns"] = "0" * 64       # as if returns.csv was edited after
     manifest.write_text(json.dumps(m))
-    code, _, err = run(capsys, "sign-off", build, "--archive", tmp_path / "a", "--by", "A N")
+    code, _, err = run_cli(capsys, "sign-off", build, "--archive", tmp_path / "a", "--by", "A N")
     assert code == 2 and "returns.csv: changed since the pack was built" in err
 
 
@@ -310,18 +296,18 @@ def test_rerender_that_differs_from_the_review_is_refused(demo_build, tmp_path, 
     m = json.loads(manifest.read_text())
     m["built_utc"] = "2026-12-01T09:00:00Z"       # the cover would then show another time
     manifest.write_text(json.dumps(m))
-    code, _, err = run(capsys, "sign-off", build, "--archive", tmp_path / "a", "--by", "A N",
+    code, _, err = run_cli(capsys, "sign-off", build, "--archive", tmp_path / "a", "--by", "A N",
                        "--quiet")
     assert code == 2 and "does not reproduce its pack.html" in err
     assert not (tmp_path / "a" / "ledger.sqlite").exists()
 
 
 def test_not_a_build_and_not_an_archive(demo_build, tmp_path, capsys):
-    code, _, err = run(capsys, "sign-off", tmp_path, "--archive", tmp_path / "a", "--by", "A")
+    code, _, err = run_cli(capsys, "sign-off", tmp_path, "--archive", tmp_path / "a", "--by", "A")
     assert code == 2 and "not a pack build" in err
     other = tmp_path / "papers"
     other.mkdir()
     (other / "minutes.docx").write_bytes(b"x")
-    code, _, err = run(capsys, "sign-off", demo_build, "--archive", other, "--by", "A")
+    code, _, err = run_cli(capsys, "sign-off", demo_build, "--archive", other, "--by", "A")
     assert code == 2 and "not an archive" in err
     assert sorted(p.name for p in other.iterdir()) == ["minutes.docx"]

@@ -11,28 +11,18 @@ import html
 import json
 import re
 import shutil
-import sqlite3
 from html.parser import HTMLParser
 from pathlib import Path
 
 import pytest
 
-from reporter.cli import main
 from reporter.context import CAUTIONS
-from tests.conftest import SITE_LIMITS, SITE_PERIODS
+from tests.conftest import DEMO, SITE_LIMITS, SITE_PERIODS, ledger_entries, run_cli
 
 
 def sha(data: bytes) -> str:
     return hashlib.sha256(data).hexdigest()
 
-
-def ledger(archive: Path) -> list[dict]:
-    con = sqlite3.connect(archive / "ledger.sqlite")
-    con.row_factory = sqlite3.Row
-    try:
-        return [dict(r) for r in con.execute("SELECT * FROM entries ORDER BY seq")]
-    finally:
-        con.close()
 
 
 def stem(entry: dict) -> str:
@@ -66,16 +56,11 @@ def parse(path: Path) -> Links:
     return p
 
 
-def run(capsys, *argv) -> tuple[int, str, str]:
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
-
 
 # --- what the index lists -----------------------------------------------------------------
 
 def test_index_lists_every_sign_off_newest_period_first(site_dir, site_archive):
-    entries = ledger(site_archive)
+    entries = ledger_entries(site_archive)
     assert len(entries) == 4
     text = (site_dir / "index.html").read_text(encoding="utf-8")
     # each entry's article, in page order, by its heading id
@@ -100,7 +85,7 @@ def test_index_lists_every_sign_off_newest_period_first(site_dir, site_archive):
 
 
 def test_copies_are_the_archived_bytes_and_the_sha256_shown_is_theirs(site_dir, site_archive):
-    for e in ledger(site_archive):
+    for e in ledger_entries(site_archive):
         name = stem(e)
         pdf = (site_dir / "packs" / name / f"{name}.pdf").read_bytes()
         assert pdf == (site_archive / e["pdf_path"]).read_bytes()
@@ -114,7 +99,7 @@ def test_copies_are_the_archived_bytes_and_the_sha256_shown_is_theirs(site_dir, 
 
 def test_same_archive_gives_a_byte_identical_site(site_dir, site_archive, tmp_path, capsys):
     again = tmp_path / "again"
-    code, out, _ = run(capsys, "site", "--archive", site_archive, "--out", again, "--quiet")
+    code, out, _ = run_cli(capsys, "site", "--archive", site_archive, "--out", again, "--quiet")
     assert code == 0 and "4 signed pack(s)" in out
     first, second = tree(site_dir), tree(again)
     assert sorted(first) == sorted(second)
@@ -176,7 +161,7 @@ def _values(spec: dict) -> list[dict]:
 
 
 def test_trends_take_the_latest_sign_off_per_period(site_dir, site_archive):
-    entries = ledger(site_archive)
+    entries = ledger_entries(site_archive)
     superseded = {e["supersedes"] for e in entries if e["supersedes"]}
     current = {e["period_end"]: e for e in entries if e["seq"] not in superseded}
     assert sorted(current) == list(SITE_PERIODS)
@@ -232,7 +217,7 @@ def test_limit_status_trend_reads_limits_json_and_tolerates_its_absence(site_dir
 def test_sml_chart_has_every_fitted_holding_with_its_name(site_dir, site_archive):
     import csv
 
-    for e in ledger(site_archive):
+    for e in ledger_entries(site_archive):
         folder = Path(e["pdf_path"]).parent / stem(e)
         with open(site_archive / folder / "results" / "securities.csv", newline="") as fh:
             fitted = [r for r in csv.DictReader(fh) if r["status"] == "fitted"]
@@ -260,7 +245,7 @@ def test_checking_page_names_each_system_tool(site_dir, site_archive):
                 "shasum -a 256 FILE.pdf", "sha256sum FILE.pdf"):
         assert cmd in text
     # the example is the newest pack's own fingerprint (recomputed from the copy)
-    newest = max(ledger(site_archive), key=lambda e: (e["period_end"], e["seq"]))
+    newest = max(ledger_entries(site_archive), key=lambda e: (e["period_end"], e["seq"]))
     pdf = site_dir / "packs" / stem(newest) / f"{stem(newest)}.pdf"
     assert sha(pdf.read_bytes()) in text
 
@@ -306,14 +291,14 @@ def test_print_stylesheet_hides_navigation(site_dir):
 def test_tampered_archive_is_refused_and_nothing_is_written(site_archive, tmp_path, capsys):
     archive = tmp_path / "archive"
     shutil.copytree(site_archive, archive)
-    entry = ledger(archive)[2]
+    entry = ledger_entries(archive)[2]
     pdf = archive / entry["pdf_path"]
     pdf.chmod(0o644)
     data = bytearray(pdf.read_bytes())
     data[len(data) // 3] ^= 0x01
     pdf.write_bytes(bytes(data))
     out = tmp_path / "site"
-    code, _, err = run(capsys, "site", "--archive", archive, "--out", out)
+    code, _, err = run_cli(capsys, "site", "--archive", archive, "--out", out)
     assert code == 1
     assert "fails verification (1 problem(s))" in err
     assert f"{entry['pdf_path']}: changed" in err and "No site was built" in err
@@ -323,30 +308,30 @@ def test_tampered_archive_is_refused_and_nothing_is_written(site_archive, tmp_pa
 def test_existing_site_is_replaced_whole_and_other_folders_are_refused(site_archive, tmp_path,
                                                                        capsys):
     out = tmp_path / "site"
-    assert run(capsys, "site", "--archive", site_archive, "--out", out, "--quiet")[0] == 0
+    assert run_cli(capsys, "site", "--archive", site_archive, "--out", out, "--quiet")[0] == 0
     (out / "stray.txt").write_text("left from before")
-    assert run(capsys, "site", "--archive", site_archive, "--out", out, "--quiet")[0] == 0
+    assert run_cli(capsys, "site", "--archive", site_archive, "--out", out, "--quiet")[0] == 0
     assert not (out / "stray.txt").exists() and (out / "index.html").is_file()
     papers = tmp_path / "papers"
     papers.mkdir()
     (papers / "minutes.docx").write_bytes(b"x")
-    code, _, err = run(capsys, "site", "--archive", site_archive, "--out", papers)
+    code, _, err = run_cli(capsys, "site", "--archive", site_archive, "--out", papers)
     assert code == 2 and "refusing to replace it" in err
     assert sorted(p.name for p in papers.iterdir()) == ["minutes.docx"]
 
 
 def test_writing_into_or_over_the_archive_is_refused(site_archive, tmp_path, capsys):
     before = tree(site_archive)
-    code, _, err = run(capsys, "site", "--archive", site_archive,
+    code, _, err = run_cli(capsys, "site", "--archive", site_archive,
                        "--out", site_archive / "site")
     assert code == 2 and "refusing to write into the archive" in err
-    code, _, err = run(capsys, "site", "--archive", site_archive, "--out", site_archive.parent)
+    code, _, err = run_cli(capsys, "site", "--archive", site_archive, "--out", site_archive.parent)
     assert code == 2 and "the archive" in err and "is inside it" in err
     assert tree(site_archive) == before
 
 
 def test_unreadable_archive_exits_2(tmp_path, capsys):
-    code, _, err = run(capsys, "site", "--archive", tmp_path / "nowhere", "--out",
+    code, _, err = run_cli(capsys, "site", "--archive", tmp_path / "nowhere", "--out",
                        tmp_path / "site")
     assert code == 2 and "no such archive folder" in err
 
@@ -379,7 +364,7 @@ def test_empty_archive_gives_a_site_that_says_so(tmp_path, capsys):
     archive.mkdir()
     connect_for_writing(archive).close()          # a new ledger with no entries
     out = tmp_path / "site"
-    code, stdout, _ = run(capsys, "site", "--archive", archive, "--out", out, "--quiet")
+    code, stdout, _ = run_cli(capsys, "site", "--archive", archive, "--out", out, "--quiet")
     assert code == 0 and "0 signed pack(s)" in stdout
     assert "The archive holds no signed packs yet." in (out / "index.html").read_text()
     assert "no limit status to show yet" in (out / "trends" / "limits.html").read_text()
@@ -409,3 +394,17 @@ def test_relative_links_between_pages():
     assert relative("assets/site.css", "packs/x/index.html") == "../../assets/site.css"
     assert relative("trends/beta.html", "trends/limits.html") == "beta.html"
     assert relative("index.html", "trends/beta.html") == "../index.html"
+
+
+def test_a_pack_build_and_a_site_never_replace_each_other(site_dir, site_archive, demo_build,
+                                                          capsys):
+    # each output folder's marker names its kind: a build refuses the site's folder, a site
+    # build refuses a pack build's folder, and both folders are left as they were
+    before = tree(site_dir)
+    code, _, err = run_cli(capsys, "build", DEMO, "--out", site_dir)
+    assert code == 2 and "holds a trustees' site, not a pack build" in err
+    assert tree(site_dir) == before
+    pack_before = tree(demo_build)
+    code, _, err = run_cli(capsys, "site", "--archive", site_archive, "--out", demo_build)
+    assert code == 2 and "holds a pack build, not a trustees' site" in err
+    assert tree(demo_build) == pack_before

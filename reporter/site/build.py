@@ -46,7 +46,7 @@ from reporter.site.gather import (
     newest_first,
     read_packs,
 )
-from reporter.writer import OutputSet, commit
+from reporter.writer import OutputSet, check_target, commit
 
 # Vega-Lite version of the bundle: the one Altair writes its specifications for
 VEGALITE_VERSION = ".".join(site_charts.alt.SCHEMA_VERSION.lstrip("v").split(".")[:2])
@@ -165,6 +165,7 @@ def _check_places(archive: Path, out: Path) -> None:
     if o.is_relative_to(a):
         raise OutputError(f"{out}: refusing to write into the archive at {archive}; "
                           "signed packs are never overwritten")
+    check_target(out, "site")
 
 
 def build_site(archive: Path | str, out: Path | str, *,
@@ -191,7 +192,7 @@ def build_site(archive: Path | str, out: Path | str, *,
     with progress.stage("render"):
         files = render_site(archive, packs, report.head_hash)
     with progress.stage("write"):
-        commit(files, out)
+        commit(files, out, kind="site")
     return SiteReport(out=out, files=files.paths, n_packs=len(packs),
                       n_bytes=sum(len(files[p]) for p in files.paths),
                       head_hash=report.head_hash)
