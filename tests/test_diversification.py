@@ -180,7 +180,11 @@ def test_shared_pairwise_moments_match_the_separate_ones():
 
     rng = np.random.default_rng(4)
     r = rng.normal(size=(70, 9)) + rng.normal(size=(70, 1))
-    for data in (r, np.where(rng.random(r.shape) < 0.1, np.nan, r)):
+    late = r.copy()
+    late[:20, 2] = np.nan                    # two late listings, the rest complete: the
+    late[:35, 6] = np.nan                    # masked products run against those two alone
+    late[50, 6] = np.nan
+    for data in (r, np.where(rng.random(r.shape) < 0.1, np.nan, r), late):
         cov, corr = pairwise_covariance_and_correlation(data)
         np.testing.assert_allclose(cov, pd.DataFrame(data).cov().to_numpy(), rtol=1e-10)
         np.testing.assert_allclose(corr, pd.DataFrame(data).corr().to_numpy(), rtol=1e-10)

@@ -139,11 +139,25 @@ def pairwise_covariance_and_correlation(returns: np.ndarray) -> tuple[np.ndarray
         if len(returns) < 2:
             cov[:], corr[:] = np.nan, np.nan
         return cov, corr
-    m = mask.astype(float)
+    # Per pair (i, j), over the periods where both have a return: n[i, j] periods, sx[i, j]
+    # the sum of i's returns, sxx[i, j] the sum of their squares (x is 0 where missing). Against
+    # a holding j with no gap these are T and i's own column sums, so the masked products are
+    # needed only against the columns with gaps (a few late listings, typically): one N x N
+    # product x'x and three N x g ones, instead of four N x N products.
+    T, N = returns.shape
     x = np.where(mask, returns, 0.0)
-    n = m.T @ m
-    sx = x.T @ m
-    sxx = (x * x).T @ m
+    gap = np.flatnonzero(~mask.all(axis=0))
+    m_gap = mask[:, gap].astype(float)
+    n = np.full((N, N), float(T))
+    n_gap = mask.T.astype(float) @ m_gap
+    n[:, gap] = n_gap
+    n[gap, :] = n_gap.T
+    sq = x * x
+    sx, sxx = np.empty((N, N)), np.empty((N, N))
+    sx[:] = x.sum(axis=0)[:, None]
+    sxx[:] = sq.sum(axis=0)[:, None]
+    sx[:, gap] = x.T @ m_gap
+    sxx[:, gap] = sq.T @ m_gap
     with np.errstate(invalid="ignore", divide="ignore"):
         cxy = x.T @ x - sx * sx.T / n
         cov = cxy / (n - 1)
