@@ -1,0 +1,226 @@
+"""Assemble a fund pack: the total fund and each mandate, analysed, charted and in context.
+
+The same stages as a single portfolio (read -> validate -> analyse -> chart -> context),
+run once for the total fund and once per mandate, each mandate against its own benchmark;
+then the figures that join them (:mod:`reporter.analytics.fund`). Nothing is written here.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+import io
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from markupsafe import Markup
+
+from reporter.analytics.fund import (
+    MandateRisk,
+    mandate_risk,
+    mandate_weight_matrix,
+    mandates_table,
+    overlap_holdings,
+    overlap_pairs,
+)
+from reporter.analytics.pack import PackResults, analyse
+from reporter.charts import build_charts
+from reporter.commentary import CommentarySet, read_commentary
+from reporter.config import TOTAL_FUND, Settings
+from reporter.context import PackContext, build_context
+from reporter.errors import InputError, Problem
+from reporter.fund_inputs import FundInputs, validate_fund
+from reporter.limits import LimitsReport, evaluate_limits
+from reporter.progress import Progress
+from reporter.render.environment import make_environment
+from reporter.render.html import export_charts, render_html
+from reporter.validate import read_inputs
+
+TOTAL_SLUG = "total-fund"
+
+
+@dataclass(frozen=True)
+class FundPart:
+    """One part of a fund pack with the single-portfolio layout: the total fund or a
+    mandate."""
+
+    name: str
+    slug: str                        # anchor prefix in the HTML
+    settings: Settings               # the fund's settings, with this part's limits
+    results: PackResults
+    context: PackContext
+    svgs: dict
+    limits: LimitsReport | None
+    benchmark: str                   # what it is measured against, in words
+    weight: float                    # weight in the fund (1 for the total)
+
+
+@dataclass(frozen=True)
+class FundAssembled:
+    """Everything computed for a fund pack, before any rendering to PDF or writing."""
+
+    settings: Settings
+    inputs: FundInputs
+    total: FundPart
+    parts: tuple[FundPart, ...]      # the mandates, in pack.toml order
+    risk: MandateRisk
+    table: pd.DataFrame              # results/mandates.csv
+    overlap: pd.DataFrame            # results/overlap.csv
+    pairs: pd.DataFrame              # results/overlap_pairs.csv
+    hashes: dict[str, str]
+    commentary: CommentarySet = field(default_factory=CommentarySet)
+    compare_warnings: list[Problem] = field(default_factory=list)
+
+    @property
+    def results(self) -> PackResults:
+        """The total fund's results (what a single-portfolio build calls its results)."""
+        return self.total.results
+
+    @property
+    def context(self) -> PackContext:
+        return self.total.context
+
+    @property
+    def limits(self) -> LimitsReport | None:
+        return self.total.limits
+
+    @property
+    def changes(self):
+        return None
+
+    def html(self, for_print: bool = False, signoff: dict | None = None) -> str:
+        """The fund pack as one HTML document: cover, contents, the fund's own pages, then
+        the total fund and each mandate in the single-portfolio layout, methodology and
+        cautions once."""
+        user = self.settings.templates_dir
+        parts = []
+        for part in (self.total, *self.parts):
+            body = render_html(part.context, part.svgs, for_print=for_print,
+                               user_templates=user, extra={"part": True,
+                                                           "anchor_prefix": part.slug + "-",
+                                                           "part_title": part.name})
+            parts.append({"name": part.name, "slug": part.slug, "html": Markup(body),
+                          "sections": [s for s in part.context.sections
+                                       if s.anchor not in ("methodology", "cautions",
+                                                           "changes")],
+                          "benchmark": part.benchmark, "weight": part.weight})
+        ctx = self.total.context
+        values = {f.name: getattr(ctx, f.name) for f in dataclasses.fields(ctx)}
+        values.pop("charts")
+        env = make_environment(user)
+        return env.get_template("fund.html.j2").render(
+            **values, svg=self.total.svgs, for_print=for_print, signoff=signoff,
+            part=False, anchor_prefix="", part_title=None, parts=parts,
+            fund=self.fund_context())
+
+    def fund_context(self) -> dict:
+        """The figures of the fund's own pages, as plain records for the template."""
+        t = self.table
+        return {
+            "benchmark_label": self.inputs.benchmark_label,
+            "weight_source": self.inputs.weight_source,
+            "mandates": _records(t[t["mandate"] != TOTAL_FUND]),
+            "total": _records(t[t["mandate"] == TOTAL_FUND])[0],
+            "overlap": _records(self.overlap),
+            "pairs": _records(self.pairs),
+            "n_securities": len(self.inputs.total.holdings.ids),
+            "n_positions": len(self.inputs.positions),
+            "limit_counts": {p.name: (p.limits.counts if p.limits else None)
+                             for p in self.parts},
+        }
+
+    def result_tables(self) -> dict[str, pd.DataFrame]:
+        """The long results tables with a ``mandate`` column: the total fund first."""
+        out = {}
+        for key in ("securities", "rolling_table", "period_table", "risk_table"):
+            frames = []
+            for part in (self.total, *self.parts):
+                df = getattr(part.results, key)
+                frames.append(df.assign(mandate=part.name)[["mandate", *df.columns]])
+            out[key] = pd.concat(frames, ignore_index=True)
+        return out
+
+
+def _records(df: pd.DataFrame) -> list[dict]:
+    return [{k: (None if isinstance(v, float) and np.isnan(v) else v) for k, v in r.items()}
+            for r in df.to_dict(orient="records")]
+
+
+def _part(name: str, slug: str, settings: Settings, inputs, res: PackResults,
+          fingerprint: str, at: dt.datetime, benchmark: str, weight: float,
+          commentary: dict | None) -> FundPart:
+    limits = evaluate_limits(settings.limits, res) if settings.limits else None
+    charts = build_charts(res, limits)
+    ctx = build_context(settings, inputs, res, charts, fingerprint, at, limits=limits,
+                        commentary=commentary)
+    return FundPart(name=name, slug=slug, settings=settings, results=res, context=ctx,
+                    svgs=export_charts(ctx), limits=limits, benchmark=benchmark,
+                    weight=weight)
+
+
+def assemble_fund(settings: Settings, *, strict: bool = False,
+                  progress: Progress | None = None, at: dt.datetime | None = None,
+                  ) -> FundAssembled:
+    """Read, validate, analyse and chart a fund pack (no output is written)."""
+    from reporter.build import build_time, fingerprint, input_hashes
+
+    progress = progress or Progress(quiet=True)
+    at = at or build_time()
+    with progress.stage("read"):
+        raws, read_problems = read_inputs(settings)
+        commentary = read_commentary(settings.pack_dir)
+    with progress.stage("validate"):
+        fin = validate_fund(settings, raws, read_problems, strict=strict)
+    with progress.stage("analyse"):
+        hashes = input_hashes(settings)
+        hashes.update(commentary.hashes)
+        fp = fingerprint(hashes)
+        total_res = analyse(fin.total, settings)
+        results = []
+        for m in fin.mandates:      # a handful of mandates; each is vectorised inside
+            own = dataclasses.replace(settings, limits=m.mandate.limits)
+            results.append((own, analyse(m.inputs, own)))
+        names = [m.mandate.name for m in fin.mandates]
+        u = mandate_weight_matrix(fin.total.holdings.ids, fin.positions, names)
+        risk = mandate_risk(u, total_res.covariance.matrix, total_res.covariance_active.matrix)
+        table = mandates_table(
+            names, [m.benchmark_name for m in fin.mandates],
+            np.array([m.weight for m in fin.mandates]),
+            [m.mandate.strategic_weight for m in fin.mandates],
+            [m.mandate.range for m in fin.mandates], [r for _, r in results], total_res, risk,
+            fin.benchmark_name)
+        overlap = overlap_holdings(fin.positions)
+        pairs = overlap_pairs(fin.positions, names)
+    with progress.stage("chart"):
+        total = _part(TOTAL_FUND, TOTAL_SLUG, settings, fin.total, total_res, fp, at,
+                      fin.benchmark_label, 1.0, commentary.by_section)
+        parts = tuple(
+            _part(m.mandate.name, m.mandate.slug, own, m.inputs, res, fp, at,
+                  f"its benchmark ({m.benchmark_name})", m.weight, None)
+            for m, (own, res) in zip(fin.mandates, results, strict=True))
+    if "changes" in commentary.by_section:
+        raise InputError([Problem("commentary/changes.md", "a fund pack has no 'Since last "
+                                  "pack' section; remove the file")])
+    return FundAssembled(settings=settings, inputs=fin, total=total, parts=parts, risk=risk,
+                         table=table, overlap=overlap, pairs=pairs, hashes=hashes,
+                         commentary=commentary)
+
+
+def fund_results_files(a: FundAssembled) -> dict[str, str]:
+    """The fund's results files (besides portfolio.json and manifest.json), as text."""
+    def csv(df: pd.DataFrame) -> str:
+        buf = io.StringIO()
+        df.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
+        return buf.getvalue()
+
+    tables = a.result_tables()
+    return {
+        "results/securities.csv": csv(tables["securities"]),
+        "results/rolling_beta.csv": csv(tables["rolling_table"]),
+        "results/period_returns.csv": csv(tables["period_table"]),
+        "results/risk_contributions.csv": csv(tables["risk_table"]),
+        "results/mandates.csv": csv(a.table),
+        "results/overlap.csv": csv(a.overlap),
+        "results/overlap_pairs.csv": csv(a.pairs),
+    }
