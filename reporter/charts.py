@@ -31,7 +31,7 @@ THEME_CONFIG = {
 }
 
 
-def sml_chart(res: PackResults) -> alt.LayerChart:
+def sml_chart(res: PackResults, market_label: str = "Market proxy") -> alt.LayerChart:
     """Each holding's beta against its annualised mean excess return, with the ex post line
     E[r - r_f] = beta x mean market premium, beta error bars (95%), the market and cash."""
     P = res.periods_per_year
@@ -52,7 +52,7 @@ def sml_chart(res: PackResults) -> alt.LayerChart:
     lo = float(min(0.0, np.nanmin(df["beta_lo"]) if len(df) else 0.0))
     line = pd.DataFrame({"beta": [lo, hi], "excess": [lo * mrp, hi * mrp]})
     anchors = pd.DataFrame({"beta": [0.0, 1.0], "excess": [0.0, mrp],
-                            "label": ["Risk-free", "Market proxy"]})
+                            "label": ["Risk-free", market_label]})
     x = alt.X("beta:Q", title=f"Beta (bars: {res.confidence:.0%} interval)",
               scale=alt.Scale(domain=[lo, hi], nice=False))
     y = alt.Y("excess:Q", title="Mean excess return, annualised", axis=alt.Axis(format="%"))
@@ -240,18 +240,18 @@ def rolling_holdings_chart(res: PackResults, top: int = 10) -> alt.Chart:
                         header=alt.Header(labelFontSize=9, labelLimit=150)), columns=3)
 
 
-def growth_chart(res: PackResults) -> alt.LayerChart:
+def growth_chart(res: PackResults, market_label: str = "Market proxy") -> alt.LayerChart:
     """Growth of one unit invested in the portfolio (current weights) and in the market proxy
     over the whole history, on a log scale; the lines differ in dash as well as colour."""
     g = res.growth_table
     df = pd.concat([
         pd.DataFrame({"date": g["date"], "value": g["portfolio"], "series": "Portfolio"}),
-        pd.DataFrame({"date": g["date"], "value": g["market"], "series": "Market proxy"}),
+        pd.DataFrame({"date": g["date"], "value": g["market"], "series": market_label}),
     ] + ([pd.DataFrame({"date": g["date"], "value": g["benchmark"], "series": "Benchmark"})]
          if "benchmark" in g else []), ignore_index=True).dropna(subset=["value"])
     df = thin_series(df).copy()
     df["date"] = pd.to_datetime(df["date"])
-    domain = ["Portfolio", "Market proxy"] + (["Benchmark"] if "benchmark" in g else [])
+    domain = ["Portfolio", market_label] + (["Benchmark"] if "benchmark" in g else [])
     lo, hi = float(min(df["value"].min(), 1.0)), float(max(df["value"].max(), 1.0))
     line = alt.Chart(df).mark_line(strokeWidth=2).encode(
         x=alt.X("date:T", title=None, axis=alt.Axis(format="%Y")),
@@ -270,15 +270,17 @@ def growth_chart(res: PackResults) -> alt.LayerChart:
     return alt.layer(one, line).properties(width=WIDTH, height=240)
 
 
-def build_charts(res: PackResults, limits=None) -> dict[str, alt.TopLevelMixin]:
+def build_charts(res: PackResults, limits=None,
+                 market_label: str = "Market proxy") -> dict[str, alt.TopLevelMixin]:
     """Every chart of the pack, keyed by the name the templates use. ``limits`` (a
-    :class:`reporter.limits.LimitsReport`, optional) marks sector limits on the sector chart."""
+    :class:`reporter.limits.LimitsReport`, optional) marks sector limits on the sector chart;
+    ``market_label`` names the series the regressions are against (a mandate's benchmark)."""
     return {
         "rolling_portfolio": rolling_portfolio_chart(res),
         "rolling_holdings": rolling_holdings_chart(res),
-        "sml": sml_chart(res),
+        "sml": sml_chart(res, market_label),
         "sectors": sector_chart(res, limits.sector_status() if limits is not None else None),
         "diversification": diversification_chart(res),
-        "growth": growth_chart(res),
+        "growth": growth_chart(res, market_label),
         "risk_contributions": risk_contribution_chart(res),
     }

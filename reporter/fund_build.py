@@ -97,9 +97,10 @@ class FundAssembled:
         parts = []
         for part in (self.total, *self.parts):
             body = render_html(part.context, part.svgs, for_print=for_print,
-                               user_templates=user, extra={"part": True,
-                                                           "anchor_prefix": part.slug + "-",
-                                                           "part_title": part.name})
+                               user_templates=user, extra={
+                                   "part": True, "anchor_prefix": part.slug + "-",
+                                   "part_title": part.name, "market_word": "benchmark",
+                                   "proxy_word": "benchmark"})
             parts.append({"name": part.name, "slug": part.slug, "html": Markup(body),
                           "sections": [s for s in part.context.sections
                                        if s.anchor not in ("methodology", "cautions",
@@ -112,6 +113,7 @@ class FundAssembled:
         return env.get_template("fund.html.j2").render(
             **values, svg=self.total.svgs, for_print=for_print, signoff=signoff,
             part=False, anchor_prefix="", part_title=None, parts=parts,
+            market_word="market proxy", proxy_word="proxy",
             fund=self.fund_context())
 
     def fund_context(self) -> dict:
@@ -151,7 +153,7 @@ def _part(name: str, slug: str, settings: Settings, inputs, res: PackResults,
           fingerprint: str, at: dt.datetime, benchmark: str, weight: float,
           commentary: dict | None) -> FundPart:
     limits = evaluate_limits(settings.limits, res) if settings.limits else None
-    charts = build_charts(res, limits)
+    charts = build_charts(res, limits, "Benchmark")
     ctx = build_context(settings, inputs, res, charts, fingerprint, at, limits=limits,
                         commentary=commentary)
     return FundPart(name=name, slug=slug, settings=settings, results=res, context=ctx,
