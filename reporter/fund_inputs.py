@@ -233,8 +233,10 @@ def validate_fund(settings: Settings, raws: dict[str, RawTable], read_problems=(
                                                [m.name for m in ms])
         src = "market_value" if weight_source == "market values" else "weight"
         union = Holdings(frame=total_frame, weight_source=src, normalised=False)
+        where = ", ".join(dict.fromkeys(
+            settings.inputs[m.holdings_role or "holdings"].display for m in ms))
         _warn_conflicts(pd.concat([holdings[m.index].frame.assign(mandate=m.name)
-                                   for m in ms]), coll)
+                                   for m in ms]), where, coll)
     panel = validate_returns(raws["returns"], union, settings, coll, None) \
         if "returns" in raws and union is not None else None
     benches: dict[str, DatedSeries | None] = {}
@@ -284,13 +286,13 @@ def validate_fund(settings: Settings, raws: dict[str, RawTable], read_problems=(
                       warnings=coll.warnings)
 
 
-def _warn_conflicts(long: pd.DataFrame, coll: Collector) -> None:
+def _warn_conflicts(long: pd.DataFrame, where: str, coll: Collector) -> None:
     """A warning for each security that two mandates describe differently (name or sector);
     the total fund uses the first description."""
     n = long.groupby("security_id", sort=False)[["name", "sector"]].nunique()
     for sid in n.index[(n > 1).any(axis=1)][:10]:
         rows = long[long["security_id"] == sid]
-        coll.warn("holdings", f"security {sid} is described differently by the mandates "
+        coll.warn(where, f"security {sid} is described differently by the mandates "
                   f"{', '.join(repr(x) for x in rows['mandate'])}; the total fund uses "
                   f"{rows['name'].iloc[0]!r} ({rows['sector'].iloc[0]})")
 
