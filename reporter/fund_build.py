@@ -29,7 +29,7 @@ from reporter.charts import build_charts
 from reporter.commentary import CommentarySet, read_commentary
 from reporter.config import TOTAL_FUND, Settings
 from reporter.context import PackContext, build_context
-from reporter.errors import InputError, Problem
+from reporter.errors import Problem
 from reporter.fund_inputs import FundInputs, validate_fund
 from reporter.limits import LimitsReport, evaluate_limits
 from reporter.progress import Progress
@@ -71,6 +71,7 @@ class FundAssembled:
     hashes: dict[str, str]
     commentary: CommentarySet = field(default_factory=CommentarySet)
     compare_warnings: list[Problem] = field(default_factory=list)
+    analysis: FundAnalysis | None = None
 
     @property
     def results(self) -> PackResults:
@@ -133,15 +134,61 @@ class FundAssembled:
         }
 
     def result_tables(self) -> dict[str, pd.DataFrame]:
-        """The long results tables with a ``mandate`` column: the total fund first."""
+        """The long results tables with a ``mandate`` column (see :class:`FundAnalysis`)."""
+        assert self.analysis is not None
+        return self.analysis.result_tables()
+
+
+@dataclass(frozen=True)
+class FundAnalysis:
+    """Every figure of a fund: the total fund's and each mandate's results (each against its
+    own benchmark) and the figures that join them."""
+
+    inputs: FundInputs
+    results: PackResults                       # the total fund
+    names: tuple[str, ...]                     # the mandates, in pack.toml order
+    weights: np.ndarray                        # v_m
+    settings: tuple[Settings, ...]             # each mandate's (its own limits)
+    mandate_results: tuple[PackResults, ...]
+    risk: MandateRisk
+    table: pd.DataFrame                        # results/mandates.csv
+    overlap: pd.DataFrame                      # results/overlap.csv
+    pairs: pd.DataFrame                        # results/overlap_pairs.csv
+
+    def result_tables(self) -> dict[str, pd.DataFrame]:
+        """``securities``, ``rolling_table``, ``period_table`` and ``risk_table`` of the total
+        fund then each mandate, one long table each, with a first column ``mandate``."""
         out = {}
+        named = ((TOTAL_FUND, self.results), *zip(self.names, self.mandate_results,
+                                                   strict=True))
         for key in ("securities", "rolling_table", "period_table", "risk_table"):
-            frames = []
-            for part in (self.total, *self.parts):
-                df = getattr(part.results, key)
-                frames.append(df.assign(mandate=part.name)[["mandate", *df.columns]])
-            out[key] = pd.concat(frames, ignore_index=True)
+            frames = [getattr(res, key).assign(mandate=name) for name, res in named]
+            out[key] = pd.concat([f[["mandate", *f.columns[:-1]]] for f in frames],
+                                 ignore_index=True)
         return out
+
+
+def analyse_fund(fin: FundInputs, settings: Settings) -> FundAnalysis:
+    """Analyse the total fund against its benchmark and each mandate against its own (the
+    single-portfolio :func:`analyse` each time), then the mandates' Euler contributions to the
+    fund's risk, the mandates table and the overlap between mandates. Pure; no I/O."""
+    total = analyse(fin.total, settings)
+    own = tuple(dataclasses.replace(settings, limits=m.mandate.limits) for m in fin.mandates)
+    # a handful of mandates; each analysis is vectorised over its holdings
+    results = tuple(analyse(m.inputs, s) for m, s in zip(fin.mandates, own, strict=True))
+    names = tuple(m.mandate.name for m in fin.mandates)
+    weights = np.array([m.weight for m in fin.mandates])
+    u = mandate_weight_matrix(fin.total.holdings.ids, fin.positions, list(names))
+    risk = mandate_risk(u, total.covariance.matrix, total.covariance_active.matrix)
+    table = mandates_table(
+        list(names), [m.benchmark_name for m in fin.mandates], weights,
+        [m.mandate.strategic_weight for m in fin.mandates],
+        [m.mandate.range for m in fin.mandates], list(results), total, risk,
+        fin.benchmark_name)
+    return FundAnalysis(inputs=fin, results=total, names=names, weights=weights,
+                        settings=own, mandate_results=results, risk=risk, table=table,
+                        overlap=overlap_holdings(fin.positions),
+                        pairs=overlap_pairs(fin.positions, list(names)))
 
 
 def _records(df: pd.DataFrame) -> list[dict]:
@@ -172,41 +219,27 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
     with progress.stage("read"):
         raws, read_problems = read_inputs(settings)
         commentary = read_commentary(settings.pack_dir)
+        if "changes" in commentary.by_section:
+            read_problems = [*read_problems, Problem(
+                "commentary/changes.md", "a fund pack has no 'Since last pack' section; "
+                "remove the file")]
     with progress.stage("validate"):
         fin = validate_fund(settings, raws, read_problems, strict=strict)
     with progress.stage("analyse"):
         hashes = input_hashes(settings)
         hashes.update(commentary.hashes)
         fp = fingerprint(hashes)
-        total_res = analyse(fin.total, settings)
-        results = []
-        for m in fin.mandates:      # a handful of mandates; each is vectorised inside
-            own = dataclasses.replace(settings, limits=m.mandate.limits)
-            results.append((own, analyse(m.inputs, own)))
-        names = [m.mandate.name for m in fin.mandates]
-        u = mandate_weight_matrix(fin.total.holdings.ids, fin.positions, names)
-        risk = mandate_risk(u, total_res.covariance.matrix, total_res.covariance_active.matrix)
-        table = mandates_table(
-            names, [m.benchmark_name for m in fin.mandates],
-            np.array([m.weight for m in fin.mandates]),
-            [m.mandate.strategic_weight for m in fin.mandates],
-            [m.mandate.range for m in fin.mandates], [r for _, r in results], total_res, risk,
-            fin.benchmark_name)
-        overlap = overlap_holdings(fin.positions)
-        pairs = overlap_pairs(fin.positions, names)
+        fa = analyse_fund(fin, settings)
     with progress.stage("chart"):
-        total = _part(TOTAL_FUND, TOTAL_SLUG, settings, fin.total, total_res, fp, at,
+        total = _part(TOTAL_FUND, TOTAL_SLUG, settings, fin.total, fa.results, fp, at,
                       fin.benchmark_label, 1.0, commentary.by_section)
         parts = tuple(
             _part(m.mandate.name, m.mandate.slug, own, m.inputs, res, fp, at,
                   f"its benchmark ({m.benchmark_name})", m.weight, None)
-            for m, (own, res) in zip(fin.mandates, results, strict=True))
-    if "changes" in commentary.by_section:
-        raise InputError([Problem("commentary/changes.md", "a fund pack has no 'Since last "
-                                  "pack' section; remove the file")])
-    return FundAssembled(settings=settings, inputs=fin, total=total, parts=parts, risk=risk,
-                         table=table, overlap=overlap, pairs=pairs, hashes=hashes,
-                         commentary=commentary)
+            for m, own, res in zip(fin.mandates, fa.settings, fa.mandate_results, strict=True))
+    return FundAssembled(settings=settings, inputs=fin, total=total, parts=parts,
+                         risk=fa.risk, table=fa.table, overlap=fa.overlap, pairs=fa.pairs,
+                         hashes=hashes, commentary=commentary, analysis=fa)
 
 
 def fund_results_files(a: FundAssembled) -> dict[str, str]:

@@ -20,9 +20,12 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 
-from reporter.build import assemble
+from reporter.analytics.pack import analyse
 from reporter.cli import main
 from reporter.config import TOTAL_FUND, load_settings
+from reporter.fund_build import FundAnalysis, analyse_fund
+from reporter.fund_inputs import validate_fund
+from reporter.validate import read_inputs, validate_pack
 from tests.conftest import FIXED_EPOCH, REPO
 
 T, WINDOW = 48, 36
@@ -82,8 +85,10 @@ def write_fund(folder: Path, *, sizes=(8, 6, 5), shared: int = 0, own_benchmarks
     return folder
 
 
-def _fund(folder: Path):
-    return assemble(load_settings(folder))
+def _fund(folder: Path) -> FundAnalysis:
+    """Validate and analyse a fund pack (no charts, no rendering)."""
+    settings = load_settings(folder)
+    return analyse_fund(validate_fund(settings, *read_inputs(settings)), settings)
 
 
 def _mandate_weights(folder: Path) -> pd.Series:
@@ -99,8 +104,8 @@ def test_partition_betas_and_risk_contributions(tmp_path):
     folder = write_fund(tmp_path / "fund")
     a = _fund(folder)
     v = _mandate_weights(folder)
-    parts = {p.name: p.results for p in a.parts}
-    assert np.allclose([p.weight for p in a.parts], v[list(parts)].to_numpy(), atol=1e-15)
+    parts = dict(zip(a.names, a.mandate_results, strict=True))
+    assert np.allclose(a.weights, v[list(parts)].to_numpy(), atol=1e-15)
     # weighted beta sum_i W_i b_i = sum_m v_m sum_i w_mi b_i when the mandates partition the
     # holdings and share the market proxy (identity of the method)
     expect = sum(v[m] * r.beta_weighted for m, r in parts.items())
@@ -135,7 +140,7 @@ def test_declared_weights_when_no_market_values(tmp_path):
     folder = write_fund(tmp_path / "fund", market_values=False)
     a = _fund(folder)
     assert a.inputs.weight_source == "declared weights"
-    assert [p.weight for p in a.parts] == [0.5, 0.3, 0.2]
+    assert list(a.weights) == [0.5, 0.3, 0.2]
     h = pd.read_csv(folder / "holdings.csv")
     # W_i = v_m w_mi for a partition (the README's rule), by pandas
     expect = h["weight"] * h["mandate"].map({"A": 0.5, "B": 0.3, "C": 0.2})
@@ -153,8 +158,7 @@ def test_each_mandate_against_its_own_benchmark_and_the_policy_mix(tmp_path):
     rf = pd.read_csv(folder / "risk_free.csv", index_col="date")["rate"].iloc[-WINDOW:]
     r = r.iloc[-WINDOW:]
     benches = {}
-    for part in a.parts:
-        m = part.name
+    for m, mres in zip(a.names, a.mandate_results, strict=True):
         rows = h[h["mandate"] == m]
         w = rows["market_value"] / rows["market_value"].sum()
         port = r[rows["security_id"]].to_numpy() @ w.to_numpy()
@@ -162,7 +166,7 @@ def test_each_mandate_against_its_own_benchmark_and_the_policy_mix(tmp_path):
         benches[m] = b.to_numpy()
         # statsmodels OLS of the mandate's excess return on its benchmark's (reference)
         ols = sm.OLS(port - rf.to_numpy(), sm.add_constant(b.to_numpy() - rf.to_numpy())).fit()
-        s = part.results.portfolio_summary()
+        s = mres.portfolio_summary()
         assert abs(s["beta_regression"] - ols.params[1]) < 1e-10, m
         assert abs(s["alpha"] - ols.params[0]) < 1e-12, m
         # tracking error sd(r_p - r_b) x sqrt(12), information ratio mean / sd x sqrt(12)
@@ -215,21 +219,21 @@ def test_each_mandate_equals_a_single_portfolio_build_of_it(tmp_path):
                         fund_benchmark="policy")
     fund = _fund(folder)
     h = pd.read_csv(folder / "holdings.csv")
-    for part in fund.parts:
-        single = tmp_path / f"single-{part.name}"
+    for name, got in zip(fund.names, fund.mandate_results, strict=True):
+        single = tmp_path / f"single-{name}"
         single.mkdir()
         for f in ("returns.csv", "risk_free.csv"):
             (single / f).write_bytes((folder / f).read_bytes())
-        (single / "market.csv").write_bytes((folder / f"bench_{part.name}.csv").read_bytes())
-        h[h["mandate"] == part.name].drop(columns="mandate").to_csv(single / "holdings.csv",
+        (single / "market.csv").write_bytes((folder / f"bench_{name}.csv").read_bytes())
+        h[h["mandate"] == name].drop(columns="mandate").to_csv(single / "holdings.csv",
                                                                     index=False)
         (single / "pack.toml").write_text(
             '[pack]\ntitle = "One mandate"\norganisation = "Invented test fund"\n'
             'period_end = 2026-11-30\n\n[inputs]\nholdings = "holdings.csv"\n'
             'returns = "returns.csv"\nmarket = "market.csv"\nrisk_free = "risk_free.csv"\n\n'
             f"[analysis]\nwindow = {WINDOW}\nmin_obs = 24\n", encoding="utf-8")
-        alone = _fund(single).results
-        got = part.results
+        settings = load_settings(single)
+        alone = analyse(validate_pack(settings), settings)
         pd.testing.assert_frame_equal(got.securities, alone.securities, check_exact=True)
         pd.testing.assert_frame_equal(got.risk_table, alone.risk_table, check_exact=True)
         pd.testing.assert_frame_equal(got.period_table, alone.period_table, check_exact=True)
@@ -238,7 +242,7 @@ def test_each_mandate_equals_a_single_portfolio_build_of_it(tmp_path):
         a, b = got.portfolio_summary(), alone.portfolio_summary()
         assert a.keys() == b.keys()
         for k in a:
-            assert a[k] == b[k] or (a[k] != a[k] and b[k] != b[k]), (part.name, k)
+            assert a[k] == b[k] or (a[k] != a[k] and b[k] != b[k]), (name, k)
 
 
 # --- bad fund packs -------------------------------------------------------------------------
