@@ -284,3 +284,59 @@ def build_charts(res: PackResults, limits=None,
         "growth": growth_chart(res, market_label),
         "risk_contributions": risk_contribution_chart(res),
     }
+
+
+def mandate_weights_chart(table: pd.DataFrame) -> alt.LayerChart:
+    """Each mandate's current weight in the fund (a marker) against its rebalancing range (a
+    grey bar) and strategic weight (a tick). ``table`` has the columns of
+    ``results/mandates.csv`` for the mandates only. Outside its range a mandate's marker is a
+    cross and it is labelled in words, not marked by colour alone."""
+    df = table[["mandate", "weight", "strategic_weight", "range_low", "range_high",
+                "range_status"]].copy()
+    df["status"] = df["range_status"].replace("", "no range set")
+    df["label"] = np.where(df["status"] == "outside range", "outside range", "")
+    order = list(df["mandate"])
+    y = alt.Y("mandate:N", sort=order, title=None, axis=alt.Axis(labelLimit=200))
+    x = alt.X("weight:Q", title="Weight in the fund", axis=alt.Axis(format="%"),
+              scale=alt.Scale(zero=True))
+    ranges = alt.Chart(df.dropna(subset=["range_low"])).mark_bar(
+        color="#d5dadd", height=14).encode(y=y, x="range_low:Q", x2="range_high:Q")
+    strategic = alt.Chart(df).mark_tick(color=INK, thickness=2, size=20).encode(
+        y=y, x="strategic_weight:Q")
+    status_scale = alt.Scale(domain=["within range", "outside range", "no range set"],
+                             range=[TEAL, BRICK, GREY])
+    now = alt.Chart(df).mark_point(filled=True, size=90, opacity=1).encode(
+        y=y, x=x,
+        shape=alt.Shape("status:N", title="Weight now", scale=alt.Scale(
+            domain=["within range", "outside range", "no range set"],
+            range=["circle", "cross", "diamond"])),
+        color=alt.Color("status:N", title="Weight now", scale=status_scale),
+        tooltip=["mandate:N", alt.Tooltip("weight:Q", format=".1%"),
+                 alt.Tooltip("strategic_weight:Q", format=".1%"), "status:N"])
+    # the label sits right of both the marker and the range bar, clear of either
+    df["label_x"] = np.fmax(df["weight"], df["range_high"].fillna(df["weight"]))
+    text = alt.Chart(df).mark_text(align="left", dx=10, color=BRICK, fontSize=10).encode(
+        y=y, x="label_x:Q", text="label:N")
+    return alt.layer(ranges, strategic, now, text).properties(width=WIDTH - 180,
+                                                             height=max(90, 34 * len(df)))
+
+
+def mandate_risk_chart(table: pd.DataFrame) -> alt.Chart:
+    """Each mandate's weight in the fund beside its share of the fund's volatility (Euler
+    contributions), as paired bars that differ in fill as well as colour."""
+    order = list(table["mandate"])
+    df = pd.concat([
+        pd.DataFrame({"mandate": table["mandate"], "value": table["weight"],
+                      "measure": "Weight in the fund"}),
+        pd.DataFrame({"mandate": table["mandate"], "value": table["vol_share"],
+                      "measure": "Share of the fund's volatility"}),
+    ], ignore_index=True)
+    domain = ["Weight in the fund", "Share of the fund's volatility"]
+    return alt.Chart(df).mark_bar(height=10, stroke=INK, strokeWidth=0.6).encode(
+        y=alt.Y("mandate:N", sort=order, title=None, axis=alt.Axis(labelLimit=200)),
+        yOffset=alt.YOffset("measure:N", sort=domain),
+        x=alt.X("value:Q", title=None, axis=alt.Axis(format="%")),
+        color=alt.Color("measure:N", title=None, scale=alt.Scale(domain=domain,
+                                                                range=["#ffffff", TEAL])),
+        tooltip=["mandate:N", "measure:N", alt.Tooltip("value:Q", format=".1%")],
+    ).properties(width=WIDTH - 180, height=max(90, 34 * len(table)))

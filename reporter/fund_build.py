@@ -25,7 +25,7 @@ from reporter.analytics.fund import (
     overlap_pairs,
 )
 from reporter.analytics.pack import PackResults, analyse
-from reporter.charts import build_charts
+from reporter.charts import build_charts, mandate_risk_chart, mandate_weights_chart
 from reporter.commentary import CommentarySet, read_commentary
 from reporter.config import TOTAL_FUND, Settings
 from reporter.context import PackContext, build_context
@@ -34,7 +34,7 @@ from reporter.fund_inputs import FundInputs, validate_fund
 from reporter.limits import LimitsReport, evaluate_limits
 from reporter.progress import Progress
 from reporter.render.environment import make_environment
-from reporter.render.html import export_charts, render_html
+from reporter.render.html import chart_svg, export_charts, render_html
 from reporter.validate import read_inputs
 
 TOTAL_SLUG = "total-fund"
@@ -72,6 +72,7 @@ class FundAssembled:
     commentary: CommentarySet = field(default_factory=CommentarySet)
     compare_warnings: list[Problem] = field(default_factory=list)
     analysis: FundAnalysis | None = None
+    svgs: dict = field(default_factory=dict)      # the fund pages' charts, inline SVG
 
     @property
     def results(self) -> PackResults:
@@ -113,7 +114,7 @@ class FundAssembled:
         env = make_environment(user)
         return env.get_template("fund.html.j2").render(
             **values, svg=self.total.svgs, for_print=for_print, signoff=signoff,
-            part=False, anchor_prefix="", part_title=None, parts=parts,
+            part=False, anchor_prefix="", part_title=None, parts=parts, fund_svg=self.svgs,
             market_word="market proxy", proxy_word="proxy",
             fund=self.fund_context())
 
@@ -237,9 +238,12 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
             _part(m.mandate.name, m.mandate.slug, own, m.inputs, res, fp, at,
                   f"its benchmark ({m.benchmark_name})", m.weight, None)
             for m, own, res in zip(fin.mandates, fa.settings, fa.mandate_results, strict=True))
+        mandates_only = fa.table[fa.table["mandate"] != TOTAL_FUND]
+        svgs = {"weights": Markup(chart_svg(mandate_weights_chart(mandates_only))),
+                "risk": Markup(chart_svg(mandate_risk_chart(mandates_only)))}
     return FundAssembled(settings=settings, inputs=fin, total=total, parts=parts,
                          risk=fa.risk, table=fa.table, overlap=fa.overlap, pairs=fa.pairs,
-                         hashes=hashes, commentary=commentary, analysis=fa)
+                         hashes=hashes, commentary=commentary, analysis=fa, svgs=svgs)
 
 
 def fund_results_files(a: FundAssembled) -> dict[str, str]:
