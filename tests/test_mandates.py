@@ -148,6 +148,27 @@ def test_declared_weights_when_no_market_values(tmp_path):
     assert np.allclose(got[h["security_id"]].to_numpy(), expect.to_numpy(), atol=1e-15)
 
 
+def test_one_holdings_file_per_mandate_gives_the_same_figures(tmp_path):
+    folder = write_fund(tmp_path / "fund", shared=2, fund_benchmark="policy",
+                        own_benchmarks=True)
+    h = pd.read_csv(folder / "holdings.csv")
+    toml = folder / "pack.toml"
+    text = toml.read_text(encoding="utf-8").replace('holdings = "holdings.csv"\n', "")
+    for m in "ABC":
+        h[h["mandate"] == m].drop(columns="mandate").to_csv(folder / f"h_{m}.csv", index=False)
+        text = text.replace(f'name = "{m}"\n', f'name = "{m}"\nholdings = "h_{m}.csv"\n')
+    split = tmp_path / "split"
+    split.mkdir()
+    for f in folder.iterdir():
+        (split / f.name).write_bytes(f.read_bytes())
+    (split / "pack.toml").write_text(text, encoding="utf-8")
+    (split / "holdings.csv").unlink()
+    one, per = _fund(folder), _fund(split)
+    for key, frame in one.result_tables().items():
+        pd.testing.assert_frame_equal(frame, per.result_tables()[key], check_exact=True)
+    pd.testing.assert_frame_equal(one.table, per.table, check_exact=True)
+
+
 # --- each mandate against its own benchmark ---------------------------------------------
 
 def test_each_mandate_against_its_own_benchmark_and_the_policy_mix(tmp_path):
