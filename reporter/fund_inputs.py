@@ -87,7 +87,8 @@ def _mandate_holdings(settings: Settings, raws: dict[str, RawTable],
             return out
         names = as_text(raw, MANDATE_COLUMN, coll, allow_empty=False)
         known = {m.name for m in settings.mandates}
-        unknown = np.flatnonzero([v not in known and v not in (None, "") for v in names])
+        given = pd.Series(names, dtype=object)
+        unknown = np.flatnonzero((~given.isin(known) & given.notna() & (given != "")).to_numpy())
         for i in unknown[:10]:
             coll.error(place(raw.name, raw.row_number(int(i)), MANDATE_COLUMN),
                        f"mandate {names[i]!r} is not declared in {cfg} (the [[mandates]] "
@@ -266,11 +267,11 @@ def validate_fund(settings: Settings, raws: dict[str, RawTable], read_problems=(
         fund_market = market
         short = settings.inputs["market"].display
         label = f"the market proxy ({short})"
-    col = {s: j for j, s in enumerate(panel.security_ids)}
+    columns = pd.Index(panel.security_ids)
     out = []
-    for m, vm in zip(ms, v, strict=True):
+    for m, vm in zip(ms, v, strict=True):          # a handful of mandates
         h = holdings[m.index]
-        idx = np.array([col[s] for s in h.ids], dtype=int)
+        idx = columns.get_indexer(list(h.ids))
         sub = ReturnPanel(period_keys=panel.period_keys, security_ids=h.ids,
                           values=panel.values[:, idx], shape=panel.shape, n_rows=panel.n_rows)
         out.append(MandateInputs(
