@@ -488,3 +488,17 @@ def test_demo_fund_signs_off(demo_fund_build, tmp_path):
     assert main(["sign-off", str(demo_fund_build), "--archive", str(archive), "--quiet",
                  "--by", "A Trustee"]) == 0
     assert list(archive.glob("2026-11-30/ravensgill-mutual-2026-11-30.pdf"))
+    # the trustees' site shows the total fund: each security once, one rolling-beta series
+    site = tmp_path / "site"
+    assert main(["site", "--archive", str(archive), "--out", str(site), "--quiet"]) == 0
+    page = (site / "packs" / "ravensgill-mutual-2026-11-30" / "index.html").read_text(
+        encoding="utf-8")
+    holdings = page[page.index('id="holdings-caption"'):]
+    holdings = holdings[: holdings.index("</table>")]
+    h = pd.read_csv(DEMO_FUND / "holdings.csv")
+    assert holdings.count('<td class="holding"') == h["security_id"].nunique()
+    roll = pd.read_csv(demo_fund_build / "results" / "rolling_beta.csv")
+    n_windows = ((roll["mandate"] == TOTAL_FUND) & (roll["series"] == "PORTFOLIO")).sum()
+    rolling = page[page.index('id="rolling-caption"'):]
+    rolling = rolling[: rolling.index("</table>")]
+    assert rolling.count("<tr><td data-value=") == n_windows
