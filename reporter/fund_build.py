@@ -111,6 +111,7 @@ class FundAssembled:
         ctx = self.total.context
         values = {f.name: getattr(ctx, f.name) for f in dataclasses.fields(ctx)}
         values.pop("charts")
+        values["commentary"] = dict(self.commentary.by_section)   # every note, for the fund
         env = make_environment(user)
         return env.get_template("fund.html.j2").render(
             **values, svg=self.total.svgs, for_print=for_print, signoff=signoff,
@@ -233,7 +234,8 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
         fa = analyse_fund(fin, settings)
     with progress.stage("chart"):
         total = _part(TOTAL_FUND, TOTAL_SLUG, settings, fin.total, fa.results, fp, at,
-                      fin.benchmark_label, 1.0, commentary.by_section)
+                      fin.benchmark_label, 1.0,   # the summary note is on the fund overview
+                      {k: c for k, c in commentary.by_section.items() if k != "summary"})
         parts = tuple(
             _part(m.mandate.name, m.mandate.slug, own, m.inputs, res, fp, at,
                   f"its benchmark ({m.benchmark_name})", m.weight, None)

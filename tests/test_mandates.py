@@ -266,6 +266,33 @@ def test_each_mandate_equals_a_single_portfolio_build_of_it(tmp_path):
             assert a[k] == b[k] or (a[k] != a[k] and b[k] != b[k]), (name, k)
 
 
+def test_check_summarises_a_fund(tmp_path, capsys):
+    folder = write_fund(tmp_path / "fund", shared=2)
+    assert main(["check", str(folder)]) == 0
+    out = capsys.readouterr().out
+    h = pd.read_csv(folder / "holdings.csv")
+    v = _mandate_weights(folder)
+    assert f"fund: {h['security_id'].nunique()} securities in {len(h)} positions, 3 mandates" \
+        in out
+    for m in "ABC":
+        n = (h["mandate"] == m).sum()
+        assert f"mandate '{m}': {n} holdings, weight {v[m]:.1%}" in out
+
+
+def test_summary_commentary_once_on_the_fund_overview(tmp_path):
+    from reporter.build import assemble
+
+    folder = write_fund(tmp_path / "fund")
+    (folder / "commentary").mkdir()
+    (folder / "commentary" / "summary.md").write_text(
+        "---\nauthor: Test Author\ndate: 2026-12-01\n---\nAn invented note on the fund.\n",
+        encoding="utf-8")
+    html = assemble(load_settings(folder)).html()
+    assert html.count("An invented note on the fund.") == 1
+    start = html.index('<section class="chapter" id="summary">')
+    assert start < html.index("An invented note on the fund.") < html.index('id="fund-risk"')
+
+
 # --- bad fund packs -------------------------------------------------------------------------
 
 def _run(pack: Path, out: Path, capsys) -> tuple[int, str]:
