@@ -38,8 +38,8 @@ WORKLOADS = {  # name: (holdings, periods, frequency)
     "large": (2000, 2520, "daily"),
 }
 BATCH = (60, 120, "monthly")
-STAGES = ["read", "validate", "analytics", "charts", "html", "pdf"]
-SVG = re.compile(r"<svg\b.*?</svg>", re.S)
+STAGES = ["read", "validate", "analytics", "charts", "html", "pdf", "results"]
+SVG = re.compile(r"<svg\b.*?</svg>|<img class=\"chart-image\"[^>]*>", re.S)  # every chart
 
 
 def _timed(times: dict, name: str, fn):
@@ -50,32 +50,27 @@ def _timed(times: dict, name: str, fn):
 
 
 def run_stages(folder: Path) -> dict:
-    """Build the pack in ``folder`` stage by stage (in memory), then measure the floors."""
+    """Build the pack in ``folder`` exactly as ``reporter build`` does, timing its stages
+    (read, validate, analyse and chart inside :func:`reporter.build.assemble`, then HTML, PDF
+    and the results files), then measure the floors."""
     import pyarrow.csv as pacsv
 
-    from reporter.analytics.pack import analyse
-    from reporter.build import build_time
-    from reporter.charts import build_charts
+    from reporter.build import assemble, pack_files
     from reporter.config import load_settings
-    from reporter.context import build_context
-    from reporter.render.html import export_charts, render_html
+    from reporter.progress import Progress
     from reporter.render.pdf import render_pdf
-    from reporter.validate import read_inputs, validate_tables
 
-    t: dict[str, float] = {}
     settings = load_settings(folder)
-    raws, problems = _timed(t, "read", lambda: read_inputs(settings))
-    inputs = _timed(t, "validate", lambda: validate_tables(settings, raws, problems))
-    res = _timed(t, "analytics", lambda: analyse(inputs, settings))
-
-    def charts():
-        ctx = build_context(settings, inputs, res, build_charts(res), "0" * 64, build_time())
-        return ctx, export_charts(ctx)
-
-    ctx, svgs = _timed(t, "charts", charts)
-    html = _timed(t, "html", lambda: (render_html(ctx, svgs, for_print=False),
-                                      render_html(ctx, svgs, for_print=True)))[1]
-    pdf = _timed(t, "pdf", lambda: render_pdf(html))
+    progress = Progress(quiet=True)
+    a = assemble(settings, progress=progress)
+    t = {"read": progress.times["read"], "validate": progress.times["validate"],
+         "analytics": progress.times["analyse"], "charts": progress.times["chart"]}
+    html = _timed(t, "html", lambda: (a.html(for_print=False), a.html(for_print=True)))
+    pdf = _timed(t, "pdf", lambda: render_pdf(html[1], base_dir=settings.pack_dir,
+                                              allowed=(settings.pack_dir,)))
+    _timed(t, "results", lambda: pack_files(a, html[0], pdf))
+    html = html[1]
+    inputs = a.inputs
     peak_build = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
 
     floors: dict[str, float] = {}
@@ -214,7 +209,7 @@ def table(results: dict[str, dict], batch_result: dict | None) -> str:
                   f"{r['n_periods']:,} periods in the window, {r['pages']} PDF pages", "",
                   "| stage | seconds | floor | ratio |", "| --- | ---: | --- | ---: |"]
         floor_of = {"read": "read", "validate": None, "analytics": "analytics",
-                    "charts": None, "html": None, "pdf": "pdf"}
+                    "charts": None, "html": None, "pdf": "pdf", "results": None}
         for st in STAGES:
             fl = floor_of[st]
             ratio = (f"{(s['read'] + s['validate']) / f['read']:.2f} (read + validate)"

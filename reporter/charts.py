@@ -205,9 +205,7 @@ def thin_series(df: pd.DataFrame, by: str = "series",
 
 def rolling_portfolio_chart(res: PackResults) -> alt.LayerChart:
     """The portfolio's trailing-window beta with its confidence band (OLS errors)."""
-    t = res.rolling_table
-    df = thin_series(t[t["series"] == PORTFOLIO_SERIES]).copy()
-    df["date"] = pd.to_datetime(df["date"])
+    df = thin_series(res.rolling_rows([PORTFOLIO_SERIES])).copy()
     x = alt.X("date:T", title=None, axis=alt.Axis(format="%Y"))
     band = alt.Chart(df).mark_area(color=TEAL, opacity=0.18).encode(
         x=x, y=alt.Y("beta_ci_low:Q", title=f"Beta, trailing {res.rolling.window} periods",
@@ -225,9 +223,7 @@ def rolling_holdings_chart(res: PackResults, top: int = 10) -> alt.Chart:
     sec = res.securities.sort_values(["weight", "security_id"], ascending=[False, True])
     ids = list(sec["security_id"].head(top))
     names = dict(zip(sec["security_id"], sec["name"], strict=True))
-    t = res.rolling_table
-    df = thin_series(t[t["series"].isin(ids)]).copy()
-    df["date"] = pd.to_datetime(df["date"])
+    df = thin_series(res.rolling_rows(ids)).copy()
     df["holding"] = df["series"].map(names)
     order = [names[i] for i in ids]
     return alt.Chart(df).mark_line(color=INK, strokeWidth=1.2).encode(

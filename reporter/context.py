@@ -39,6 +39,7 @@ CAUTIONS = (
 # readable and WeasyPrint lays out fewer pages (see BENCHMARKS.md).
 BETA_LIST_MAX = 25
 COMPACT_APPENDIX_FROM = 250
+LISTING_ROWS = (66, 82)  # rows of the print listing on its first A4 page, and on each next
 
 
 @dataclass(frozen=True)
@@ -114,6 +115,7 @@ class PackContext:
     risk_holdings: list[dict] = field(default_factory=list)   # largest risk contributors
     beta_not_one_total: int = 0      # how many holdings' beta intervals exclude 1
     compact_appendix: bool = False   # a long holdings appendix set in a denser layout
+    listing_rows: tuple[int, int] = LISTING_ROWS  # rows per page of its print listing
     risk_sectors: list[dict] = field(default_factory=list)    # contributions by sector
     covariance_auto: bool = True     # the method was chosen by the "auto" rule
     has_benchmark: bool = False      # an optional benchmark series was given

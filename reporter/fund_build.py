@@ -34,7 +34,7 @@ from reporter.fund_inputs import FundInputs, validate_fund
 from reporter.limits import LimitsReport, evaluate_limits
 from reporter.progress import Progress
 from reporter.render.environment import make_environment
-from reporter.render.html import chart_svg, export_charts, render_html
+from reporter.render.html import chart_svg, export_charts, print_charts, render_html
 from reporter.validate import read_inputs
 
 TOTAL_SLUG = "total-fund"
@@ -51,6 +51,7 @@ class FundPart:
     results: PackResults
     context: PackContext
     svgs: dict
+    print_svgs: dict                 # the same charts as the PDF draws them
     limits: LimitsReport | None
     benchmark: str                   # what it is measured against, in words
     weight: float                    # weight in the fund (1 for the total)
@@ -98,7 +99,8 @@ class FundAssembled:
         user = self.settings.templates_dir
         parts = []
         for part in (self.total, *self.parts):
-            body = render_html(part.context, part.svgs, for_print=for_print,
+            body = render_html(part.context, part.print_svgs if for_print else part.svgs,
+                               for_print=for_print,
                                user_templates=user, extra={
                                    "part": True, "anchor_prefix": part.slug + "-",
                                    "part_title": part.name, "market_word": "benchmark",
@@ -114,7 +116,8 @@ class FundAssembled:
         values["commentary"] = dict(self.commentary.by_section)   # every note, for the fund
         env = make_environment(user)
         return env.get_template("fund.html.j2").render(
-            **values, svg=self.total.svgs, for_print=for_print, signoff=signoff,
+            **values, svg=self.total.print_svgs if for_print else self.total.svgs,
+            for_print=for_print, signoff=signoff,
             part=False, anchor_prefix="", part_title=None, parts=parts, fund_svg=self.svgs,
             market_word="market proxy", proxy_word="proxy",
             fund=self.fund_context())
@@ -205,9 +208,10 @@ def _part(name: str, slug: str, settings: Settings, inputs, res: PackResults,
     charts = build_charts(res, limits, "Benchmark")
     ctx = build_context(settings, inputs, res, charts, fingerprint, at, limits=limits,
                         commentary=commentary)
+    svgs = export_charts(ctx)
     return FundPart(name=name, slug=slug, settings=settings, results=res, context=ctx,
-                    svgs=export_charts(ctx), limits=limits, benchmark=benchmark,
-                    weight=weight)
+                    svgs=svgs, print_svgs=print_charts(ctx, svgs), limits=limits,
+                    benchmark=benchmark, weight=weight)
 
 
 def assemble_fund(settings: Settings, *, strict: bool = False,

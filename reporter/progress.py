@@ -15,6 +15,7 @@ class Progress:
     def __init__(self, quiet: bool = False, stream=None) -> None:
         self.stream = stream or sys.stderr
         self.quiet = quiet
+        self.times: dict[str, float] = {}      # seconds per finished stage, quiet or not
         self.live = (not quiet and hasattr(self.stream, "isatty") and self.stream.isatty()
                      and not os.environ.get("CI"))
         self._console = None
@@ -28,15 +29,18 @@ class Progress:
         start = time.perf_counter()
         if self.quiet:
             yield
+            self.times[name] = time.perf_counter() - start
             return
         if self._console is not None:
             with self._console.status(f"{name}..."):
                 yield
+            self.times[name] = time.perf_counter() - start
             self._console.print(f"[green]\u2713[/green] {name} "
-                                f"[dim]{time.perf_counter() - start:.2f} s[/dim]")
+                                f"[dim]{self.times[name]:.2f} s[/dim]")
         else:
             yield
-            print(f"reporter: {name} done ({time.perf_counter() - start:.2f} s)",
+            self.times[name] = time.perf_counter() - start
+            print(f"reporter: {name} done ({self.times[name]:.2f} s)",
                   file=self.stream, flush=True)
 
 

@@ -112,39 +112,58 @@ def as_float(raw: RawTable, column: str, coll: Collector, decimal: str, *,
     return values
 
 
-def as_dates(raw: RawTable, column: str, date_format: str, coll: Collector) -> np.ndarray:
-    """Column ``column`` as ``datetime64[D]`` (NaT where bad). Only ``date_format`` is accepted:
-    day-first and month-first are never guessed. Impossible dates (30 February) are errors."""
+def date_codes(raw: RawTable, column: str, date_format: str,
+               coll: Collector) -> tuple[np.ndarray, np.ndarray]:
+    """Column ``column`` as a code per row into an array of distinct calendar days.
+
+    Returns ``(codes, days)``: ``codes`` (int64, one per row) indexes ``days``
+    (``datetime64[D]``), and is -1 where the date is empty or bad. Each distinct date text is
+    parsed once, with ``date_format`` only: day-first and month-first are never guessed, and
+    impossible dates (30 February) are errors. Spreadsheet and Parquet date cells are taken as
+    calendar days. A long returns file repeats each date for every security, so this is one
+    pass over the rows (the CSV reader already delivers the column dictionary-encoded).
+    """
     arr = raw.table[column]
-    n = len(arr)
     if pa.types.is_date(arr.type) or pa.types.is_timestamp(arr.type):
         if not pa.types.is_date32(arr.type):       # date64 or timestamp: to calendar days
             arr = arr.cast(pa.timestamp("s")).cast(pa.date32())
-        out = arr.to_numpy(zero_copy_only=False)
-        out = np.asarray(out, dtype="datetime64[D]")
-        missing = np.isnat(out)
-        bad_rows = {int(i): None for i in np.flatnonzero(missing)}
+        enc = pc.dictionary_encode(arr).combine_chunks()
+        texts = None
+        parsed = np.asarray(enc.dictionary.to_numpy(zero_copy_only=False),
+                            dtype="datetime64[D]")
     else:
-        enc = pc.dictionary_encode(arr.cast(pa.string())).combine_chunks()
-        uniq = pd.Series(enc.dictionary.to_pylist(), dtype=object)
-        parsed = pd.to_datetime(uniq.str.strip(), format=date_format, errors="coerce")
-        uniq_days = parsed.to_numpy(dtype="datetime64[ns]").astype("datetime64[D]")
-        # integer codes (0 where empty): an index array with nulls would come out as float
-        codes = enc.indices.fill_null(0).to_numpy(zero_copy_only=False).astype(np.int64)
-        valid_codes = ~np.asarray(enc.indices.is_null().to_numpy(zero_copy_only=False))
-        out = np.full(n, np.datetime64("NaT"), dtype="datetime64[D]")
-        safe = np.where(valid_codes, codes, 0)
-        out[valid_codes] = uniq_days[safe[valid_codes]] if len(uniq_days) else out[valid_codes]
-        bad_rows = {int(i): (uniq.iloc[codes[i]] if valid_codes[i] else None)
-                    for i in np.flatnonzero(np.isnat(out))}
+        enc = _dictionary(arr)
+        texts = enc.dictionary.to_pylist()
+        stripped = pd.Series(texts, dtype=object).str.strip()
+        parsed = pd.to_datetime(stripped, format=date_format, errors="coerce").to_numpy(
+            dtype="datetime64[ns]").astype("datetime64[D]")
+    good = ~np.isnat(parsed)
+    # distinct texts -> distinct valid days; -1 for a bad text and (last slot) an empty cell
+    remap = np.append(np.where(good, np.cumsum(good) - 1, -1), -1)
+    raw_codes = enc.indices.fill_null(-1).to_numpy(zero_copy_only=False).astype(np.int64)
+    codes = remap[raw_codes]
     capped = _Capped(coll, f"bad dates in column {column}")
-    for i, text in bad_rows.items():
-        where = place(raw.name, raw.row_number(i), column)
-        if text is None:
+    for i in np.flatnonzero(codes < 0):
+        where = place(raw.name, raw.row_number(int(i)), column)
+        if raw_codes[i] < 0:
             capped.add(where, "date is empty")
         else:
+            text = texts[raw_codes[i]] if texts is not None else str(parsed[raw_codes[i]])
             capped.add(where, f"not a valid date in the format {date_format!r}: {text!r}")
+        if capped.count > MAX_PER_CHECK:       # the rest are only counted
+            capped.count += int((codes[i + 1:] < 0).sum())
+            break
     capped.close()
+    return codes, parsed[good]
+
+
+def as_dates(raw: RawTable, column: str, date_format: str, coll: Collector) -> np.ndarray:
+    """Column ``column`` as ``datetime64[D]`` (NaT where empty or bad; each bad value is
+    reported, see :func:`date_codes`)."""
+    codes, days = date_codes(raw, column, date_format, coll)
+    out = np.full(len(codes), np.datetime64("NaT"), dtype="datetime64[D]")
+    ok = codes >= 0
+    out[ok] = days[codes[ok]]
     return out
 
 
@@ -355,18 +374,22 @@ def _percent_columns(matrix: np.ndarray, frequency: str) -> tuple[np.ndarray, np
     if matrix.size == 0:
         return np.zeros(matrix.shape[1], dtype=bool), np.full(matrix.shape[1], np.nan)
     thr = PERCENT_MEDIAN[frequency]
+    N = matrix.shape[1]
+    n, over_thr, over1 = (np.zeros(N, dtype=np.int64) for _ in range(3))
+    med = np.full(N, np.nan)
     with np.errstate(all="ignore"), warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)   # a column with no values
-        absm = np.abs(matrix)                             # NaN stays NaN; comparisons False
-        n = np.isfinite(matrix).sum(axis=0)
-        over_thr = (absm > thr).sum(axis=0)
-        over1 = (absm > 1.0).sum(axis=0)
+        # blocks of columns, so that the temporaries stay small for a long daily panel
+        for lo in range(0, N, 256):
+            absm = np.abs(matrix[:, lo:lo + 256])          # NaN stays NaN; comparisons False
+            n[lo:lo + 256] = np.count_nonzero(np.isfinite(absm), axis=0)
+            over_thr[lo:lo + 256] = np.count_nonzero(absm > thr, axis=0)
+            over1[lo:lo + 256] = np.count_nonzero(absm > 1.0, axis=0)
         # the median can exceed thr only if at least half the values do: the exact median
         # is needed (and computed) for those columns alone
         cand = np.flatnonzero((n > 0) & (2 * over_thr >= n))
-        med = np.full(matrix.shape[1], np.nan)
         if len(cand):
-            med[cand] = np.nanmedian(absm[:, cand], axis=0)
+            med[cand] = np.nanmedian(np.abs(matrix[:, cand]), axis=0)
     return (med > thr) | (2 * over1 > n), med
 
 
@@ -394,7 +417,7 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     if not _require_columns(raw, ("date", "security_id", "return"), (), coll):
         return None
     spec = settings.inputs["returns"]
-    dates = as_dates(raw, "date", spec.date_format, coll)
+    dcodes, days = date_codes(raw, "date", spec.date_format, coll)
     values = as_float(raw, "return", coll, spec.decimal, allow_empty=False)
     # ids are trimmed, so that " FWX01" and "FWX01" are one security, and a blank id is
     # empty: the distinct values are trimmed (few), then the codes remapped (one pass)
@@ -411,33 +434,47 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     raw_codes = enc.indices.fill_null(-1).to_numpy(zero_copy_only=False).astype(np.int64)
     codes_all = remap[raw_codes]                                     # -1 indexes the last slot
     id_null = codes_all < 0
-    id_codes = np.where(id_null, 0, codes_all)
     capped = _Capped(coll, "empty security ids")
     for i in np.flatnonzero(id_null):
         capped.add(place(raw.name, raw.row_number(int(i)), "security_id"), "value is empty")
     capped.close()
 
-    ok = ~np.isnat(dates) & ~id_null
+    ok = (dcodes >= 0) & ~id_null
     all_ok = bool(ok.all())
     rows = np.arange(len(ok)) if all_ok else np.flatnonzero(ok)
-    keys = period_keys(dates if all_ok else dates[ok], settings.frequency)
-    codes = id_codes if all_ok else id_codes[ok]
-    uniq_keys, pidx = dense_rank(keys)
+    day_of = dcodes if all_ok else dcodes[ok]
+    codes = codes_all if all_ok else codes_all[ok]
+    # the periods are those of the distinct days in use (few): rank them once, then look up
+    # each row's period through its day's code
+    used = np.bincount(day_of, minlength=len(days)) > 0
+    uniq_keys, rank = np.unique(period_keys(days[used], settings.frequency),
+                                return_inverse=True)
+    period_of_day = np.full(len(days), -1, dtype=np.int64)
+    period_of_day[used] = rank
+    # each row's cell in the periods x ids matrix, period * n_ids + id (in place: a long file
+    # has millions of rows, and every fresh array of that length costs)
     n_ids = max(len(ids), 1)
-    combined = pidx.astype(np.int64) * n_ids + codes
+    combined = period_of_day[day_of]
+    combined *= n_ids
+    combined += codes
     space = len(uniq_keys) * n_ids
-    if space <= 50_000_000:
-        has_dupes = bool(len(combined)) and np.bincount(combined, minlength=space).max() > 1
+    if space <= 200_000_000:
+        seen = np.zeros(space, dtype=bool)
+        seen[combined] = True
+        n_cells = int(np.count_nonzero(seen))
+        del seen
     else:
-        has_dupes = len(np.unique(combined)) < len(combined)
+        n_cells = len(np.unique(combined))
+    has_dupes = n_cells < len(combined)
     if has_dupes:
+        dates = days[np.maximum(dcodes, 0)]          # only read where the date is good
         order = np.argsort(combined, kind="stable")
         s = combined[order]
         dup = np.flatnonzero(s[1:] == s[:-1]) + 1
         capped = _Capped(coll, "repeated (date, security) rows")
         for d in dup:
             i, first = rows[order[d]], rows[order[d - 1]]
-            sid = ids[id_codes[i]]
+            sid = ids[codes_all[i]]
             if dates[i] == dates[first]:
                 agree = "the same" if values[i] == values[first] else "a different"
                 msg = (f"duplicate row for ({dates[i]}, {sid}) with {agree} value "
@@ -449,22 +486,26 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
             capped.add(place(raw.name, raw.row_number(int(i)), "date"), msg)
         capped.close()
 
-    matrix = np.full((len(uniq_keys), len(ids)), np.nan)
-    matrix[pidx, codes] = values if all_ok else values[ok]
+    # every cell is written below when every (period, id) has a row: no NaN fill needed
+    shape = (len(uniq_keys), len(ids))
+    matrix = np.empty(shape) if n_cells == space else np.full(shape, np.nan)
+    matrix.ravel()[combined] = values if all_ok else values[ok]
 
     # securities that look like percentages are reported once, in _finish_panel
     percent = _percent_columns(matrix, settings.frequency)
-    pct_code = np.append(percent[0], False)
-    code_of_row = np.where(id_null, len(ids), id_codes)    # len(ids): the "no id" slot
-    _report_below_minus_100(raw, np.where(pct_code[code_of_row], np.nan, values), "return",
-                            "returns below -100%", coll)
+    below = values < -1.0
+    if below.any():
+        pct_code = np.append(percent[0], False)
+        code_of_row = np.where(id_null, len(ids), codes_all)  # len(ids): the "no id" slot
+        _report_below_minus_100(raw, np.where(pct_code[code_of_row], np.nan, values),
+                                "return", "returns below -100%", coll)
 
     # file rows are looked up only when a message needs one (rare), not for every cell
     def first_row(j: int) -> int:
         return int(rows[np.argmax(codes == j)])
 
     def row_of(t: int, j: int) -> int:
-        return int(rows[np.flatnonzero((pidx == t) & (codes == j))[0]])
+        return int(rows[np.flatnonzero(combined == t * n_ids + j)[0]])
 
     return _finish_panel(raw, matrix, uniq_keys, ids, holdings, settings, coll, "long",
                          lambda j: place(raw.name, raw.row_number(first_row(j)), "return"),
@@ -477,21 +518,6 @@ def _dictionary(column: pa.ChunkedArray) -> pa.DictionaryArray:
     if pa.types.is_dictionary(column.type):
         return pa.table({"c": column}).unify_dictionaries().column(0).combine_chunks()
     return pc.dictionary_encode(column.cast(pa.string())).combine_chunks()
-
-
-def dense_rank(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """``np.unique(keys, return_inverse=True)`` for integer keys, without sorting when their
-    range is small (periods: months, weeks or days), in O(n)."""
-    if len(keys) == 0:
-        return np.unique(keys, return_inverse=True)
-    lo, hi = int(keys.min()), int(keys.max())
-    if hi - lo > 50_000_000:
-        return np.unique(keys, return_inverse=True)
-    present = np.zeros(hi - lo + 1, dtype=bool)
-    present[keys - lo] = True
-    uniq = np.flatnonzero(present) + lo
-    rank = np.cumsum(present) - 1
-    return uniq, rank[keys - lo]
 
 
 def _returns_wide(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | None:
@@ -551,9 +577,12 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
         return None
     col_of = {s: j for j, s in enumerate(ids)}
     source = pd.Index(ids).get_indexer(list(holdings.ids))     # -1 where not in the file
-    out = np.full((matrix.shape[0], len(holdings.ids)), np.nan)
     have = source >= 0
-    out[:, have] = matrix[:, source[have]]
+    if len(ids) == len(source) and np.array_equal(source, np.arange(len(ids))):
+        out = matrix             # the file lists exactly the holdings, in their order
+    else:
+        out = np.full((matrix.shape[0], len(holdings.ids)), np.nan)
+        out[:, have] = matrix[:, source[have]]
     run = longest_zero_run(out)
     for k in np.flatnonzero(~have):
         # the holdings frame keeps the file's rows in order: holding k is data row k

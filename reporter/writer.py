@@ -27,21 +27,23 @@ class OutputSet:
     """Files of one build, held in memory until :func:`commit`."""
 
     def __init__(self) -> None:
-        self._files: dict[str, bytes] = {}
+        self._files: dict[str, bytes | memoryview] = {}
 
-    def add(self, rel: str, data: bytes | str) -> None:
+    def add(self, rel: str, data: bytes | str | memoryview) -> None:
         """Add one file at relative POSIX path ``rel``; refuses escapes and repeats."""
         p = PurePosixPath(rel)
         if p.is_absolute() or ".." in p.parts or not p.parts or rel != str(p):
             raise OutputError(f"refusing to write outside the output folder: {rel!r}")
         if rel in self._files:
             raise OutputError(f"refusing to write {rel!r} twice in one build")
-        self._files[rel] = data.encode("utf-8") if isinstance(data, str) else bytes(data)
+        # a memoryview (a large buffer built elsewhere, such as pyarrow's) is kept, not copied
+        self._files[rel] = (data.encode("utf-8") if isinstance(data, str)
+                            else data if isinstance(data, memoryview) else bytes(data))
 
     def __contains__(self, rel: str) -> bool:
         return rel in self._files
 
-    def __getitem__(self, rel: str) -> bytes:
+    def __getitem__(self, rel: str) -> bytes | memoryview:
         return self._files[rel]
 
     @property

@@ -122,6 +122,8 @@ CASES: dict[str, tuple[str, list[str]]] = {
     # the blank line 21 counts: the bad value is on line 39 of the file
     "blank_line_then_bad_value": (ERROR, [
         "returns.csv:39:return: not a number: 'n.a.'"]),
+    "quoted_line_break_then_bad_value": (ERROR, [
+        "holdings.csv:5:weight: not a number: 'abc'"]),
     "ragged_row": (ERROR, [
         "returns.csv:15: expected 3 fields (delimiter ','), found 4"]),
     "returns_without_rows": (ERROR, [

@@ -184,3 +184,20 @@ def test_shared_pairwise_moments_match_the_separate_ones():
         cov, corr = pairwise_covariance_and_correlation(data)
         np.testing.assert_allclose(cov, pd.DataFrame(data).cov().to_numpy(), rtol=1e-10)
         np.testing.assert_allclose(corr, pd.DataFrame(data).corr().to_numpy(), rtol=1e-10)
+
+
+def test_random_subset_sums_agree_both_ways_and_with_a_direct_sum():
+    # the block gather and the indicator product are two exact forms of 1' C_sub 1; both are
+    # checked against numpy's plain sum of each draw's submatrix (np.ix_), draw by draw
+    from reporter.analytics.diversification import _block_sums, _indicator_sums
+
+    rng = np.random.default_rng(11)
+    r = rng.normal(size=(90, 40)) + rng.normal(size=(90, 1))
+    C = np.cov(r, rowvar=False)
+    pick = np.argsort(rng.random((300, 40)), axis=1)[:, :25]
+    direct = np.array([C[np.ix_(p, p)].sum() for p in pick])
+    np.testing.assert_allclose(_block_sums(C, pick), direct, rtol=1e-12)
+    np.testing.assert_allclose(_indicator_sums(C, pick, chunk=64), direct, rtol=1e-12)
+    # sizes on both sides of the switch (16 n^2 <= N^2: n <= 10 gathers here) give the band
+    band = random_subset_band(C, np.array([5, 11, 39]), 50, seed=2)
+    assert np.all(np.diff(band.median) < 0)

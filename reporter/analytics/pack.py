@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 from functools import cached_property
 
@@ -267,21 +268,29 @@ class PackResults:
             return dict.fromkeys(figures)
         return figures
 
-    @cached_property
+    @property
     def rolling_table(self) -> pd.DataFrame:
         """Long table of rolling betas (:data:`ROLLING_COLUMNS`), portfolio first, complete
-        windows only; dates ascending."""
+        windows only; dates ascending (``datetime64``; written as ISO dates). Built on each
+        call and not kept: for 2,000 daily holdings it has millions of rows."""
+        return self.rolling_rows()
+
+    def rolling_rows(self, series: Sequence[str] | None = None) -> pd.DataFrame:
+        """:attr:`rolling_table` for the given series ids only (``PORTFOLIO`` or security
+        ids; all when None), built from those columns alone: a chart of ten holdings does not
+        pay for a table of every holding on every date."""
+        ids = np.asarray((PORTFOLIO_SERIES,) + tuple(self.window.security_ids), dtype=object)
+        cols = np.arange(len(ids)) if series is None else np.flatnonzero(np.isin(ids, series))
         tcrit = float(t_critical(self.confidence, self.rolling.window - 2))
-        ids = (PORTFOLIO_SERIES,) + tuple(self.window.security_ids)
-        beta = np.column_stack([self.rolling_portfolio.beta, self.rolling.beta])
-        se = np.column_stack([self.rolling_portfolio.beta_se, self.rolling.beta_se])
+        beta = np.column_stack([self.rolling_portfolio.beta, self.rolling.beta])[:, cols]
+        se = np.column_stack([self.rolling_portfolio.beta_se, self.rolling.beta_se])[:, cols]
         t_idx, j_idx = np.nonzero(np.isfinite(beta))
         order = np.lexsort((t_idx, j_idx))
         t_idx, j_idx = t_idx[order], j_idx[order]
         b, e = beta[t_idx, j_idx], se[t_idx, j_idx]
         return pd.DataFrame({
-            "date": np.asarray(self.history_dates)[t_idx].astype(str),
-            "series": np.asarray(ids, dtype=object)[j_idx],
+            "date": np.asarray(self.history_dates, dtype="datetime64[D]")[t_idx],
+            "series": ids[cols][j_idx],
             "beta": b, "beta_se": e, "beta_ci_low": b - tcrit * e, "beta_ci_high": b + tcrit * e,
         })
 

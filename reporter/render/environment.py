@@ -52,6 +52,15 @@ def num(x, digits: int = 2, signed: bool = False) -> str:
     return s.replace("-", "\u2212")
 
 
+def fit(x, width: int, align: str = "<") -> str:
+    """Text set in exactly ``width`` characters, for the fixed-width print listing: cut with
+    an ellipsis when longer, padded with spaces (``align`` '<' left, '>' right)."""
+    text = "" if x is None else str(x)
+    if len(text) > width:
+        text = text[:width - 1] + "\u2026"
+    return f"{text:{align}{width}}"
+
+
 def longdate(d) -> str:
     """A date as '30 November 2026'."""
     if isinstance(d, str):
@@ -74,5 +83,5 @@ def make_environment(user_templates: Path | None = None) -> Environment:
     loaders += [PrefixLoader({"default": default}), default]
     env = Environment(loader=ChoiceLoader(loaders), autoescape=True, undefined=StrictUndefined,
                       trim_blocks=True, lstrip_blocks=True, keep_trailing_newline=True)
-    env.filters.update(pct=pct, bp=bp, num=num, longdate=longdate)
+    env.filters.update(pct=pct, bp=bp, num=num, longdate=longdate, fit=fit)
     return env

@@ -300,6 +300,18 @@ def blank_line_then_bad_value(p: Pack) -> None:
     p.raw["returns.csv"] = "\n".join(lines) + "\n"
 
 
+def quoted_line_break_then_bad_value(p: Pack) -> None:
+    # a quoted name spanning two lines (lines 3-4) must not shift the line numbers of what
+    # follows: the bad weight of FWX03 is on line 5, its fourth record
+    header, rows = p.tables["holdings.csv"]
+    rows[2][header.index("weight")] = "abc"
+    lines = [",".join(header)] + [",".join(r) for r in rows]
+    name = rows[1][header.index("name")]
+    lines[2] = lines[2].replace(name, f'"{name}\nregistered office: Harbour Row"')
+    del p.tables["holdings.csv"]
+    p.raw["holdings.csv"] = "\n".join(lines) + "\n"
+
+
 def returns_without_rows(p: Pack) -> None:
     p.tables["returns.csv"] = (p.tables["returns.csv"][0], [])
 
@@ -332,7 +344,8 @@ CASES: dict[str, Callable[[Pack], None]] = {f.__name__: f for f in (
     window_longer_than_data, market_gap, risk_free_missing_periods, period_end_after_data,
     pack_toml_unknown_key, pack_toml_wrong_type, pack_toml_bad_date_format, path_leaves_pack,
     missing_input_file, risk_free_annual_percentage, risk_free_annual_decimal,
-    blank_line_then_bad_value, ragged_row, returns_without_rows, trailing_delimiter,
+    blank_line_then_bad_value, quoted_line_break_then_bad_value, ragged_row,
+    returns_without_rows, trailing_delimiter,
     market_extreme_return,
 )}
 

@@ -1,0 +1,115 @@
+"""Long packs: the print listing of a long holdings appendix, dense charts drawn as images in
+print, the rolling-beta results file written in blocks, and the fixed-width text filter."""
+
+from __future__ import annotations
+
+import io
+import re
+import sys
+from types import SimpleNamespace
+
+import altair as alt
+import numpy as np
+import pandas as pd
+import pypdf
+import pytest
+
+from reporter.build import build_pack
+from reporter.context import LISTING_ROWS
+from reporter.render.environment import fit
+from reporter.render.html import DENSE_SVG_ELEMENTS, chart_svg, print_charts
+from tests.conftest import REPO
+
+sys.path.insert(0, str(REPO / "benchmarks"))
+from workloads import write_scheme  # noqa: E402
+
+N_HOLDINGS = 300          # above the 250 from which the print appendix is a listing
+
+
+@pytest.fixture(scope="module")
+def long_build(tmp_path_factory):
+    root = tmp_path_factory.mktemp("long")
+    folder = write_scheme(root / "pack", N_HOLDINGS, 72, "monthly", seed=5, label="LP")
+    hold = pd.read_csv(folder / "holdings.csv")
+    hold.loc[0, "name"] = "Harrowgate Estuarine Water & Sewerage Holdings plc"   # long
+    hold.to_csv(folder / "holdings.csv", index=False, float_format="%.8f")
+    out = root / "out"
+    build_pack(folder, out)
+    reader = pypdf.PdfReader(io.BytesIO((out / "pack.pdf").read_bytes()))
+    pages = [p.extract_text() or "" for p in reader.pages]
+    return SimpleNamespace(out=out, hold=hold, pages=pages,
+                           html=(out / "pack.html").read_text(encoding="utf-8"))
+
+
+def test_every_holding_is_listed_once_in_the_print_appendix(long_build):
+    listing = [p for p in long_build.pages if "Holdings appendix" in p and " LP0" in p]
+    text = "\n".join(listing)
+    ids = long_build.hold["security_id"]
+    counts = {sid: len(re.findall(rf"(?m)^{sid}\b", text)) for sid in ids}
+    assert set(counts.values()) == {1}, {k: v for k, v in counts.items() if v != 1}
+    # the first page holds LISTING_ROWS[0] rows, each next page at most LISTING_ROWS[1]
+    per_page = [len(re.findall(r"(?m)^LP\d{5}\b", p)) for p in listing]
+    assert per_page[0] == LISTING_ROWS[0]
+    assert all(n <= LISTING_ROWS[1] for n in per_page[1:]) and sum(per_page) == N_HOLDINGS
+    assert "fixed-width listing for print" in text
+    # the long name is cut to its 26 characters with an ellipsis; the CSV keeps it whole
+    assert "Harrowgate Estuarine Wate\u2026" in text
+    sec = pd.read_csv(long_build.out / "results/securities.csv")
+    assert "Harrowgate Estuarine Water & Sewerage Holdings plc" in set(sec["name"])
+
+
+def test_the_screen_pack_keeps_the_full_table(long_build):
+    html = long_build.html
+    assert '<pre class="listing">' not in html
+    body = html[html.index('id="holdings"'):]
+    assert body.count("<tr><td>LP") == N_HOLDINGS
+    assert "Harrowgate Estuarine Water &amp; Sewerage Holdings plc" in body
+
+
+def test_rolling_results_file_matches_the_results_in_memory(long_build):
+    # written by pyarrow in blocks of series; read back it is the rolling table, rounded to
+    # 10 decimal places, in the same order
+    from reporter.analytics.pack import analyse
+    from reporter.config import load_settings
+    from reporter.validate import validate_pack
+
+    folder = long_build.out.parent / "pack"
+    settings = load_settings(folder)
+    res = analyse(validate_pack(settings), settings)
+    expected = res.rolling_table
+    got = pd.read_csv(long_build.out / "results/rolling_beta.csv")
+    assert list(got.columns) == list(expected.columns)
+    assert len(got) == len(expected) and got["series"].iloc[0] == "PORTFOLIO"
+    assert (got["series"].to_numpy() == expected["series"].to_numpy()).all()
+    assert (got["date"].to_numpy() == expected["date"].dt.strftime("%Y-%m-%d").to_numpy()).all()
+    for c in ("beta", "beta_se", "beta_ci_low", "beta_ci_high"):
+        np.testing.assert_allclose(got[c], expected[c], rtol=0, atol=5.1e-11)
+
+
+def test_a_dense_chart_is_an_image_in_print_and_a_small_one_stays_vector():
+    rng = np.random.default_rng(1)
+    n = DENSE_SVG_ELEMENTS + 500
+    dense = alt.Chart(pd.DataFrame({"x": rng.normal(size=n), "y": rng.normal(size=n)})
+                      ).mark_point().encode(x="x:Q", y="y:Q").properties(width=400, height=300)
+    small = alt.Chart(pd.DataFrame({"x": [1, 2], "y": [3, 4]})).mark_point().encode(
+        x="x:Q", y="y:Q")
+    ctx = SimpleNamespace(charts={"dense": dense, "small": small})
+    svgs = {name: chart_svg(chart) for name, chart in ctx.charts.items()}
+    assert svgs["dense"].count("<") > DENSE_SVG_ELEMENTS >= svgs["small"].count("<")
+    out = print_charts(ctx, svgs)
+    assert out["small"] == svgs["small"]
+    width, height = re.search(r'<svg\b[^>]*?width="([\d.]+)"[^>]*?height="([\d.]+)"',
+                              svgs["dense"]).groups()
+    assert out["dense"].startswith('<img class="chart-image"')
+    assert f"width:{width}px;height:{height}px" in out["dense"]
+    png = __import__("base64").b64decode(out["dense"].split("base64,")[1].split('"')[0])
+    assert png[:8] == b"\x89PNG\r\n\x1a\n"
+    # drawn at 300 dpi: 300/72 pixels per CSS point of the SVG's size
+    w_px = int.from_bytes(png[16:20], "big")
+    assert abs(w_px - float(width) * 300 / 72) <= 2
+
+
+def test_fit_cuts_with_an_ellipsis_and_pads():
+    assert fit("abc", 5) == "abc  " and fit("abc", 5, ">") == "  abc"
+    assert fit("abcdefgh", 5) == "abcd\u2026" and len(fit("abcdefgh", 5)) == 5
+    assert fit(None, 3) == "   " and fit(42, 4, ">") == "  42"
