@@ -56,7 +56,7 @@ def _check_fund(settings: Settings, strict: bool) -> CheckSummary:
     lines = [
         f"pack: {settings.title} ({settings.organisation}), period ending {settings.period_end}",
         f"fund: {len(fin.total.holdings.ids)} securities in {len(fin.positions)} positions, "
-        f"{len(fin.mandates)} mandates, weights from {fin.weight_source}; measured against "
+        f"{len(fin.mandates)} mandate(s), weights from {fin.weight_source}; measured against "
         f"{fin.benchmark_label}",
         *(f"mandate {m.mandate.name!r}: {len(m.inputs.holdings.ids)} holdings, weight "
           f"{m.weight:.1%} (strategic {m.mandate.strategic_weight:.1%}), benchmark "

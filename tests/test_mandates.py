@@ -272,7 +272,7 @@ def test_check_summarises_a_fund(tmp_path, capsys):
     out = capsys.readouterr().out
     h = pd.read_csv(folder / "holdings.csv")
     v = _mandate_weights(folder)
-    assert f"fund: {h['security_id'].nunique()} securities in {len(h)} positions, 3 mandates" \
+    assert f"fund: {h['security_id'].nunique()} securities in {len(h)} positions, 3 mandate(s)" \
         in out
     for m in "ABC":
         n = (h["mandate"] == m).sum()
