@@ -3,8 +3,9 @@
 Two forms: a build folder (``reporter build``'s output) or ``archive:ARCHIVE_DIR``, the latest
 signed pack whose period ends strictly before this pack's. Only the build's ``results/`` are
 read: ``manifest.json``, ``portfolio.json``, ``securities.csv`` and, when present,
-``limits.json`` (older builds have none). The comparison itself is pure and lives in
-:mod:`reporter.analytics.changes`.
+``limits.json`` (older builds have none). From a fund's build, the total fund's rows of
+``securities.csv`` are read (its ``portfolio.json`` and ``limits.json`` are the total
+fund's). The comparison itself is pure and lives in :mod:`reporter.analytics.changes`.
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from reporter.config import Settings
+from reporter.config import TOTAL_FUND, Settings
 from reporter.errors import InputError, Problem
 
 WHERE = "pack.toml:compare.previous"
@@ -104,6 +105,9 @@ def read_build(folder: Path, source: str, period_end: dt.date) -> PreviousPack:
     except (OSError, ValueError, pd.errors.ParserError) as exc:
         problems.append(Problem(str(results / "securities.csv"), f"cannot be read: {exc}"))
         sec = None
+    if sec is not None and "mandate" in sec.columns:     # a fund's build: its total fund
+        sec = sec[sec["mandate"].astype(str) == TOTAL_FUND].drop(columns="mandate")
+        sec = sec.reset_index(drop=True)
     if sec is not None:
         for col in SECURITY_COLUMNS:
             if col not in sec.columns:

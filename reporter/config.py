@@ -482,9 +482,6 @@ def resolve_mandates(model: PackFile, fname: str, add_input, problems: list[Prob
     elif bench is not None:
         kind = "file"
         add_input("fund.benchmark", bench, "fund.benchmark")
-    if model.compare is not None:
-        problems.append(Problem(f"{fname}:compare", "comparison with an earlier pack is not "
-                                "available for a fund with mandates yet; remove [compare]"))
     if model.inputs.benchmark is not None or model.inputs.portfolio_returns is not None:
         which = "benchmark" if model.inputs.benchmark is not None else "portfolio_returns"
         problems.append(Problem(f"{fname}:inputs.{which}", "not used in a fund with mandates: "

@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 from markupsafe import Markup
 
+from reporter.analytics.changes import PackChanges, compare_packs
 from reporter.analytics.fund import (
     MandateRisk,
     mandate_risk,
@@ -25,11 +26,12 @@ from reporter.analytics.fund import (
     overlap_pairs,
 )
 from reporter.analytics.pack import PackResults, analyse
+from reporter.changes import read_previous
 from reporter.charts import build_charts, mandate_risk_chart, mandate_weights_chart
 from reporter.commentary import CommentarySet, read_commentary
 from reporter.config import TOTAL_FUND, Settings
 from reporter.context import PackContext, build_context
-from reporter.errors import Problem
+from reporter.errors import InputError, Problem
 from reporter.fund_inputs import FundInputs, validate_fund
 from reporter.limits import LimitsReport, evaluate_limits
 from reporter.progress import Progress
@@ -74,6 +76,7 @@ class FundAssembled:
     compare_warnings: list[Problem] = field(default_factory=list)
     analysis: FundAnalysis | None = None
     svgs: dict = field(default_factory=dict)      # the fund pages' charts, inline SVG
+    changes: PackChanges | None = None            # the total fund against [compare]
 
     @property
     def results(self) -> PackResults:
@@ -88,9 +91,6 @@ class FundAssembled:
     def limits(self) -> LimitsReport | None:
         return self.total.limits
 
-    @property
-    def changes(self):
-        return None
 
     def html(self, for_print: bool = False, signoff: dict | None = None) -> str:
         """The fund pack as one HTML document: cover, contents, the fund's own pages, then
@@ -107,8 +107,7 @@ class FundAssembled:
                                    "proxy_word": "benchmark"})
             parts.append({"name": part.name, "slug": part.slug, "html": Markup(body),
                           "sections": [s for s in part.context.sections
-                                       if s.anchor not in ("methodology", "cautions",
-                                                           "changes")],
+                                       if s.anchor not in ("methodology", "cautions")],
                           "benchmark": part.benchmark, "weight": part.weight})
         ctx = self.total.context
         values = {f.name: getattr(ctx, f.name) for f in dataclasses.fields(ctx)}
@@ -203,11 +202,12 @@ def _records(df: pd.DataFrame) -> list[dict]:
 
 def _part(name: str, slug: str, settings: Settings, inputs, res: PackResults,
           fingerprint: str, at: dt.datetime, benchmark: str, weight: float,
-          commentary: dict | None) -> FundPart:
+          commentary: dict | None, changes: PackChanges | None = None,
+          compare_note: str | None = None) -> FundPart:
     limits = evaluate_limits(settings.limits, res) if settings.limits else None
     charts = build_charts(res, limits, "Benchmark")
     ctx = build_context(settings, inputs, res, charts, fingerprint, at, limits=limits,
-                        commentary=commentary)
+                        commentary=commentary, changes=changes, compare_note=compare_note)
     svgs = export_charts(ctx)
     return FundPart(name=name, slug=slug, settings=settings, results=res, context=ctx,
                     svgs=svgs, print_svgs=print_charts(ctx, svgs), limits=limits,
@@ -224,11 +224,15 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
     at = at or build_time()
     with progress.stage("read"):
         raws, read_problems = read_inputs(settings)
+        previous, compare_warnings = read_previous(settings)
         commentary = read_commentary(settings.pack_dir)
-        if "changes" in commentary.by_section:
-            read_problems = [*read_problems, Problem(
-                "commentary/changes.md", "a fund pack has no 'Since last pack' section; "
-                "remove the file")]
+        compare_note = compare_warnings[0].message if compare_warnings else None
+        if "changes" in commentary.by_section and previous is None and compare_note is None:
+            compare_warnings.append(Problem(
+                "commentary/changes.md", "not shown: there is no [compare] table in "
+                "pack.toml, so the pack has no 'Since last pack' section", "warning"))
+        if strict and compare_warnings:
+            raise InputError(compare_warnings)
     with progress.stage("validate"):
         fin = validate_fund(settings, raws, read_problems, strict=strict)
     with progress.stage("analyse"):
@@ -236,10 +240,17 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
         hashes.update(commentary.hashes)
         fp = fingerprint(hashes)
         fa = analyse_fund(fin, settings)
+        total_limits = evaluate_limits(settings.limits, fa.results) if settings.limits else None
+        changes = None
+        if previous is not None:        # the total fund against the earlier pack's
+            changes = compare_packs(previous, fa.results,
+                                    total_limits.as_json()["limits"] if total_limits else None,
+                                    settings.confidence)
     with progress.stage("chart"):
         total = _part(TOTAL_FUND, TOTAL_SLUG, settings, fin.total, fa.results, fp, at,
                       fin.benchmark_label, 1.0,   # the summary note is on the fund overview
-                      {k: c for k, c in commentary.by_section.items() if k != "summary"})
+                      {k: c for k, c in commentary.by_section.items() if k != "summary"},
+                      changes=changes, compare_note=compare_note)
         parts = tuple(
             _part(m.mandate.name, m.mandate.slug, own, m.inputs, res, fp, at,
                   f"its benchmark ({m.benchmark_name})", m.weight, None)
@@ -249,7 +260,8 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
                 "risk": Markup(chart_svg(mandate_risk_chart(mandates_only)))}
     return FundAssembled(settings=settings, inputs=fin, total=total, parts=parts,
                          risk=fa.risk, table=fa.table, overlap=fa.overlap, pairs=fa.pairs,
-                         hashes=hashes, commentary=commentary, analysis=fa, svgs=svgs)
+                         hashes=hashes, commentary=commentary, analysis=fa, svgs=svgs,
+                         compare_warnings=compare_warnings, changes=changes)
 
 
 def fund_results_files(a: FundAssembled) -> dict[str, str]:

@@ -293,6 +293,43 @@ def test_summary_commentary_once_on_the_fund_overview(tmp_path):
     assert start < html.index("An invented note on the fund.") < html.index('id="fund-risk"')
 
 
+def test_fund_compared_with_its_earlier_build(tmp_path):
+    """[compare] in a fund compares the total fund with the earlier build's total fund."""
+    from reporter.build import assemble, pack_files
+    from reporter.writer import commit
+
+    prev = write_fund(tmp_path / "prev", shared=2)
+    toml = prev / "pack.toml"
+    toml.write_text(toml.read_text(encoding="utf-8").replace("period_end = 2026-11-30",
+                                                             "period_end = 2026-10-31"),
+                    encoding="utf-8")
+    a = assemble(load_settings(prev))
+    commit(pack_files(a, "<!DOCTYPE html>", b"%PDF-1.7 test"), tmp_path / "prev-build")
+    cur = write_fund(tmp_path / "cur", shared=2,
+                     extra_toml='\n[compare]\nprevious = "../prev-build"\n')
+    h = pd.read_csv(cur / "holdings.csv")
+    h[h["security_id"] != "C04"].to_csv(cur / "holdings.csv", index=False)   # C04 sold
+    a = assemble(load_settings(cur))
+    before = pd.read_csv(tmp_path / "prev-build" / "results" / "securities.csv")
+    before = before[before["mandate"] == TOTAL_FUND].set_index("security_id")
+    port = json.loads((tmp_path / "prev-build" / "results" / "portfolio.json").read_text(
+        encoding="utf-8"))
+    ch = a.changes
+    assert ch is not None and ch.previous_period_end == "2026-10-31"
+    assert ch.new_holdings == []
+    assert [r["security_id"] for r in ch.removed_holdings] == ["C04"]
+    assert ch.removed_holdings[0]["weight_before"] == pytest.approx(
+        before.loc["C04", "weight"], rel=1e-9)
+    assert ch.beta.before == pytest.approx(port["beta_regression"], rel=1e-9)
+    assert ch.beta.now == a.results.portfolio_fit.beta
+    html = a.html()
+    assert 'id="total-fund-changes"' in html and 'href="#total-fund-changes"' in html
+    files = pack_files(a, html, b"%PDF-1.7 test")
+    doc = json.loads(files["results/changes.json"])
+    assert doc["previous"]["period_end"] == "2026-10-31"
+    assert [r["security_id"] for r in doc["removed_holdings"]] == ["C04"]
+
+
 # --- bad fund packs -------------------------------------------------------------------------
 
 def _run(pack: Path, out: Path, capsys) -> tuple[int, str]:
