@@ -10,6 +10,7 @@ from __future__ import annotations
 import dataclasses
 import datetime as dt
 import io
+import json
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -120,6 +121,27 @@ class FundAssembled:
             part=False, anchor_prefix="", part_title=None, parts=parts, fund_svg=self.svgs,
             market_word="market proxy", proxy_word="proxy",
             fund=self.fund_context())
+
+    def mandate_portfolio_json(self) -> str:
+        """``results/mandate_portfolio.json``: each mandate's ``portfolio.json`` figures (the
+        same keys and units), by mandate name; NaN written as null."""
+        def clean(v):
+            if isinstance(v, float | np.floating):
+                return float(v) if np.isfinite(v) else None
+            if isinstance(v, np.integer | np.bool_):
+                return v.item()
+            return v
+        doc = {p.name: {k: clean(v) for k, v in p.results.portfolio_summary().items()}
+               for p in self.parts}
+        return json.dumps(doc, indent=2, sort_keys=True) + "\n"
+
+    def mandate_changes_json(self) -> str:
+        """``results/mandate_changes.json`` (with ``[compare]``): each mandate's comparison
+        with the earlier pack, as ``changes.json``, or why there is none."""
+        doc = {p.name: (p.context.changes.as_json() if p.context.changes is not None
+                        else {"previous": None, "note": p.context.compare_note})
+               for p in self.parts}
+        return json.dumps(doc, indent=2, sort_keys=True) + "\n"
 
     def fund_context(self) -> dict:
         """The figures of the fund's own pages, as plain records for the template."""
@@ -241,11 +263,24 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
         fp = fingerprint(hashes)
         fa = analyse_fund(fin, settings)
         total_limits = evaluate_limits(settings.limits, fa.results) if settings.limits else None
+        limits = [evaluate_limits(s.limits, r) if s.limits else None
+                  for s, r in zip(fa.settings, fa.mandate_results, strict=True)]
         changes = None
-        if previous is not None:        # the total fund against the earlier pack's
+        mandate_changes: list[PackChanges | None] = [None] * len(fa.names)
+        mandate_notes: list[str | None] = [compare_note] * len(fa.names)
+        if previous is not None:        # the total fund against the earlier pack's ...
             changes = compare_packs(previous, fa.results,
                                     total_limits.as_json()["limits"] if total_limits else None,
                                     settings.confidence)
+            for k, name in enumerate(fa.names):      # ... and each mandate against its own
+                before = previous.mandates.get(name)
+                if before is None:
+                    mandate_notes[k] = (f"The earlier pack ({previous.folder}) has no figures "
+                                        f"for the mandate {name!r}, so it cannot be compared")
+                    continue
+                mandate_changes[k] = compare_packs(
+                    before, fa.mandate_results[k],
+                    limits[k].as_json()["limits"] if limits[k] else None, settings.confidence)
     with progress.stage("chart"):
         total = _part(TOTAL_FUND, TOTAL_SLUG, settings, fin.total, fa.results, fp, at,
                       fin.benchmark_label, 1.0,   # the summary note is on the fund overview
@@ -253,8 +288,10 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
                       changes=changes, compare_note=compare_note)
         parts = tuple(
             _part(m.mandate.name, m.mandate.slug, own, m.inputs, res, fp, at,
-                  f"its benchmark ({m.benchmark_name})", m.weight, None)
-            for m, own, res in zip(fin.mandates, fa.settings, fa.mandate_results, strict=True))
+                  f"its benchmark ({m.benchmark_name})", m.weight, None,
+                  changes=mandate_changes[k], compare_note=mandate_notes[k])
+            for k, (m, own, res) in enumerate(zip(fin.mandates, fa.settings,
+                                                  fa.mandate_results, strict=True)))
         mandates_only = fa.table[fa.table["mandate"] != TOTAL_FUND]
         svgs = {"weights": Markup(chart_svg(mandate_weights_chart(mandates_only))),
                 "risk": Markup(chart_svg(mandate_risk_chart(mandates_only)))}
@@ -280,4 +317,7 @@ def fund_results_files(a: FundAssembled) -> dict[str, str]:
         "results/mandates.csv": csv(a.table),
         "results/overlap.csv": csv(a.overlap),
         "results/overlap_pairs.csv": csv(a.pairs),
-    }
+        "results/mandate_portfolio.json": a.mandate_portfolio_json(),
+    } | ({"results/mandate_changes.json": a.mandate_changes_json()}
+         if a.settings.compare_build is not None or a.settings.compare_archive is not None
+         else {})

@@ -328,6 +328,24 @@ def test_fund_compared_with_its_earlier_build(tmp_path):
     doc = json.loads(files["results/changes.json"])
     assert doc["previous"]["period_end"] == "2026-10-31"
     assert [r["security_id"] for r in doc["removed_holdings"]] == ["C04"]
+    # each mandate against its own figures in the earlier build
+    prev_m = json.loads((tmp_path / "prev-build" / "results" / "mandate_portfolio.json")
+                        .read_text(encoding="utf-8"))
+    allrows = pd.read_csv(tmp_path / "prev-build" / "results" / "securities.csv")
+    per = json.loads(files["results/mandate_changes.json"])
+    for part in a.parts:
+        c = part.context.changes
+        assert c.beta.before == pytest.approx(prev_m[part.name]["beta_regression"], rel=1e-9)
+        assert c.beta.now == part.results.portfolio_fit.beta
+        assert per[part.name]["beta"]["now"] == pytest.approx(c.beta.now, rel=1e-12)
+        removed = [r["security_id"] for r in c.removed_holdings]
+        assert removed == (["C04"] if part.name == "C" else [])
+        assert c.new_holdings == []
+    rows = allrows[allrows["mandate"] == "C"].set_index("security_id")
+    c = a.parts[2].context.changes
+    assert c.removed_holdings[0]["weight_before"] == pytest.approx(rows.loc["C04", "weight"],
+                                                                   rel=1e-9)
+    assert f'id="{a.parts[2].slug}-changes"' in html
 
 
 # --- bad fund packs -------------------------------------------------------------------------
