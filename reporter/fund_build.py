@@ -41,6 +41,11 @@ from reporter.render.html import chart_svg, export_charts, print_charts, render_
 from reporter.validate import read_inputs
 
 TOTAL_SLUG = "total-fund"
+FUND_CAUTION = (
+    "Each mandate is measured against its own benchmark, and the total fund against the "
+    "fund's: a beta, alpha or tracking error of one mandate is not comparable with another's "
+    "measured against a different benchmark, and the mandates' figures do not add up to the "
+    "fund's, except the contributions to risk, which are allocated to add up.")
 
 
 @dataclass(frozen=True)
@@ -114,6 +119,7 @@ class FundAssembled:
         values = {f.name: getattr(ctx, f.name) for f in dataclasses.fields(ctx)}
         values.pop("charts")
         values["commentary"] = dict(self.commentary.by_section)   # every note, for the fund
+        values["cautions"] = (*values["cautions"], FUND_CAUTION)
         env = make_environment(user)
         return env.get_template("fund.html.j2").render(
             **values, svg=self.total.print_svgs if for_print else self.total.svgs,

@@ -536,7 +536,7 @@ def test_demo_fund_pdf(demo_fund_build):
     text = subprocess.run(["pdftotext", str(pdf), "-"], check=True, capture_output=True,
                           text=True).stdout
     for phrase in ("not investment advice", "Past performance is not a reliable guide",
-                   "appointed investment adviser"):
+                   "appointed investment adviser", "is not comparable with another"):
         assert phrase in re.sub(r"\s+", " ", text), phrase
 
 
