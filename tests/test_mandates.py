@@ -423,7 +423,7 @@ def test_fund_weights_problems(tmp_path, capsys):
     assert "pack.toml:mandates: the declared mandate weights sum to 1.1, not 1" in err
 
 
-def test_single_portfolio_pack_rejects_a_mandate_key_it_does_not_know(tmp_path, capsys):
+def test_fund_table_without_mandates_is_refused(tmp_path, capsys):
     folder = write_fund(tmp_path / "fund")
     toml = folder / "pack.toml"
     text = toml.read_text(encoding="utf-8")
