@@ -24,6 +24,7 @@ $(STAMP): pyproject.toml
 # is scratch: no real archive lives there), and the trustees' site built from it into site/.
 demo: $(STAMP)
 	$(BIN)/reporter build inputs/demo --out build/demo
+	$(BIN)/reporter build inputs/demo-fund --out build/demo-fund
 	rm -rf $(DEMO_RUN) && mkdir -p $(DEMO_RUN)
 	for p in $(DEMO_PERIODS); do \
 	  mkdir -p $(DEMO_RUN)/inputs-$$p && cp inputs/demo/*.csv $(DEMO_RUN)/inputs-$$p/ && \
@@ -58,9 +59,10 @@ test: $(STAMP) browser $(AXE)
 lint: $(STAMP)
 	$(BIN)/ruff check reporter tests
 
-# Regenerate the invented demo scheme (seeded, so the files come out identical).
+# Regenerate the invented demo schemes (seeded, so the files come out identical).
 demo-data: $(STAMP)
 	$(BIN)/python -m reporter.demo_data inputs/demo
+	$(BIN)/python -m reporter.demo_fund inputs/demo-fund
 
 # Regenerate the small bad-input packs under tests/data/bad/ (one folder per case).
 bad-cases: $(STAMP)

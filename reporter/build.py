@@ -25,7 +25,7 @@ from reporter.benchmark import validate_benchmark, validate_portfolio_returns
 from reporter.changes import read_previous
 from reporter.charts import build_charts
 from reporter.commentary import CommentarySet, read_commentary
-from reporter.config import INPUT_ROLES, OPTIONAL_ROLES, Settings, load_settings
+from reporter.config import Settings, load_settings
 from reporter.context import PackContext, build_context
 from reporter.errors import InputError, Problem
 from reporter.limits import LimitsReport, evaluate_limits
@@ -57,11 +57,8 @@ def build_time() -> dt.datetime:
 def input_hashes(settings: Settings) -> dict[str, str]:
     """sha256 of pack.toml and of each input file, keyed by role."""
     out = {"pack.toml": _sha256(settings.config_path)}
-    for role in INPUT_ROLES:
-        out[role] = _sha256(settings.inputs[role].path)
-    for role in OPTIONAL_ROLES:
-        if role in settings.inputs:
-            out[role] = _sha256(settings.inputs[role].path)
+    for role, spec in settings.inputs.items():      # the mandates' files too, in a fund
+        out[role] = _sha256(spec.path)
     return out
 
 
@@ -144,12 +141,16 @@ class Assembled:
 
 
 def assemble(settings: Settings, *, strict: bool = False, progress: Progress | None = None,
-             at: dt.datetime | None = None) -> Assembled:
+             at: dt.datetime | None = None) -> Assembled:  # or a fund's FundAssembled
     """Read, validate, analyse and chart one pack (no output is written).
 
     ``at`` fixes the build time shown in the pack (sign-off re-renders a build with the time
     it was built); by default it is :func:`build_time`.
     """
+    if settings.is_fund:
+        from reporter.fund_build import assemble_fund
+
+        return assemble_fund(settings, strict=strict, progress=progress, at=at)
     progress = progress or Progress(quiet=True)
     with progress.stage("read"):
         raws, read_problems = read_inputs(settings)
@@ -198,9 +199,22 @@ def pack_files(a: Assembled, html: str, pdf: bytes) -> OutputSet:
     files = OutputSet()
     files.add("pack.html", html)
     files.add("pack.pdf", pdf)
-    files.add("results/securities.csv", _results_csv(res))
-    files.add("results/portfolio.json", _json(res.portfolio_summary()))
-    files.add("results/rolling_beta.csv", _rolling_csv(res))
+    if settings.is_fund:
+        from reporter.fund_build import fund_results_files
+
+        for rel, text in fund_results_files(a).items():
+            files.add(rel, text)
+        files.add("results/portfolio.json", _json(res.portfolio_summary() | {
+            "fund_benchmark": a.inputs.benchmark_label,
+            "mandate_weight_source": a.inputs.weight_source}))
+        mandate_limits = {p.name: p.limits.as_json() for p in a.parts if p.limits is not None}
+        if mandate_limits:
+            files.add("results/mandate_limits.json",
+                      json.dumps(mandate_limits, indent=2, sort_keys=True) + "\n")
+    else:
+        files.add("results/securities.csv", _results_csv(res))
+        files.add("results/portfolio.json", _json(res.portfolio_summary()))
+        files.add("results/rolling_beta.csv", _rolling_csv(res))
     if a.limits is not None:
         files.add("results/limits.json", json.dumps(a.limits.as_json(), indent=2,
                                                     sort_keys=True) + "\n")
@@ -208,12 +222,13 @@ def pack_files(a: Assembled, html: str, pdf: bytes) -> OutputSet:
         doc = a.changes.as_json() if a.changes is not None else {
             "previous": None, "note": ctx.compare_note}
         files.add("results/changes.json", json.dumps(doc, indent=2, sort_keys=True) + "\n")
-    buf = io.StringIO()
-    res.period_table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
-    files.add("results/period_returns.csv", buf.getvalue())
-    buf = io.StringIO()
-    res.risk_table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
-    files.add("results/risk_contributions.csv", buf.getvalue())
+    if not settings.is_fund:
+        buf = io.StringIO()
+        res.period_table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
+        files.add("results/period_returns.csv", buf.getvalue())
+        buf = io.StringIO()
+        res.risk_table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
+        files.add("results/risk_contributions.csv", buf.getvalue())
     files.add("results/manifest.json", _json({
         "tool_version": __version__,
         "pack_name": settings.name,
@@ -226,9 +241,8 @@ def pack_files(a: Assembled, html: str, pdf: bytes) -> OutputSet:
         "organisation": settings.organisation,
         "input_fingerprint": ctx.fingerprint,
         "input_sha256": a.hashes,
-        "input_files": {r: settings.inputs[r].display for r in INPUT_ROLES}
-        | {rel: rel for rel in a.commentary.hashes}      # commentary files and images
-        | {r: settings.inputs[r].display for r in OPTIONAL_ROLES if r in settings.inputs},
+        "input_files": {r: s.display for r, s in settings.inputs.items()}
+        | {rel: rel for rel in a.commentary.hashes},     # commentary files and images
         "warnings": [str(w) for w in a.inputs.warnings],
     }))
     return files

@@ -3,20 +3,21 @@
 Two forms: a build folder (``reporter build``'s output) or ``archive:ARCHIVE_DIR``, the latest
 signed pack whose period ends strictly before this pack's. Only the build's ``results/`` are
 read: ``manifest.json``, ``portfolio.json``, ``securities.csv`` and, when present,
-``limits.json`` (older builds have none). The comparison itself is pure and lives in
-:mod:`reporter.analytics.changes`.
+``limits.json`` (older builds have none). From a fund's build, the total fund's rows of
+``securities.csv`` are read (its ``portfolio.json`` and ``limits.json`` are the total
+fund's). The comparison itself is pure and lives in :mod:`reporter.analytics.changes`.
 """
 
 from __future__ import annotations
 
 import datetime as dt
 import json
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import pandas as pd
 
-from reporter.config import Settings
+from reporter.config import TOTAL_FUND, Settings
 from reporter.errors import InputError, Problem
 
 WHERE = "pack.toml:compare.previous"
@@ -40,6 +41,8 @@ class PreviousPack:
     portfolio: dict
     securities: pd.DataFrame
     limits: list[dict] | None
+    # from a fund's build: each mandate's own results, by mandate name (see read_build)
+    mandates: dict[str, PreviousPack] = field(default_factory=dict)
 
 
 def latest_signed_pack(archive: Path, before: dt.date) -> Path | None:
@@ -104,6 +107,12 @@ def read_build(folder: Path, source: str, period_end: dt.date) -> PreviousPack:
     except (OSError, ValueError, pd.errors.ParserError) as exc:
         problems.append(Problem(str(results / "securities.csv"), f"cannot be read: {exc}"))
         sec = None
+    by_mandate: dict[str, pd.DataFrame] = {}
+    if sec is not None and "mandate" in sec.columns:     # a fund's build: its total fund
+        names = sec["mandate"].astype(str)
+        by_mandate = {m: g.drop(columns="mandate").reset_index(drop=True)
+                      for m, g in sec.groupby(names, sort=False) if m != TOTAL_FUND}
+        sec = sec[names == TOTAL_FUND].drop(columns="mandate").reset_index(drop=True)
     if sec is not None:
         for col in SECURITY_COLUMNS:
             if col not in sec.columns:
@@ -138,7 +147,41 @@ def read_build(folder: Path, source: str, period_end: dt.date) -> PreviousPack:
     limits = limits_doc.get("limits") if isinstance(limits_doc, dict) else None
     return PreviousPack(folder=Path(folder), source=source, period_end=prev_end,
                         manifest=manifest, portfolio=portfolio, securities=sec,
-                        limits=limits if isinstance(limits, list) else None)
+                        limits=limits if isinstance(limits, list) else None,
+                        mandates=_mandates(results, by_mandate, source, prev_end, manifest))
+
+
+def _mandates(results: Path, by_mandate: dict[str, pd.DataFrame], source: str,
+              period_end: dt.date, manifest: dict) -> dict[str, PreviousPack]:
+    """Each mandate of an earlier fund build that wrote ``mandate_portfolio.json`` (its rows of
+    securities.csv, its portfolio figures and, from ``mandate_limits.json``, its limits). A
+    build without that file gives no mandate to compare with; an unreadable one is an error."""
+    path = results / "mandate_portfolio.json"
+    if not by_mandate or not path.is_file():
+        return {}
+    problems: list[Problem] = []
+    portfolios = _json(path, problems)
+    limits_path = results / "mandate_limits.json"
+    limits = _json(limits_path, problems) if limits_path.is_file() else {}
+    if problems:
+        raise InputError(problems)
+    out = {}
+    for name, sec in by_mandate.items():
+        port = (portfolios or {}).get(name)
+        if not isinstance(port, dict):
+            continue
+        own = (limits or {}).get(name)
+        items = own.get("limits") if isinstance(own, dict) else None
+        for col in ("weight", "beta", "sml_residual"):
+            if col in sec.columns:
+                sec[col] = pd.to_numeric(sec[col], errors="coerce")
+        for col in TEXT_COLUMNS:
+            if col in sec.columns:
+                sec[col] = sec[col].fillna("")
+        out[name] = PreviousPack(folder=results.parent, source=source, period_end=period_end,
+                                 manifest=manifest, portfolio=port, securities=sec,
+                                 limits=items if isinstance(items, list) else None)
+    return out
 
 
 def _json(path: Path, problems: list[Problem]) -> dict | None:

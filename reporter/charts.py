@@ -31,7 +31,7 @@ THEME_CONFIG = {
 }
 
 
-def sml_chart(res: PackResults) -> alt.LayerChart:
+def sml_chart(res: PackResults, market_label: str = "Market proxy") -> alt.LayerChart:
     """Each holding's beta against its annualised mean excess return, with the ex post line
     E[r - r_f] = beta x mean market premium, beta error bars (95%), the market and cash."""
     P = res.periods_per_year
@@ -52,7 +52,7 @@ def sml_chart(res: PackResults) -> alt.LayerChart:
     lo = float(min(0.0, np.nanmin(df["beta_lo"]) if len(df) else 0.0))
     line = pd.DataFrame({"beta": [lo, hi], "excess": [lo * mrp, hi * mrp]})
     anchors = pd.DataFrame({"beta": [0.0, 1.0], "excess": [0.0, mrp],
-                            "label": ["Risk-free", "Market proxy"]})
+                            "label": ["Risk-free", market_label]})
     x = alt.X("beta:Q", title=f"Beta (bars: {res.confidence:.0%} interval)",
               scale=alt.Scale(domain=[lo, hi], nice=False))
     y = alt.Y("excess:Q", title="Mean excess return, annualised", axis=alt.Axis(format="%"))
@@ -236,18 +236,18 @@ def rolling_holdings_chart(res: PackResults, top: int = 10) -> alt.Chart:
                         header=alt.Header(labelFontSize=9, labelLimit=150)), columns=3)
 
 
-def growth_chart(res: PackResults) -> alt.LayerChart:
+def growth_chart(res: PackResults, market_label: str = "Market proxy") -> alt.LayerChart:
     """Growth of one unit invested in the portfolio (current weights) and in the market proxy
     over the whole history, on a log scale; the lines differ in dash as well as colour."""
     g = res.growth_table
     df = pd.concat([
         pd.DataFrame({"date": g["date"], "value": g["portfolio"], "series": "Portfolio"}),
-        pd.DataFrame({"date": g["date"], "value": g["market"], "series": "Market proxy"}),
+        pd.DataFrame({"date": g["date"], "value": g["market"], "series": market_label}),
     ] + ([pd.DataFrame({"date": g["date"], "value": g["benchmark"], "series": "Benchmark"})]
          if "benchmark" in g else []), ignore_index=True).dropna(subset=["value"])
     df = thin_series(df).copy()
     df["date"] = pd.to_datetime(df["date"])
-    domain = ["Portfolio", "Market proxy"] + (["Benchmark"] if "benchmark" in g else [])
+    domain = ["Portfolio", market_label] + (["Benchmark"] if "benchmark" in g else [])
     lo, hi = float(min(df["value"].min(), 1.0)), float(max(df["value"].max(), 1.0))
     line = alt.Chart(df).mark_line(strokeWidth=2).encode(
         x=alt.X("date:T", title=None, axis=alt.Axis(format="%Y")),
@@ -266,15 +266,73 @@ def growth_chart(res: PackResults) -> alt.LayerChart:
     return alt.layer(one, line).properties(width=WIDTH, height=240)
 
 
-def build_charts(res: PackResults, limits=None) -> dict[str, alt.TopLevelMixin]:
+def build_charts(res: PackResults, limits=None,
+                 market_label: str = "Market proxy") -> dict[str, alt.TopLevelMixin]:
     """Every chart of the pack, keyed by the name the templates use. ``limits`` (a
-    :class:`reporter.limits.LimitsReport`, optional) marks sector limits on the sector chart."""
+    :class:`reporter.limits.LimitsReport`, optional) marks sector limits on the sector chart;
+    ``market_label`` names the series the regressions are against (a mandate's benchmark)."""
     return {
         "rolling_portfolio": rolling_portfolio_chart(res),
         "rolling_holdings": rolling_holdings_chart(res),
-        "sml": sml_chart(res),
+        "sml": sml_chart(res, market_label),
         "sectors": sector_chart(res, limits.sector_status() if limits is not None else None),
         "diversification": diversification_chart(res),
-        "growth": growth_chart(res),
+        "growth": growth_chart(res, market_label),
         "risk_contributions": risk_contribution_chart(res),
     }
+
+
+def mandate_weights_chart(table: pd.DataFrame) -> alt.LayerChart:
+    """Each mandate's current weight in the fund (a marker) against its rebalancing range (a
+    grey bar) and strategic weight (a tick). ``table`` has the columns of
+    ``results/mandates.csv`` for the mandates only. Outside its range a mandate's marker is a
+    cross and it is labelled in words, not marked by colour alone."""
+    df = table[["mandate", "weight", "strategic_weight", "range_low", "range_high",
+                "range_status"]].copy()
+    df["status"] = df["range_status"].replace("", "no range set")
+    df["label"] = np.where(df["status"] == "outside range", "outside range", "")
+    order = list(df["mandate"])
+    y = alt.Y("mandate:N", sort=order, title=None, axis=alt.Axis(labelLimit=200))
+    x = alt.X("weight:Q", title="Weight in the fund", axis=alt.Axis(format="%"),
+              scale=alt.Scale(zero=True))
+    ranges = alt.Chart(df.dropna(subset=["range_low"])).mark_bar(
+        color="#d5dadd", height=14).encode(y=y, x="range_low:Q", x2="range_high:Q")
+    strategic = alt.Chart(df).mark_tick(color=INK, thickness=2, size=20).encode(
+        y=y, x="strategic_weight:Q")
+    status_scale = alt.Scale(domain=["within range", "outside range", "no range set"],
+                             range=[TEAL, BRICK, GREY])
+    now = alt.Chart(df).mark_point(filled=True, size=90, opacity=1).encode(
+        y=y, x=x,
+        shape=alt.Shape("status:N", title="Weight now", scale=alt.Scale(
+            domain=["within range", "outside range", "no range set"],
+            range=["circle", "cross", "diamond"])),
+        color=alt.Color("status:N", title="Weight now", scale=status_scale),
+        tooltip=["mandate:N", alt.Tooltip("weight:Q", format=".1%"),
+                 alt.Tooltip("strategic_weight:Q", format=".1%"), "status:N"])
+    # the label sits right of both the marker and the range bar, clear of either
+    df["label_x"] = np.fmax(df["weight"], df["range_high"].fillna(df["weight"]))
+    text = alt.Chart(df).mark_text(align="left", dx=10, color=BRICK, fontSize=10).encode(
+        y=y, x="label_x:Q", text="label:N")
+    return alt.layer(ranges, strategic, now, text).properties(width=WIDTH - 180,
+                                                             height=max(90, 34 * len(df)))
+
+
+def mandate_risk_chart(table: pd.DataFrame) -> alt.Chart:
+    """Each mandate's weight in the fund beside its share of the fund's volatility (Euler
+    contributions), as paired bars that differ in fill as well as colour."""
+    order = list(table["mandate"])
+    df = pd.concat([
+        pd.DataFrame({"mandate": table["mandate"], "value": table["weight"],
+                      "measure": "Weight in the fund"}),
+        pd.DataFrame({"mandate": table["mandate"], "value": table["vol_share"],
+                      "measure": "Share of the fund's volatility"}),
+    ], ignore_index=True)
+    domain = ["Weight in the fund", "Share of the fund's volatility"]
+    return alt.Chart(df).mark_bar(height=10, stroke=INK, strokeWidth=0.6).encode(
+        y=alt.Y("mandate:N", sort=order, title=None, axis=alt.Axis(labelLimit=200)),
+        yOffset=alt.YOffset("measure:N", sort=domain),
+        x=alt.X("value:Q", title=None, axis=alt.Axis(format="%")),
+        color=alt.Color("measure:N", title=None, scale=alt.Scale(domain=domain,
+                                                                range=["#ffffff", TEAL])),
+        tooltip=["mandate:N", "measure:N", alt.Tooltip("value:Q", format=".1%")],
+    ).properties(width=WIDTH - 180, height=max(90, 34 * len(table)))

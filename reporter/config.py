@@ -57,7 +57,7 @@ class InputsSection(_Strict):
     ``delimiter``, ``decimal`` and ``date_format`` given here apply to every file.
     """
 
-    holdings: str | InputFile
+    holdings: str | InputFile | None = None   # required, except when every mandate names its own
     returns: str | InputFile
     market: str | InputFile
     risk_free: str | InputFile
@@ -134,6 +134,34 @@ class CompareSection(_Strict):
     previous: Annotated[str, Field(min_length=1)]
 
 
+class MandateSection(_Strict):
+    """One ``[[mandates]]`` entry: a part of the fund run against its own benchmark.
+
+    ``holdings`` and ``benchmark`` are files relative to ``pack.toml``; without ``holdings``
+    the mandate's rows are those of ``[inputs] holdings`` whose ``mandate`` column holds
+    ``name``; without ``benchmark`` the mandate is measured against ``[inputs] market``.
+    ``strategic_weight`` and ``range`` (low, high) are decimals of the whole fund; ``weight``
+    is the mandate's current weight, needed only when the holdings give no market values.
+    """
+
+    name: Annotated[str, Field(min_length=1, max_length=80)]
+    holdings: str | InputFile | None = None
+    benchmark: str | InputFile | None = None
+    strategic_weight: Annotated[float, Field(ge=0.0, le=1.0)]
+    range: Annotated[list[Annotated[float, Field(ge=0.0, le=1.0)]],
+                     Field(min_length=2, max_length=2)] | None = None
+    weight: Annotated[float, Field(ge=0.0, le=1.0)] | None = None
+    limits: LimitsSection | None = None
+
+
+class FundSection(_Strict):
+    """``[fund]``: the total fund's benchmark: a ``date, return`` file, or ``"policy"`` for the
+    mandates' benchmarks mixed at their strategic weights and rebalanced every period.
+    Without it the total fund is measured against ``[inputs] market``."""
+
+    benchmark: str | InputFile | None = None
+
+
 class PackFile(_Strict):
     pack: PackSection
     inputs: InputsSection
@@ -142,6 +170,8 @@ class PackFile(_Strict):
     render: RenderSection = RenderSection()
     limits: LimitsSection | None = None
     compare: CompareSection | None = None
+    fund: FundSection | None = None
+    mandates: list[MandateSection] | None = None
 
 
 @dataclass(frozen=True)
@@ -192,9 +222,32 @@ class Settings:
     random_subsets: int = 200            # random equal-weight portfolios per size
     seed: int = 20261130                 # seed of those random draws
 
+    mandates: tuple[Mandate, ...] = ()  # empty: a single-portfolio pack
+    fund_benchmark: str | None = None   # "market" | "file" | "policy" (funds only)
+
     @property
     def periods_per_year(self) -> int:
         return PERIODS_PER_YEAR[self.frequency]
+
+    @property
+    def is_fund(self) -> bool:
+        """True when pack.toml declares ``[[mandates]]``."""
+        return bool(self.mandates)
+
+
+@dataclass(frozen=True)
+class Mandate:
+    """One mandate of a fund, resolved: its input roles are keys of ``Settings.inputs``."""
+
+    index: int                       # position in pack.toml (0-based)
+    name: str
+    slug: str                        # for HTML anchors
+    holdings_role: str | None        # None: rows of [inputs] holdings with this mandate name
+    benchmark_role: str              # "market" when the mandate names no benchmark
+    strategic_weight: float
+    range: tuple[float, float] | None
+    declared_weight: float | None
+    limits: LimitsSection | None
 
 
 DEFAULT_ROLLING_WINDOW = {"monthly": 36, "weekly": 104, "daily": 252}
@@ -202,7 +255,10 @@ DEFAULT_STALE_RUN = {"monthly": 3, "weekly": 4, "daily": 5}
 
 
 def _loc(loc: tuple) -> str:
-    return ".".join(str(p) for p in loc if not isinstance(p, int) and p not in _UNION_TAGS)
+    # a list position is kept after "mandates" (mandates.1.name), dropped elsewhere
+    return ".".join(str(p) for k, p in enumerate(loc)
+                    if (not isinstance(p, int) or (k and loc[k - 1] == "mandates"))
+                    and p not in _UNION_TAGS)
 
 
 # pydantic names the alternatives of a str | table (or number | table) field
@@ -269,13 +325,15 @@ def load_settings(pack: Path | str) -> Settings:
     fmt_problem = date_format_problem(defaults.date_format)
     if fmt_problem:
         problems.append(Problem(f"{fname}:inputs.date_format", fmt_problem))
-    for role in INPUT_ROLES + tuple(r for r in OPTIONAL_ROLES if getattr(defaults, r) is not None):
-        entry = getattr(defaults, role)
+    if defaults.holdings is None and not model.mandates:
+        problems.append(Problem(f"{fname}:inputs.holdings", "required key is missing"))
+
+    def add_input(role: str, entry: str | InputFile, key: str) -> None:
         spec = entry if isinstance(entry, InputFile) else InputFile(path=entry)
-        key = f"inputs.{role}" + (".path" if isinstance(entry, InputFile) else "")
-        path = _guarded_path(pack_dir, spec.path, f"{fname}:{key}", problems, must_exist=True)
+        where = key + (".path" if isinstance(entry, InputFile) else "")
+        path = _guarded_path(pack_dir, spec.path, f"{fname}:{where}", problems, must_exist=True)
         if path is None:
-            continue
+            return
         inputs[role] = InputSpec(
             role=role,
             path=path,
@@ -287,10 +345,15 @@ def load_settings(pack: Path | str) -> Settings:
         )
         fmt_problem = date_format_problem(spec.date_format) if spec.date_format else None
         if fmt_problem:
-            problems.append(Problem(f"{fname}:inputs.{role}.date_format", fmt_problem))
+            problems.append(Problem(f"{fname}:{key}.date_format", fmt_problem))
         if spec.sheet is not None and path.suffix.lower() != ".xlsx":
-            problems.append(Problem(f"{fname}:inputs.{role}.sheet",
+            problems.append(Problem(f"{fname}:{key}.sheet",
                                     "a sheet applies only to an .xlsx file"))
+
+    for role in INPUT_ROLES + OPTIONAL_ROLES:
+        if getattr(defaults, role) is not None:
+            add_input(role, getattr(defaults, role), f"inputs.{role}")
+    mandates, fund_benchmark = resolve_mandates(model, fname, add_input, problems)
     for role, spec in inputs.items():
         if spec.delimiter == spec.decimal:
             problems.append(Problem(f"{fname}:inputs.{role}",
@@ -338,7 +401,93 @@ def load_settings(pack: Path | str) -> Settings:
         covariance=model.analysis.covariance,
         random_subsets=model.analysis.random_subsets,
         seed=model.analysis.seed,
+        mandates=mandates,
+        fund_benchmark=fund_benchmark,
     )
+
+
+TOTAL_FUND = "Total fund"     # the results files' name for the whole fund (reserved)
+STRATEGIC_TOLERANCE = 1e-6    # |sum of strategic weights - 1| allowed
+
+
+def resolve_mandates(model: PackFile, fname: str, add_input, problems: list[Problem]
+                     ) -> tuple[tuple[Mandate, ...], str | None]:
+    """The ``[[mandates]]`` and ``[fund]`` tables as :class:`Mandate` records and the kind of
+    the fund's benchmark (``"market"``, ``"file"`` or ``"policy"``); ``((), None)`` for a
+    single-portfolio pack. Files are registered with ``add_input`` under the roles
+    ``mandates.<i>.holdings``, ``mandates.<i>.benchmark`` and ``fund.benchmark``; every
+    problem is appended to ``problems`` as ``pack.toml:<key>: message``."""
+    if not model.mandates:
+        if model.fund is not None:
+            problems.append(Problem(f"{fname}:fund", "a [fund] table needs [[mandates]]"))
+        elif model.mandates is not None:
+            problems.append(Problem(f"{fname}:mandates", "the list of mandates is empty"))
+        return (), None
+    out: list[Mandate] = []
+    seen: dict[str, int] = {}
+    own_files = [m.holdings is not None for m in model.mandates]
+    if model.inputs.holdings is not None and any(own_files):
+        problems.append(Problem(f"{fname}:inputs.holdings", "give the holdings either in one "
+                                "file with a mandate column ([inputs] holdings) or per mandate "
+                                "(mandates.N.holdings), not both"))
+    elif model.inputs.holdings is None and not all(own_files):
+        for i, has in enumerate(own_files):
+            if not has:
+                problems.append(Problem(f"{fname}:mandates.{i}.holdings", "required key is "
+                                        "missing: there is no [inputs] holdings file with a "
+                                        "mandate column"))
+    for i, m in enumerate(model.mandates):
+        key = f"mandates.{i}"
+        name = m.name.strip()
+        if name.casefold() in seen:
+            problems.append(Problem(f"{fname}:{key}.name", f"mandate name {name!r} is used "
+                                    f"twice (first at mandates.{seen[name.casefold()]})"))
+        seen.setdefault(name.casefold(), i)
+        if name.casefold() == TOTAL_FUND.casefold():
+            problems.append(Problem(f"{fname}:{key}.name", f"{TOTAL_FUND!r} is reserved for "
+                                    "the whole fund; choose another name"))
+        if m.range is not None:
+            lo, hi = m.range
+            if not lo <= m.strategic_weight <= hi:
+                problems.append(Problem(f"{fname}:{key}.range", f"the range [{lo:g}, {hi:g}] "
+                                        "does not contain the strategic weight "
+                                        f"{m.strategic_weight:g}"))
+        if m.limits is not None:
+            problems.extend(limits_problems(m.limits, fname, prefix=f"{key}.limits"))
+        h_role = f"{key}.holdings" if m.holdings is not None else None
+        if m.holdings is not None:
+            add_input(h_role, m.holdings, h_role)
+        b_role = f"{key}.benchmark" if m.benchmark is not None else "market"
+        if m.benchmark is not None:
+            add_input(b_role, m.benchmark, b_role)
+        slug = re.sub(r"[^a-z0-9]+", "-", name.lower()).strip("-") or "mandate"
+        out.append(Mandate(index=i, name=name, slug=f"m{i + 1}-{slug}"[:60],
+                           holdings_role=h_role, benchmark_role=b_role,
+                           strategic_weight=m.strategic_weight,
+                           range=tuple(m.range) if m.range is not None else None,
+                           declared_weight=m.weight, limits=m.limits))
+    total = sum(m.strategic_weight for m in model.mandates)
+    if abs(total - 1.0) > STRATEGIC_TOLERANCE:
+        problems.append(Problem(f"{fname}:mandates", f"the strategic weights sum to {total:.6g}, "
+                                "not 1"))
+    declared = [m.weight for m in model.mandates]
+    if any(w is not None for w in declared) and any(w is None for w in declared):
+        missing = ", ".join(f"mandates.{i}" for i, w in enumerate(declared) if w is None)
+        problems.append(Problem(f"{fname}:mandates", "a current weight is declared for some "
+                                f"mandates but not for {missing}; declare all or none"))
+    kind = "market"
+    bench = model.fund.benchmark if model.fund is not None else None
+    if isinstance(bench, str) and bench == "policy":
+        kind = "policy"
+    elif bench is not None:
+        kind = "file"
+        add_input("fund.benchmark", bench, "fund.benchmark")
+    if model.inputs.benchmark is not None or model.inputs.portfolio_returns is not None:
+        which = "benchmark" if model.inputs.benchmark is not None else "portfolio_returns"
+        problems.append(Problem(f"{fname}:inputs.{which}", "not used in a fund with mandates: "
+                                "give the fund's benchmark in [fund] and each mandate's in "
+                                "[[mandates]]"))
+    return tuple(out), kind
 
 
 def pack_name_from_folder(folder: Path) -> str:
@@ -347,17 +496,19 @@ def pack_name_from_folder(folder: Path) -> str:
     return slug or "pack"
 
 
-def limits_problems(limits: LimitsSection | None, fname: str) -> list[Problem]:
-    """Checks across the keys of ``[limits]`` that the schema cannot express."""
+def limits_problems(limits: LimitsSection | None, fname: str,
+                    prefix: str = "limits") -> list[Problem]:
+    """Checks across the keys of ``[limits]`` (or a mandate's ``limits`` table, keys under
+    ``prefix``) that the schema cannot express."""
     if limits is None:
         return []
     out = []
     if (limits.beta_min is not None and limits.beta_max is not None
             and limits.beta_min > limits.beta_max):
-        out.append(Problem(f"{fname}:limits.beta_min",
+        out.append(Problem(f"{fname}:{prefix}.beta_min",
                            f"beta_min ({limits.beta_min}) is above beta_max ({limits.beta_max})"))
     if isinstance(limits.max_sector_weight, dict) and not limits.max_sector_weight:
-        out.append(Problem(f"{fname}:limits.max_sector_weight", "the table names no sector"))
+        out.append(Problem(f"{fname}:{prefix}.max_sector_weight", "the table names no sector"))
     return out
 
 

@@ -8,9 +8,10 @@ from pathlib import Path
 import numpy as np
 
 from reporter.analytics.pack import build_window
-from reporter.config import load_settings
+from reporter.config import Settings, load_settings
 from reporter.errors import Problem
-from reporter.validate import validate_pack
+from reporter.fund_inputs import validate_fund
+from reporter.validate import read_inputs, validate_pack
 
 
 @dataclass(frozen=True)
@@ -22,6 +23,8 @@ class CheckSummary:
 def check_pack(pack: Path | str, strict: bool = False) -> CheckSummary:
     """Validate ``pack`` and describe holdings, dates, coverage and warnings."""
     settings = load_settings(pack)
+    if settings.is_fund:
+        return _check_fund(settings, strict)
     inputs = validate_pack(settings, strict=strict)
     win = build_window(inputs, settings)
     h = inputs.holdings
@@ -44,3 +47,22 @@ def check_pack(pack: Path | str, strict: bool = False) -> CheckSummary:
         "ok: the inputs pass every check",
     ]
     return CheckSummary(text="\n".join(lines), warnings=inputs.warnings)
+
+
+def _check_fund(settings: Settings, strict: bool) -> CheckSummary:
+    """``reporter check`` for a fund: the total fund and one line per mandate."""
+    fin = validate_fund(settings, *read_inputs(settings), strict=strict)
+    win = build_window(fin.total, settings)
+    lines = [
+        f"pack: {settings.title} ({settings.organisation}), period ending {settings.period_end}",
+        f"fund: {len(fin.total.holdings.ids)} securities in {len(fin.positions)} positions, "
+        f"{len(fin.mandates)} mandate(s), weights from {fin.weight_source}; measured against "
+        f"{fin.benchmark_label}",
+        *(f"mandate {m.mandate.name!r}: {len(m.inputs.holdings.ids)} holdings, weight "
+          f"{m.weight:.1%} (strategic {m.mandate.strategic_weight:.1%}), benchmark "
+          f"{m.benchmark_name}" for m in fin.mandates),
+        f"window: {win.n_periods} {settings.frequency} periods, {win.dates[0]} to {win.dates[-1]}",
+        f"warnings: {len(fin.warnings)}",
+        "ok: the inputs pass every check",
+    ]
+    return CheckSummary(text="\n".join(lines), warnings=fin.warnings)

@@ -200,7 +200,8 @@ def _signed_pdf(a, build: ReviewedBuild, settings: Settings, request: SignOffReq
     """The pack as PDF/A-3b with the sign-off page, carrying pack.toml, the inputs and the
     results files as embedded attachments."""
     hashes = build.manifest["input_sha256"]
-    order = ["pack.toml", *INPUT_ROLES]
+    order = [k for k in ("pack.toml", *INPUT_ROLES) if k in hashes]   # a fund may have no
+    #                                                                   one holdings file
     keys = order + sorted(set(hashes) - set(order))
     shown = [(_input_name(settings, k).removeprefix("inputs/"), hashes[k]) for k in keys]
     record = {

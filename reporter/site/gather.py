@@ -17,6 +17,7 @@ import pandas as pd
 
 from reporter.analytics.pack import PORTFOLIO_SERIES
 from reporter.archive.ledger import Entry
+from reporter.config import TOTAL_FUND
 from reporter.errors import InputError, Problem
 
 LIMIT_STATUSES = ("within", "watch", "breach")
@@ -94,6 +95,8 @@ def _csv(archive: Path, rel: str, columns: tuple[str, ...],
     missing = [c for c in columns if c not in df.columns]
     for c in missing:
         problems.append(Problem(f"{archive / rel}:1:{c}", "column missing"))
+    if "mandate" in df.columns:         # a fund pack: the site shows the total fund
+        df = df[df["mandate"].astype(str) == TOTAL_FUND]
     return None if missing else df.loc[:, list(columns)]
 
 

@@ -1,0 +1,299 @@
+"""Validate a fund's inputs: each mandate's holdings and benchmark, and the whole fund.
+
+A fund pack (``[[mandates]]`` in pack.toml) gives its holdings either in one file with a
+``mandate`` column or in one file per mandate, and each mandate's benchmark (a ``date,
+return`` file, by default ``[inputs] market``). Each mandate's holdings are checked exactly
+as a single portfolio's are (required columns, duplicate ids, weights summing to 1 within the
+mandate, ...). Every problem of every file is gathered and reported at once, as for a single
+portfolio; nothing is computed until all of them pass.
+
+Weights: within a mandate, its holdings' weights (or market values) sum to 1. A mandate's
+weight in the fund comes from market values when every mandate's holdings give them, else
+from the weight declared in pack.toml (``mandates.N.weight``). The total fund holds each
+security once, with weight W_i = sum over mandates of v_m w_(m,i).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from reporter.analytics.returns import period_keys
+from reporter.config import Mandate, Settings
+from reporter.errors import Collector, Problem, place
+from reporter.models import DatedSeries, Holdings, ReturnPanel, ValidInputs
+from reporter.readers import RawTable
+from reporter.validate import (
+    HOLDINGS_OPTIONAL,
+    _check_coverage,
+    as_text,
+    validate_holdings,
+    validate_returns,
+    validate_series,
+)
+
+MANDATE_COLUMN = "mandate"
+
+
+@dataclass(frozen=True)
+class MandateInputs:
+    """One mandate's checked inputs: ``inputs.market`` is the mandate's own benchmark and
+    ``inputs.holdings`` its holdings with weights summing to 1 within the mandate."""
+
+    mandate: Mandate
+    inputs: ValidInputs
+    weight: float                    # v_m, the mandate's current weight in the fund
+    benchmark_name: str              # the benchmark file as named in pack.toml
+
+
+@dataclass(frozen=True)
+class FundInputs:
+    """A fund's checked inputs: the total fund (every security once, combined weight; its
+    ``market`` is the fund's benchmark) and each mandate."""
+
+    total: ValidInputs
+    mandates: tuple[MandateInputs, ...]
+    benchmark_label: str             # what the total fund is measured against, in words
+    benchmark_name: str              # the same in short: a file name or "policy mix"
+    weight_source: str               # "market values" | "declared weights"
+    positions: pd.DataFrame          # mandate, security_id, name, weight_in_mandate,
+    #                                  weight_in_fund: one row per holding of each mandate
+    warnings: list[Problem]
+
+
+def _subtable(raw: RawTable, idx: np.ndarray) -> RawTable:
+    """The rows ``idx`` of ``raw`` without the mandate column, keeping the rows' numbers."""
+    table = raw.table.take(idx)
+    table = table.drop_columns([MANDATE_COLUMN])
+    return dataclasses.replace(raw, table=table, rows=raw.row_numbers(idx))
+
+
+def _mandate_holdings(settings: Settings, raws: dict[str, RawTable],
+                      coll: Collector) -> dict[int, Holdings]:
+    """Each mandate's checked holdings (weights within the mandate), by mandate index."""
+    cfg = settings.config_path.name
+    out: dict[int, Holdings] = {}
+    if settings.mandates[0].holdings_role is None:            # one file, a mandate column
+        raw = raws.get("holdings")
+        if raw is None:
+            return out
+        if MANDATE_COLUMN not in raw.table.column_names:
+            coll.error(place(raw.name, 1, MANDATE_COLUMN), "required column is missing: a "
+                       "fund's holdings file names each holding's mandate "
+                       f"(the file has: {', '.join(raw.table.column_names)})")
+            return out
+        names = as_text(raw, MANDATE_COLUMN, coll, allow_empty=False)
+        known = {m.name for m in settings.mandates}
+        given = pd.Series(names, dtype=object)
+        unknown = np.flatnonzero((~given.isin(known) & given.notna() & (given != "")).to_numpy())
+        for i in unknown[:10]:
+            coll.error(place(raw.name, raw.row_number(int(i)), MANDATE_COLUMN),
+                       f"mandate {names[i]!r} is not declared in {cfg} (the [[mandates]] "
+                       f"are: {', '.join(repr(m.name) for m in settings.mandates)})")
+        if len(unknown) > 10:
+            coll.error(raw.name, f"... and {len(unknown) - 10} more rows of undeclared mandates")
+        for m in settings.mandates:
+            idx = np.flatnonzero(names == m.name)
+            if not len(idx):
+                coll.error(f"{cfg}:mandates.{m.index}.name", f"no holding in {raw.name} has "
+                           f"the mandate {m.name!r}")
+                continue
+            sub = Collector()
+            h = validate_holdings(_subtable(raw, idx), settings, sub)
+            for p in sub.problems:          # name the mandate in each error
+                (coll.error if p.severity == "error" else coll.warn)(
+                    p.where, p.message + (f" (mandate {m.name!r})"
+                                          if p.severity == "error" else ""))
+            if h is not None:
+                out[m.index] = h
+        return out
+    for m in settings.mandates:
+        raw = raws.get(m.holdings_role or "")
+        if raw is None:
+            continue
+        own = dataclasses.replace(settings, inputs={**settings.inputs,
+                                                    "holdings": settings.inputs[m.holdings_role]})
+        h = validate_holdings(raw, own, coll)
+        if h is not None:
+            out[m.index] = h
+    return out
+
+
+def _mandate_weights(settings: Settings, holdings: dict[int, Holdings],
+                     coll: Collector) -> tuple[np.ndarray | None, str]:
+    """v_m for every mandate, from market values when every mandate gives them, else as
+    declared in pack.toml; and which of the two it was."""
+    cfg = settings.config_path.name
+    ms = settings.mandates
+    values = [holdings[m.index].frame.get("market_value") for m in ms]
+    declared = [m.declared_weight for m in ms]
+    if all(v is not None and np.isfinite(v.to_numpy(dtype=float)).all() for v in values):
+        totals = np.array([float(v.sum()) for v in values])
+        if any(d is not None for d in declared):
+            coll.warn(f"{cfg}:mandates", "the declared mandate weights are ignored: every "
+                      "mandate's holdings give market values, and the weights come from them")
+        if totals.sum() <= 0:
+            coll.error(f"{cfg}:mandates", "the mandates' market values sum to zero or less")
+            return None, "market values"
+        return totals / totals.sum(), "market values"
+    if any(d is None for d in declared):
+        coll.error(f"{cfg}:mandates", "the mandates' weights in the fund cannot be derived: "
+                   "give market_value in every mandate's holdings, or declare each mandate's "
+                   "current weight (mandates.N.weight)")
+        return None, "declared weights"
+    v = np.array(declared, dtype=float)
+    total = float(v.sum())
+    if abs(total - 1.0) > settings.weight_tolerance:
+        msg = (f"the declared mandate weights sum to {total:.6g}, not 1 (tolerance "
+               f"{settings.weight_tolerance:g})")
+        if settings.normalise_weights and total > 0:
+            coll.warn(f"{cfg}:mandates", msg + "; rescaled to sum to 1")
+            v = v / total
+        else:
+            coll.error(f"{cfg}:mandates", msg)
+            return None, "declared weights"
+    return v, "declared weights"
+
+
+def fund_holdings(frames: list[pd.DataFrame], mandate_weights: np.ndarray,
+                  names: list[str]) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The total fund's holdings, each security once with its combined weight
+    W_i = sum_m v_m w_(m,i) (market values summed when every mandate gives them), in order of
+    first appearance; and the long table of positions (mandate, security_id, name,
+    weight_in_mandate, weight_in_fund)."""
+    long = pd.concat([f.assign(mandate=n, weight_in_fund=f["weight"] * v)
+                      for f, v, n in zip(frames, mandate_weights, names, strict=True)],
+                     ignore_index=True)
+    positions = long[["mandate", "security_id", "name", "weight", "weight_in_fund"]].rename(
+        columns={"weight": "weight_in_mandate"})
+    agg = {"name": "first", "sector": "first", "weight_in_fund": "sum"}
+    if "market_value" in long and long["market_value"].notna().all():
+        agg["market_value"] = "sum"
+    for c in HOLDINGS_OPTIONAL:
+        if c in long:
+            agg[c] = "first"
+    total = long.groupby("security_id", sort=False).agg(agg).reset_index()
+    total = total.rename(columns={"weight_in_fund": "weight"})
+    cols = ["security_id", "name", "sector", "weight"]
+    return total[cols + [c for c in total.columns if c not in cols]], positions
+
+
+def _series_problems(settings: Settings, role: str, raws: dict[str, RawTable], rf: DatedSeries,
+                     coll: Collector) -> DatedSeries | None:
+    """A benchmark file checked like the market proxy, and over the same window."""
+    raw = raws.get(role)
+    if raw is None:
+        return None
+    as_market = dataclasses.replace(settings, inputs={**settings.inputs,
+                                                      "market": settings.inputs[role]})
+    series = validate_series(raw, "return", as_market, coll)
+    if series is not None:
+        _check_coverage(as_market, series, rf, None, coll)
+    return series
+
+
+def aligned(series: DatedSeries, dates: np.ndarray, freq: str) -> np.ndarray:
+    """``series`` on the periods of ``dates``, NaN where it has none."""
+    keys = period_keys(dates, freq)
+    skeys = period_keys(series.dates, freq)
+    pos = np.minimum(np.searchsorted(skeys, keys), len(skeys) - 1)
+    return np.where(skeys[pos] == keys, series.values[pos], np.nan)
+
+
+def policy_mix(benchmarks: list[DatedSeries], weights: np.ndarray, calendar: DatedSeries,
+               freq: str) -> DatedSeries:
+    """The policy benchmark r_t = sum_m s_m r_(m,t): the mandates' benchmarks at fixed weights
+    ``weights``, rebalanced to them every period, on the periods of ``calendar`` (the market
+    proxy's) back to the first period before which any of them has no return."""
+    mix = np.column_stack([aligned(b, calendar.dates, freq) for b in benchmarks]) @ weights
+    bad = np.flatnonzero(~np.isfinite(mix))
+    start = int(bad[-1]) + 1 if len(bad) else 0
+    return DatedSeries(dates=calendar.dates[start:], values=mix[start:])
+
+
+def validate_fund(settings: Settings, raws: dict[str, RawTable], read_problems=(),
+                  strict: bool = False) -> FundInputs:
+    """Check every input of a fund pack; raise :class:`InputError` listing every problem."""
+    coll = Collector()
+    coll.problems.extend(read_problems)
+    holdings = _mandate_holdings(settings, raws, coll)
+    ms = settings.mandates
+    v, weight_source = (_mandate_weights(settings, holdings, coll)
+                        if len(holdings) == len(ms) else (None, ""))
+    market = validate_series(raws["market"], "return", settings, coll) \
+        if "market" in raws else None
+    rf = validate_series(raws["risk_free"], "rate", settings, coll) \
+        if "risk_free" in raws else None
+    total_frame = positions = None
+    union = None
+    if v is not None:
+        total_frame, positions = fund_holdings([holdings[m.index].frame for m in ms], v,
+                                               [m.name for m in ms])
+        src = "market_value" if weight_source == "market values" else "weight"
+        union = Holdings(frame=total_frame, weight_source=src, normalised=False)
+        where = ", ".join(dict.fromkeys(
+            settings.inputs[m.holdings_role or "holdings"].display for m in ms))
+        _warn_conflicts(pd.concat([holdings[m.index].frame.assign(mandate=m.name)
+                                   for m in ms]), where, coll)
+    panel = validate_returns(raws["returns"], union, settings, coll, None) \
+        if "returns" in raws and union is not None else None
+    benches: dict[str, DatedSeries | None] = {}
+    if market is not None and rf is not None:
+        _check_coverage(settings, market, rf, panel, coll)
+        benches["market"] = market
+        roles = {m.benchmark_role for m in ms} | (
+            {"fund.benchmark"} if settings.fund_benchmark == "file" else set())
+        for role in sorted(roles - {"market"}):
+            benches[role] = _series_problems(settings, role, raws, rf, coll)
+    # each problem once (the same risk-free gap is found against every benchmark)
+    coll.problems = list(dict.fromkeys(coll.problems))
+    coll.raise_if_errors(strict=strict)
+    assert market is not None and rf is not None and panel is not None and v is not None
+    assert positions is not None and union is not None
+    strategic = np.array([m.strategic_weight for m in ms])
+    if settings.fund_benchmark == "policy":
+        fund_market = policy_mix([benches[m.benchmark_role] for m in ms], strategic, market,
+                                 settings.frequency)
+        label = "the policy mix of the mandates' benchmarks at their strategic weights"
+        short = "policy mix"
+    elif settings.fund_benchmark == "file":
+        fund_market = benches["fund.benchmark"]
+        short = settings.inputs["fund.benchmark"].display
+        label = f"the fund's benchmark ({short})"
+    else:
+        fund_market = market
+        short = settings.inputs["market"].display
+        label = f"the market proxy ({short})"
+    columns = pd.Index(panel.security_ids)
+    out = []
+    for m, vm in zip(ms, v, strict=True):          # a handful of mandates
+        h = holdings[m.index]
+        idx = columns.get_indexer(list(h.ids))
+        sub = ReturnPanel(period_keys=panel.period_keys, security_ids=h.ids,
+                          values=panel.values[:, idx], shape=panel.shape, n_rows=panel.n_rows)
+        out.append(MandateInputs(
+            mandate=m, weight=float(vm),
+            inputs=ValidInputs(holdings=h, returns=sub, market=benches[m.benchmark_role],
+                               risk_free=rf, warnings=[]),
+            benchmark_name=settings.inputs[m.benchmark_role].display))
+    total = ValidInputs(holdings=union, returns=panel, market=fund_market, risk_free=rf,
+                        warnings=coll.warnings)
+    return FundInputs(total=total, mandates=tuple(out), benchmark_label=label,
+                      benchmark_name=short,
+                      weight_source=weight_source, positions=positions,
+                      warnings=coll.warnings)
+
+
+def _warn_conflicts(long: pd.DataFrame, where: str, coll: Collector) -> None:
+    """A warning for each security that two mandates describe differently (name or sector);
+    the total fund uses the first description."""
+    n = long.groupby("security_id", sort=False)[["name", "sector"]].nunique()
+    for sid in n.index[(n > 1).any(axis=1)][:10]:
+        rows = long[long["security_id"] == sid]
+        coll.warn(where, f"security {sid} is described differently by the mandates "
+                  f"{', '.join(repr(x) for x in rows['mandate'])}; the total fund uses "
+                  f"{rows['name'].iloc[0]!r} ({rows['sector'].iloc[0]})")
+
