@@ -197,11 +197,14 @@ def batch(n_schemes: int) -> dict:
     return out
 
 
-def table(results: dict[str, dict], batch_result: dict | None) -> str:
+def table(results: dict[str, dict], batch_result: dict | None,
+          load: tuple[float, float] | None = None) -> str:
     lines = [f"Machine: {platform.machine()}, {os.cpu_count()} cores, Python "
              f"{platform.python_version()}, {platform.system()} {platform.release()}.",
              f"Run on {time.strftime('%Y-%m-%d', time.gmtime())}; one run of each stage "
-             "(machines are noisy: read the ratios, not the seconds).", ""]
+             "(machines are noisy: read the ratios, not the seconds)."
+             + (f" Load average (1 min) {load[0]:.1f} at the start and {load[1]:.1f} at the "
+                "end: other work on the machine slows every figure." if load else ""), ""]
     for name, r in results.items():
         s, f = r["stages"], r["floors"]
         total, floor_sum = sum(s.values()), sum(f.values())
@@ -255,12 +258,13 @@ def main() -> None:
                 print(f"| {label} | {sec:.2f} | {f'{size:,}' if size else ''} |")
         return
     wanted = args.workloads.split(",")
+    load_start = os.getloadavg()[0]
     results = {}
     for name in (w for w in wanted if w in WORKLOADS):
         results[name] = single(name)
         print(f"{name}: done", file=sys.stderr, flush=True)
     batch_result = batch(args.batch_schemes) if "batch" in wanted else None
-    text = table(results, batch_result)
+    text = table(results, batch_result, (load_start, os.getloadavg()[0]))
     print(text)
     if args.out:
         args.out.write_text("# Benchmarks\n\nWritten by `make bench` "
