@@ -6,6 +6,11 @@ Run: ``python benchmarks/bench_inputs.py`` (writes its files to a temporary fold
 
 from __future__ import annotations
 
+import os
+
+# as the tool itself does (reporter/__init__.py), before numpy is first imported
+os.environ.setdefault("NUMPY_MADVISE_HUGEPAGE", "0")
+
 import platform
 import tempfile
 from pathlib import Path

@@ -14,9 +14,13 @@ chart removed (PDF). All data are invented and seeded (see workloads.py).
 
 from __future__ import annotations
 
+import os
+
+# as the tool itself does (reporter/__init__.py), before numpy is first imported
+os.environ.setdefault("NUMPY_MADVISE_HUGEPAGE", "0")
+
 import argparse
 import json
-import os
 import platform
 import re
 import resource

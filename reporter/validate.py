@@ -116,7 +116,7 @@ def date_codes(raw: RawTable, column: str, date_format: str,
                coll: Collector) -> tuple[np.ndarray, np.ndarray]:
     """Column ``column`` as a code per row into an array of distinct calendar days.
 
-    Returns ``(codes, days)``: ``codes`` (int64, one per row) indexes ``days``
+    Returns ``(codes, days)``: ``codes`` (int32, one per row) indexes ``days``
     (``datetime64[D]``), and is -1 where the date is empty or bad. Each distinct date text is
     parsed once, with ``date_format`` only: day-first and month-first are never guessed, and
     impossible dates (30 February) are errors. Spreadsheet and Parquet date cells are taken as
@@ -139,8 +139,8 @@ def date_codes(raw: RawTable, column: str, date_format: str,
             dtype="datetime64[ns]").astype("datetime64[D]")
     good = ~np.isnat(parsed)
     # distinct texts -> distinct valid days; -1 for a bad text and (last slot) an empty cell
-    remap = np.append(np.where(good, np.cumsum(good) - 1, -1), -1)
-    raw_codes = enc.indices.fill_null(-1).to_numpy(zero_copy_only=False).astype(np.int64)
+    remap = np.append(np.where(good, np.cumsum(good) - 1, -1), -1).astype(np.int32)
+    raw_codes = enc.indices.fill_null(-1).to_numpy(zero_copy_only=False)     # int32
     codes = remap[raw_codes]
     capped = _Capped(coll, f"bad dates in column {column}")
     for i in np.flatnonzero(codes < 0):
@@ -424,14 +424,14 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     enc = _dictionary(raw.table["security_id"])
     ids: list[str] = []
     index_of: dict[str, int] = {}
-    remap = np.full(len(enc.dictionary) + 1, -1, dtype=np.int64)   # last slot: null id
+    remap = np.full(len(enc.dictionary) + 1, -1, dtype=np.int32)   # last slot: null id
     for k, text in enumerate(enc.dictionary.to_pylist()):
         text = text.strip()
         if text:
             remap[k] = index_of.setdefault(text, len(ids))
             if remap[k] == len(ids):
                 ids.append(text)
-    raw_codes = enc.indices.fill_null(-1).to_numpy(zero_copy_only=False).astype(np.int64)
+    raw_codes = enc.indices.fill_null(-1).to_numpy(zero_copy_only=False)     # int32
     codes_all = remap[raw_codes]                                     # -1 indexes the last slot
     id_null = codes_all < 0
     capped = _Capped(coll, "empty security ids")
@@ -441,7 +441,7 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
 
     ok = (dcodes >= 0) & ~id_null
     all_ok = bool(ok.all())
-    rows = np.arange(len(ok)) if all_ok else np.flatnonzero(ok)
+    rows = np.arange(len(ok), dtype=np.int64) if all_ok else np.flatnonzero(ok)
     day_of = dcodes if all_ok else dcodes[ok]
     codes = codes_all if all_ok else codes_all[ok]
     # the periods are those of the distinct days in use (few): rank them once, then look up
@@ -449,11 +449,13 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     used = np.bincount(day_of, minlength=len(days)) > 0
     uniq_keys, rank = np.unique(period_keys(days[used], settings.frequency),
                                 return_inverse=True)
-    period_of_day = np.full(len(days), -1, dtype=np.int64)
-    period_of_day[used] = rank
-    # each row's cell in the periods x ids matrix, period * n_ids + id (in place: a long file
-    # has millions of rows, and every fresh array of that length costs)
+    # each row's cell in the periods x ids matrix, period * n_ids + id (in place, and in
+    # 32 bits when the matrix allows: a long file has millions of rows, and every fresh array
+    # of that length costs)
     n_ids = max(len(ids), 1)
+    cell_type = np.int32 if len(uniq_keys) * n_ids < 2**31 else np.int64
+    period_of_day = np.full(len(days), -1, dtype=cell_type)
+    period_of_day[used] = rank
     combined = period_of_day[day_of]
     combined *= n_ids
     combined += codes
