@@ -140,6 +140,24 @@ class Assembled:
                            user_templates=self.settings.templates_dir, signoff=signoff)
 
 
+def read_stage(settings: Settings, strict: bool = False) -> tuple:
+    """What the read stage gathers, for a single pack or a fund: the raw input tables and the
+    problems of those that could not be read, the earlier pack to compare with (or None) and
+    the warnings about it, the commentary, and the note shown when there is nothing to
+    compare. With ``strict``, a comparison warning stops the build."""
+    raws, read_problems = read_inputs(settings)
+    previous, compare_warnings = read_previous(settings)
+    commentary = read_commentary(settings.pack_dir)
+    compare_note = compare_warnings[0].message if compare_warnings else None
+    if "changes" in commentary.by_section and previous is None and compare_note is None:
+        compare_warnings.append(Problem(
+            "commentary/changes.md", "not shown: there is no [compare] table in "
+            "pack.toml, so the pack has no 'Since last pack' section", "warning"))
+    if strict and compare_warnings:
+        raise InputError(compare_warnings)
+    return raws, read_problems, previous, compare_warnings, commentary, compare_note
+
+
 def assemble(settings: Settings, *, strict: bool = False, progress: Progress | None = None,
              at: dt.datetime | None = None) -> Assembled:  # or a fund's FundAssembled
     """Read, validate, analyse and chart one pack (no output is written).
@@ -153,16 +171,8 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
         return assemble_fund(settings, strict=strict, progress=progress, at=at)
     progress = progress or Progress(quiet=True)
     with progress.stage("read"):
-        raws, read_problems = read_inputs(settings)
-        previous, compare_warnings = read_previous(settings)
-        commentary = read_commentary(settings.pack_dir)
-        compare_note = compare_warnings[0].message if compare_warnings else None
-        if "changes" in commentary.by_section and previous is None and compare_note is None:
-            compare_warnings.append(Problem(
-                "commentary/changes.md", "not shown: there is no [compare] table in "
-                "pack.toml, so the pack has no 'Since last pack' section", "warning"))
-        if strict and compare_warnings:
-            raise InputError(compare_warnings)
+        (raws, read_problems, previous, compare_warnings, commentary,
+         compare_note) = read_stage(settings, strict)
     with progress.stage("validate"):
         benchmark, bench_problems = validate_benchmark(settings, raws)
         own, own_problems = validate_portfolio_returns(settings, raws)

@@ -27,18 +27,17 @@ from reporter.analytics.fund import (
     overlap_pairs,
 )
 from reporter.analytics.pack import PackResults, analyse
-from reporter.changes import read_previous
 from reporter.charts import build_charts, mandate_risk_chart, mandate_weights_chart
-from reporter.commentary import CommentarySet, read_commentary
+from reporter.commentary import CommentarySet
 from reporter.config import TOTAL_FUND, Settings
 from reporter.context import PackContext, build_context
-from reporter.errors import InputError, Problem
+from reporter.errors import Problem
 from reporter.fund_inputs import FundInputs, validate_fund
 from reporter.limits import LimitsReport, evaluate_limits
 from reporter.progress import Progress
+from reporter.readers import release_read_buffers
 from reporter.render.environment import make_environment
 from reporter.render.html import chart_svg, export_charts, print_charts, render_html
-from reporter.validate import read_inputs
 
 TOTAL_SLUG = "total-fund"
 FUND_CAUTION = (
@@ -246,23 +245,17 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
                   progress: Progress | None = None, at: dt.datetime | None = None,
                   ) -> FundAssembled:
     """Read, validate, analyse and chart a fund pack (no output is written)."""
-    from reporter.build import build_time, fingerprint, input_hashes
+    from reporter.build import build_time, fingerprint, input_hashes, read_stage
 
     progress = progress or Progress(quiet=True)
     at = at or build_time()
     with progress.stage("read"):
-        raws, read_problems = read_inputs(settings)
-        previous, compare_warnings = read_previous(settings)
-        commentary = read_commentary(settings.pack_dir)
-        compare_note = compare_warnings[0].message if compare_warnings else None
-        if "changes" in commentary.by_section and previous is None and compare_note is None:
-            compare_warnings.append(Problem(
-                "commentary/changes.md", "not shown: there is no [compare] table in "
-                "pack.toml, so the pack has no 'Since last pack' section", "warning"))
-        if strict and compare_warnings:
-            raise InputError(compare_warnings)
+        (raws, read_problems, previous, compare_warnings, commentary,
+         compare_note) = read_stage(settings, strict)
     with progress.stage("validate"):
         fin = validate_fund(settings, raws, read_problems, strict=strict)
+        del raws                    # the typed inputs hold everything needed from here on
+        release_read_buffers()
     with progress.stage("analyse"):
         hashes = input_hashes(settings)
         hashes.update(commentary.hashes)
