@@ -16,7 +16,6 @@ import functools
 import json
 import os
 import re
-import sqlite3
 import threading
 import urllib.request
 from http.server import SimpleHTTPRequestHandler, ThreadingHTTPServer
@@ -25,7 +24,7 @@ from urllib.parse import unquote, urlsplit
 
 import pytest
 
-from tests.conftest import REPO
+from tests.conftest import REPO, ledger_entries
 
 CHROMIUM = "/usr/bin/chromium"
 AXE = REPO / "build" / "npm" / "node_modules" / "axe-core" / "axe.min.js"
@@ -207,15 +206,6 @@ def test_every_page_loads_offline_renders_and_passes_axe(browser, site_dir, serv
                     "the other browser checks passed")
 
 
-def _entries(site_archive: Path) -> list[dict]:
-    con = sqlite3.connect(site_archive / "ledger.sqlite")
-    con.row_factory = sqlite3.Row
-    try:
-        return [dict(r) for r in con.execute("SELECT * FROM entries ORDER BY seq")]
-    finally:
-        con.close()
-
-
 def _results(site_archive: Path, entry: dict, name: str) -> list[dict]:
     stem = Path(entry["pdf_path"]).stem
     path = site_archive / Path(entry["pdf_path"]).parent / stem / "results" / name
@@ -233,7 +223,7 @@ def _tooltip_text(page) -> str:
 def test_tooltips_name_holdings_and_rolling_hover_shows_a_window(browser, site_dir,
                                                                  site_archive, server, kind):
     base = site_dir.resolve().as_uri() if kind == "file" else server
-    for e in _entries(site_archive):
+    for e in ledger_entries(site_archive):
         stem = Path(e["pdf_path"]).stem
         names = {r["name"] for r in _results(site_archive, e, "securities.csv")
                  if r["status"] == "fitted"}
@@ -280,7 +270,7 @@ def _column(page, index: int) -> list[float | None]:
 @pytest.mark.parametrize("kind", ["file", "http"])
 def test_holdings_table_sorts_from_the_keyboard(browser, site_dir, site_archive, server, kind):
     base = site_dir.resolve().as_uri() if kind == "file" else server
-    e = _entries(site_archive)[-1]
+    e = ledger_entries(site_archive)[-1]
     stem = Path(e["pdf_path"]).stem
     betas = [float(r["beta"]) if r["beta"] else None
              for r in _results(site_archive, e, "securities.csv")]
