@@ -14,22 +14,28 @@ GOLDEN = Path(__file__).resolve().parent / "golden"
 FIXED_EPOCH = "1795996800"
 
 
-@pytest.fixture(scope="session")
-def demo_build(tmp_path_factory) -> Path:
-    """The demo pack built once with a fixed SOURCE_DATE_EPOCH; returns the output folder."""
+def build_at_fixed_epoch(pack: Path, out: Path) -> int:
+    """``reporter build PACK --out OUT --quiet`` in-process with SOURCE_DATE_EPOCH set to
+    :data:`FIXED_EPOCH` for the call (for session and module fixtures, which cannot use
+    monkeypatch); the variable is restored after. Returns the exit code."""
     from reporter.cli import main
 
-    out = tmp_path_factory.mktemp("demo") / "pack"
     old = os.environ.get("SOURCE_DATE_EPOCH")
     os.environ["SOURCE_DATE_EPOCH"] = FIXED_EPOCH
     try:
-        code = main(["build", str(DEMO), "--out", str(out), "--quiet"])
+        return main(["build", str(pack), "--out", str(out), "--quiet"])
     finally:
         if old is None:
             os.environ.pop("SOURCE_DATE_EPOCH", None)
         else:
             os.environ["SOURCE_DATE_EPOCH"] = old
-    assert code == 0
+
+
+@pytest.fixture(scope="session")
+def demo_build(tmp_path_factory) -> Path:
+    """The demo pack built once with a fixed SOURCE_DATE_EPOCH; returns the output folder."""
+    out = tmp_path_factory.mktemp("demo") / "pack"
+    assert build_at_fixed_epoch(DEMO, out) == 0
     return out
 
 

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import datetime as dt
 import json
-import os
 import re
 import shutil
 
@@ -21,10 +20,9 @@ from scipy import stats
 
 from reporter.build import assemble
 from reporter.changes import latest_signed_pack
-from reporter.cli import main
 from reporter.config import load_settings
 from reporter.errors import InputError
-from tests.conftest import DEMO, FIXED_EPOCH
+from tests.conftest import DEMO, build_at_fixed_epoch
 
 SWAPPED = {"TVX010": "TVX901", "TVX020": "TVX902", "TVX050": "TVX903"}
 RAISED = "TVX012"        # its returns are raised by 2% a month in the new pack
@@ -58,15 +56,7 @@ def swapped_build(demo_build, tmp_path_factory):
     pack = make_swapped(base / "pack", str(demo_build),
                         ("max_holding_weight = 0.08", "max_holding_weight = 0.075"))
     out = base / "out"
-    old = os.environ.get("SOURCE_DATE_EPOCH")
-    os.environ["SOURCE_DATE_EPOCH"] = FIXED_EPOCH
-    try:
-        assert main(["build", str(pack), "--out", str(out), "--quiet"]) == 0
-    finally:
-        if old is None:
-            os.environ.pop("SOURCE_DATE_EPOCH", None)
-        else:
-            os.environ["SOURCE_DATE_EPOCH"] = old
+    assert build_at_fixed_epoch(pack, out) == 0
     return out
 
 

@@ -10,7 +10,6 @@ group sums, or an identity of the method), never copied from the tool's output.
 from __future__ import annotations
 
 import json
-import os
 import re
 import subprocess
 from pathlib import Path
@@ -26,7 +25,7 @@ from reporter.config import TOTAL_FUND, load_settings
 from reporter.fund_build import FundAnalysis, analyse_fund
 from reporter.fund_inputs import validate_fund
 from reporter.validate import read_inputs, validate_pack
-from tests.conftest import FIXED_EPOCH, REPO
+from tests.conftest import REPO, build_at_fixed_epoch
 
 T, WINDOW = 48, 36
 
@@ -451,15 +450,7 @@ def test_demo_fund_files_are_the_generators(tmp_path):
 def demo_fund_build(tmp_path_factory) -> Path:
     """The demo fund built once with a fixed SOURCE_DATE_EPOCH."""
     out = tmp_path_factory.mktemp("demo-fund") / "pack"
-    old = os.environ.get("SOURCE_DATE_EPOCH")
-    os.environ["SOURCE_DATE_EPOCH"] = FIXED_EPOCH
-    try:
-        assert main(["build", str(DEMO_FUND), "--out", str(out), "--quiet"]) == 0
-    finally:
-        if old is None:
-            os.environ.pop("SOURCE_DATE_EPOCH", None)
-        else:
-            os.environ["SOURCE_DATE_EPOCH"] = old
+    assert build_at_fixed_epoch(DEMO_FUND, out) == 0
     return out
 
 
