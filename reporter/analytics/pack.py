@@ -282,8 +282,16 @@ class PackResults:
         ids = np.asarray((PORTFOLIO_SERIES,) + tuple(self.window.security_ids), dtype=object)
         cols = np.arange(len(ids)) if series is None else np.flatnonzero(np.isin(ids, series))
         tcrit = float(t_critical(self.confidence, self.rolling.window - 2))
-        beta = np.column_stack([self.rolling_portfolio.beta, self.rolling.beta])[:, cols]
-        se = np.column_stack([self.rolling_portfolio.beta_se, self.rolling.beta_se])[:, cols]
+        # the wanted columns only (cols ascending; 0 is the portfolio), so that writing the
+        # table in blocks of series does not copy every holding's history for each block
+        with_port = bool(len(cols)) and cols[0] == 0
+        held = cols[1:] - 1 if with_port else cols - 1
+
+        def take(port: np.ndarray, holdings: np.ndarray) -> np.ndarray:
+            return np.hstack([port, holdings[:, held]]) if with_port else holdings[:, held]
+
+        beta = take(self.rolling_portfolio.beta, self.rolling.beta)
+        se = take(self.rolling_portfolio.beta_se, self.rolling.beta_se)
         t_idx, j_idx = np.nonzero(np.isfinite(beta))
         order = np.lexsort((t_idx, j_idx))
         t_idx, j_idx = t_idx[order], j_idx[order]
