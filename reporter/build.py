@@ -225,6 +225,11 @@ def pack_files(a: Assembled, html: str, pdf: bytes) -> OutputSet:
         files.add("results/securities.csv", _results_csv(res))
         files.add("results/portfolio.json", _json(res.portfolio_summary()))
         files.add("results/rolling_beta.csv", _rolling_csv(res))
+        for rel, table in (("results/period_returns.csv", res.period_table),
+                           ("results/risk_contributions.csv", res.risk_table)):
+            buf = io.StringIO()
+            table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
+            files.add(rel, buf.getvalue())
     if a.limits is not None:
         files.add("results/limits.json", json.dumps(a.limits.as_json(), indent=2,
                                                     sort_keys=True) + "\n")
@@ -232,13 +237,6 @@ def pack_files(a: Assembled, html: str, pdf: bytes) -> OutputSet:
         doc = a.changes.as_json() if a.changes is not None else {
             "previous": None, "note": ctx.compare_note}
         files.add("results/changes.json", json.dumps(doc, indent=2, sort_keys=True) + "\n")
-    if not settings.is_fund:
-        buf = io.StringIO()
-        res.period_table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
-        files.add("results/period_returns.csv", buf.getvalue())
-        buf = io.StringIO()
-        res.risk_table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
-        files.add("results/risk_contributions.csv", buf.getvalue())
     files.add("results/manifest.json", _json({
         "tool_version": __version__,
         "pack_name": settings.name,

@@ -27,21 +27,18 @@ class Progress:
     @contextlib.contextmanager
     def stage(self, name: str) -> Iterator[None]:
         start = time.perf_counter()
-        if self.quiet:
-            yield
-            self.times[name] = time.perf_counter() - start
-            return
-        if self._console is not None:
+        if self._console is not None:            # only on a terminal, never when quiet
             with self._console.status(f"{name}..."):
                 yield
-            self.times[name] = time.perf_counter() - start
-            self._console.print(f"[green]\u2713[/green] {name} "
-                                f"[dim]{self.times[name]:.2f} s[/dim]")
         else:
             yield
-            self.times[name] = time.perf_counter() - start
-            print(f"reporter: {name} done ({self.times[name]:.2f} s)",
-                  file=self.stream, flush=True)
+        self.times[name] = seconds = time.perf_counter() - start
+        if self.quiet:
+            return
+        if self._console is not None:
+            self._console.print(f"[green]\u2713[/green] {name} [dim]{seconds:.2f} s[/dim]")
+        else:
+            print(f"reporter: {name} done ({seconds:.2f} s)", file=self.stream, flush=True)
 
 
 class BatchProgress:

@@ -150,9 +150,6 @@ def date_codes(raw: RawTable, column: str, date_format: str,
         else:
             text = texts[raw_codes[i]] if texts is not None else str(parsed[raw_codes[i]])
             capped.add(where, f"not a valid date in the format {date_format!r}: {text!r}")
-        if capped.count > MAX_PER_CHECK:       # the rest are only counted
-            capped.count += int((codes[i + 1:] < 0).sum())
-            break
     capped.close()
     return codes, parsed[good]
 
@@ -453,13 +450,12 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     # 32 bits when the matrix allows: a long file has millions of rows, and every fresh array
     # of that length costs)
     n_ids = max(len(ids), 1)
-    cell_type = np.int32 if len(uniq_keys) * n_ids < 2**31 else np.int64
-    period_of_day = np.full(len(days), -1, dtype=cell_type)
+    space = len(uniq_keys) * n_ids
+    period_of_day = np.full(len(days), -1, dtype=np.int32 if space < 2**31 else np.int64)
     period_of_day[used] = rank
     combined = period_of_day[day_of]
     combined *= n_ids
     combined += codes
-    space = len(uniq_keys) * n_ids
     if space <= 200_000_000:
         seen = np.zeros(space, dtype=bool)
         seen[combined] = True
@@ -495,8 +491,7 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
 
     # securities that look like percentages are reported once, in _finish_panel
     percent = _percent_columns(matrix, settings.frequency)
-    below = values < -1.0
-    if below.any():
+    if (values < -1.0).any():
         pct_code = np.append(percent[0], False)
         code_of_row = np.where(id_null, len(ids), codes_all)  # len(ids): the "no id" slot
         _report_below_minus_100(raw, np.where(pct_code[code_of_row], np.nan, values),
