@@ -27,6 +27,7 @@ from reporter.errors import InputError, Problem, place
 TEXT_COLUMNS = ("date", "security_id", "name", "sector", "asset_class", "currency", "country")
 SUPPORTED = (".csv", ".txt", ".xlsx", ".parquet", ".pq")
 MAX_BAD_LINES = 10
+CSV_BLOCK_BYTES = 1 << 22    # the CSV reader's block: one column chunk per block
 
 
 @dataclass(frozen=True)
@@ -170,7 +171,7 @@ def _read_csv_body(spec: InputSpec, header: list[str], *, use_threads: bool):
 
     table = pacsv.read_csv(
         spec.path,
-        read_options=pacsv.ReadOptions(use_threads=use_threads, block_size=1 << 22,
+        read_options=pacsv.ReadOptions(use_threads=use_threads, block_size=CSV_BLOCK_BYTES,
                                        column_names=header, skip_rows=1),
         parse_options=pacsv.ParseOptions(delimiter=spec.delimiter, ignore_empty_lines=False,
                                          invalid_row_handler=on_bad_row),

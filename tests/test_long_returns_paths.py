@@ -1,0 +1,169 @@
+"""A long returns CSV with nothing to report takes a one-pass route to its matrix
+(``validate._clean_long_matrix``); anything that might need a message goes through the full
+checks. The quick route is not a second set of rules: on the same file both must give the
+same panel and the same messages, and bad files must still be caught by the full checks.
+
+The reader is set to small blocks here, so that each file arrives in many column chunks,
+each with its own dictionary of dates and ids, as a large file does.
+"""
+
+from __future__ import annotations
+
+import sys
+
+import numpy as np
+import pandas as pd
+import pyarrow as pa
+import pyarrow.csv as pacsv
+import pytest
+
+import reporter.readers as readers
+import reporter.validate as validate
+from reporter.config import load_settings
+from reporter.errors import InputError
+from tests.conftest import REPO
+
+sys.path.insert(0, str(REPO / "benchmarks"))
+from workloads import write_scheme  # noqa: E402
+
+
+@pytest.fixture(autouse=True)
+def small_blocks(monkeypatch):
+    monkeypatch.setattr(readers, "CSV_BLOCK_BYTES", 1 << 14)     # 16 KB: dozens of chunks
+
+
+@pytest.fixture
+def scheme(tmp_path):
+    """120 holdings x 300 business days; 10% list part-way through (NaN before)."""
+    return write_scheme(tmp_path / "s", 120, 300, "daily", seed=11, label="QX", window=250,
+                        late_share=0.1)
+
+
+def both_routes(folder, monkeypatch):
+    """(panel, warnings) by the quick route, then by the full checks alone."""
+    settings = load_settings(folder)
+    taken = []
+    quick = validate._clean_long_matrix
+
+    def spy(*args):
+        out = quick(*args)
+        taken.append(out is not None)
+        return out
+
+    monkeypatch.setattr(validate, "_clean_long_matrix", spy)
+    a = validate.validate_pack(settings)
+    monkeypatch.setattr(validate, "_clean_long_matrix", lambda *args: None)
+    b = validate.validate_pack(settings)
+    return a, b, taken
+
+
+def assert_same(a, b):
+    np.testing.assert_array_equal(a.returns.values, b.returns.values)   # NaN == NaN here
+    np.testing.assert_array_equal(a.returns.period_keys, b.returns.period_keys)
+    assert list(a.returns.security_ids) == list(b.returns.security_ids)
+    assert (a.returns.shape, a.returns.n_rows) == (b.returns.shape, b.returns.n_rows)
+    assert [str(w) for w in a.warnings] == [str(w) for w in b.warnings]
+
+
+def rewrite_returns(folder, edit):
+    path = folder / "returns.csv"
+    table = pd.read_csv(path, dtype=str, keep_default_na=False)
+    edit(table)
+    table.to_csv(path, index=False)
+
+
+def test_the_file_arrives_in_many_chunks(scheme):
+    settings = load_settings(scheme)
+    raw = readers.read_input(settings.inputs["returns"])
+    assert raw.table["date"].num_chunks > 20
+    # each chunk carries its own dictionary of the dates it holds: the quick route must map
+    # each one (the first and last chunks share no date)
+    first, last = (set(c.dictionary.to_pylist()) for c in (raw.table["date"].chunk(0),
+                                                          raw.table["date"].chunks[-1]))
+    assert first and last and not first & last
+
+
+def test_quick_route_gives_the_full_checks_panel(scheme, monkeypatch):
+    a, b, taken = both_routes(scheme, monkeypatch)
+    assert taken == [True]
+    assert np.isnan(a.returns.values).any()          # the late listings' gaps
+    assert_same(a, b)
+    # and the matrix is the file: every row of the CSV at its cell (pandas pivots it)
+    frame = pd.read_csv(scheme / "returns.csv").pivot(index="date", columns="security_id",
+                                                      values="return")
+    frame = frame[list(a.returns.security_ids)]
+    np.testing.assert_array_equal(a.returns.values, frame.to_numpy())
+
+
+def test_rows_in_any_order_and_padded_ids(scheme, monkeypatch):
+    def edit(t):
+        t["security_id"] = np.where(np.arange(len(t)) % 7 == 0, " " + t["security_id"] + " ",
+                                    t["security_id"])
+        t[:] = t.sample(frac=1.0, random_state=3).to_numpy()
+    rewrite_returns(scheme, edit)
+    a, b, taken = both_routes(scheme, monkeypatch)
+    assert taken == [True]
+    assert_same(a, b)
+
+
+def test_a_stale_price_is_placed_at_the_same_row_by_both_routes(scheme, monkeypatch):
+    def edit(t):
+        rows = np.flatnonzero(t["security_id"] == "QX00007")[100:130]
+        t.loc[rows, "return"] = "0.0"
+    rewrite_returns(scheme, edit)
+    a, b, taken = both_routes(scheme, monkeypatch)
+    assert taken == [True]
+    assert_same(a, b)
+    stale = [str(w) for w in a.warnings if "exact-zero" in str(w)]
+    assert len(stale) == 1
+    # the row named is the first zero of the run: line = data row + 2
+    t = pd.read_csv(scheme / "returns.csv")
+    first = int(np.flatnonzero(t["security_id"] == "QX00007")[100]) + 2
+    assert stale[0].startswith(f"returns.csv:{first}:return:")
+
+
+@pytest.mark.parametrize("case, expected", [
+    ("repeat", "duplicate row for"),
+    ("bad_date", "not a valid date"),
+    ("text", "not a number: 'n/a'"),
+    ("empty_id", "value is empty"),
+    ("below", "return -1.5 is below -100%"),
+    ("percent", "look like percentages"),
+])
+def test_anything_to_report_goes_to_the_full_checks(scheme, monkeypatch, case, expected):
+    def edit(t):
+        if case == "repeat":
+            t.loc[len(t)] = t.loc[500].to_numpy()
+        elif case == "bad_date":
+            t.loc[900, "date"] = "2026-02-30"
+        elif case == "text":
+            t.loc[900, "return"] = "n/a"
+        elif case == "empty_id":
+            t.loc[900, "security_id"] = ""
+        elif case == "below":
+            t.loc[900, "return"] = "-1.5"
+        elif case == "percent":
+            sel = t["security_id"] == "QX00003"
+            t.loc[sel, "return"] = (t.loc[sel, "return"].astype(float) * 100).astype(str)
+    rewrite_returns(scheme, edit)
+    settings = load_settings(scheme)
+    raws, _ = validate.read_inputs(settings)
+    spec = settings.inputs["returns"]
+    assert validate._clean_long_matrix(raws["returns"], spec.date_format, "daily") is None
+    with pytest.raises(InputError) as err:
+        validate.validate_pack(settings)
+    assert any(expected in str(p) for p in err.value.problems)
+
+
+def test_a_period_no_row_uses_is_not_a_row_of_the_matrix(tmp_path, monkeypatch):
+    """Written by pyarrow in one go, then read in chunks: the quick route agrees with the
+    full checks on a file whose holdings are on different days (union of dates)."""
+    folder = write_scheme(tmp_path / "s", 30, 80, "daily", seed=5, label="PX", window=60,
+                          late_share=0.3)
+    table = pacsv.read_csv(folder / "returns.csv")
+    keep = np.ones(table.num_rows, dtype=bool)
+    keep[::5] = False                           # gaps scattered over every holding
+    pacsv.write_csv(table.filter(pa.array(keep)), folder / "returns.csv")
+    a, b, taken = both_routes(folder, monkeypatch)
+    assert taken == [True]
+    assert_same(a, b)
