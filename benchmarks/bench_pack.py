@@ -59,7 +59,7 @@ def run_stages(folder: Path) -> dict:
     and the results files), then measure the floors."""
     import pyarrow.csv as pacsv
 
-    from reporter.build import assemble, pack_files
+    from reporter.build import assemble, finish_build
     from reporter.config import load_settings
     from reporter.progress import Progress
     from reporter.render.pdf import render_pdf
@@ -67,15 +67,18 @@ def run_stages(folder: Path) -> dict:
     settings = load_settings(folder)
     progress = Progress(quiet=True)
     a = assemble(settings, progress=progress)
-    t = {"read": progress.times["read"], "validate": progress.times["validate"],
-         "analytics": progress.times["analyse"], "charts": progress.times["chart"]}
-    html = _timed(t, "html", lambda: (a.html(for_print=False), a.html(for_print=True)))
-    pdf = _timed(t, "pdf", lambda: render_pdf(html[1], base_dir=settings.pack_dir,
-                                              allowed=(settings.pack_dir,)))
-    _timed(t, "results", lambda: pack_files(a, html[0], pdf))
-    html = html[1]
-    inputs = a.inputs
+    with tempfile.TemporaryDirectory() as out:
+        finish_build(a, Path(out) / "pack", progress)      # writes the files, as a build does
+        pdf = (Path(out) / "pack" / "pack.pdf").read_bytes()
     peak_build = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    times = progress.times
+    # "results": what the write stage adds once the PDF is done (the results files are
+    # written beside the PDF, in a second thread, and into the output folder)
+    t = {"read": times["read"], "validate": times["validate"], "analytics": times["analyse"],
+         "charts": times["chart"], "html": times["html"], "pdf": times["pdf"],
+         "results": times["write"]}
+    html = a.html(for_print=True)
+    inputs = a.inputs
 
     floors: dict[str, float] = {}
     files = [settings.inputs[r].path for r in ("holdings", "returns", "market", "risk_free")]

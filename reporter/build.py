@@ -11,6 +11,7 @@ import hashlib
 import io
 import json
 import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -35,7 +36,7 @@ from reporter.readers import release_read_buffers
 from reporter.render.html import export_charts, print_charts, render_html
 from reporter.render.pdf import render_pdf
 from reporter.validate import read_inputs, validate_tables
-from reporter.writer import OutputSet, check_target, commit
+from reporter.writer import OutputSet, check_target, commit, open_staging
 
 
 @dataclass(frozen=True)
@@ -82,18 +83,17 @@ def _results_csv(res: PackResults) -> str:
     return buf.getvalue()
 
 
-def _rolling_csv(res: PackResults, block: int = 250) -> memoryview:
-    """``results/rolling_beta.csv``, written by pyarrow's CSV writer ``block`` series at a
-    time into one buffer, which is handed on without a copy: the rolling betas of 2,000 daily
-    holdings are 4.5 million rows (300 MB of CSV), which pandas' writer took some 25 s and
-    a whole-table copy some 1 GB over. Floats are rounded to 10 decimal places (and printed
-    in their shortest form), dates are ISO dates, and text is quoted only when it holds a
-    comma, quote or line break."""
+def write_rolling_csv(res: PackResults, sink, block: int = 250) -> None:
+    """Write ``results/rolling_beta.csv`` into the binary file ``sink`` with pyarrow's CSV
+    writer, ``block`` series at a time: the rolling betas of 2,000 daily holdings are 4.5
+    million rows (300 MB of CSV), which pandas' writer took some 25 s and a whole-table copy
+    some 1 GB over. Floats are rounded to 10 decimal places (and printed in their shortest
+    form), dates are ISO dates, and text is quoted only when it holds a comma, quote or line
+    break. pyarrow formats outside Python's lock, so this can run beside the PDF."""
     ids = [PORTFOLIO_SERIES, *res.window.security_ids]
     quote = any(any(ch in sid for ch in ',"\r\n') for sid in ids)
-    options = pacsv.WriteOptions(quoting_header="none",
+    options = pacsv.WriteOptions(quoting_header="none", batch_size=1 << 16,
                                  quoting_style="needed" if quote else "none")
-    sink = pa.BufferOutputStream()
     writer = None
     for start in range(0, len(ids), block):
         frame = res.rolling_rows(ids[start:start + block])
@@ -105,7 +105,6 @@ def _rolling_csv(res: PackResults, block: int = 250) -> memoryview:
         writer = writer or pacsv.CSVWriter(sink, table.schema, write_options=options)
         writer.write_table(table)
     writer.close()
-    return memoryview(sink.getvalue())
 
 
 def _json(obj) -> str:
@@ -201,14 +200,10 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
                      changes=changes, compare_warnings=compare_warnings, commentary=commentary)
 
 
-def pack_files(a: Assembled, html: str, pdf: bytes) -> OutputSet:
-    """Every file of a build, in memory: the pack's HTML and PDF, the results files and the
-    manifest (with the sha256 of every other output)."""
+def results_files(a: Assembled, files: OutputSet) -> None:
+    """Add the results files of a build (all but the manifest) to ``files``."""
     settings = a.settings
     res, ctx = a.results, a.context
-    files = OutputSet()
-    files.add("pack.html", html)
-    files.add("pack.pdf", pdf)
     if settings.is_fund:
         from reporter.fund_build import fund_results_files
 
@@ -224,7 +219,7 @@ def pack_files(a: Assembled, html: str, pdf: bytes) -> OutputSet:
     else:
         files.add("results/securities.csv", _results_csv(res))
         files.add("results/portfolio.json", _json(res.portfolio_summary()))
-        files.add("results/rolling_beta.csv", _rolling_csv(res))
+        files.add_written("results/rolling_beta.csv", lambda sink: write_rolling_csv(res, sink))
         for rel, table in (("results/period_returns.csv", res.period_table),
                            ("results/risk_contributions.csv", res.risk_table)):
             buf = io.StringIO()
@@ -237,12 +232,25 @@ def pack_files(a: Assembled, html: str, pdf: bytes) -> OutputSet:
         doc = a.changes.as_json() if a.changes is not None else {
             "previous": None, "note": ctx.compare_note}
         files.add("results/changes.json", json.dumps(doc, indent=2, sort_keys=True) + "\n")
+
+
+def pack_files(a: Assembled, html: str, pdf: bytes, files: OutputSet | None = None
+               ) -> OutputSet:
+    """Every file of a build: the pack's HTML and PDF, the results files and the manifest
+    (with the sha256 of every other output). ``files``: an output set that holds the results
+    files already (see :func:`finish_build`); by default a new one, in memory, gets them."""
+    settings, ctx = a.settings, a.context
+    if files is None:
+        files = OutputSet()
+        results_files(a, files)
+    files.add("pack.html", html)
+    files.add("pack.pdf", pdf)
     files.add("results/manifest.json", _json({
         "tool_version": __version__,
         "pack_name": settings.name,
         "pack_dir": str(settings.pack_dir),
         # what sign-off checks the build folder against before it signs
-        "output_sha256": {rel: hashlib.sha256(files[rel]).hexdigest() for rel in files.paths},
+        "output_sha256": {rel: files.sha256(rel) for rel in files.paths},
         "built_utc": ctx.build_time.strftime("%Y-%m-%dT%H:%M:%SZ"),
         "period_end": settings.period_end.isoformat(),
         "title": settings.title,
@@ -267,13 +275,33 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     settings = load_settings(pack)
     check_target(out)
     a = assemble(settings, strict=strict, progress=progress, at=at)
+    files = finish_build(a, out, progress)
+    return BuildReport(out=out, files=files.paths,
+                       warnings=a.inputs.warnings + a.compare_warnings, results=a.results)
+
+
+def finish_build(a: Assembled, out: Path, progress: Progress) -> OutputSet:
+    """Render the HTML and PDF of an assembled pack and write every file into ``out``
+    (stages html, pdf and write). The results files are written into the staging folder
+    beside ``out`` by a second thread while WeasyPrint renders the PDF: the largest, the
+    rolling betas, is formatted by pyarrow outside Python's lock, and goes to disk as it is
+    made rather than being held in memory. A failure anywhere removes the staging folder."""
+    settings = a.settings
     with progress.stage("html"):
         html = a.html(for_print=False)
         print_html = a.html(for_print=True)
-    with progress.stage("pdf"):
-        pdf = render_pdf(print_html, base_dir=settings.pack_dir, allowed=(settings.pack_dir,))
-    with progress.stage("write"):
-        files = pack_files(a, html, pdf)
-        commit(files, out)
-    return BuildReport(out=out, files=files.paths,
-                       warnings=a.inputs.warnings + a.compare_warnings, results=a.results)
+    files = OutputSet(open_staging(out))
+    try:
+        with ThreadPoolExecutor(max_workers=1, thread_name_prefix="results") as pool:
+            results = pool.submit(results_files, a, files)
+            with progress.stage("pdf"):
+                pdf = render_pdf(print_html, base_dir=settings.pack_dir,
+                                 allowed=(settings.pack_dir,))
+            with progress.stage("write"):
+                results.result()            # the results files, written meanwhile
+                pack_files(a, html, pdf, files)
+                commit(files, out)
+    except BaseException:
+        files.discard()
+        raise
+    return files

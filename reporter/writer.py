@@ -12,9 +12,13 @@ from __future__ import annotations
 import ctypes
 import ctypes.util
 import errno
+import hashlib
+import io
 import os
 import shutil
+from collections.abc import Callable
 from pathlib import Path, PurePosixPath
+from typing import BinaryIO
 
 from reporter.errors import OutputError
 
@@ -24,31 +28,91 @@ _TMP_TAG = ".tmp-"
 
 
 class OutputSet:
-    """Files of one build, held in memory until :func:`commit`."""
+    """Files of one build, held in memory until :func:`commit`; with a ``staging`` folder
+    (see :func:`open_staging`), large files added by :meth:`add_written` go straight there
+    instead, and :func:`commit` swaps that folder in."""
 
-    def __init__(self) -> None:
+    def __init__(self, staging: Path | None = None) -> None:
         self._files: dict[str, bytes | memoryview] = {}
+        self._written: dict[str, str] = {}       # rel -> sha256 of a file in the staging folder
+        self.staging = staging
 
-    def add(self, rel: str, data: bytes | str | memoryview) -> None:
-        """Add one file at relative POSIX path ``rel``; refuses escapes and repeats."""
+    def _check(self, rel: str) -> None:
         p = PurePosixPath(rel)
         if p.is_absolute() or ".." in p.parts or not p.parts or rel != str(p):
             raise OutputError(f"refusing to write outside the output folder: {rel!r}")
-        if rel in self._files:
+        if rel in self._files or rel in self._written:
             raise OutputError(f"refusing to write {rel!r} twice in one build")
+
+    def add(self, rel: str, data: bytes | str | memoryview) -> None:
+        """Add one file at relative POSIX path ``rel``; refuses escapes and repeats."""
+        self._check(rel)
         # a memoryview (a large buffer built elsewhere, such as pyarrow's) is kept, not copied
         self._files[rel] = (data.encode("utf-8") if isinstance(data, str)
                             else data if isinstance(data, memoryview) else bytes(data))
 
+    def add_written(self, rel: str, write: Callable[[BinaryIO], None]) -> None:
+        """Add a large file by calling ``write(sink)``: the bytes go straight into the staging
+        folder when there is one (hashed on the way, never held whole in memory), else into
+        memory as :meth:`add` would keep them."""
+        self._check(rel)
+        if self.staging is None:
+            buf = io.BytesIO()
+            write(buf)
+            self._files[rel] = buf.getbuffer()
+            return
+        dest = self.staging / rel
+        dest.parent.mkdir(parents=True, exist_ok=True)
+        with open(dest, "wb") as fh:
+            sink = _HashingSink(fh)
+            write(sink)
+            fh.flush()
+            os.fsync(fh.fileno())
+        self._written[rel] = sink.digest.hexdigest()
+
+    def sha256(self, rel: str) -> str:
+        """The sha256 (hex) of file ``rel``."""
+        if rel in self._written:
+            return self._written[rel]
+        return hashlib.sha256(self._files[rel]).hexdigest()
+
     def __contains__(self, rel: str) -> bool:
-        return rel in self._files
+        return rel in self._files or rel in self._written
 
     def __getitem__(self, rel: str) -> bytes | memoryview:
+        if rel in self._written:
+            return (self.staging / rel).read_bytes()
         return self._files[rel]
 
     @property
-    def paths(self) -> list[str]:
+    def in_memory(self) -> list[str]:
         return sorted(self._files)
+
+    @property
+    def paths(self) -> list[str]:
+        return sorted([*self._files, *self._written])
+
+    def discard(self) -> None:
+        """Remove the staging folder and what was written there (a build that failed)."""
+        if self.staging is not None:
+            shutil.rmtree(self.staging, ignore_errors=True)
+
+
+class _HashingSink:
+    """A binary file that also hashes what is written to it."""
+
+    def __init__(self, fh: BinaryIO) -> None:
+        self.fh, self.digest, self.closed = fh, hashlib.sha256(), False
+
+    def write(self, data) -> int:
+        self.digest.update(data)
+        return self.fh.write(data)
+
+    def writable(self) -> bool:
+        return True
+
+    def flush(self) -> None:
+        self.fh.flush()
 
 
 # What the marker file says: which kind of output the folder holds.
@@ -101,21 +165,41 @@ def refuse_archive(target: Path) -> None:
                               "signed packs are never overwritten")
 
 
-def commit(files: OutputSet, target: Path, kind: str = "pack") -> None:
-    """Write ``files`` into ``target`` atomically: all of them appear at once, or none.
-    ``kind`` (``pack`` or ``site``) is written in the folder's marker and checked against an
-    earlier output there (see :func:`check_target`)."""
+def open_staging(target: Path, kind: str = "pack") -> Path:
+    """Check ``target`` (see :func:`check_target`) and make the temporary folder beside it
+    into which a build is written before :func:`commit` swaps it in. It is named with this
+    process's id, so that a later build can clear it away if this one is killed."""
     target = Path(target).absolute()
     check_target(target, kind)
     target.parent.mkdir(parents=True, exist_ok=True)
     _remove_stale_temps(target)
-    tmp = target.parent / f".{target.name}{_TMP_TAG}{os.getpid()}"
+    tmp = _staging_path(target)
     if tmp.exists():
         shutil.rmtree(tmp)
     tmp.mkdir()
+    return tmp
+
+
+def _staging_path(target: Path) -> Path:
+    return target.parent / f".{target.name}{_TMP_TAG}{os.getpid()}"
+
+
+def commit(files: OutputSet, target: Path, kind: str = "pack") -> None:
+    """Write ``files`` into ``target`` atomically: all of them appear at once, or none.
+    ``kind`` (``pack`` or ``site``) is written in the folder's marker and checked against an
+    earlier output there (see :func:`check_target`). ``files.staging``, when set, must be
+    :func:`open_staging` of the same target: it already holds the files written there."""
+    target = Path(target).absolute()
+    if files.staging is not None:
+        check_target(target, kind)
+        tmp = files.staging
+        if tmp != _staging_path(target):
+            raise OutputError(f"{tmp}: not the staging folder of {target}")
+    else:
+        tmp = open_staging(target, kind)
     try:
         (tmp / BUILD_MARKER).write_bytes(MARKER_TEXT[kind])
-        for rel in files.paths:
+        for rel in files.in_memory:
             dest = tmp / rel
             dest.parent.mkdir(parents=True, exist_ok=True)
             with open(dest, "wb") as fh:

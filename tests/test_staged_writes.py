@@ -1,0 +1,96 @@
+"""The results files are written into the staging folder beside the output while the PDF is
+rendered (a second thread), and the largest goes to disk as it is made. The build must still
+be all-or-nothing: a failure in either thread leaves the earlier output exactly as it was and
+no staging folder behind; a success gives the same files and hashes as the in-memory path."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import shutil
+
+import pytest
+
+import reporter.build as build
+from reporter.config import load_settings
+from reporter.errors import OutputError
+from reporter.progress import Progress
+from reporter.writer import BUILD_MARKER, OutputSet, commit, open_staging
+from tests.conftest import DEMO
+
+
+def tree(folder):
+    return {p.relative_to(folder).as_posix(): p.read_bytes()
+            for p in sorted(folder.rglob("*")) if p.is_file()}
+
+
+def hidden(parent):
+    return sorted(p.name for p in parent.iterdir() if p.name.startswith("."))
+
+
+@pytest.fixture(scope="module")
+def assembled():
+    return build.assemble(load_settings(DEMO))
+
+
+def test_written_file_goes_to_disk_hashed_and_is_swapped_in(tmp_path):
+    out = tmp_path / "out"
+    files = OutputSet(open_staging(out))
+    payload = b"date,series,beta\n" + b"2026-01-30,X,1.0\n" * 50_000
+    files.add_written("results/big.csv", lambda sink: [sink.write(payload[i:i + 4096])
+                                                       for i in range(0, len(payload), 4096)])
+    files.add("small.txt", "hello")
+    # on disk in the staging folder already, and hashed on the way there
+    assert (files.staging / "results/big.csv").read_bytes() == payload
+    assert files.sha256("results/big.csv") == hashlib.sha256(payload).hexdigest()
+    assert files.paths == ["results/big.csv", "small.txt"]
+    commit(files, out)
+    assert tree(out) == {BUILD_MARKER: tree(out)[BUILD_MARKER], "results/big.csv": payload,
+                         "small.txt": b"hello"}
+    assert hidden(tmp_path) == []                     # the staging folder became the output
+
+
+def test_without_staging_a_written_file_is_kept_in_memory():
+    files = OutputSet()
+    files.add_written("a.csv", lambda sink: sink.write(b"x,y\n1,2\n"))
+    assert bytes(files["a.csv"]) == b"x,y\n1,2\n"
+    assert files.sha256("a.csv") == hashlib.sha256(b"x,y\n1,2\n").hexdigest()
+
+
+def test_commit_refuses_a_staging_folder_of_another_target(tmp_path):
+    files = OutputSet(open_staging(tmp_path / "one"))
+    with pytest.raises(OutputError, match="not the staging folder"):
+        commit(files, tmp_path / "two")
+
+
+def test_staged_build_equals_the_in_memory_files(assembled, tmp_path):
+    a = assembled
+    out = tmp_path / "pack"
+    files = build.finish_build(a, out, Progress(quiet=True))
+    written = tree(out)
+    memory = build.pack_files(a, a.html(for_print=False),
+                              written["pack.pdf"])              # same PDF bytes
+    for rel in memory.paths:
+        assert written[rel] == bytes(memory[rel]), rel
+    manifest = json.loads(written["results/manifest.json"])
+    assert manifest["output_sha256"] == {
+        rel: hashlib.sha256(written[rel]).hexdigest() for rel in files.paths
+        if rel != "results/manifest.json"}
+    assert hidden(tmp_path) == []
+
+
+@pytest.mark.parametrize("where", ["pdf", "results"])
+def test_a_failure_in_either_thread_leaves_the_earlier_output(assembled, demo_build, tmp_path,
+                                                              monkeypatch, where):
+    out = tmp_path / "pack"
+    shutil.copytree(demo_build, out)
+    before = tree(out)
+
+    def boom(*args, **kwargs):
+        raise RuntimeError(f"{where} failed")
+
+    monkeypatch.setattr(build, "render_pdf" if where == "pdf" else "write_rolling_csv", boom)
+    with pytest.raises(RuntimeError, match=f"{where} failed"):
+        build.finish_build(assembled, out, Progress(quiet=True))
+    assert tree(out) == before
+    assert hidden(tmp_path) == []                     # the staging folder was removed
