@@ -150,21 +150,38 @@ def pairwise_covariance_and_correlation(returns: np.ndarray) -> tuple[np.ndarray
     m_gap = mask[:, gap].astype(float)
     n = np.full((N, N), float(T))
     n_gap = mask.T.astype(float) @ m_gap
+    del mask
     n[:, gap] = n_gap
     n[gap, :] = n_gap.T
-    sq = x * x
+    del n_gap
     sx, sxx = np.empty((N, N)), np.empty((N, N))
     sx[:] = x.sum(axis=0)[:, None]
-    sxx[:] = sq.sum(axis=0)[:, None]
     sx[:, gap] = x.T @ m_gap
+    sq = x * x
+    sxx[:] = sq.sum(axis=0)[:, None]
     sxx[:, gap] = sq.T @ m_gap
+    del sq
+    # N x N matrices are 32 MB each for 2,000 holdings: the arithmetic below works in place
+    # through one scratch matrix, so that at most six are alive at once
     with np.errstate(invalid="ignore", divide="ignore"):
-        cxy = x.T @ x - sx * sx.T / n
-        cov = cxy / (n - 1)
-        vx = sxx - sx * sx / n
-        corr = cxy / np.sqrt(vx * vx.T)
-    cov[n < 2] = np.nan
-    corr[n < 2] = np.nan
+        cxy = x.T @ x
+        del x
+        tmp = np.multiply(sx, sx.T)
+        tmp /= n
+        cxy -= tmp                              # sum (x_i - mean_i)(x_j - mean_j), pairwise
+        np.multiply(sx, sx, out=tmp)
+        tmp /= n
+        sxx -= tmp                              # vx: sum (x_i - mean_i)^2 over the same periods
+        vx = sxx
+        del sx
+        cov = np.subtract(n, 1.0)
+        np.divide(cxy, cov, out=cov)
+        np.multiply(vx, vx.T, out=tmp)
+        np.sqrt(tmp, out=tmp)
+        corr = np.divide(cxy, tmp, out=tmp)
+    few = n < 2
+    cov[few] = np.nan
+    corr[few] = np.nan
     return cov, corr
 
 
