@@ -45,8 +45,8 @@ def print_charts(ctx: PackContext, svgs: dict[str, Markup]) -> dict[str, Markup]
         if svg.count("<") <= DENSE_SVG_ELEMENTS or size is None:
             out[name] = svg
             continue
-        png = vlc.vegalite_to_png(ctx.charts[name].to_dict(), scale=PRINT_DPI / 72,
-                                  config=THEME_CONFIG, allowed_base_urls=[])
+        # rasterised from the SVG already exported (not a second run of Vega)
+        png = vlc.svg_to_png(str(svg), scale=PRINT_DPI / 72)
         data = base64.b64encode(png).decode("ascii")
         out[name] = Markup(
             '<img class="chart-image" alt="Chart drawn as an image for print; see its caption"'
