@@ -285,23 +285,26 @@ def finish_build(a: Assembled, out: Path, progress: Progress) -> OutputSet:
     (stages html, pdf and write). The results files are written into the staging folder
     beside ``out`` by a second thread while WeasyPrint renders the PDF: the largest, the
     rolling betas, is formatted by pyarrow outside Python's lock, and goes to disk as it is
-    made rather than being held in memory. A failure anywhere removes the staging folder."""
+    made rather than being held in memory. A failure anywhere (an interrupt included) removes
+    the staging folder at once; the results thread stops at its next write."""
     settings = a.settings
     with progress.stage("html"):
         html = a.html(for_print=False)
         print_html = a.html(for_print=True)
     files = OutputSet(open_staging(out))
+    pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="results")
     try:
-        with ThreadPoolExecutor(max_workers=1, thread_name_prefix="results") as pool:
-            results = pool.submit(results_files, a, files)
-            with progress.stage("pdf"):
-                pdf = render_pdf(print_html, base_dir=settings.pack_dir,
-                                 allowed=(settings.pack_dir,))
-            with progress.stage("write"):
-                results.result()            # the results files, written meanwhile
-                pack_files(a, html, pdf, files)
-                commit(files, out)
+        results = pool.submit(results_files, a, files)
+        with progress.stage("pdf"):
+            pdf = render_pdf(print_html, base_dir=settings.pack_dir,
+                             allowed=(settings.pack_dir,))
+        with progress.stage("write"):
+            results.result()            # the results files, written meanwhile
+            pack_files(a, html, pdf, files)
+            commit(files, out)
     except BaseException:
-        files.discard()
+        files.discard()                 # before waiting for the thread, which it stops
         raise
+    finally:
+        pool.shutdown(wait=True)
     return files

@@ -16,6 +16,7 @@ import hashlib
 import io
 import os
 import shutil
+import threading
 from collections.abc import Callable
 from pathlib import Path, PurePosixPath
 from typing import BinaryIO
@@ -36,6 +37,8 @@ class OutputSet:
         self._files: dict[str, bytes | memoryview] = {}
         self._written: dict[str, str] = {}       # rel -> sha256 of a file in the staging folder
         self.staging = staging
+        self.discarded = False
+        self._lock = threading.Lock()      # discard() against a file being opened (threads)
 
     def _check(self, rel: str) -> None:
         p = PurePosixPath(rel)
@@ -62,9 +65,13 @@ class OutputSet:
             self._files[rel] = buf.getbuffer()
             return
         dest = self.staging / rel
-        dest.parent.mkdir(parents=True, exist_ok=True)
-        with open(dest, "wb") as fh:
-            sink = _HashingSink(fh)
+        with self._lock:
+            if self.discarded:
+                raise OutputError(f"{rel}: the build was abandoned; not written")
+            dest.parent.mkdir(parents=True, exist_ok=True)
+            fh = open(dest, "wb")              # once open, discard() only unlinks it
+        with fh:
+            sink = _HashingSink(fh, self)
             write(sink)
             fh.flush()
             os.fsync(fh.fileno())
@@ -93,18 +100,25 @@ class OutputSet:
         return sorted([*self._files, *self._written])
 
     def discard(self) -> None:
-        """Remove the staging folder and what was written there (a build that failed)."""
-        if self.staging is not None:
-            shutil.rmtree(self.staging, ignore_errors=True)
+        """Remove the staging folder and what was written there (a build that failed). A
+        file being written by another thread stops at its next write, and nothing more is
+        written."""
+        with self._lock:
+            self.discarded = True
+            if self.staging is not None:
+                shutil.rmtree(self.staging, ignore_errors=True)
 
 
 class _HashingSink:
-    """A binary file that also hashes what is written to it."""
+    """A binary file that also hashes what is written to it, and stops the writer once its
+    output set is discarded."""
 
-    def __init__(self, fh: BinaryIO) -> None:
-        self.fh, self.digest, self.closed = fh, hashlib.sha256(), False
+    def __init__(self, fh: BinaryIO, owner: OutputSet) -> None:
+        self.fh, self.owner, self.digest, self.closed = fh, owner, hashlib.sha256(), False
 
     def write(self, data) -> int:
+        if self.owner.discarded:
+            raise OutputError("the build was abandoned; stopped writing")
         self.digest.update(data)
         return self.fh.write(data)
 

@@ -130,6 +130,7 @@ def pairwise_correlation(returns: np.ndarray) -> np.ndarray:
 def pairwise_covariance_and_correlation(returns: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """:func:`pairwise_covariance` and :func:`pairwise_correlation` from one set of masked
     cross-products (four matrix products; one when no return is missing)."""
+    returns = np.asarray(returns, dtype=float)      # the in-place steps below stay float64
     mask = np.isfinite(returns)
     if mask.all():
         cov = np.atleast_2d(np.cov(returns, rowvar=False))
