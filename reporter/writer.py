@@ -224,7 +224,11 @@ def commit(files: OutputSet, target: Path, kind: str = "pack") -> None:
             if not _exchange(tmp, target):
                 old = target.parent / f".{target.name}.old-{os.getpid()}"
                 os.rename(target, old)
-                os.rename(tmp, target)
+                try:
+                    os.rename(tmp, target)
+                except BaseException:
+                    os.rename(old, target)      # put the earlier output back
+                    raise
                 tmp = old
             shutil.rmtree(tmp)
         else:

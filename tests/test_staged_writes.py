@@ -132,3 +132,36 @@ def test_a_failure_stops_the_results_thread_and_nothing_is_left(assembled, demo_
         files.discard()
         files.add_written("late.csv", lambda sink: sink.write(b"x"))
     assert hidden(tmp_path) == []                   # a write after discard creates nothing
+
+
+def test_without_an_atomic_exchange_a_failed_rename_puts_the_earlier_output_back(
+        tmp_path, monkeypatch):
+    """Where renameat2 is missing the swap is two renames; if the second fails, the earlier
+    output is renamed back into place rather than left under a hidden name."""
+    import os
+
+    import reporter.writer as writer
+
+    out = tmp_path / "out"
+    first = OutputSet()
+    first.add("a.txt", "earlier")
+    commit(first, out)
+    before = tree(out)
+    real_rename = os.rename
+    calls = []
+
+    def rename(src, dst):
+        calls.append((src, dst))
+        if len(calls) == 2:                      # the staging folder onto the target
+            raise OSError("simulated failure")
+        return real_rename(src, dst)
+
+    monkeypatch.setattr(writer, "_exchange", lambda a, b: False)
+    monkeypatch.setattr(writer.os, "rename", rename)
+    second = OutputSet()
+    second.add("a.txt", "later")
+    with pytest.raises(OSError, match="simulated"):
+        commit(second, out)
+    monkeypatch.setattr(writer.os, "rename", real_rename)
+    assert tree(out) == before
+    assert hidden(tmp_path) == []
