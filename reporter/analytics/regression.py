@@ -14,8 +14,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-import statsmodels.api as sm
 from scipy import stats
+from statsmodels.regression.linear_model import OLS
+from statsmodels.tools.tools import add_constant
 
 
 @dataclass(frozen=True)
@@ -161,10 +162,10 @@ def fit_portfolio(y: np.ndarray, x: np.ndarray, confidence: float, errors: str =
     (statsmodels ``cov_type='HAC'``, Bartlett kernel, small-sample correction) and
     t-based confidence intervals from the errors chosen in ``errors``."""
     ok = np.isfinite(y) & np.isfinite(x)
-    X = sm.add_constant(x[ok], has_constant="add")
-    res = sm.OLS(y[ok], X).fit()
+    X = add_constant(x[ok], has_constant="add")
+    res = OLS(y[ok], X).fit()
     lags = int(newey_west_lags(int(res.nobs))) if hac_lags is None else int(hac_lags)
-    hac = sm.OLS(y[ok], X).fit(cov_type="HAC", cov_kwds={"maxlags": lags,
+    hac = OLS(y[ok], X).fit(cov_type="HAC", cov_kwds={"maxlags": lags,
                                                           "use_correction": True})
     tcrit = stats.t.ppf(0.5 + confidence / 2, res.df_resid)
     a, b = res.params

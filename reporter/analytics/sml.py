@@ -121,13 +121,14 @@ def cross_sectional_test(mean_excess: np.ndarray, beta: np.ndarray,
     with classical standard errors (Black, Jensen and Scholes 1972; Fama and MacBeth 1973).
     Under the CAPM g0 = 0 and g1 = the market premium. The errors ignore that betas are
     estimated (errors in variables), so they are too small. Fitted holdings only."""
-    import statsmodels.api as sm
+    from statsmodels.regression.linear_model import OLS
+    from statsmodels.tools.tools import add_constant
 
     ok = np.isfinite(mean_excess) & np.isfinite(beta)
     if ok.sum() < 3:
         return _no_line_test("cross-section", int(ok.sum()), int(n_periods), premium)
-    X = sm.add_constant(beta[ok], has_constant="add")
-    res = sm.OLS(mean_excess[ok], X).fit()
+    X = add_constant(beta[ok], has_constant="add")
+    res = OLS(mean_excess[ok], X).fit()
     g0, g1 = (float(v) for v in res.params)
     s0, s1 = (float(v) for v in res.bse)
     return LineTest("cross-section", int(ok.sum()), int(n_periods), g0, s0, g1, s1,
