@@ -30,9 +30,9 @@ from reporter.config import Settings, load_settings
 from reporter.context import PackContext, build_context
 from reporter.errors import InputError, Problem
 from reporter.limits import LimitsReport, evaluate_limits
+from reporter.memory import release_free_memory
 from reporter.models import ValidInputs
 from reporter.progress import Progress
-from reporter.readers import release_read_buffers
 from reporter.render.html import export_charts, print_charts, render_html
 from reporter.render.pdf import render_pdf
 from reporter.validate import read_inputs, validate_tables
@@ -83,7 +83,7 @@ def _results_csv(res: PackResults) -> str:
     return buf.getvalue()
 
 
-def write_rolling_csv(res: PackResults, sink, block: int = 250) -> None:
+def write_rolling_csv(res: PackResults, sink, block: int = 50) -> None:
     """Write ``results/rolling_beta.csv`` into the binary file ``sink`` with pyarrow's CSV
     writer, ``block`` series at a time: the rolling betas of 2,000 daily holdings are 4.5
     million rows (300 MB of CSV), which pandas' writer took some 25 s and a whole-table copy
@@ -178,7 +178,7 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
         inputs = validate_tables(settings, raws,
                                  [*read_problems, *bench_problems, *own_problems], strict=strict)
         del raws                    # the typed inputs hold everything needed from here on
-        release_read_buffers()
+        release_free_memory()
     with progress.stage("analyse"):
         res = analyse(inputs, settings, benchmark=benchmark, portfolio=own)
         hashes = input_hashes(settings)
@@ -291,6 +291,7 @@ def finish_build(a: Assembled, out: Path, progress: Progress) -> OutputSet:
     with progress.stage("html"):
         html = a.html(for_print=False)
         print_html = a.html(for_print=True)
+        release_free_memory()       # the analysis' and charts' temporaries, before the PDF
     files = OutputSet(open_staging(out))
     pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="results")
     try:

@@ -34,8 +34,8 @@ from reporter.context import PackContext, build_context
 from reporter.errors import Problem
 from reporter.fund_inputs import FundInputs, validate_fund
 from reporter.limits import LimitsReport, evaluate_limits
+from reporter.memory import release_free_memory
 from reporter.progress import Progress
-from reporter.readers import release_read_buffers
 from reporter.render.environment import make_environment
 from reporter.render.html import chart_svg, export_charts, print_charts, render_html
 
@@ -255,7 +255,7 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
     with progress.stage("validate"):
         fin = validate_fund(settings, raws, read_problems, strict=strict)
         del raws                    # the typed inputs hold everything needed from here on
-        release_read_buffers()
+        release_free_memory()
     with progress.stage("analyse"):
         hashes = input_hashes(settings)
         hashes.update(commentary.hashes)

@@ -53,13 +53,6 @@ class RawTable:
         return self.first_row + index
 
 
-def release_read_buffers() -> None:
-    """Hand back to the system the memory pyarrow's pool kept from reading (its allocator
-    holds freed blocks for reuse: for a 5M-row CSV, some 250 MB). Call once the raw tables
-    are no longer needed."""
-    pa.default_memory_pool().release_unused()
-
-
 def read_input(spec: InputSpec) -> RawTable:
     """Read one input file. Raises :class:`InputError` if the file cannot be read at all."""
     suffix = spec.path.suffix.lower()

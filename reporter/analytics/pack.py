@@ -61,6 +61,7 @@ from reporter.analytics.sml import (
     security_market_line,
 )
 from reporter.config import Settings
+from reporter.memory import release_free_memory
 from reporter.models import DatedSeries, ValidInputs
 
 SECURITY_COLUMNS = [
@@ -479,6 +480,7 @@ def analyse(inputs: ValidInputs, settings: Settings,
     full = np.isfinite(sector_ex).all(axis=0)
     grs_s = grs_test(sector_ex[:, full], x, "sector portfolios")
 
+    release_free_memory()      # the window's temporaries, before the whole history's
     hist = build_window(inputs, settings, periods=0)
     rolling = rolling_betas(hist.excess_returns, hist.market_excess, settings.rolling_window)
     hist_raw = portfolio_returns(hist.returns, weights)
