@@ -434,15 +434,8 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     # ids are trimmed, so that " FWX01" and "FWX01" are one security, and a blank id is
     # empty: the distinct values are trimmed (few), then the codes remapped (one pass)
     enc = _dictionary(raw.table["security_id"])
-    ids: list[str] = []
-    index_of: dict[str, int] = {}
-    remap = np.full(len(enc.dictionary) + 1, -1, dtype=np.int32)   # last slot: null id
-    for k, text in enumerate(enc.dictionary.to_pylist()):
-        text = text.strip()
-        if text:
-            remap[k] = index_of.setdefault(text, len(ids))
-            if remap[k] == len(ids):
-                ids.append(text)
+    ids, id_of_text = _trimmed_ids(enc.dictionary.to_pylist())
+    remap = np.append(id_of_text, -1).astype(np.int32)               # last slot: null id
     raw_codes = enc.indices.fill_null(-1).to_numpy(zero_copy_only=False)     # int32
     codes_all = remap[raw_codes]                                     # -1 indexes the last slot
     id_null = codes_all < 0
@@ -558,16 +551,9 @@ def _clean_long_matrix(raw: RawTable, date_format: str, frequency: str):
     if np.isnat(days).any():
         return None
     keys, period_of_text = np.unique(period_keys(days, frequency), return_inverse=True)
-    ids: list[str] = []
-    index_of: dict[str, int] = {}
-    id_of_text = np.empty(len(id_texts), dtype=np.int64)
-    for k, text in enumerate(id_texts):
-        text = text.strip()
-        if not text:
-            return None
-        id_of_text[k] = index_of.setdefault(text, len(ids))
-        if id_of_text[k] == len(ids):
-            ids.append(text)
+    ids, id_of_text = _trimmed_ids(id_texts)
+    if (id_of_text < 0).any():
+        return None
     n_ids = len(ids)
     space = len(keys) * n_ids
     if space > 200_000_000:
@@ -606,6 +592,22 @@ def _clean_long_matrix(raw: RawTable, date_format: str, frequency: str):
         raise LookupError("no such row")
 
     return matrix, keys, ids, percent, row_where
+
+
+def _trimmed_ids(texts: list[str]) -> tuple[list[str], np.ndarray]:
+    """Distinct security-id texts trimmed of spaces, so that " FWX01" and "FWX01" are one
+    security: returns the ids in order of first appearance and, for each text, its id's
+    position (-1 for a blank text)."""
+    ids: list[str] = []
+    index_of: dict[str, int] = {}
+    id_of_text = np.full(len(texts), -1, dtype=np.int64)
+    for k, text in enumerate(texts):
+        text = text.strip()
+        if text:
+            id_of_text[k] = index_of.setdefault(text, len(ids))
+            if id_of_text[k] == len(ids):
+                ids.append(text)
+    return ids, id_of_text
 
 
 def _dictionary(column: pa.ChunkedArray) -> pa.DictionaryArray:
