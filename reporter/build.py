@@ -29,6 +29,7 @@ from reporter.commentary import CommentarySet, read_commentary
 from reporter.config import Settings, load_settings
 from reporter.context import PackContext, build_context
 from reporter.errors import InputError, Problem
+from reporter.jsonvalues import json_ready
 from reporter.limits import LimitsReport, evaluate_limits
 from reporter.memory import release_free_memory
 from reporter.models import ValidInputs
@@ -108,13 +109,7 @@ def write_rolling_csv(res: PackResults, sink, block: int = 50) -> None:
 
 
 def _json(obj) -> str:
-    def clean(v):
-        if isinstance(v, float | np.floating):
-            return None if not np.isfinite(v) else float(v)
-        if isinstance(v, np.integer):
-            return int(v)
-        return v
-    return json.dumps({k: clean(v) for k, v in obj.items()}, indent=2, sort_keys=True) + "\n"
+    return json.dumps(json_ready(obj), indent=2, sort_keys=True) + "\n"
 
 
 @dataclass(frozen=True)

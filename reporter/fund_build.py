@@ -33,6 +33,7 @@ from reporter.config import TOTAL_FUND, Settings
 from reporter.context import PackContext, build_context
 from reporter.errors import Problem
 from reporter.fund_inputs import FundInputs, validate_fund
+from reporter.jsonvalues import json_ready
 from reporter.limits import LimitsReport, evaluate_limits
 from reporter.memory import release_free_memory
 from reporter.progress import Progress
@@ -130,15 +131,8 @@ class FundAssembled:
     def mandate_portfolio_json(self) -> str:
         """``results/mandate_portfolio.json``: each mandate's ``portfolio.json`` figures (the
         same keys and units), by mandate name; NaN written as null."""
-        def clean(v):
-            if isinstance(v, float | np.floating):
-                return float(v) if np.isfinite(v) else None
-            if isinstance(v, np.integer | np.bool_):
-                return v.item()
-            return v
-        doc = {p.name: {k: clean(v) for k, v in p.results.portfolio_summary().items()}
-               for p in self.parts}
-        return json.dumps(doc, indent=2, sort_keys=True) + "\n"
+        doc = {p.name: p.results.portfolio_summary() for p in self.parts}
+        return json.dumps(json_ready(doc), indent=2, sort_keys=True) + "\n"
 
     def mandate_changes_json(self) -> str:
         """``results/mandate_changes.json`` (with ``[compare]``): each mandate's comparison

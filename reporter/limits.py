@@ -19,6 +19,7 @@ import numpy as np
 
 from reporter.analytics.pack import PackResults
 from reporter.config import LimitsSection
+from reporter.jsonvalues import json_ready
 
 WITHIN, WATCH, BREACH = "within", "watch", "breach"
 STATUS_ORDER = {WITHIN: 0, WATCH: 1, BREACH: 2}
@@ -74,10 +75,10 @@ class LimitCheck:
     def as_json(self) -> dict:
         return {
             "limit": self.limit, "scope": self.scope, "label": self.label, "kind": self.kind,
-            "value": _clean(self.value), "threshold": self.threshold,
+            "value": json_ready(self.value), "threshold": self.threshold,
             "watch_from": self.watch_from, "status": self.status,
-            "holdings": [{k: _clean(v) for k, v in h.items()} for h in self.holdings],
-            "sectors": [{k: _clean(v) for k, v in s.items()} for s in self.sectors],
+            "holdings": [{k: json_ready(v) for k, v in h.items()} for h in self.holdings],
+            "sectors": [{k: json_ready(v) for k, v in s.items()} for s in self.sectors],
         }
 
 
@@ -100,7 +101,7 @@ class BetaTarget:
     band_midpoint: bool            # True: target is the middle of [beta_min, beta_max]
 
     def as_json(self) -> dict:
-        return {k: _clean(getattr(self, k)) for k in (
+        return {k: json_ready(getattr(self, k)) for k in (
             "beta", "target", "cash_share", "mean_excess", "mean_excess_ann",
             "portfolio_mean_excess_ann", "band_midpoint")}
 
@@ -144,16 +145,6 @@ class LimitsReport:
             "beta_target": self.beta_target.as_json() if self.beta_target else None,
             "notes": list(self.notes),
         }
-
-
-def _clean(v):
-    if isinstance(v, float | np.floating):
-        return float(v) if np.isfinite(v) else None
-    if isinstance(v, np.integer):
-        return int(v)
-    if isinstance(v, np.bool_):
-        return bool(v)
-    return v
 
 
 def classify(values: np.ndarray | float, threshold: float, kind: str,

@@ -15,6 +15,7 @@ import pandas as pd
 from scipy import stats
 
 from reporter.analytics.pack import PackResults
+from reporter.jsonvalues import json_ready
 
 if TYPE_CHECKING:
     from reporter.changes import PreviousPack
@@ -63,7 +64,7 @@ class PackChanges:
     def as_json(self) -> dict:
         """The content of ``results/changes.json``."""
         b = self.beta
-        return _clean({
+        return json_ready({
             "previous": {"folder": self.previous_folder, "source": self.previous_source,
                          "period_end": self.previous_period_end,
                          "input_fingerprint": self.previous_fingerprint},
@@ -77,20 +78,6 @@ class PackChanges:
             "limits_compared": self.limits_compared,
             "limit_changes": self.limit_changes,
         })
-
-
-def _clean(v):
-    if isinstance(v, dict):
-        return {k: _clean(x) for k, x in v.items()}
-    if isinstance(v, list | tuple):
-        return [_clean(x) for x in v]
-    if isinstance(v, float | np.floating):
-        return float(v) if np.isfinite(v) else None
-    if isinstance(v, np.integer):
-        return int(v)
-    if isinstance(v, np.bool_):
-        return bool(v)
-    return v
 
 
 def _number(v) -> float:
@@ -121,7 +108,7 @@ def beta_change(now: dict, before: dict, confidence: float) -> BetaChange:
 
 
 def _records(df: pd.DataFrame) -> list[dict]:
-    return [{k: _clean(v) for k, v in r.items()} for r in df.to_dict(orient="records")]
+    return [{k: json_ready(v) for k, v in r.items()} for r in df.to_dict(orient="records")]
 
 
 def compare_packs(previous: PreviousPack, res: PackResults, limits: list[dict] | None,
