@@ -223,9 +223,8 @@ def _records(df: pd.DataFrame) -> list[dict]:
 
 def _part(name: str, slug: str, settings: Settings, inputs, res: PackResults,
           fingerprint: str, at: dt.datetime, benchmark: str, weight: float,
-          commentary: dict | None, changes: PackChanges | None = None,
-          compare_note: str | None = None) -> FundPart:
-    limits = evaluate_limits(settings.limits, res) if settings.limits else None
+          commentary: dict | None, limits: LimitsReport | None,
+          changes: PackChanges | None = None, compare_note: str | None = None) -> FundPart:
     charts = build_charts(res, limits, "Benchmark")
     ctx = build_context(settings, inputs, res, charts, fingerprint, at, limits=limits,
                         commentary=commentary, changes=changes, compare_note=compare_note)
@@ -278,10 +277,10 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
         total = _part(TOTAL_FUND, TOTAL_SLUG, settings, fin.total, fa.results, fp, at,
                       fin.benchmark_label, 1.0,   # the summary note is on the fund overview
                       {k: c for k, c in commentary.by_section.items() if k != "summary"},
-                      changes=changes, compare_note=compare_note)
+                      total_limits, changes=changes, compare_note=compare_note)
         parts = tuple(
             _part(m.mandate.name, m.mandate.slug, own, m.inputs, res, fp, at,
-                  f"its benchmark ({m.benchmark_name})", m.weight, None,
+                  f"its benchmark ({m.benchmark_name})", m.weight, None, limits[k],
                   changes=mandate_changes[k], compare_note=mandate_notes[k])
             for k, (m, own, res) in enumerate(zip(fin.mandates, fa.settings,
                                                   fa.mandate_results, strict=True)))
