@@ -107,12 +107,6 @@ def read_build(folder: Path, source: str, period_end: dt.date) -> PreviousPack:
     except (OSError, ValueError, pd.errors.ParserError) as exc:
         problems.append(Problem(str(results / "securities.csv"), f"cannot be read: {exc}"))
         sec = None
-    by_mandate: dict[str, pd.DataFrame] = {}
-    if sec is not None and "mandate" in sec.columns:     # a fund's build: its total fund
-        names = sec["mandate"].astype(str)
-        by_mandate = {m: g.drop(columns="mandate").reset_index(drop=True)
-                      for m, g in sec.groupby(names, sort=False) if m != TOTAL_FUND}
-        sec = sec[names == TOTAL_FUND].drop(columns="mandate").reset_index(drop=True)
     if sec is not None:
         for col in SECURITY_COLUMNS:
             if col not in sec.columns:
@@ -144,6 +138,14 @@ def read_build(folder: Path, source: str, period_end: dt.date) -> PreviousPack:
     for col in TEXT_COLUMNS:
         if col in sec.columns:
             sec[col] = sec[col].fillna("")
+    # a fund's build: the total fund's rows, and each mandate's (checked above as one file,
+    # so that a problem names its line in securities.csv)
+    by_mandate: dict[str, pd.DataFrame] = {}
+    if "mandate" in sec.columns:
+        names = sec["mandate"].astype(str)
+        by_mandate = {m: g.drop(columns="mandate").reset_index(drop=True)
+                      for m, g in sec.groupby(names, sort=False) if m != TOTAL_FUND}
+        sec = sec[names == TOTAL_FUND].drop(columns="mandate").reset_index(drop=True)
     limits = limits_doc.get("limits") if isinstance(limits_doc, dict) else None
     return PreviousPack(folder=Path(folder), source=source, period_end=prev_end,
                         manifest=manifest, portfolio=portfolio, securities=sec,
@@ -154,8 +156,9 @@ def read_build(folder: Path, source: str, period_end: dt.date) -> PreviousPack:
 def _mandates(results: Path, by_mandate: dict[str, pd.DataFrame], source: str,
               period_end: dt.date, manifest: dict) -> dict[str, PreviousPack]:
     """Each mandate of an earlier fund build that wrote ``mandate_portfolio.json`` (its rows of
-    securities.csv, its portfolio figures and, from ``mandate_limits.json``, its limits). A
-    build without that file gives no mandate to compare with; an unreadable one is an error."""
+    securities.csv, checked with the rest of the file, its portfolio figures and, from
+    ``mandate_limits.json``, its limits). A build without that file gives no mandate to
+    compare with; an unreadable one is an error."""
     path = results / "mandate_portfolio.json"
     if not by_mandate or not path.is_file():
         return {}
@@ -172,12 +175,6 @@ def _mandates(results: Path, by_mandate: dict[str, pd.DataFrame], source: str,
             continue
         own = (limits or {}).get(name)
         items = own.get("limits") if isinstance(own, dict) else None
-        for col in ("weight", "beta", "sml_residual"):
-            if col in sec.columns:
-                sec[col] = pd.to_numeric(sec[col], errors="coerce")
-        for col in TEXT_COLUMNS:
-            if col in sec.columns:
-                sec[col] = sec[col].fillna("")
         out[name] = PreviousPack(folder=results.parent, source=source, period_end=period_end,
                                  manifest=manifest, portfolio=port, securities=sec,
                                  limits=items if isinstance(items, list) else None)

@@ -227,3 +227,32 @@ def test_unreadable_previous_weight_is_an_input_error(demo_build, tmp_path):
         assemble(load_settings(make_swapped(tmp_path / "pack", str(old))))
     assert [str(p) for p in exc.value.problems] == [
         f"{old / 'results/securities.csv'}:4:weight: not a number: 'n/a'"]
+
+
+def test_a_fund_builds_bad_number_is_placed_on_its_own_line(tmp_path):
+    """An earlier fund build's securities.csv holds the total fund's rows and each mandate's:
+    the file is checked as a whole before it is split, so a bad value names its line in the
+    file (here line 5, a mandate's row after the total fund's), whichever part it is in."""
+    from reporter.changes import read_build
+
+    results = tmp_path / "old" / "results"
+    results.mkdir(parents=True)
+    (results / "manifest.json").write_text(json.dumps({"period_end": "2026-10-31"}))
+    (results / "portfolio.json").write_text("{}")
+    (results / "securities.csv").write_text(
+        "mandate,security_id,weight,beta\n"
+        "Total fund,QA1,0.6,1.1\n"
+        "Total fund,QA2,0.4,0.9\n"
+        "Domestic,QA1,1.0,1.1\n"
+        "Overseas,QA2,n/a,0.9\n")
+    with pytest.raises(InputError) as exc:
+        read_build(tmp_path / "old", "build", dt.date(2026, 11, 30))
+    assert [str(p) for p in exc.value.problems] == [
+        f"{results / 'securities.csv'}:5:weight: not a number: 'n/a'"]
+    # the same file with the value mended: the total fund's rows, typed, and no mandate
+    # (this build wrote no mandate_portfolio.json)
+    (results / "securities.csv").write_text(
+        (results / "securities.csv").read_text().replace("n/a", "1.0"))
+    prev = read_build(tmp_path / "old", "build", dt.date(2026, 11, 30))
+    assert prev.securities["security_id"].tolist() == ["QA1", "QA2"]
+    assert prev.securities["weight"].tolist() == [0.6, 0.4] and prev.mandates == {}
