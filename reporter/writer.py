@@ -47,12 +47,10 @@ class OutputSet:
         if rel in self._files or rel in self._written:
             raise OutputError(f"refusing to write {rel!r} twice in one build")
 
-    def add(self, rel: str, data: bytes | str | memoryview) -> None:
+    def add(self, rel: str, data: bytes | str) -> None:
         """Add one file at relative POSIX path ``rel``; refuses escapes and repeats."""
         self._check(rel)
-        # a memoryview (a large buffer built elsewhere, such as pyarrow's) is kept, not copied
-        self._files[rel] = (data.encode("utf-8") if isinstance(data, str)
-                            else data if isinstance(data, memoryview) else bytes(data))
+        self._files[rel] = data.encode("utf-8") if isinstance(data, str) else bytes(data)
 
     def add_written(self, rel: str, write: Callable[[BinaryIO], None]) -> None:
         """Add a large file by calling ``write(sink)``: the bytes go straight into the staging
