@@ -1,8 +1,10 @@
-"""The only module that writes files: gather every output in memory, then swap it in.
+"""The only module that writes files: gather every output in a temporary folder beside the
+target, then swap it in.
 
 A build's outputs are collected by :class:`OutputSet` (relative path -> bytes), which
-refuses paths outside the output folder and a second write to the same path. Then
-:func:`commit` writes them into a temporary folder beside the target and swaps it in with
+refuses paths outside the output folder and a second write to the same path; a large file
+(:meth:`OutputSet.add_written`) goes straight into the staging folder (:func:`open_staging`)
+instead of memory. Then :func:`commit` writes the rest there and swaps the folder in with
 one atomic ``renameat2(RENAME_EXCHANGE)`` (Linux), falling back to two renames elsewhere.
 A build that fails, or is killed, before the swap leaves the target exactly as it was.
 """
