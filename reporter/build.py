@@ -11,6 +11,7 @@ import hashlib
 import io
 import json
 import os
+from collections.abc import Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -34,7 +35,7 @@ from reporter.limits import LimitsReport, evaluate_limits
 from reporter.memory import release_free_memory
 from reporter.models import ValidInputs
 from reporter.progress import Progress
-from reporter.render.html import export_charts, print_charts, render_html
+from reporter.render.html import export_all, render_html, start_chart_engine
 from reporter.render.pdf import render_pdf
 from reporter.validate import read_inputs, validate_tables
 from reporter.writer import OutputSet, check_target, commit, open_staging
@@ -122,7 +123,7 @@ class Assembled:
     context: PackContext
     svgs: dict
     hashes: dict[str, str]
-    print_svgs: dict = field(default_factory=dict)   # the charts as the PDF draws them
+    print_svgs: Mapping = field(default_factory=dict)   # the charts as the PDF draws them
     limits: LimitsReport | None = None
     changes: PackChanges | None = None
     compare_warnings: list[Problem] = field(default_factory=list)
@@ -159,6 +160,7 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
     ``at`` fixes the build time shown in the pack (sign-off re-renders a build with the time
     it was built); by default it is :func:`build_time`.
     """
+    start_chart_engine()             # ready by the chart stage
     if settings.is_fund:
         from reporter.fund_build import assemble_fund
 
@@ -189,8 +191,7 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
         ctx = build_context(settings, inputs, res, charts, fingerprint(hashes),
                             at or build_time(), limits=limits, changes=changes,
                             compare_note=compare_note, commentary=commentary.by_section)
-        svgs = export_charts(ctx)
-        for_pdf = print_charts(ctx, svgs)
+        svgs, for_pdf = export_all(ctx)     # a dense chart's print image is made meanwhile
     return Assembled(settings, inputs, res, ctx, svgs, hashes, print_svgs=for_pdf, limits=limits,
                      changes=changes, compare_warnings=compare_warnings, commentary=commentary)
 

@@ -78,3 +78,34 @@ def test_shown_errors_agree_with_intervals_and_positions():
     assert called
     for r in called:
         assert abs(r["alpha_t_used"]) > stats.t.ppf(0.975, r["n_obs"] - 2)
+
+
+def test_every_chart_matches_the_vega_lite_schema():
+    """The export skips Altair's schema check for speed (``chart_svg``), so every chart the
+    demo pack and the demo fund draw is checked here against the Vega-Lite JSON schema that
+    Altair ships (reference: the published Vega-Lite v6 schema, via Altair's validator)."""
+    import jsonschema
+
+    from reporter.charts import mandate_risk_chart, mandate_weights_chart
+    from reporter.fund_build import TOTAL_FUND
+    from tests.conftest import REPO
+
+    single = assemble(load_settings(DEMO))
+    fund = assemble(load_settings(REPO / "inputs" / "demo-fund"))
+    mandates = fund.table[fund.table["mandate"] != TOTAL_FUND]
+    charts = {f"pack/{n}": c for n, c in single.context.charts.items()}
+    for part in (fund.total, *fund.parts):
+        charts |= {f"{part.slug}/{n}": c for n, c in part.context.charts.items()}
+    charts |= {"fund/weights": mandate_weights_chart(mandates),
+               "fund/risk": mandate_risk_chart(mandates)}
+    assert len(charts) >= 7 * (2 + len(fund.parts))
+    for name, chart in charts.items():
+        spec = chart.to_dict(validate=True)         # raises on a schema error
+        assert spec["$schema"].endswith("v6.json") or "v6" in spec["$schema"], name
+    # the check can fail: an encoding type the schema does not know is refused
+    import altair as alt
+
+    bad = alt.Chart(pd.DataFrame({"a": [1.0]})).mark_bar().encode(x="a:Q")
+    bad.encoding.x.type = "no-such-type"
+    with pytest.raises(jsonschema.ValidationError):
+        bad.to_dict(validate=True)
