@@ -22,7 +22,7 @@ import pyarrow.csv as pacsv
 
 from reporter import __version__
 from reporter.analytics.changes import PackChanges, compare_packs
-from reporter.analytics.pack import PORTFOLIO_SERIES, PackResults, analyse
+from reporter.analytics.pack import ROLLING_COLUMNS, PackResults, analyse
 from reporter.benchmark import validate_benchmark, validate_portfolio_returns
 from reporter.changes import read_previous
 from reporter.charts import build_charts
@@ -91,19 +91,24 @@ def write_rolling_csv(res: PackResults, sink, block: int = 50) -> None:
     million rows (300 MB of CSV), which pandas' writer took some 25 s and a whole-table copy
     some 1 GB over. Floats are rounded to 10 decimal places (and printed in their shortest
     form), dates are ISO dates, and text is quoted only when it holds a comma, quote or line
-    break. pyarrow formats outside Python's lock, so this can run beside the PDF."""
-    ids = [PORTFOLIO_SERIES, *res.window.security_ids]
+    break. Each block goes from numpy arrays to pyarrow without a Python object per row (the
+    series column is dictionary-encoded), and pyarrow formats outside Python's lock, so this
+    runs beside the PDF without holding WeasyPrint back."""
+    ids = res.rolling_ids()
     quote = any(any(ch in sid for ch in ',"\r\n') for sid in ids)
     options = pacsv.WriteOptions(quoting_header="none", batch_size=1 << 16,
                                  quoting_style="needed" if quote else "none")
+    dates = pa.array(np.asarray(res.history_dates, dtype="datetime64[D]"), pa.date32())
     writer = None
     for start in range(0, len(ids), block):
-        frame = res.rolling_rows(ids[start:start + block])
+        cols = np.arange(start, min(start + block, len(ids)))
+        t_idx, j_idx, *values = res.rolling_arrays(cols)
         table = pa.table({
-            "date": pa.array(frame["date"].to_numpy(dtype="datetime64[D]"), pa.date32()),
-            "series": pa.array(frame["series"].to_numpy(), pa.string()),
-            **{c: pa.array(np.round(frame[c].to_numpy(dtype=float), 10))
-               for c in frame.columns[2:]}})
+            "date": dates.take(pa.array(t_idx)),
+            "series": pa.DictionaryArray.from_arrays(pa.array(j_idx.astype(np.int32)),
+                                                     pa.array(ids[cols], pa.string())),
+            **{c: pa.array(np.round(v, 10))
+               for c, v in zip(ROLLING_COLUMNS[2:], values, strict=True)}})
         writer = writer or pacsv.CSVWriter(sink, table.schema, write_options=options)
         writer.write_table(table)
     writer.close()

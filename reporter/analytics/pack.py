@@ -280,11 +280,26 @@ class PackResults:
         """:attr:`rolling_table` for the given series ids only (``PORTFOLIO`` or security
         ids; all when None), built from those columns alone: a chart of ten holdings does not
         pay for a table of every holding on every date."""
-        ids = np.asarray((PORTFOLIO_SERIES,) + tuple(self.window.security_ids), dtype=object)
+        ids = self.rolling_ids()
         cols = np.arange(len(ids)) if series is None else np.flatnonzero(np.isin(ids, series))
+        t_idx, j_idx, b, e, lo, hi = self.rolling_arrays(cols)
+        return pd.DataFrame({
+            "date": np.asarray(self.history_dates, dtype="datetime64[D]")[t_idx],
+            "series": ids[cols][j_idx],
+            "beta": b, "beta_se": e, "beta_ci_low": lo, "beta_ci_high": hi,
+        })
+
+    def rolling_ids(self) -> np.ndarray:
+        """The rolling table's series ids, in order: ``PORTFOLIO``, then each holding."""
+        return np.asarray((PORTFOLIO_SERIES,) + tuple(self.window.security_ids), dtype=object)
+
+    def rolling_arrays(self, cols: np.ndarray) -> tuple[np.ndarray, ...]:
+        """The rows of :attr:`rolling_table` for the series at positions ``cols`` of
+        :meth:`rolling_ids` (ascending), as flat arrays: date index, position within
+        ``cols``, beta, its standard error and the interval's ends. Only those columns are
+        read, so that writing the table in blocks of series does not copy every holding's
+        history for each block."""
         tcrit = float(t_critical(self.confidence, self.rolling.window - 2))
-        # the wanted columns only (cols ascending; 0 is the portfolio), so that writing the
-        # table in blocks of series does not copy every holding's history for each block
         with_port = bool(len(cols)) and cols[0] == 0
         held = cols[1:] - 1 if with_port else cols - 1
 
@@ -293,15 +308,10 @@ class PackResults:
 
         beta = take(self.rolling_portfolio.beta, self.rolling.beta)
         se = take(self.rolling_portfolio.beta_se, self.rolling.beta_se)
-        t_idx, j_idx = np.nonzero(np.isfinite(beta))
-        order = np.lexsort((t_idx, j_idx))
-        t_idx, j_idx = t_idx[order], j_idx[order]
+        # series by series, each in date order (the transpose's non-zero order)
+        j_idx, t_idx = np.nonzero(np.isfinite(beta.T))
         b, e = beta[t_idx, j_idx], se[t_idx, j_idx]
-        return pd.DataFrame({
-            "date": np.asarray(self.history_dates, dtype="datetime64[D]")[t_idx],
-            "series": ids[cols][j_idx],
-            "beta": b, "beta_se": e, "beta_ci_low": b - tcrit * e, "beta_ci_high": b + tcrit * e,
-        })
+        return t_idx, j_idx, b, e, b - tcrit * e, b + tcrit * e
 
     def portfolio_summary(self) -> dict:
         """The flat figures written to ``results/portfolio.json`` (see README for units)."""
