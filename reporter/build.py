@@ -11,7 +11,6 @@ import hashlib
 import io
 import json
 import os
-from collections.abc import Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -35,7 +34,7 @@ from reporter.limits import LimitsReport, evaluate_limits
 from reporter.memory import release_free_memory
 from reporter.models import ValidInputs
 from reporter.progress import Progress
-from reporter.render.html import export_all, render_html, start_chart_engine
+from reporter.render.html import export_charts, print_charts, render_html
 from reporter.render.pdf import render_pdf
 from reporter.validate import read_inputs, validate_tables
 from reporter.writer import OutputSet, check_target, commit, open_staging
@@ -92,8 +91,8 @@ def write_rolling_csv(res: PackResults, sink, block: int = 50) -> None:
     some 1 GB over. Floats are rounded to 10 decimal places (and printed in their shortest
     form), dates are ISO dates, and text is quoted only when it holds a comma, quote or line
     break. Each block goes from numpy arrays to pyarrow without a Python object per row (the
-    series column is dictionary-encoded), and pyarrow formats outside Python's lock, so this
-    runs beside the PDF without holding WeasyPrint back."""
+    series column is dictionary-encoded). pyarrow formats outside Python's lock, so this can
+    run beside the PDF."""
     ids = res.rolling_ids()
     quote = any(any(ch in sid for ch in ',"\r\n') for sid in ids)
     options = pacsv.WriteOptions(quoting_header="none", batch_size=1 << 16,
@@ -128,7 +127,7 @@ class Assembled:
     context: PackContext
     svgs: dict
     hashes: dict[str, str]
-    print_svgs: Mapping = field(default_factory=dict)   # the charts as the PDF draws them
+    print_svgs: dict = field(default_factory=dict)   # the charts as the PDF draws them
     limits: LimitsReport | None = None
     changes: PackChanges | None = None
     compare_warnings: list[Problem] = field(default_factory=list)
@@ -165,7 +164,6 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
     ``at`` fixes the build time shown in the pack (sign-off re-renders a build with the time
     it was built); by default it is :func:`build_time`.
     """
-    start_chart_engine()             # ready by the chart stage
     if settings.is_fund:
         from reporter.fund_build import assemble_fund
 
@@ -196,7 +194,8 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
         ctx = build_context(settings, inputs, res, charts, fingerprint(hashes),
                             at or build_time(), limits=limits, changes=changes,
                             compare_note=compare_note, commentary=commentary.by_section)
-        svgs, for_pdf = export_all(ctx)     # a dense chart's print image is made meanwhile
+        svgs = export_charts(ctx)
+        for_pdf = print_charts(ctx, svgs)
     return Assembled(settings, inputs, res, ctx, svgs, hashes, print_svgs=for_pdf, limits=limits,
                      changes=changes, compare_warnings=compare_warnings, commentary=commentary)
 

@@ -11,7 +11,6 @@ import dataclasses
 import datetime as dt
 import io
 import json
-from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -39,7 +38,7 @@ from reporter.limits import LimitsReport, evaluate_limits
 from reporter.memory import release_free_memory
 from reporter.progress import Progress
 from reporter.render.environment import make_environment
-from reporter.render.html import chart_svg, export_all, render_html
+from reporter.render.html import chart_svg, export_charts, print_charts, render_html
 
 TOTAL_SLUG = "total-fund"
 FUND_CAUTION = (
@@ -60,7 +59,7 @@ class FundPart:
     results: PackResults
     context: PackContext
     svgs: dict
-    print_svgs: Mapping              # the same charts as the PDF draws them
+    print_svgs: dict                 # the same charts as the PDF draws them
     limits: LimitsReport | None
     benchmark: str                   # what it is measured against, in words
     weight: float                    # weight in the fund (1 for the total)
@@ -229,9 +228,9 @@ def _part(name: str, slug: str, settings: Settings, inputs, res: PackResults,
     charts = build_charts(res, limits, "Benchmark")
     ctx = build_context(settings, inputs, res, charts, fingerprint, at, limits=limits,
                         commentary=commentary, changes=changes, compare_note=compare_note)
-    svgs, print_svgs = export_all(ctx)
+    svgs = export_charts(ctx)
     return FundPart(name=name, slug=slug, settings=settings, results=res, context=ctx,
-                    svgs=svgs, print_svgs=print_svgs, limits=limits,
+                    svgs=svgs, print_svgs=print_charts(ctx, svgs), limits=limits,
                     benchmark=benchmark, weight=weight)
 
 
