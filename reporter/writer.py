@@ -17,7 +17,10 @@ import errno
 import hashlib
 import io
 import os
+import re
+import secrets
 import shutil
+import socket
 import threading
 from collections.abc import Callable
 from pathlib import Path, PurePosixPath
@@ -182,20 +185,27 @@ def refuse_archive(target: Path) -> None:
 def open_staging(target: Path, kind: str = "pack") -> Path:
     """Check ``target`` (see :func:`check_target`) and make the temporary folder beside it
     into which a build is written before :func:`commit` swaps it in. It is named with this
-    process's id, so that a later build can clear it away if this one is killed."""
+    machine's name, this process's id and a random token (``.NAME.tmp-HOST-PID-TOKEN``), so
+    that a later build on the same machine can clear it away if this one is killed, and a
+    build on another machine sharing the folder (a cluster's workers) never takes it for
+    its own or judges it by a process id that means nothing there."""
     target = Path(target).absolute()
     check_target(target, kind)
     target.parent.mkdir(parents=True, exist_ok=True)
     _remove_stale_temps(target)
-    tmp = _staging_path(target)
-    if tmp.exists():
-        shutil.rmtree(tmp)
+    tmp = target.parent / f"{_own_staging_prefix(target)}{secrets.token_hex(4)}"
     tmp.mkdir()
     return tmp
 
 
-def _staging_path(target: Path) -> Path:
-    return target.parent / f".{target.name}{_TMP_TAG}{os.getpid()}"
+def _host_tag() -> str:
+    """This machine's name as it appears in staging folders' names (no dashes, which
+    separate the name's parts)."""
+    return re.sub(r"[^A-Za-z0-9_.]", "_", socket.gethostname())[:64] or "host"
+
+
+def _own_staging_prefix(target: Path) -> str:
+    return f".{target.name}{_TMP_TAG}{_host_tag()}-{os.getpid()}-"
 
 
 def commit(files: OutputSet, target: Path, kind: str = "pack") -> None:
@@ -207,7 +217,8 @@ def commit(files: OutputSet, target: Path, kind: str = "pack") -> None:
     if files.staging is not None:
         check_target(target, kind)
         tmp = files.staging
-        if tmp != _staging_path(target):
+        if tmp.parent != target.parent or not tmp.name.startswith(
+                _own_staging_prefix(target)):
             raise OutputError(f"{tmp}: not the staging folder of {target}")
     else:
         tmp = open_staging(target, kind)
@@ -263,11 +274,20 @@ def _fsync_dir(path: Path) -> None:
 
 
 def _remove_stale_temps(target: Path) -> None:
-    """Remove temporary folders left by an earlier build of this target that was killed."""
+    """Remove temporary folders left by an earlier build of this target, on this machine,
+    that was killed (its process is gone). A folder made on another machine is left alone:
+    its process id says nothing here. (``.NAME.tmp-PID``, the form before machine names,
+    is judged by its process id, as it was then.)"""
     prefix = f".{target.name}{_TMP_TAG}"
     for entry in target.parent.glob(prefix + "*"):
-        pid = entry.name[len(prefix):]
-        if pid.isdigit() and not _alive(int(pid)):
+        parts = entry.name[len(prefix):].split("-")
+        if len(parts) == 3 and parts[0] == _host_tag() and parts[1].isdigit():
+            pid = parts[1]
+        elif len(parts) == 1 and parts[0].isdigit():
+            pid = parts[0]
+        else:
+            continue
+        if not _alive(int(pid)):
             shutil.rmtree(entry, ignore_errors=True)
 
 

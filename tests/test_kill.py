@@ -16,7 +16,7 @@ from pathlib import Path
 import pytest
 
 from reporter.cli import main
-from reporter.writer import ARCHIVE_MARKER, BUILD_MARKER
+from reporter.writer import ARCHIVE_MARKER, BUILD_MARKER, _host_tag
 from tests.conftest import DEMO, FIXED_EPOCH, REPO
 
 # The build prints "reporter: <stage> done" lines when not quiet. It is killed as soon as the
@@ -74,9 +74,10 @@ def test_killed_build_leaves_the_earlier_build(demo_build, tmp_path, capsys, mon
     assert tree(out) == before
     assert sorted(p.name for p in tmp_path.iterdir() if not p.name.startswith(".")) == ["pack"]
 
-    # a build killed while writing leaves its temporary folder (named with its process id)
+    # a build killed while writing leaves its temporary folder (named with its machine and
+    # process id)
     # beside the output; the next build must clear it away
-    stale = tmp_path / f".pack.tmp-{proc.pid}"
+    stale = tmp_path / f".pack.tmp-{_host_tag()}-{proc.pid}-0123abcd"
     stale.mkdir(exist_ok=True)
     (stale / "pack.html").write_bytes(b"half written")
 

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import os
 import shutil
 
 import pytest
@@ -165,3 +166,50 @@ def test_without_an_atomic_exchange_a_failed_rename_puts_the_earlier_output_back
     monkeypatch.setattr(writer.os, "rename", real_rename)
     assert tree(out) == before
     assert hidden(tmp_path) == []
+
+
+def _dead_pid() -> int:
+    """A process id with no process behind it on this machine."""
+    import subprocess
+    import sys
+
+    proc = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"],
+                          capture_output=True, text=True, check=True)
+    return int(proc.stdout)
+
+
+def test_staging_folders_are_judged_by_process_id_only_on_their_own_machine(tmp_path,
+                                                                            monkeypatch):
+    """Workers of a cluster may build into one shared folder: a staging folder made on
+    another machine is never cleared away on the strength of a process id, and one made here
+    by a process that is gone is."""
+    import reporter.writer as writer
+
+    out = tmp_path / "pack"
+    dead = _dead_pid()
+    here = tmp_path / f".pack.tmp-{writer._host_tag()}-{dead}-0badf00d"
+    there = tmp_path / f".pack.tmp-other_node.example-{dead}-0badf00d"
+    old_form = tmp_path / f".pack.tmp-{dead}"
+    for folder in (here, there, old_form):
+        folder.mkdir()
+        (folder / "pack.html").write_bytes(b"half written")
+    staging = open_staging(out)
+    assert staging.name.startswith(f".pack.tmp-{writer._host_tag()}-{os.getpid()}-")
+    assert not here.exists() and not old_form.exists()
+    assert (there / "pack.html").read_bytes() == b"half written"
+    # the same process id on another machine (containers often share low ids) is not ours
+    monkeypatch.setattr(writer.socket, "gethostname", lambda: "other-node.example")
+    assert writer._host_tag() == "other_node.example"
+    with pytest.raises(OutputError, match="not the staging folder"):
+        commit(OutputSet(staging), out)
+    monkeypatch.undo()
+    files = OutputSet(staging)
+    files.add("a.txt", "x")
+    commit(files, out)
+    assert (out / "a.txt").read_text() == "x"
+    assert hidden(tmp_path) == [there.name]
+
+
+def test_two_stagings_of_one_target_in_one_process_are_separate(tmp_path):
+    first, second = open_staging(tmp_path / "pack"), open_staging(tmp_path / "pack")
+    assert first != second and first.is_dir() and second.is_dir()
