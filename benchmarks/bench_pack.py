@@ -100,8 +100,9 @@ APPENDIX = re.compile(r'<section class="chapter" id="holdings">.*?</section>', r
 
 
 def investigate(folder: Path, repeat: int = 1) -> dict:
-    """Time WeasyPrint on variants of the same print HTML: SVG charts (as built), PNG charts
-    at print resolution, no charts, no holdings appendix, and fonts embedded whole."""
+    """Time WeasyPrint on variants of the same print HTML: the charts as built (each an image
+    of its SVG, or a PNG when dense), every chart inline SVG, PNG charts at print
+    resolution, no charts, no holdings appendix, and fonts embedded whole."""
     import base64
 
     import vl_convert as vlc
@@ -113,7 +114,7 @@ def investigate(folder: Path, repeat: int = 1) -> dict:
     from reporter.charts import THEME_CONFIG, build_charts
     from reporter.config import load_settings
     from reporter.context import build_context
-    from reporter.render.html import export_charts, render_html
+    from reporter.render.html import export_charts, print_charts, render_html
     from reporter.validate import validate_pack
 
     settings = load_settings(folder)
@@ -132,6 +133,7 @@ def investigate(folder: Path, repeat: int = 1) -> dict:
         return out
 
     png_markup = _timed(t, "export charts as PNG, 300 dpi", pngs)
+    html_built = render_html(ctx, print_charts(ctx, svgs), for_print=True)
     html_svg = render_html(ctx, svgs, for_print=True)
     html_png = render_html(ctx, png_markup, for_print=True)
 
@@ -147,11 +149,12 @@ def investigate(folder: Path, repeat: int = 1) -> dict:
 
     sizes = {}
     for label, html, opts in [
-            ("PDF, SVG charts (as built)", html_svg, {}),
+            ("PDF, charts as built (SVG images; PNG when dense)", html_built, {}),
+            ("PDF, every chart inline SVG", html_svg, {}),
             ("PDF, PNG charts at 300 dpi", html_png, {}),
-            ("PDF, no charts", SVG.sub("", html_svg), {}),
-            ("PDF, no holdings appendix", APPENDIX.sub("", html_svg), {}),
-            ("PDF, fonts embedded whole (no subsetting)", html_svg, {"full_fonts": True})]:
+            ("PDF, no charts", SVG.sub("", html_built), {}),
+            ("PDF, no holdings appendix", APPENDIX.sub("", html_built), {}),
+            ("PDF, fonts embedded whole (no subsetting)", html_built, {"full_fonts": True})]:
         runs: dict[str, float] = {}
         for _ in range(repeat):        # the fastest of ``repeat`` runs
             sizes[label] = len(_timed(runs, label, lambda h=html, o=opts: pdf(h, **o)))

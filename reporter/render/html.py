@@ -41,22 +41,31 @@ _SVG_SIZE = re.compile(r'<svg\b[^>]*?\bwidth="([\d.]+)"[^>]*?\bheight="([\d.]+)"
 
 
 def print_charts(ctx: PackContext, svgs: dict[str, Markup]) -> dict[str, Markup]:
-    """The charts as the PDF shows them: each chart's SVG (vector), except a dense one (more
-    than :data:`DENSE_SVG_ELEMENTS` elements), which becomes a PNG at :data:`PRINT_DPI` dpi
-    drawn at the SVG's own size."""
+    """The charts as the PDF shows them, each an image of the chart's own size: its SVG
+    (vector), or for a dense one (more than :data:`DENSE_SVG_ELEMENTS` elements) a PNG at
+    :data:`PRINT_DPI` dpi.
+
+    An image rather than inline SVG: WeasyPrint reads inline markup with its HTML parser,
+    which goes through each attribute a character at a time in Python (about 0.5 s for the
+    pack's seven charts), while an image's SVG is read by an XML parser written in C. The
+    pages are the same, pixel for pixel (``tests/test_long_packs.py``)."""
     out = {}
     for name, svg in svgs.items():
         size = _SVG_SIZE.search(svg)
-        if svg.count("<") <= DENSE_SVG_ELEMENTS or size is None:
+        if size is None:
             out[name] = svg
-            continue
-        # rasterised from the SVG already exported (not a second run of Vega)
-        png = vlc.svg_to_png(str(svg), scale=PRINT_DPI / 72)
-        data = base64.b64encode(png).decode("ascii")
-        out[name] = Markup(
-            '<img class="chart-image" alt="Chart drawn as an image for print; see its caption"'
-            f' style="width:{size.group(1)}px;height:{size.group(2)}px"'
-            f' src="data:image/png;base64,{data}">')
+        elif svg.count("<") <= DENSE_SVG_ELEMENTS:
+            data = base64.b64encode(str(svg).encode("utf-8")).decode("ascii")
+            out[name] = Markup('<img class="chart-image" alt="Chart; see its caption"'
+                               f' src="data:image/svg+xml;base64,{data}">')
+        else:
+            # rasterised from the SVG already exported (not a second run of Vega)
+            png = vlc.svg_to_png(str(svg), scale=PRINT_DPI / 72)
+            data = base64.b64encode(png).decode("ascii")
+            out[name] = Markup(
+                '<img class="chart-image" alt="Chart drawn as an image for print; see its'
+                f' caption" style="width:{size.group(1)}px;height:{size.group(2)}px"'
+                f' src="data:image/png;base64,{data}">')
     return out
 
 
