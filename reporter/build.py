@@ -9,7 +9,6 @@ from __future__ import annotations
 import datetime as dt
 import hashlib
 import io
-import json
 import os
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
@@ -29,7 +28,7 @@ from reporter.commentary import CommentarySet, read_commentary
 from reporter.config import Settings, load_settings
 from reporter.context import PackContext, build_context
 from reporter.errors import InputError, Problem
-from reporter.jsonvalues import json_ready
+from reporter.jsonvalues import json_text
 from reporter.limits import LimitsReport, evaluate_limits
 from reporter.memory import release_free_memory
 from reporter.models import ValidInputs
@@ -111,10 +110,6 @@ def write_rolling_csv(res: PackResults, sink, block: int = 50) -> None:
         writer = writer or pacsv.CSVWriter(sink, table.schema, write_options=options)
         writer.write_table(table)
     writer.close()
-
-
-def _json(obj) -> str:
-    return json.dumps(json_ready(obj), indent=2, sort_keys=True) + "\n"
 
 
 @dataclass(frozen=True)
@@ -209,16 +204,15 @@ def results_files(a: Assembled, files: OutputSet) -> None:
 
         for rel, text in fund_results_files(a).items():
             files.add(rel, text)
-        files.add("results/portfolio.json", _json(res.portfolio_summary() | {
+        files.add("results/portfolio.json", json_text(res.portfolio_summary() | {
             "fund_benchmark": a.inputs.benchmark_label,
             "mandate_weight_source": a.inputs.weight_source}))
         mandate_limits = {p.name: p.limits.as_json() for p in a.parts if p.limits is not None}
         if mandate_limits:
-            files.add("results/mandate_limits.json",
-                      json.dumps(mandate_limits, indent=2, sort_keys=True) + "\n")
+            files.add("results/mandate_limits.json", json_text(mandate_limits))
     else:
         files.add("results/securities.csv", _results_csv(res))
-        files.add("results/portfolio.json", _json(res.portfolio_summary()))
+        files.add("results/portfolio.json", json_text(res.portfolio_summary()))
         files.add_written("results/rolling_beta.csv", lambda sink: write_rolling_csv(res, sink))
         for rel, table in (("results/period_returns.csv", res.period_table),
                            ("results/risk_contributions.csv", res.risk_table)):
@@ -226,12 +220,11 @@ def results_files(a: Assembled, files: OutputSet) -> None:
             table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
             files.add(rel, buf.getvalue())
     if a.limits is not None:
-        files.add("results/limits.json", json.dumps(a.limits.as_json(), indent=2,
-                                                    sort_keys=True) + "\n")
+        files.add("results/limits.json", json_text(a.limits.as_json()))
     if settings.compare_build is not None or settings.compare_archive is not None:
         doc = a.changes.as_json() if a.changes is not None else {
             "previous": None, "note": ctx.compare_note}
-        files.add("results/changes.json", json.dumps(doc, indent=2, sort_keys=True) + "\n")
+        files.add("results/changes.json", json_text(doc))
 
 
 def pack_files(a: Assembled, html: str, pdf: bytes, files: OutputSet | None = None
@@ -245,7 +238,7 @@ def pack_files(a: Assembled, html: str, pdf: bytes, files: OutputSet | None = No
         results_files(a, files)
     files.add("pack.html", html)
     files.add("pack.pdf", pdf)
-    files.add("results/manifest.json", _json({
+    files.add("results/manifest.json", json_text({
         "tool_version": __version__,
         "pack_name": settings.name,
         "pack_dir": str(settings.pack_dir),

@@ -10,7 +10,6 @@ from __future__ import annotations
 import dataclasses
 import datetime as dt
 import io
-import json
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -33,7 +32,7 @@ from reporter.config import TOTAL_FUND, Settings
 from reporter.context import PackContext, build_context
 from reporter.errors import Problem
 from reporter.fund_inputs import FundInputs, validate_fund
-from reporter.jsonvalues import json_ready
+from reporter.jsonvalues import json_text
 from reporter.limits import LimitsReport, evaluate_limits
 from reporter.memory import release_free_memory
 from reporter.progress import Progress
@@ -131,16 +130,14 @@ class FundAssembled:
     def mandate_portfolio_json(self) -> str:
         """``results/mandate_portfolio.json``: each mandate's ``portfolio.json`` figures (the
         same keys and units), by mandate name; NaN written as null."""
-        doc = {p.name: p.results.portfolio_summary() for p in self.parts}
-        return json.dumps(json_ready(doc), indent=2, sort_keys=True) + "\n"
+        return json_text({p.name: p.results.portfolio_summary() for p in self.parts})
 
     def mandate_changes_json(self) -> str:
         """``results/mandate_changes.json`` (with ``[compare]``): each mandate's comparison
         with the earlier pack, as ``changes.json``, or why there is none."""
-        doc = {p.name: (p.context.changes.as_json() if p.context.changes is not None
-                        else {"previous": None, "note": p.context.compare_note})
-               for p in self.parts}
-        return json.dumps(doc, indent=2, sort_keys=True) + "\n"
+        return json_text({p.name: (p.context.changes.as_json() if p.context.changes is not None
+                                   else {"previous": None, "note": p.context.compare_note})
+                          for p in self.parts})
 
     def fund_context(self) -> dict:
         """The figures of the fund's own pages, as plain records for the template."""

@@ -3,6 +3,8 @@
 
 from __future__ import annotations
 
+import json
+
 import numpy as np
 
 
@@ -19,3 +21,9 @@ def json_ready(v):
     if isinstance(v, np.bool_):
         return bool(v)
     return v
+
+
+def json_text(obj) -> str:
+    """A results JSON file's text: :func:`json_ready` values, indented, keys sorted, and a
+    final newline."""
+    return json.dumps(json_ready(obj), indent=2, sort_keys=True) + "\n"
