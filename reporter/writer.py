@@ -278,10 +278,10 @@ def _remove_stale_temps(target: Path) -> None:
     that was killed (its process is gone). A folder made on another machine is left alone:
     its process id says nothing here. (``.NAME.tmp-PID``, the form before machine names,
     is judged by its process id, as it was then.)"""
-    prefix = f".{target.name}{_TMP_TAG}"
+    prefix, host = f".{target.name}{_TMP_TAG}", _host_tag()
     for entry in target.parent.glob(prefix + "*"):
         parts = entry.name[len(prefix):].split("-")
-        if len(parts) == 3 and parts[0] == _host_tag() and parts[1].isdigit():
+        if len(parts) == 3 and parts[0] == host and parts[1].isdigit():
             pid = parts[1]
         elif len(parts) == 1 and parts[0].isdigit():
             pid = parts[0]
