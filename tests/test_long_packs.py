@@ -3,6 +3,7 @@ print, the rolling-beta results file written in blocks, and the fixed-width text
 
 from __future__ import annotations
 
+import base64
 import dataclasses
 import io
 import re
@@ -101,12 +102,12 @@ def test_a_dense_chart_is_an_image_in_print_and_a_small_one_stays_vector():
     # a chart that is not dense is its own SVG, drawn as an image
     small_svg = out["small"].split("data:image/svg+xml;base64,")[1].split('"')[0]
     assert out["small"].startswith('<img class="chart-image"')
-    assert __import__("base64").b64decode(small_svg).decode() == svgs["small"]
+    assert base64.b64decode(small_svg).decode() == svgs["small"]
     width, height = re.search(r'<svg\b[^>]*?width="([\d.]+)"[^>]*?height="([\d.]+)"',
                               svgs["dense"]).groups()
     assert out["dense"].startswith('<img class="chart-image"')
     assert f"width:{width}px;height:{height}px" in out["dense"]
-    png = __import__("base64").b64decode(out["dense"].split("base64,")[1].split('"')[0])
+    png = base64.b64decode(out["dense"].split("base64,")[1].split('"')[0])
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
     # drawn at 300 dpi: 300/72 pixels per CSS point of the SVG's size
     w_px = int.from_bytes(png[16:20], "big")
