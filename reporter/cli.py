@@ -6,7 +6,6 @@ traceback unless ``--debug``).
 
 from __future__ import annotations
 
-import sys
 import traceback
 from pathlib import Path
 
@@ -247,21 +246,40 @@ def _run(fn, debug: bool):
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Entry point; returns the exit code (tests call this directly)."""
+    """Entry point; returns the exit code (tests call this directly).
+
+    A usage error (unknown option or command, missing argument, bad value) is one line on
+    standard error and exit 2; ``reporter`` alone prints the help and exits 0.
+    """
     try:
         cli.main(args=argv, prog_name="reporter", standalone_mode=False)
     except _Exit as e:
         return e.code
-    except click.exceptions.NoArgsIsHelp:
+    except _NO_ARGS_IS_HELP as e:
+        click.echo(e.ctx.get_help() if e.ctx is not None else str(e))
         return EXIT_OK
     except click.UsageError as e:
-        e.show(file=sys.stderr)
+        click.echo(usage_line(e), err=True)
         return EXIT_BAD_INPUT
     except click.exceptions.Exit as e:
         return e.exit_code
     except click.Abort:
         return EXIT_FAILED
     return EXIT_OK
+
+
+# click up to 8.1 raises NoArgsIsHelp (not a UsageError); 8.2 on raise NoArgsIsHelpError, a
+# UsageError: either way `reporter` alone prints the help.
+_NO_ARGS_IS_HELP = tuple(getattr(click.exceptions, name) for name in
+                         ("NoArgsIsHelp", "NoArgsIsHelpError")
+                         if hasattr(click.exceptions, name))
+
+
+def usage_line(e: click.UsageError) -> str:
+    """One line for a usage error: the command, what is wrong, and where the help is."""
+    command = e.ctx.command_path if e.ctx is not None else "reporter"
+    message = " ".join(e.format_message().split()).rstrip(".")
+    return f"{command}: {message} (see '{command} --help')"
 
 
 if __name__ == "__main__":
