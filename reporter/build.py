@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import datetime as dt
 import hashlib
-import io
 import os
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
@@ -27,6 +26,7 @@ from reporter.charts import build_charts
 from reporter.commentary import CommentarySet, read_commentary
 from reporter.config import Settings, load_settings
 from reporter.context import PackContext, build_context
+from reporter.csvsafe import csv_text, escape_array
 from reporter.errors import InputError, Problem
 from reporter.jsonvalues import json_text
 from reporter.limits import LimitsReport, evaluate_limits
@@ -77,12 +77,6 @@ def _sha256(path: Path) -> str:
     return h.hexdigest()
 
 
-def _results_csv(res: PackResults) -> str:
-    buf = io.StringIO()
-    res.securities.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
-    return buf.getvalue()
-
-
 def write_rolling_csv(res: PackResults, sink, block: int = 50) -> None:
     """Write ``results/rolling_beta.csv`` into the binary file ``sink`` with pyarrow's CSV
     writer, ``block`` series at a time: the rolling betas of 2,000 daily holdings are 4.5
@@ -92,7 +86,7 @@ def write_rolling_csv(res: PackResults, sink, block: int = 50) -> None:
     break. Each block goes from numpy arrays to pyarrow without a Python object per row (the
     series column is dictionary-encoded). pyarrow formats outside Python's lock, so this can
     run beside the PDF."""
-    ids = res.rolling_ids()
+    ids = escape_array(res.rolling_ids())          # no id can start a spreadsheet formula
     quote = any(any(ch in sid for ch in ',"\r\n') for sid in ids)
     options = pacsv.WriteOptions(quoting_header="none", batch_size=1 << 16,
                                  quoting_style="needed" if quote else "none")
@@ -211,14 +205,12 @@ def results_files(a: Assembled, files: OutputSet) -> None:
         if mandate_limits:
             files.add("results/mandate_limits.json", json_text(mandate_limits))
     else:
-        files.add("results/securities.csv", _results_csv(res))
+        files.add("results/securities.csv", csv_text(res.securities))
         files.add("results/portfolio.json", json_text(res.portfolio_summary()))
         files.add_written("results/rolling_beta.csv", lambda sink: write_rolling_csv(res, sink))
         for rel, table in (("results/period_returns.csv", res.period_table),
                            ("results/risk_contributions.csv", res.risk_table)):
-            buf = io.StringIO()
-            table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
-            files.add(rel, buf.getvalue())
+            files.add(rel, csv_text(table))
     if a.limits is not None:
         files.add("results/limits.json", json_text(a.limits.as_json()))
     if settings.compare_build is not None or settings.compare_archive is not None:

@@ -18,6 +18,7 @@ from pathlib import Path
 import pandas as pd
 
 from reporter.config import TOTAL_FUND, Settings
+from reporter.csvsafe import unescape_frame
 from reporter.errors import InputError, Problem
 
 WHERE = "pack.toml:compare.previous"
@@ -104,6 +105,7 @@ def read_build(folder: Path, source: str, period_end: dt.date) -> PreviousPack:
     try:
         sec = pd.read_csv(results / "securities.csv", dtype={c: str for c in TEXT_COLUMNS},
                           keep_default_na=False, na_values=[""])
+        unescape_frame(sec, (*TEXT_COLUMNS, "mandate"))     # the CSV-injection escape, undone
     except (OSError, ValueError, pd.errors.ParserError) as exc:
         problems.append(Problem(str(results / "securities.csv"), f"cannot be read: {exc}"))
         sec = None

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import dataclasses
 import datetime as dt
-import io
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -30,6 +29,7 @@ from reporter.charts import build_charts, mandate_risk_chart, mandate_weights_ch
 from reporter.commentary import CommentarySet
 from reporter.config import TOTAL_FUND, Settings
 from reporter.context import PackContext, build_context
+from reporter.csvsafe import csv_text
 from reporter.errors import Problem
 from reporter.fund_inputs import FundInputs, validate_fund
 from reporter.jsonvalues import json_text
@@ -292,11 +292,7 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
 
 def fund_results_files(a: FundAssembled) -> dict[str, str]:
     """The fund's results files (besides portfolio.json and manifest.json), as text."""
-    def csv(df: pd.DataFrame) -> str:
-        buf = io.StringIO()
-        df.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
-        return buf.getvalue()
-
+    csv = csv_text
     tables = a.result_tables()
     return {
         "results/securities.csv": csv(tables["securities"]),
