@@ -11,13 +11,28 @@ DEMO_RUN := build/demo-run
 DEMO_PERIODS := 2026-09-30 2026-10-31
 SIGNER := --by "Ruth Okafor" --role "Chair of the investment committee"
 
-.PHONY: demo test lint demo-data bad-cases golden bench clean browser
+.PHONY: demo test lint lock demo-data bad-cases golden bench clean browser
 
-$(STAMP): pyproject.toml
+# Installs come from requirements.lock: exact versions with their hashes, build tools
+# included, so a fresh machine gets what the tests last passed with. `make lock` refreshes it.
+LOCK := requirements.lock
+PIP_TOOLS := pip-tools==7.6.2
+
+$(STAMP): pyproject.toml $(LOCK)
 	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
-	$(BIN)/python -m pip install --quiet --upgrade pip
-	$(BIN)/python -m pip install --quiet -e ".[test]"
+	$(BIN)/python -m pip install --quiet --require-hashes --no-deps -r $(LOCK)
+	$(BIN)/python -m pip install --quiet --no-deps --no-build-isolation -e .
+	$(BIN)/python -m pip check
 	touch $(STAMP)
+
+# Refresh the lock on purpose (newest versions that pyproject.toml allows), then run
+# `make test` and commit the lock with the figures it passed with.
+lock:
+	rm -rf build/lock-venv && $(PYTHON) -m venv build/lock-venv
+	build/lock-venv/bin/python -m pip install --quiet $(PIP_TOOLS)
+	build/lock-venv/bin/pip-compile --quiet --upgrade --generate-hashes --allow-unsafe \
+	  --all-build-deps --extra test --extra cluster --strip-extras --no-emit-index-url \
+	  --no-emit-find-links --output-file $(LOCK) pyproject.toml
 
 # The demo pack, then a demo archive of three signed periods (the demo pack re-dated to
 # the two month-ends before it) made from scratch in a fresh $(DEMO_RUN) each time (build/
