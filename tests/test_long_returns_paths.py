@@ -1,6 +1,6 @@
 """A long returns CSV with nothing to report takes a one-pass route to its matrix
-(``validate._clean_long_matrix``); anything that might need a message goes through the full
-checks. The quick route is not a second set of rules: on the same file both must give the
+(``validate.long_quick._clean_long_matrix``); anything that might need a message goes through
+the full checks. The quick route is not a second set of rules: on the same file both must give the
 same panel and the same messages, and bad files must still be caught by the full checks.
 
 The reader is set to small blocks here, so that each file arrives in many column chunks,
@@ -19,6 +19,7 @@ import pytest
 
 import reporter.readers as readers
 import reporter.validate as validate
+import reporter.validate.returns as returns_route
 from reporter.config import load_settings
 from reporter.errors import InputError
 from tests.conftest import REPO
@@ -50,9 +51,9 @@ def both_routes(folder, monkeypatch):
         taken.append(out is not None)
         return out
 
-    monkeypatch.setattr(validate, "_clean_long_matrix", spy)
+    monkeypatch.setattr(returns_route, "_clean_long_matrix", spy)
     a = validate.validate_pack(settings)
-    monkeypatch.setattr(validate, "_clean_long_matrix", lambda *args: None)
+    monkeypatch.setattr(returns_route, "_clean_long_matrix", lambda *args: None)
     b = validate.validate_pack(settings)
     return a, b, taken
 
