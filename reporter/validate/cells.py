@@ -11,17 +11,28 @@ import pyarrow.compute as pc
 from reporter.errors import Collector, place
 from reporter.readers import RawTable
 from reporter.validate.common import _Capped
+from reporter.validate.text import normalise_id
 
 
 def as_float(raw: RawTable, column: str, coll: Collector, decimal: str, *,
              allow_empty: bool, label: str | None = None) -> np.ndarray:
-    """Column ``column`` as float64 (NaN where empty); non-numbers are reported."""
+    """Column ``column`` as float64 (NaN where empty); non-numbers are reported.
+
+    The texts ``nan``, ``inf``, ``Infinity`` (any case, any sign), and a number too large for
+    a float, are "not a finite number", never taken as an empty value, even where an empty
+    value is allowed.
+    """
     arr = raw.table[column]
     label = label or column
     if pa.types.is_floating(arr.type) or pa.types.is_integer(arr.type) or pa.types.is_null(
             arr.type):
         values = arr.cast(pa.float64()).to_numpy(zero_copy_only=False)
         bad_text = np.zeros(len(values), dtype=bool)
+        # the reader parsed "nan" and "inf" texts as floats: only an empty cell is null
+        null = np.asarray(arr.is_null().to_numpy(zero_copy_only=False), dtype=bool)
+        not_finite = ~np.isfinite(values) & ~null
+        shown = np.full(len(values), None, dtype=object)
+        shown[not_finite] = [repr(float(v)) for v in values[not_finite]]
     else:
         text = pd.Series(arr.cast(pa.string()).to_pylist(), dtype=object)
         stripped = text.str.strip()
@@ -30,27 +41,35 @@ def as_float(raw: RawTable, column: str, coll: Collector, decimal: str, *,
         # a copy: under pandas copy-on-write to_numpy() may return a read-only view
         values = np.array(pd.to_numeric(stripped, errors="coerce"), dtype=float)
         blank = text.isna().to_numpy() | (stripped == "").fillna(True).to_numpy()
-        bad_text = np.isnan(values) & ~blank
+        spelled = stripped.str.fullmatch(NOT_FINITE_TEXT, case=False).fillna(False).to_numpy(
+            dtype=bool)
+        not_finite = (spelled | np.isinf(values)) & ~blank
+        shown = text.to_numpy(dtype=object)
+        bad_text = np.isnan(values) & ~blank & ~not_finite
         values[blank] = np.nan
         capped = _Capped(coll, f"non-numeric values in column {label}")
         for i in np.flatnonzero(bad_text):
             capped.add(place(raw.name, raw.row_number(int(i)), label),
                        f"not a number: {text.iloc[i]!r}")
         capped.close()
-    inf = np.isinf(values)
-    if inf.any():
-        capped = _Capped(coll, f"infinite values in column {label}")
-        for i in np.flatnonzero(inf):
-            capped.add(place(raw.name, raw.row_number(int(i)), label), "value is infinite")
+    if not_finite.any():
+        capped = _Capped(coll, f"values that are not finite numbers in column {label}")
+        for i in np.flatnonzero(not_finite):
+            capped.add(place(raw.name, raw.row_number(int(i)), label),
+                       f"value is not a finite number: {shown[i]!r}")
         capped.close()
-        values = np.where(inf, np.nan, values)
+        values = np.where(not_finite, np.nan, values)
     if not allow_empty:
-        empty = np.isnan(values) & ~bad_text & ~inf
+        empty = np.isnan(values) & ~bad_text & ~not_finite
         capped = _Capped(coll, f"empty values in column {label}")
         for i in np.flatnonzero(empty):
             capped.add(place(raw.name, raw.row_number(int(i)), label), "value is empty")
         capped.close()
     return values
+
+
+# how "not a number" and infinity are spelled in text (numpy, pandas, spreadsheets, C)
+NOT_FINITE_TEXT = r"[+-]?(nan|inf|infinity)"
 
 
 def date_codes(raw: RawTable, column: str, date_format: str,
@@ -112,7 +131,9 @@ def as_dates(raw: RawTable, column: str, date_format: str, coll: Collector) -> n
 
 
 def as_text(raw: RawTable, column: str, coll: Collector, *, allow_empty: bool) -> np.ndarray:
-    values = np.array([None if v is None else str(v).strip()
+    """Column ``column`` as text, each value trimmed and in Unicode NFC (see
+    :func:`reporter.validate.text.normalise_id`); None where the cell is empty."""
+    values = np.array([None if v is None else normalise_id(str(v))
                        for v in raw.table[column].cast(pa.string()).to_pylist()], dtype=object)
     if not allow_empty:
         capped = _Capped(coll, f"empty values in column {column}")

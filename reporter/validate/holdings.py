@@ -11,6 +11,7 @@ from reporter.models import Holdings
 from reporter.readers import RawTable
 from reporter.validate.cells import as_float, as_text
 from reporter.validate.common import _Capped, _require_columns
+from reporter.validate.text import case_clash_message, case_clashes
 
 HOLDINGS_REQUIRED = ("security_id", "name", "sector")
 HOLDINGS_OPTIONAL = ("asset_class", "currency", "country")
@@ -45,6 +46,11 @@ def validate_holdings(raw: RawTable, settings: Settings, coll: Collector) -> Hol
                        f"duplicate security id {sid!r} (first at row {raw.row_number(seen[sid])})")
         else:
             seen[sid] = i
+    distinct = list(seen)
+    for first, later in case_clashes(distinct):
+        a, b = distinct[first], distinct[later]
+        coll.error(place(raw.name, raw.row_number(seen[b]), "security_id"),
+                   case_clash_message(b, a, raw.row_number(seen[a])))
     column = "weight" if has_w else "market_value"
     if has_w and has_mv:
         coll.warn(place(raw.name, 1, "market_value"), "both weight and market_value given; "

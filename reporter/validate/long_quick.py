@@ -2,12 +2,15 @@
 
 from __future__ import annotations
 
+import unicodedata
+
 import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
 from reporter.analytics.returns import period_keys
 from reporter.validate.cells import _parse_date_texts
+from reporter.validate.text import case_clashes, normalised_ids
 from reporter.validate.values import _percent_columns
 
 
@@ -18,12 +21,13 @@ def _clean_long_matrix(raw, date_format: str, frequency: str):
 
     This is not a second set of rules, only a quicker route to the same panel: it gives up
     (returns None) at the first sign that a row might need a message (an empty or bad date
-    or id, a return that is not a finite number at or above -100%, two rows for one cell, a
-    period with no row, a security that looks like percentages). Then it has touched no
-    file row twice and allocated nothing of the file's length: ids and dates are mapped per
-    chunk through the chunk's own (small) dictionary, and each chunk's cells are written
-    straight into the matrix. Returns ``(matrix, keys, ids, percent, row_where)``;
-    ``row_where(test)`` is the first data row whose (period, id) codes pass
+    or id, an id that Unicode normalisation changes or that differs from another only by
+    case, an invisible character, a return that is not a finite number at or above -100%,
+    two rows for one cell, a period with no row, a security that looks like percentages).
+    Then it has touched no file row twice and allocated nothing of the file's length: ids
+    and dates are mapped per chunk through the chunk's own (small) dictionary, and each
+    chunk's cells are written straight into the matrix. Returns ``(matrix, keys, ids,
+    percent, row_where)``; ``row_where(test)`` is the first data row whose (period, id) codes pass
     ``test(periods, ids)`` (for the rare message about a clean file: a stale price).
     """
     table = raw.table
@@ -44,8 +48,11 @@ def _clean_long_matrix(raw, date_format: str, frequency: str):
     if np.isnat(days).any():
         return None
     keys, period_of_text = np.unique(period_keys(days, frequency), return_inverse=True)
-    ids, id_of_text = _trimmed_ids(id_texts)
-    if (id_of_text < 0).any():
+    ids, id_of_text, changed = normalised_ids(id_texts)
+    # a blank id, an id that NFC changes (two texts may be one security), ids that differ
+    # only by case, or an invisible character: the full checks report these
+    if (id_of_text < 0).any() or changed or case_clashes(ids) or any(
+            unicodedata.category(c) == "Cf" for text in id_texts + date_texts for c in text):
         return None
     n_ids = len(ids)
     space = len(keys) * n_ids
@@ -85,21 +92,3 @@ def _clean_long_matrix(raw, date_format: str, frequency: str):
         raise LookupError("no such row")
 
     return matrix, keys, ids, percent, row_where
-
-
-def _trimmed_ids(texts: list[str]) -> tuple[list[str], np.ndarray]:
-    """Distinct security-id texts trimmed of spaces, so that " FWX01" and "FWX01" are one
-    security: returns the ids in order of first appearance and, for each text, its id's
-    position (-1 for a blank text)."""
-    ids: list[str] = []
-    index_of: dict[str, int] = {}
-    id_of_text = np.full(len(texts), -1, dtype=np.int64)
-    for k, text in enumerate(texts):
-        text = text.strip()
-        if text:
-            id_of_text[k] = index_of.setdefault(text, len(ids))
-            if id_of_text[k] == len(ids):
-                ids.append(text)
-    return ids, id_of_text
-
-

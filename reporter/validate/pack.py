@@ -14,10 +14,13 @@ from reporter.validate.common import MAX_PER_CHECK, _Capped, _period_word
 from reporter.validate.holdings import validate_holdings
 from reporter.validate.returns import validate_returns
 from reporter.validate.series import validate_series
+from reporter.validate.text import check_invisible
 
 
 def read_inputs(settings: Settings) -> tuple[dict[str, RawTable], list]:
-    """Read every input file; returns the tables read and the problems of those that failed."""
+    """Read every input file; returns the tables read and the problems found in reading them
+    (files that could not be read, what the reader warned about, and invisible characters in
+    any text cell: see :mod:`reporter.validate.text`)."""
     raws: dict[str, RawTable] = {}
     problems = []
     for role, spec in settings.inputs.items():
@@ -25,6 +28,11 @@ def read_inputs(settings: Settings) -> tuple[dict[str, RawTable], list]:
             raws[role] = read_input(spec)
         except InputError as exc:
             problems.extend(exc.problems)
+            continue
+        problems.extend(raws[role].notes)
+        coll = Collector()
+        check_invisible(raws[role], coll)
+        problems.extend(coll.problems)
     return raws, problems
 
 

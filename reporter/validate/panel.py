@@ -14,6 +14,8 @@ from reporter.validate.values import PERCENT_MEDIAN, _percent_columns
 def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where_of, where_cell,
                   holdings_raw, percent=None):
     """Per-security checks on the P x N matrix; reorder columns to the holdings' order.
+    Warns of a holding whose longest run of one return (:func:`longest_constant_run`) is
+    ``checks.stale_zero_run`` periods or more.
 
     ``where_of(j)`` places a message about security ``j`` as a whole, ``where_cell(t, j)`` one
     about its value in sorted period ``t``. ``percent`` is :func:`_percent_columns` of
@@ -39,41 +41,47 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
     else:
         out = np.full((matrix.shape[0], len(holdings.ids)), np.nan)
         out[:, have] = matrix[:, source[have]]
-    run = longest_zero_run(out)
+    run, start = longest_constant_run(out)
     for k in np.flatnonzero(~have):
         # the holdings frame keeps the file's rows in order: holding k is data row k
         row = holdings_raw.row_number(int(k)) if holdings_raw is not None else None
         coll.warn(place(settings.inputs["holdings"].display, row, "security_id"),
                   f"holding {holdings.ids[k]} has no return history in {raw.name}")
     for k in np.flatnonzero(have & (run >= settings.stale_zero_run)):
-        sid = holdings.ids[k]
-        start = _run_start(out[:, k], int(run[k]))
-        coll.warn(where_cell(start, col_of[sid]), f"holding {sid} has {run[k]} exact-zero "
-                  "returns in a row from here: its prices may be stale")
+        sid, value = holdings.ids[k], out[start[k], k]
+        what = (f"{run[k]} exact-zero returns in a row" if value == 0.0
+                else f"the same return {value:g} for {run[k]} periods in a row")
+        coll.warn(where_cell(int(start[k]), col_of[sid]),
+                  f"holding {sid} has {what} from here: its prices may be stale")
     return ReturnPanel(period_keys=np.asarray(keys), security_ids=holdings.ids, values=out,
                        shape=shape, n_rows=raw.table.num_rows)
 
 
-def longest_zero_run(matrix: np.ndarray) -> np.ndarray:
-    """Longest run of exact-zero returns in each column (NaN breaks a run); vectorised, and
-    only over the columns that hold two or more zeros at all."""
-    zero = matrix == 0.0
-    counts = zero.sum(axis=0)
-    run = np.minimum(counts, 1)
-    cand = np.flatnonzero(counts >= 2)
-    if len(cand):
-        z = zero[:, cand]
-        idx = np.arange(matrix.shape[0])[:, None]
-        last_break = np.maximum.accumulate(np.where(z, -1, idx), axis=0)
-        run[cand] = np.where(z, idx - last_break, 0).max(axis=0)
-    return run
+def longest_constant_run(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The longest run of identical consecutive returns in each column (NaN breaks a run)
+    and the row where the first run of that length starts; vectorised over columns, in
+    blocks, and only over the columns in which some return repeats the one before it.
 
-
-def _run_start(column: np.ndarray, length: int) -> int:
-    """Index where the first run of ``length`` exact zeros in ``column`` starts."""
-    csum = np.concatenate([[0], np.cumsum(column == 0.0)])
-    # a run of `length` zeros starts at i when column[i:i + length] are all zero
-    full = csum[length:] - csum[:-length] == length
-    return int(np.flatnonzero(full)[0])
-
-
+    A run of exact zeros is the classic sign of a stale price; a run of one non-zero value
+    (a fixed 1% a month) is as suspect in a return series (common practice, no source).
+    """
+    n_rows, n_cols = matrix.shape
+    run = np.minimum(np.count_nonzero(np.isfinite(matrix), axis=0), 1)
+    start = np.zeros(n_cols, dtype=np.int64)
+    if n_rows < 2:
+        return run, start
+    idx = np.arange(n_rows - 1, dtype=np.int32)[:, None]
+    for lo in range(0, n_cols, 256):
+        block = matrix[:, lo:lo + 256]
+        same = block[1:] == block[:-1]                 # same[t]: value t + 1 repeats value t
+        cand = np.flatnonzero(same.any(axis=0))
+        if not len(cand):
+            continue
+        s = same[:, cand]
+        last_break = np.maximum.accumulate(np.where(s, np.int32(-1), idx), axis=0)
+        streak = np.where(s, idx - last_break, 0)      # repeats ending at t
+        best = streak.max(axis=0)
+        end = streak.argmax(axis=0)                    # the first longest run
+        run[lo + cand] = best + 1
+        start[lo + cand] = end - best + 1
+    return run, start

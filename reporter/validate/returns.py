@@ -12,8 +12,14 @@ from reporter.models import Holdings, ReturnPanel
 from reporter.readers import RawTable
 from reporter.validate.cells import _dictionary, as_dates, as_float, date_codes
 from reporter.validate.common import _Capped, _period_word, _require_columns
-from reporter.validate.long_quick import _clean_long_matrix, _trimmed_ids
+from reporter.validate.long_quick import _clean_long_matrix
 from reporter.validate.panel import _finish_panel
+from reporter.validate.text import (
+    case_clash_message,
+    case_clashes,
+    normalise_id,
+    normalised_ids,
+)
 from reporter.validate.values import _percent_columns, _report_below_minus_100
 
 
@@ -50,13 +56,18 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
             holdings_raw, percent)
     dcodes, days = date_codes(raw, "date", spec.date_format, coll)
     values = as_float(raw, "return", coll, spec.decimal, allow_empty=False)
-    # ids are trimmed, so that " FWX01" and "FWX01" are one security, and a blank id is
-    # empty: the distinct values are trimmed (few), then the codes remapped (one pass)
+    # ids are trimmed and put in NFC, so that " FWX01" and "FWX01" are one security, and a
+    # blank id is empty: the distinct values are normalised (few), then the codes remapped
     enc = _dictionary(raw.table["security_id"])
-    ids, id_of_text = _trimmed_ids(enc.dictionary.to_pylist())
+    ids, id_of_text, _ = normalised_ids(enc.dictionary.to_pylist())
     remap = np.append(id_of_text, -1).astype(np.int32)               # last slot: null id
     raw_codes = enc.indices.fill_null(-1).to_numpy(zero_copy_only=False)     # int32
     codes_all = remap[raw_codes]                                     # -1 indexes the last slot
+    for first, later in case_clashes(ids):
+        at_first, at_later = (raw.row_number(int(np.argmax(codes_all == j)))
+                              for j in (first, later))
+        coll.error(place(raw.name, at_later, "security_id"),
+                   case_clash_message(ids[later], ids[first], at_first))
     id_null = codes_all < 0
     capped = _Capped(coll, "empty security ids")
     for i in np.flatnonzero(id_null):
@@ -140,14 +151,15 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
 def _returns_wide(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | None:
     spec = settings.inputs["returns"]
     dates = as_dates(raw, "date", spec.date_format, coll)
-    ids = [c for c in raw.table.column_names if c != "date"]
-    cols = [as_float(raw, sid, coll, spec.decimal, allow_empty=True) for sid in ids]
+    columns = [c for c in raw.table.column_names if c != "date"]
+    cols = [as_float(raw, c, coll, spec.decimal, allow_empty=True) for c in columns]
     full = np.column_stack(cols) if cols else np.empty((len(dates), 0))
     # a column that looks like percentages is reported once, in _finish_panel
     percent = _percent_columns(full, settings.frequency)
     for j in np.flatnonzero(~percent[0] & (full < -1.0).any(axis=0)):
-        _report_below_minus_100(raw, full[:, j], ids[j],
-                                f"returns below -100% in column {ids[j]}", coll)
+        _report_below_minus_100(raw, full[:, j], columns[j],
+                                f"returns below -100% in column {columns[j]}", coll)
+    ids_ok = _wide_ids(raw, columns, coll)
     ok = ~np.isnat(dates)
     keys = period_keys(dates[ok], settings.frequency)
     rows = np.flatnonzero(ok)
@@ -159,16 +171,38 @@ def _returns_wide(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
         capped.add(place(raw.name, raw.row_number(int(i)), "date"),
                    f"date {dates[i]} repeats the period of row {raw.row_number(int(first))}")
     capped.close()
-    if len(dup):
+    if len(dup) or not ids_ok:
         return None
+    ids = [normalise_id(c) for c in columns]
     matrix = full[ok][order]
     sorted_rows = rows[order]
     return _finish_panel(raw, matrix, keys[order], ids, holdings, settings, coll, "wide",
-                         lambda j: place(raw.name, 1, ids[j]),
+                         lambda j: place(raw.name, 1, columns[j]),
                          lambda t, j: place(raw.name, raw.row_number(int(sorted_rows[t])),
-                                            ids[j]),
+                                            columns[j]),
                          # column statistics do not depend on row order: reuse them when no
                          # row was dropped for a bad date
                          holdings_raw, percent if ok.all() else None)
 
 
+def _wide_ids(raw: RawTable, columns: list[str], coll: Collector) -> bool:
+    """The security ids of a wide file's columns, trimmed and in NFC: an error for a column
+    whose id is blank or repeats an earlier column's, and for ids that differ only by case.
+    Returns whether each column is a security of its own."""
+    ids, id_of, _ = normalised_ids(columns)
+    distinct = True
+    first_column: dict[int, str] = {}
+    for column, j in zip(columns, id_of, strict=True):
+        if j < 0:
+            coll.error(place(raw.name, 1, repr(column)), "column has no security id")
+            distinct = False
+        elif j in first_column:
+            coll.error(place(raw.name, 1, column), f"security id {ids[j]!r} repeats column "
+                       f"{first_column[j]!r} (ids are trimmed and in Unicode NFC)")
+            distinct = False
+        else:
+            first_column[int(j)] = column
+    for first, later in case_clashes(ids):
+        coll.error(place(raw.name, 1, first_column[later]),
+                   case_clash_message(ids[later], ids[first], None))
+    return distinct
