@@ -28,7 +28,11 @@ INVISIBLE_PATTERN = r"\p{Cf}"        # RE2 (pyarrow), Unicode general category "
 
 
 def normalise_id(text: str) -> str:
-    """A security id as it is matched everywhere: trimmed of spaces, in NFC."""
+    """A security id (or other text) as it is matched everywhere: without format characters
+    (each is reported as an error by :func:`check_invisible`, so dropping them here only
+    keeps one problem from being reported again as a mismatch), trimmed, in NFC."""
+    if any(unicodedata.category(c) == "Cf" for c in text):
+        text = "".join(c for c in text if unicodedata.category(c) != "Cf")
     return unicodedata.normalize("NFC", text.strip()).strip()
 
 
