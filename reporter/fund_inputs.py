@@ -34,6 +34,7 @@ from reporter.validate import (
     validate_returns,
     validate_series,
 )
+from reporter.validate.text import normalise_id
 
 MANDATE_COLUMN = "mandate"
 
@@ -86,7 +87,7 @@ def _mandate_holdings(settings: Settings, raws: dict[str, RawTable],
                        f"(the file has: {', '.join(raw.table.column_names)})")
             return out
         names = as_text(raw, MANDATE_COLUMN, coll, allow_empty=False)
-        known = {m.name for m in settings.mandates}
+        known = {normalise_id(m.name) for m in settings.mandates}
         given = pd.Series(names, dtype=object)
         unknown = np.flatnonzero((~given.isin(known) & given.notna() & (given != "")).to_numpy())
         for i in unknown[:10]:
@@ -96,7 +97,7 @@ def _mandate_holdings(settings: Settings, raws: dict[str, RawTable],
         if len(unknown) > 10:
             coll.error(raw.name, f"... and {len(unknown) - 10} more rows of undeclared mandates")
         for m in settings.mandates:
-            idx = np.flatnonzero(names == m.name)
+            idx = np.flatnonzero(names == normalise_id(m.name))
             if not len(idx):
                 coll.error(f"{cfg}:mandates.{m.index}.name", f"no holding in {raw.name} has "
                            f"the mandate {m.name!r}")

@@ -40,6 +40,8 @@ class RawTable:
     format: str          # "csv" | "xlsx" | "parquet"
     # user-visible row number of each data row, when blank rows were dropped (else None)
     rows: np.ndarray | None = None
+    # what the reader noticed that the user should hear of (warnings), e.g. hidden sheets
+    notes: tuple[Problem, ...] = ()
 
     def row_numbers(self, indices: np.ndarray) -> np.ndarray:
         """:meth:`row_number` of many data rows at once."""
@@ -67,6 +69,9 @@ def read_input(spec: InputSpec) -> RawTable:
             return RawTable(spec.display, table, 1, "parquet")
     except InputError:
         raise
+    except UnicodeDecodeError as exc:
+        raise InputError([Problem(spec.display, "not a readable text file: it is not UTF-8 "
+                                  f"(byte 0x{exc.object[exc.start]:02x})")]) from None
     except (pa.ArrowException, OSError, ValueError, KeyError) as exc:
         first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
         raise InputError([Problem(spec.display, f"cannot be read: {first}")]) from None
@@ -218,7 +223,11 @@ def _csv_header(path: Path, delimiter: str) -> list[str]:
 def _read_xlsx(spec: InputSpec) -> RawTable:
     from openpyxl import load_workbook
 
-    wb = load_workbook(spec.path, read_only=True, data_only=True)
+    notes: tuple[Problem, ...] = ()
+    try:
+        wb = load_workbook(spec.path, read_only=True, data_only=True)
+    except Exception as exc:      # noqa: BLE001 - whatever a damaged archive raises inside
+        raise InputError([_not_a_workbook(spec, exc)]) from None
     try:
         if spec.sheet is not None:
             if spec.sheet not in wb.sheetnames:
@@ -226,8 +235,12 @@ def _read_xlsx(spec: InputSpec) -> RawTable:
                                           + ", ".join(wb.sheetnames))])
             ws = wb[spec.sheet]
         else:
-            ws = wb.worksheets[0]
+            ws, notes = _first_visible_sheet(spec, wb)
         rows = list(ws.iter_rows(values_only=True))
+    except InputError:
+        raise
+    except Exception as exc:      # noqa: BLE001 - a sheet part missing or damaged
+        raise InputError([_not_a_workbook(spec, exc)]) from None
     finally:
         wb.close()
     if not rows or rows[0] is None:
@@ -242,7 +255,39 @@ def _read_xlsx(spec: InputSpec) -> RawTable:
         values = [r[j] if j < len(r) else None for r in body]
         columns[name] = _xlsx_column(values, force_text=name in TEXT_COLUMNS)
     table, rows = _drop_blank_rows(pa.table(columns), first_row=2)
-    return RawTable(spec.display, table, 2, "xlsx", rows)
+    return RawTable(spec.display, table, 2, "xlsx", rows, notes)
+
+
+def _not_a_workbook(spec: InputSpec, exc: Exception) -> Problem:
+    """One line for an .xlsx file that openpyxl cannot open: empty, renamed, or damaged
+    (openpyxl raises BadZipFile, InvalidFileException, KeyError and others for these)."""
+    empty = spec.path.stat().st_size == 0
+    why = "the file is empty" if empty else f"{type(exc).__name__}: {_first_line(exc)}"
+    return Problem(spec.display, f"not a readable .xlsx workbook ({why})")
+
+
+def _first_line(exc: Exception) -> str:
+    text = str(exc).strip().strip('"')
+    return text.splitlines()[0] if text else "no detail"
+
+
+def _first_visible_sheet(spec: InputSpec, wb) -> tuple[object, tuple[Problem, ...]]:
+    """The first sheet that is not hidden, and a warning naming the hidden sheets skipped
+    before it (a hidden first sheet is often last quarter's figures). Every sheet hidden is
+    an error."""
+    hidden = []
+    for ws in wb.worksheets:
+        if ws.sheet_state == "visible":
+            if not hidden:
+                return ws, ()
+            plural = "s" if len(hidden) > 1 else ""
+            names = ", ".join(repr(n) for n in hidden)
+            return ws, (Problem(spec.display, f"skipped hidden sheet{plural} {names}; read "
+                                f"sheet {ws.title!r}", "warning"),)
+        hidden.append(ws.title)
+    raise InputError([Problem(spec.display, "every sheet is hidden ("
+                              + ", ".join(repr(n) for n in hidden)
+                              + "); unhide the sheet to read, or name it with sheet = ...")])
 
 
 def _xlsx_column(values: list, force_text: bool) -> pa.Array:

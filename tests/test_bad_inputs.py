@@ -128,6 +128,41 @@ CASES: dict[str, tuple[str, list[str]]] = {
         "returns.csv:15: expected 3 fields (delimiter ','), found 4"]),
     "returns_without_rows": (ERROR, [
         "returns.csv: the file has no rows"]),
+    # spreadsheets, text and numbers (surprise_cases.py)
+    "hidden_first_sheet": (WARNING, [
+        "holdings.xlsx: warning: skipped hidden sheet 'Last quarter'; read sheet 'Holdings'"]),
+    "all_sheets_hidden": (ERROR, [
+        "holdings.xlsx: every sheet is hidden ('Last quarter', 'Holdings'); unhide the sheet "
+        "to read, or name it with sheet = ..."]),
+    "empty_xlsx": (ERROR, [
+        "holdings.xlsx: not a readable .xlsx workbook (the file is empty)"]),
+    "renamed_xlsx": (ERROR, [
+        "holdings.xlsx: not a readable .xlsx workbook (BadZipFile: File is not a zip file)"]),
+    "empty_csv": (ERROR, [
+        "returns.csv: the file is empty"]),
+    "binary_csv": (ERROR, [
+        "risk_free.csv: not a readable text file: it is not UTF-8 (byte 0x89)"]),
+    "ids_differ_by_case": (ERROR, [
+        "holdings.csv:5:security_id: security id 'fwx03' differs from 'FWX03' (row 4) only by "
+        "case: give one security one id",
+        "returns.csv:5:security_id: security id 'fwx03' differs from 'FWX03' (row 4) only by "
+        "case: give one security one id"]),
+    # composed with a trailing space in one file, decomposed in the other: one security
+    "ids_in_two_unicode_forms": (OK, []),
+    "bidi_override_in_id": (ERROR, [
+        "holdings.csv:5:security_id: invisible control character U+202E"]),
+    "zero_width_space_in_returns_id": (ERROR, [
+        "returns.csv:24:security_id: invisible control character U+200B"]),
+    # the byte-order mark that starts the file is no problem; the one inside line 3 is
+    "byte_order_mark_inside_text": (ERROR, [
+        "holdings.csv:3:sector: invisible control character U+FEFF"]),
+    "nan_text_in_numbers": (ERROR, [
+        "market.csv:10:return: value is not a finite number: '-inf'",
+        "returns.csv:24:return: value is not a finite number: 'nan'"]),
+    # the run of 0.01 starts at FWX02's return for period 15 (line 59), as stale_prices
+    "constant_return_run": (WARNING, [
+        "returns.csv:59:return: warning: holding FWX02 has the same return 0.01 for 4 periods "
+        "in a row from here: its prices may be stale"]),
 }
 FAILING = sorted(c for c, (kind, _) in CASES.items() if kind != OK)
 SUMMARY_PREFIX = "reporter: "
@@ -173,7 +208,7 @@ def test_committed_cases_are_what_the_script_makes(tmp_path):
                 for p in (tmp_path / case).rglob("*") if p.is_file()}
         committed = {p.relative_to(BAD / case): p.read_bytes()
                      for p in (BAD / case).rglob("*") if p.is_file()}
-        assert made == committed, f"{case}: run tests/data/make_bad_cases.py and commit"
+        assert made == committed, f"{case}: run python -m tests.data.make_bad_cases and commit"
 
 
 @pytest.mark.parametrize("case", sorted(CASES))

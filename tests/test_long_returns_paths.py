@@ -1,6 +1,6 @@
 """A long returns CSV with nothing to report takes a one-pass route to its matrix
-(``validate._clean_long_matrix``); anything that might need a message goes through the full
-checks. The quick route is not a second set of rules: on the same file both must give the
+(``validate.long_quick._clean_long_matrix``); anything that might need a message goes through
+the full checks. The quick route is not a second set of rules: on the same file both must give the
 same panel and the same messages, and bad files must still be caught by the full checks.
 
 The reader is set to small blocks here, so that each file arrives in many column chunks,
@@ -19,6 +19,7 @@ import pytest
 
 import reporter.readers as readers
 import reporter.validate as validate
+import reporter.validate.returns as returns_route
 from reporter.config import load_settings
 from reporter.errors import InputError
 from tests.conftest import REPO
@@ -50,9 +51,9 @@ def both_routes(folder, monkeypatch):
         taken.append(out is not None)
         return out
 
-    monkeypatch.setattr(validate, "_clean_long_matrix", spy)
+    monkeypatch.setattr(returns_route, "_clean_long_matrix", spy)
     a = validate.validate_pack(settings)
-    monkeypatch.setattr(validate, "_clean_long_matrix", lambda *args: None)
+    monkeypatch.setattr(returns_route, "_clean_long_matrix", lambda *args: None)
     b = validate.validate_pack(settings)
     return a, b, taken
 
@@ -129,6 +130,8 @@ def test_a_stale_price_is_placed_at_the_same_row_by_both_routes(scheme, monkeypa
     ("empty_id", "value is empty"),
     ("below", "return -1.5 is below -100%"),
     ("percent", "look like percentages"),
+    ("case", "differs from 'QX00009' (row "),
+    ("invisible", "invisible control character U+200B"),
 ])
 def test_anything_to_report_goes_to_the_full_checks(scheme, monkeypatch, case, expected):
     def edit(t):
@@ -142,6 +145,11 @@ def test_anything_to_report_goes_to_the_full_checks(scheme, monkeypatch, case, e
             t.loc[900, "security_id"] = ""
         elif case == "below":
             t.loc[900, "return"] = "-1.5"
+        elif case == "case":
+            t.loc[t["security_id"] == "QX00009", "security_id"] = "qx00009"
+            t.loc[0, "security_id"] = "QX00009"
+        elif case == "invisible":
+            t.loc[900, "security_id"] = t.loc[900, "security_id"] + "\u200b"
         elif case == "percent":
             sel = t["security_id"] == "QX00003"
             t.loc[sel, "return"] = (t.loc[sel, "return"].astype(float) * 100).astype(str)
@@ -167,3 +175,27 @@ def test_a_period_no_row_uses_is_not_a_row_of_the_matrix(tmp_path, monkeypatch):
     a, b, taken = both_routes(folder, monkeypatch)
     assert taken == [True]
     assert_same(a, b)
+
+
+def test_an_id_in_another_unicode_form_takes_the_full_checks(scheme, monkeypatch):
+    """An id that NFC changes (here decomposed on some rows, composed on the others) is one
+    security; the quick route leaves it to the full checks, which give the panel of the file
+    with every id written one way."""
+    def edit(t):
+        t["security_id"] = t["security_id"].str.replace("QX", "QÉ")          # composed
+        rows = np.arange(len(t)) % 5 == 0
+        t.loc[rows, "security_id"] = t.loc[rows, "security_id"].str.replace(
+            "QÉ", "QE\u0301")                                               # decomposed
+    rewrite_returns(scheme, edit)
+    holdings = pd.read_csv(scheme / "holdings.csv", dtype=str, keep_default_na=False)
+    holdings["security_id"] = holdings["security_id"].str.replace("QX", "QÉ")
+    holdings.to_csv(scheme / "holdings.csv", index=False)
+    a, b, taken = both_routes(scheme, monkeypatch)
+    assert taken == [False]
+    assert_same(a, b)
+    assert len(a.returns.security_ids) == 120 and a.returns.security_ids[0].startswith("QÉ")
+    frame = pd.read_csv(scheme / "returns.csv")
+    frame["security_id"] = frame["security_id"].str.replace("QE\u0301", "QÉ")
+    wide = frame.pivot(index="date", columns="security_id", values="return")
+    np.testing.assert_array_equal(a.returns.values,
+                                  wide[list(a.returns.security_ids)].to_numpy())

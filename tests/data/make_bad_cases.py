@@ -6,8 +6,10 @@ and security here is fictional.
 
 Regenerate with::
 
-    .venv/bin/python tests/data/make_bad_cases.py          # writes tests/data/bad/
-    .venv/bin/python tests/data/make_bad_cases.py OUTDIR   # writes OUTDIR/<case>/
+    .venv/bin/python -m tests.data.make_bad_cases          # writes tests/data/bad/
+    .venv/bin/python -m tests.data.make_bad_cases OUTDIR   # writes OUTDIR/<case>/
+
+The cases of text, spreadsheet and number surprises are in surprise_cases.py.
 
 The tests check that the committed folders are exactly what this script writes.
 """
@@ -18,120 +20,24 @@ import copy
 import shutil
 import sys
 from collections.abc import Callable
-from dataclasses import dataclass, field
 from pathlib import Path
 
-import numpy as np
-import pandas as pd
+from tests.data import surprise_cases
 
-SEED = 20260630
-N_PERIODS = 30
-PERIOD_END = "2026-06-30"
-WINDOW = 24
-MIN_OBS = 12
-SECURITIES = [
-    # security_id, name, sector, weight, beta
-    ("FWX01", "Ashwardine Pumps plc", "Industrials", 0.40, 1.10),
-    ("FWX02", "Brindlecote Foods plc", "Consumer Staples", 0.30, 0.60),
-    ("FWX03", "Quellmoor Instruments plc", "Technology", 0.20, 1.40),
-    ("FWX04", "Thistlebank Shipping plc", "Industrials", 0.10, 0.90),
-]
-HERE = Path(__file__).resolve().parent
-BAD_DIR = HERE / "bad"
-
-
-@dataclass
-class Pack:
-    """A pack in memory: TOML sections (key -> TOML literal) and CSV tables (header, rows)."""
-
-    toml: dict[str, dict[str, str]]
-    tables: dict[str, tuple[list[str], list[list[str]]]]
-    raw: dict[str, str] = field(default_factory=dict)   # files written verbatim
-
-    def column(self, fname: str, name: str) -> int:
-        return self.tables[fname][0].index(name)
-
-    def rows(self, fname: str) -> list[list[str]]:
-        return self.tables[fname][1]
-
-
-def month_ends() -> list[str]:
-    return [d.strftime("%Y-%m-%d")
-            for d in pd.date_range(end=PERIOD_END, periods=N_PERIODS, freq="ME")]
-
-
-def base_pack() -> Pack:
-    """The valid small pack every case starts from (single-index returns, seeded)."""
-    rng = np.random.default_rng(SEED)
-    dates = month_ends()
-    rf = np.round(0.0030 + rng.normal(0, 0.0002, N_PERIODS), 6)
-    market = np.round(0.006 + rng.normal(0, 0.04, N_PERIODS), 6)
-    toml = {
-        "pack": {
-            "title": '"Investment Committee Pack: Test Portfolio"',
-            "organisation": '"Fernwhistle Staff Pension Scheme"',
-            "period_end": PERIOD_END,
-            "frequency": '"monthly"',
-            "currency": '"GBP"',
-        },
-        "inputs": {
-            "holdings": '"holdings.csv"',
-            "returns": '"returns.csv"',
-            "market": '"market.csv"',
-            "risk_free": '"risk_free.csv"',
-        },
-        "analysis": {"window": str(WINDOW), "min_obs": str(MIN_OBS)},
-    }
-    holdings = [[sid, name, sector, f"{w:.6f}"] for sid, name, sector, w, _ in SECURITIES]
-    returns = []
-    for t, date in enumerate(dates):
-        for sid, _, _, _, beta in SECURITIES:
-            r = rf[t] + beta * (market[t] - rf[t]) + rng.normal(0, 0.03)
-            returns.append([date, sid, f"{r:.6f}"])
-    return Pack(toml=toml, tables={
-        "holdings.csv": (["security_id", "name", "sector", "weight"], holdings),
-        "returns.csv": (["date", "security_id", "return"], returns),
-        "market.csv": (["date", "return"], [[d, f"{v:.6f}"] for d, v in zip(dates, market,
-                                                                            strict=True)]),
-        "risk_free.csv": (["date", "rate"], [[d, f"{v:.6f}"] for d, v in zip(dates, rf,
-                                                                           strict=True)]),
-    })
-
-
-def toml_text(toml: dict[str, dict[str, str]]) -> str:
-    out = ["# A small invented pack for the input tests; every name here is fictional."]
-    for section, keys in toml.items():
-        out.append(f"\n[{section}]")
-        out.extend(f"{k} = {v}" for k, v in keys.items())
-    return "\n".join(out) + "\n"
-
-
-def write_pack(pack: Pack, folder: Path) -> None:
-    """Write ``pack`` into ``folder`` (created; must not hold other files)."""
-    folder.mkdir(parents=True, exist_ok=True)
-    (folder / "pack.toml").write_text(toml_text(pack.toml), encoding="utf-8", newline="\n")
-    for fname, (header, rows) in pack.tables.items():
-        lines = [",".join(header)] + [",".join(r) for r in rows]
-        (folder / fname).write_text("\n".join(lines) + "\n", encoding="utf-8", newline="\n")
-    for fname, text in pack.raw.items():
-        (folder / fname).write_text(text, encoding="utf-8", newline="\n")
-
-
-def returns_row(pack: Pack, period: int, security: int) -> list[str]:
-    """The long returns row of 0-based ``period`` and ``security`` (file line = index + 2)."""
-    return pack.rows("returns.csv")[period * len(SECURITIES) + security]
-
-
-def set_weights(pack: Pack, weights: list[float]) -> None:
-    for row, w in zip(pack.rows("holdings.csv"), weights, strict=True):
-        row[3] = f"{w:.6f}"
-
-
-def drop_column(pack: Pack, fname: str, name: str) -> None:
-    header, rows = pack.tables[fname]
-    j = header.index(name)
-    pack.tables[fname] = ([c for c in header if c != name], [r[:j] + r[j + 1:] for r in rows])
-
+# MIN_OBS, WINDOW, base_pack and write_pack are imported from here by other tests
+from tests.data.bad_pack import (  # noqa: F401
+    BAD_DIR,
+    MIN_OBS,
+    N_PERIODS,
+    WINDOW,
+    Pack,
+    base_pack,
+    drop_column,
+    month_ends,
+    returns_row,
+    set_weights,
+    write_pack,
+)
 
 # --------------------------------------------------------------------------- the cases
 # Each function breaks one thing in a copy of the base pack. Row numbers in the comments
@@ -347,6 +253,7 @@ CASES: dict[str, Callable[[Pack], None]] = {f.__name__: f for f in (
     blank_line_then_bad_value, quoted_line_break_then_bad_value, ragged_row,
     returns_without_rows, trailing_delimiter,
     market_extreme_return,
+    *surprise_cases.CASES,
 )}
 
 

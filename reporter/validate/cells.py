@@ -1,0 +1,152 @@
+"""Column converters: a raw column as floats, text or calendar days, each bad cell reported
+with its place."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from reporter.errors import Collector, place
+from reporter.readers import RawTable
+from reporter.validate.common import _Capped
+from reporter.validate.text import normalise_id
+
+
+def as_float(raw: RawTable, column: str, coll: Collector, decimal: str, *,
+             allow_empty: bool, label: str | None = None) -> np.ndarray:
+    """Column ``column`` as float64 (NaN where empty); non-numbers are reported.
+
+    The texts ``nan``, ``inf``, ``Infinity`` (any case, any sign), and a number too large for
+    a float, are "not a finite number", never taken as an empty value, even where an empty
+    value is allowed.
+    """
+    arr = raw.table[column]
+    label = label or column
+    if pa.types.is_floating(arr.type) or pa.types.is_integer(arr.type) or pa.types.is_null(
+            arr.type):
+        values = arr.cast(pa.float64()).to_numpy(zero_copy_only=False)
+        bad_text = np.zeros(len(values), dtype=bool)
+        # the reader parsed "nan" and "inf" texts as floats: only an empty cell is null
+        null = np.asarray(arr.is_null().to_numpy(zero_copy_only=False), dtype=bool)
+        not_finite = ~np.isfinite(values) & ~null
+        shown = np.full(len(values), None, dtype=object)
+        shown[not_finite] = [repr(float(v)) for v in values[not_finite]]
+    else:
+        text = pd.Series(arr.cast(pa.string()).to_pylist(), dtype=object)
+        stripped = text.str.strip()
+        if decimal == ",":
+            stripped = stripped.str.replace(",", ".", regex=False)
+        # a copy: under pandas copy-on-write to_numpy() may return a read-only view
+        values = np.array(pd.to_numeric(stripped, errors="coerce"), dtype=float)
+        blank = text.isna().to_numpy() | (stripped == "").fillna(True).to_numpy()
+        spelled = stripped.str.fullmatch(NOT_FINITE_TEXT, case=False).fillna(False).to_numpy(
+            dtype=bool)
+        not_finite = (spelled | np.isinf(values)) & ~blank
+        shown = text.to_numpy(dtype=object)
+        bad_text = np.isnan(values) & ~blank & ~not_finite
+        values[blank] = np.nan
+        capped = _Capped(coll, f"non-numeric values in column {label}")
+        for i in np.flatnonzero(bad_text):
+            capped.add(place(raw.name, raw.row_number(int(i)), label),
+                       f"not a number: {text.iloc[i]!r}")
+        capped.close()
+    if not_finite.any():
+        capped = _Capped(coll, f"values that are not finite numbers in column {label}")
+        for i in np.flatnonzero(not_finite):
+            capped.add(place(raw.name, raw.row_number(int(i)), label),
+                       f"value is not a finite number: {shown[i]!r}")
+        capped.close()
+        values = np.where(not_finite, np.nan, values)
+    if not allow_empty:
+        empty = np.isnan(values) & ~bad_text & ~not_finite
+        capped = _Capped(coll, f"empty values in column {label}")
+        for i in np.flatnonzero(empty):
+            capped.add(place(raw.name, raw.row_number(int(i)), label), "value is empty")
+        capped.close()
+    return values
+
+
+# how "not a number" and infinity are spelled in text (numpy, pandas, spreadsheets, C)
+NOT_FINITE_TEXT = r"[+-]?(nan|inf|infinity)"
+
+
+def date_codes(raw: RawTable, column: str, date_format: str,
+               coll: Collector) -> tuple[np.ndarray, np.ndarray]:
+    """Column ``column`` as a code per row into an array of distinct calendar days.
+
+    Returns ``(codes, days)``: ``codes`` (int32, one per row) indexes ``days``
+    (``datetime64[D]``), and is -1 where the date is empty or bad. Each distinct date text is
+    parsed once, with ``date_format`` only: day-first and month-first are never guessed, and
+    impossible dates (30 February) are errors. Spreadsheet and Parquet date cells are taken as
+    calendar days. A long returns file repeats each date for every security, so this is one
+    pass over the rows (the CSV reader already delivers the column dictionary-encoded).
+    """
+    arr = raw.table[column]
+    if pa.types.is_date(arr.type) or pa.types.is_timestamp(arr.type):
+        if not pa.types.is_date32(arr.type):       # date64 or timestamp: to calendar days
+            arr = arr.cast(pa.timestamp("s")).cast(pa.date32())
+        enc = pc.dictionary_encode(arr).combine_chunks()
+        texts = None
+        parsed = np.asarray(enc.dictionary.to_numpy(zero_copy_only=False),
+                            dtype="datetime64[D]")
+    else:
+        enc = _dictionary(arr)
+        texts = enc.dictionary.to_pylist()
+        parsed = _parse_date_texts(texts, date_format)
+    good = ~np.isnat(parsed)
+    # distinct texts -> distinct valid days; -1 for a bad text and (last slot) an empty cell
+    remap = np.append(np.where(good, np.cumsum(good) - 1, -1), -1).astype(np.int32)
+    raw_codes = enc.indices.fill_null(-1).to_numpy(zero_copy_only=False)     # int32
+    codes = remap[raw_codes]
+    capped = _Capped(coll, f"bad dates in column {column}")
+    for i in np.flatnonzero(codes < 0):
+        where = place(raw.name, raw.row_number(int(i)), column)
+        if raw_codes[i] < 0:
+            capped.add(where, "date is empty")
+        else:
+            text = texts[raw_codes[i]] if texts is not None else str(parsed[raw_codes[i]])
+            capped.add(where, f"not a valid date in the format {date_format!r}: {text!r}")
+    capped.close()
+    return codes, parsed[good]
+
+
+def _parse_date_texts(texts: list, date_format: str) -> np.ndarray:
+    """Distinct date texts (spaces around them ignored) as ``datetime64[D]``, NaT where a
+    text is not a date in ``date_format``."""
+    stripped = pd.Series(texts, dtype=object).str.strip()
+    return pd.to_datetime(stripped, format=date_format, errors="coerce").to_numpy(
+        dtype="datetime64[ns]").astype("datetime64[D]")
+
+
+def as_dates(raw: RawTable, column: str, date_format: str, coll: Collector) -> np.ndarray:
+    """Column ``column`` as ``datetime64[D]`` (NaT where empty or bad; each bad value is
+    reported, see :func:`date_codes`)."""
+    codes, days = date_codes(raw, column, date_format, coll)
+    out = np.full(len(codes), np.datetime64("NaT"), dtype="datetime64[D]")
+    ok = codes >= 0
+    out[ok] = days[codes[ok]]
+    return out
+
+
+def as_text(raw: RawTable, column: str, coll: Collector, *, allow_empty: bool) -> np.ndarray:
+    """Column ``column`` as text, each value trimmed and in Unicode NFC (see
+    :func:`reporter.validate.text.normalise_id`); None where the cell is empty."""
+    values = np.array([None if v is None else normalise_id(str(v))
+                       for v in raw.table[column].cast(pa.string()).to_pylist()], dtype=object)
+    if not allow_empty:
+        capped = _Capped(coll, f"empty values in column {column}")
+        for i in np.flatnonzero([v is None or v == "" for v in values]):
+            capped.add(place(raw.name, raw.row_number(int(i)), column), "value is empty")
+        capped.close()
+    return values
+
+
+
+def _dictionary(column: pa.ChunkedArray) -> pa.DictionaryArray:
+    """A text column as one dictionary array (the CSV reader may already deliver one)."""
+    if pa.types.is_dictionary(column.type):
+        return pa.table({"c": column}).unify_dictionaries().column(0).combine_chunks()
+    return pc.dictionary_encode(column.cast(pa.string())).combine_chunks()
+

@@ -1,0 +1,49 @@
+"""What every check shares: the cap on places listed per kind of problem, the column
+check, and the word for one period."""
+
+from __future__ import annotations
+
+from reporter.config import Settings
+from reporter.errors import Collector, place
+from reporter.readers import RawTable
+
+MAX_PER_CHECK = 10
+
+
+class _Capped:
+    """Adds problems of one kind to a collector, listing at most MAX_PER_CHECK places."""
+
+    def __init__(self, coll: Collector, summary: str, warning: bool = False) -> None:
+        self.coll, self.summary, self.warning, self.count = coll, summary, warning, 0
+        self._last_file = ""
+
+    def add(self, where: str, message: str) -> None:
+        self.count += 1
+        self._last_file = where.split(":", 1)[0]
+        if self.count <= MAX_PER_CHECK:
+            (self.coll.warn if self.warning else self.coll.error)(where, message)
+
+    def close(self) -> None:
+        rest = self.count - MAX_PER_CHECK
+        if rest > 0:
+            msg = f"... and {rest} more {self.summary}"
+            (self.coll.warn if self.warning else self.coll.error)(self._last_file, msg)
+
+
+def _require_columns(raw: RawTable, required: tuple[str, ...], optional: tuple[str, ...],
+                     coll: Collector) -> bool:
+    names = raw.table.column_names
+    missing = [c for c in required if c not in names]
+    for c in missing:
+        coll.error(place(raw.name, 1, c), "required column is missing "
+                   f"(the file has: {', '.join(names) or 'no columns'})")
+    for c in names:
+        if c not in required and c not in optional:
+            coll.warn(place(raw.name, 1, c), "unknown column, ignored")
+    return not missing
+
+
+
+def _period_word(settings: Settings) -> str:
+    return {"monthly": "month", "weekly": "week", "daily": "day"}[settings.frequency]
+

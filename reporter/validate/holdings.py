@@ -1,0 +1,101 @@
+"""The holdings file: ids, names, sectors and weights (from weight or market_value)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from reporter.config import Settings
+from reporter.errors import Collector, place
+from reporter.models import Holdings
+from reporter.readers import RawTable
+from reporter.validate.cells import as_float, as_text
+from reporter.validate.common import _Capped, _require_columns
+from reporter.validate.text import case_clash_message, case_clashes
+
+HOLDINGS_REQUIRED = ("security_id", "name", "sector")
+HOLDINGS_OPTIONAL = ("asset_class", "currency", "country")
+
+
+def validate_holdings(raw: RawTable, settings: Settings, coll: Collector) -> Holdings | None:
+    """Check the holdings file and derive weights (from ``weight`` or ``market_value``)."""
+    names = raw.table.column_names
+    has_w, has_mv = "weight" in names, "market_value" in names
+    if not (has_w or has_mv):
+        coll.error(place(raw.name, 1, "weight"),
+                   "required column is missing: give weight or market_value")
+    optional = HOLDINGS_OPTIONAL + ("weight", "market_value")
+    if not _require_columns(raw, HOLDINGS_REQUIRED, optional, coll) or not (has_w or has_mv):
+        return None
+    if raw.table.num_rows == 0:
+        coll.error(raw.name, "the file has no holdings")
+        return None
+    spec = settings.inputs["holdings"]
+    ids = as_text(raw, "security_id", coll, allow_empty=False)
+    frame = pd.DataFrame({
+        "security_id": ids,
+        "name": as_text(raw, "name", coll, allow_empty=False),
+        "sector": as_text(raw, "sector", coll, allow_empty=False),
+    })
+    seen: dict[str, int] = {}
+    for i, sid in enumerate(ids):
+        if sid is None or sid == "":
+            continue
+        if sid in seen:
+            coll.error(place(raw.name, raw.row_number(i), "security_id"),
+                       f"duplicate security id {sid!r} (first at row {raw.row_number(seen[sid])})")
+        else:
+            seen[sid] = i
+    distinct = list(seen)
+    for first, later in case_clashes(distinct):
+        a, b = distinct[first], distinct[later]
+        coll.error(place(raw.name, raw.row_number(seen[b]), "security_id"),
+                   case_clash_message(b, a, raw.row_number(seen[a])))
+    column = "weight" if has_w else "market_value"
+    if has_w and has_mv:
+        coll.warn(place(raw.name, 1, "market_value"), "both weight and market_value given; "
+                  "weights are taken from the weight column")
+    raw_w = as_float(raw, column, coll, spec.decimal, allow_empty=False)
+    if has_mv:
+        frame["market_value"] = as_float(raw, "market_value", coll, spec.decimal,
+                                         allow_empty=False) if has_w else raw_w
+    neg = np.flatnonzero(raw_w < 0)
+    if len(neg) and not settings.allow_short:
+        capped = _Capped(coll, f"negative values in column {column}")
+        for i in neg:
+            capped.add(place(raw.name, raw.row_number(int(i)), column),
+                       f"negative {column} {raw_w[i]:g}: short positions are not allowed "
+                       "(set checks.allow_short = true)")
+        capped.close()
+    for opt in HOLDINGS_OPTIONAL:
+        if opt in names:
+            frame[opt] = as_text(raw, opt, coll, allow_empty=True)
+
+    normalised = False
+    if not np.isnan(raw_w).any():
+        total = float(raw_w.sum())
+        if column == "market_value":
+            if total <= 0:
+                coll.error(place(raw.name, None, column), "market values sum to zero or less")
+                return None
+            weights = raw_w / total
+        else:
+            weights = raw_w
+            if abs(total - 1.0) > settings.weight_tolerance:
+                msg = (f"weights sum to {total:.6g}, not 1 (tolerance "
+                       f"{settings.weight_tolerance:g})")
+                if settings.normalise_weights:
+                    coll.warn(place(raw.name, None, column), msg + "; rescaled to sum to 1")
+                    weights = raw_w / total
+                    normalised = True
+                else:
+                    coll.error(place(raw.name, None, column), msg + "; fix the file or set "
+                               "checks.normalise_weights = true")
+        frame["weight"] = weights
+    else:
+        frame["weight"] = raw_w
+    frame = frame[["security_id", "name", "sector", "weight"]
+                  + [c for c in frame.columns if c not in ("security_id", "name", "sector",
+                                                           "weight")]]
+    return Holdings(frame=frame, weight_source=column, normalised=normalised)
+

@@ -1,0 +1,145 @@
+"""Every input of a pack: read them all, check them all, and the checks across files
+(coverage of the window, frequency)."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from reporter.analytics.returns import frequency_gaps, period_keys
+from reporter.config import Settings
+from reporter.errors import Collector, InputError, place
+from reporter.models import DatedSeries, ReturnPanel, ValidInputs
+from reporter.readers import RawTable, read_input
+from reporter.validate.common import MAX_PER_CHECK, _Capped, _period_word
+from reporter.validate.holdings import validate_holdings
+from reporter.validate.returns import validate_returns
+from reporter.validate.series import validate_series
+from reporter.validate.text import check_invisible
+
+
+def read_inputs(settings: Settings) -> tuple[dict[str, RawTable], list]:
+    """Read every input file; returns the tables read and the problems found in reading them
+    (files that could not be read, what the reader warned about, and invisible characters in
+    any text cell: see :mod:`reporter.validate.text`)."""
+    raws: dict[str, RawTable] = {}
+    problems = []
+    for role, spec in settings.inputs.items():
+        try:
+            raws[role] = read_input(spec)
+        except InputError as exc:
+            problems.extend(exc.problems)
+            continue
+        problems.extend(raws[role].notes)
+        coll = Collector()
+        check_invisible(raws[role], coll)
+        problems.extend(coll.problems)
+    return raws, problems
+
+
+def validate_tables(settings: Settings, raws: dict[str, RawTable], read_problems=(),
+                    strict: bool = False) -> ValidInputs:
+    """Check every table; raise :class:`InputError` listing every problem found."""
+    coll = Collector()
+    coll.problems.extend(read_problems)
+    holdings = validate_holdings(raws["holdings"], settings, coll) if "holdings" in raws else None
+    market = validate_series(raws["market"], "return", settings, coll) if "market" in raws \
+        else None
+    rf = validate_series(raws["risk_free"], "rate", settings, coll) if "risk_free" in raws \
+        else None
+    panel = validate_returns(raws["returns"], holdings, settings, coll,
+                             raws.get("holdings")) if "returns" in raws \
+        else None
+    if market is not None and rf is not None:
+        _check_coverage(settings, market, rf, panel, coll)
+    coll.raise_if_errors(strict=strict)
+    assert holdings is not None and market is not None and rf is not None and panel is not None
+    return ValidInputs(holdings=holdings, returns=panel, market=market, risk_free=rf,
+                       warnings=coll.warnings)
+
+
+def validate_pack(settings: Settings, strict: bool = False) -> ValidInputs:
+    """Read and check every input in one call."""
+    raws, problems = read_inputs(settings)
+    return validate_tables(settings, raws, problems, strict=strict)
+
+
+def _check_return_frequency(settings: Settings, panel: ReturnPanel, mkeys: np.ndarray,
+                            coll: Collector) -> None:
+    """A holding's returns must come at the declared frequency: on the market's calendar, at
+    least half of the steps between its consecutive returns must be a single period (a
+    suspension leaves one long step; quarterly data in a monthly pack leave no short one)."""
+    pos = np.searchsorted(mkeys, panel.period_keys)
+    pos_c = np.minimum(pos, len(mkeys) - 1)
+    on_calendar = (pos < len(mkeys)) & (mkeys[pos_c] == panel.period_keys)
+    if on_calendar.all() and np.array_equal(pos_c, np.arange(len(mkeys))):
+        present = np.isfinite(panel.values)      # the panel is on the market's calendar
+    else:
+        present = np.zeros((len(mkeys), panel.values.shape[1]), dtype=bool)
+        present[pos_c[on_calendar]] = np.isfinite(panel.values[on_calendar])
+    n = np.count_nonzero(present, axis=0)
+    single = np.count_nonzero(present[1:] & present[:-1], axis=0)
+    bad = np.flatnonzero((n >= 3) & (2 * single < n - 1))
+    capped = _Capped(coll, "holdings whose returns are less frequent than declared")
+    for j in bad:
+        capped.add(place(settings.inputs["returns"].display, None, "date"),
+                   f"returns for {panel.security_ids[j]} look less frequent than "
+                   f"{settings.frequency}: {single[j]} of the {n[j] - 1} steps between them are "
+                   f"one {_period_word(settings)}")
+    capped.close()
+
+
+def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
+                    panel: ReturnPanel | None, coll: Collector) -> None:
+    cfg = settings.config_path.name
+    end = np.datetime64(settings.period_end, "D")
+    end_key = period_keys(np.array([end]), settings.frequency)[0]
+    mkeys = period_keys(market.dates, settings.frequency)
+    mname, rname = settings.inputs["market"].display, settings.inputs["risk_free"].display
+    if mkeys[-1] < end_key:
+        coll.error(f"{cfg}:pack.period_end", f"period_end {settings.period_end} is after the "
+                   f"last date in {mname} ({market.dates[-1]})")
+        return
+    if panel is not None and len(panel.period_keys) and panel.period_keys[-1] < end_key:
+        coll.warn(settings.inputs["returns"].display,
+                  f"no holding has a return for the period of period_end {settings.period_end}")
+    upto = np.flatnonzero(mkeys <= end_key)
+    if len(upto) < settings.window:
+        coll.error(f"{cfg}:analysis.window", f"the window ({settings.window} periods) is longer "
+                   f"than the data: {mname} has {len(upto)} periods up to {settings.period_end}")
+        return
+    win = upto[-settings.window:]
+    gaps = frequency_gaps(market.dates[win], settings.frequency)
+    if market.rows is not None and market.unread_rows is not None and len(market.unread_rows):
+        lo, hi = market.rows[win][gaps - 1], market.rows[win][gaps]
+        unread = np.sort(market.unread_rows)
+        explained = np.searchsorted(unread, hi) > np.searchsorted(unread, lo, side="right")
+        gaps = gaps[~explained]     # a date that could not be read is reported already
+    for g in gaps[:MAX_PER_CHECK]:
+        where = (place(mname, int(market.rows[win][g]), "date") if market.rows is not None
+                 else mname)
+        coll.error(where, f"the dates {market.dates[win][g - 1]} and {market.dates[win][g]} "
+                   f"are not consecutive {settings.frequency} periods (a period is missing "
+                   "between them)")
+    if len(gaps) > MAX_PER_CHECK:
+        coll.error(mname, f"... and {len(gaps) - MAX_PER_CHECK} more gaps in the window")
+    if panel is not None:
+        _check_return_frequency(settings, panel, mkeys, coll)
+    rkeys = period_keys(rf.dates, settings.frequency)
+    missing = np.setdiff1d(mkeys[win], rkeys)
+    if len(missing):
+        at = np.isin(mkeys[win], missing)
+        dates, mrows = market.dates[win][at], (market.rows[win][at] if market.rows is not None
+                                                else [None] * int(at.sum()))
+        after = np.searchsorted(rkeys, missing)     # the risk-free row it is missing before
+        for k in range(min(len(missing), MAX_PER_CHECK)):
+            if rf.rows is not None and after[k] < len(rf.rows):
+                where = place(rname, int(rf.rows[after[k]]), "date")
+                hint = "missing before this row"
+            else:
+                where, hint = rname, "missing after the last row"
+            market_at = f" ({mname} row {mrows[k]})" if mrows[k] is not None else ""
+            coll.error(where, f"no rate for the period of {dates[k]}{market_at}, which the "
+                       f"window needs; {hint}")
+        if len(missing) > MAX_PER_CHECK:
+            coll.error(rname, f"... and {len(missing) - MAX_PER_CHECK} more periods of the "
+                       "window with no rate")

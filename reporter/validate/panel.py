@@ -1,0 +1,87 @@
+"""Checks on a holdings' returns panel as a whole, whatever the file's shape: percentages,
+unheld and missing securities, stale prices."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from reporter.errors import place
+from reporter.models import ReturnPanel
+from reporter.validate.values import PERCENT_MEDIAN, _percent_columns
+
+
+def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where_of, where_cell,
+                  holdings_raw, percent=None):
+    """Per-security checks on the P x N matrix; reorder columns to the holdings' order.
+    Warns of a holding whose longest run of one return (:func:`longest_constant_run`) is
+    ``checks.stale_zero_run`` periods or more.
+
+    ``where_of(j)`` places a message about security ``j`` as a whole, ``where_cell(t, j)`` one
+    about its value in sorted period ``t``. ``percent`` is :func:`_percent_columns` of
+    ``matrix`` when the caller has it already.
+    """
+    pct, med = percent if percent is not None else _percent_columns(matrix, settings.frequency)
+    for j in np.flatnonzero(pct):
+        coll.error(where_of(j), f"returns for {ids[j]} look like percentages (median |return| "
+                   f"{med[j]:.3g} is above {PERCENT_MEDIAN[settings.frequency]} for "
+                   f"{settings.frequency} data); give decimals, e.g. 0.012 for 1.2%")
+    held = set(holdings.ids) if holdings is not None else set(ids)
+    unheld = [s for s in ids if s not in held]
+    if unheld and holdings is not None:
+        coll.warn(raw.name, f"{len(unheld)} security id(s) have returns but are not held, "
+                  "ignored: " + ", ".join(unheld[:8]) + (" ..." if len(unheld) > 8 else ""))
+    if holdings is None:
+        return None
+    col_of = {s: j for j, s in enumerate(ids)}
+    source = pd.Index(ids).get_indexer(list(holdings.ids))     # -1 where not in the file
+    have = source >= 0
+    if len(ids) == len(source) and np.array_equal(source, np.arange(len(ids))):
+        out = matrix             # the file lists exactly the holdings, in their order
+    else:
+        out = np.full((matrix.shape[0], len(holdings.ids)), np.nan)
+        out[:, have] = matrix[:, source[have]]
+    run, start = longest_constant_run(out)
+    for k in np.flatnonzero(~have):
+        # the holdings frame keeps the file's rows in order: holding k is data row k
+        row = holdings_raw.row_number(int(k)) if holdings_raw is not None else None
+        coll.warn(place(settings.inputs["holdings"].display, row, "security_id"),
+                  f"holding {holdings.ids[k]} has no return history in {raw.name}")
+    for k in np.flatnonzero(have & (run >= settings.stale_zero_run)):
+        sid, value = holdings.ids[k], out[start[k], k]
+        what = (f"{run[k]} exact-zero returns in a row" if value == 0.0
+                else f"the same return {value:g} for {run[k]} periods in a row")
+        coll.warn(where_cell(int(start[k]), col_of[sid]),
+                  f"holding {sid} has {what} from here: its prices may be stale")
+    return ReturnPanel(period_keys=np.asarray(keys), security_ids=holdings.ids, values=out,
+                       shape=shape, n_rows=raw.table.num_rows)
+
+
+def longest_constant_run(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The longest run of identical consecutive returns in each column (NaN breaks a run)
+    and the row where the first run of that length starts; vectorised over columns, in
+    blocks, and only over the columns in which some return repeats the one before it.
+
+    A run of exact zeros is the classic sign of a stale price; a run of one non-zero value
+    (a fixed 1% a month) is as suspect in a return series (common practice, no source).
+    """
+    n_rows, n_cols = matrix.shape
+    run = np.minimum(np.count_nonzero(np.isfinite(matrix), axis=0), 1)
+    start = np.zeros(n_cols, dtype=np.int64)
+    if n_rows < 2:
+        return run, start
+    idx = np.arange(n_rows - 1, dtype=np.int32)[:, None]
+    for lo in range(0, n_cols, 256):
+        block = matrix[:, lo:lo + 256]
+        same = block[1:] == block[:-1]                 # same[t]: value t + 1 repeats value t
+        cand = np.flatnonzero(same.any(axis=0))
+        if not len(cand):
+            continue
+        s = same[:, cand]
+        last_break = np.maximum.accumulate(np.where(s, np.int32(-1), idx), axis=0)
+        streak = np.where(s, idx - last_break, 0)      # repeats ending at t
+        best = streak.max(axis=0)
+        end = streak.argmax(axis=0)                    # the first longest run
+        run[lo + cand] = best + 1
+        start[lo + cand] = end - best + 1
+    return run, start
