@@ -39,7 +39,9 @@ def sml_chart(res: PackResults, market_label: str = "Market proxy") -> alt.Layer
     """Each holding's beta against its annualised mean excess return, with the ex post line
     E[r - r_f] = beta x mean market premium, beta error bars (95%), the market and cash."""
     P = res.periods_per_year
-    sec = res.securities[res.fits.fitted].copy()
+    sec = res.securities[res.fits.fitted]
+    n_all = len(sec)
+    sec = thin_holdings(sec)
     df = pd.DataFrame({
         "name": sec["name"], "beta": sec["beta"],
         # the same intervals as the holdings tables (errors and level from the settings)
@@ -82,7 +84,31 @@ def sml_chart(res: PackResults, market_label: str = "Market proxy") -> alt.Layer
     lab = alt.Chart(anchors).mark_text(align="left", dx=8, dy=-8, color=INK,
                                        fontSize=11).encode(x=alt.X("beta:Q"), y=alt.Y("excess:Q"),
                                                            text=alt.Text("label:N"))
-    return alt.layer(bars, vbars, sml, pts, anc, lab).properties(width=WIDTH, height=HEIGHT)
+    chart = alt.layer(bars, vbars, sml, pts, anc, lab).properties(width=WIDTH, height=HEIGHT)
+    if len(sec) < n_all:
+        chart = chart.properties(title=alt.TitleParams(
+            f"{len(sec):,} of {n_all:,} holdings drawn: every one above or below the line, "
+            "then the largest by weight", fontSize=11))
+    return chart
+
+
+# Altair refuses a chart with more rows than this (its default limit): beyond it a chart
+# of holdings draws every flagged holding and then the largest by weight.
+MAX_CHART_ROWS = 5000
+
+
+def thin_holdings(sec: pd.DataFrame, max_rows: int = MAX_CHART_ROWS) -> pd.DataFrame:
+    """At most ``max_rows`` holdings of ``sec`` (a securities table), in their own order:
+    every one whose SML position is flagged above or below the line, then the largest by
+    weight (ties by position in the table)."""
+    if len(sec) <= max_rows:
+        return sec
+    flagged = (sec["sml_position"] != WITHIN).to_numpy()
+    weight = sec["weight"].to_numpy(dtype=float)
+    # flagged first, then by weight, largest first; a stable sort keeps table order in ties
+    order = np.lexsort((-np.nan_to_num(weight, nan=-np.inf), ~flagged))
+    keep = np.sort(order[:max_rows])
+    return sec.iloc[keep]
 
 
 STATUS_MARK = {"breach": "\u2716 breach", "watch": "\u25c6 watch"}

@@ -61,6 +61,7 @@ from reporter.analytics.sml import (
     security_market_line,
 )
 from reporter.config import Settings
+from reporter.errors import InputError, Problem
 from reporter.memory import release_free_memory
 from reporter.models import DatedSeries, ValidInputs
 
@@ -401,6 +402,20 @@ def build_window(inputs: ValidInputs, settings: Settings, periods: int | None = 
                   returns=rets, market=inputs.market.values[idx], risk_free=rf)
 
 
+def _require_varying_market(market_excess: np.ndarray, settings: Settings) -> None:
+    """Every beta divides by the market premium's variance: a premium that is the same in
+    every period of the window (a constant market return less a constant rate) is bad input,
+    named, not a division by zero."""
+    x = market_excess[np.isfinite(market_excess)]
+    if len(x) and np.ptp(x) > 0:
+        return
+    spec = settings.inputs.get("market")
+    where = spec.display if spec is not None else "market proxy"
+    raise InputError([Problem(where, f"the market proxy's return less the risk-free rate is "
+                              f"the same in all {len(x)} periods of the window, so no beta can "
+                              "be estimated; check the market and risk-free files")])
+
+
 def _align(series: DatedSeries, keys: np.ndarray, freq: str) -> np.ndarray:
     skeys = period_keys(series.dates, freq)
     pos = np.searchsorted(skeys, keys)
@@ -431,6 +446,7 @@ def analyse(inputs: ValidInputs, settings: Settings,
     win = build_window(inputs, settings)
     weights = inputs.holdings.weights
     x = win.market_excess
+    _require_varying_market(x, settings)
     y = win.excess_returns
     prep = Prepared.of(y, x)
     fits = fit_market_model(y, x, settings.min_obs, prep=prep)

@@ -213,6 +213,19 @@ def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdi
     sigma = e.T @ e / T
     mu = float(x.mean())
     var_m = float(np.mean((x - mu) ** 2))
+    if not var_m > 0:
+        return GRSTest(False, "the market premium is constant over the window", assets, N, T,
+                       nan, N, T - N - 1, nan)
+    # a singular residual covariance (an asset whose excess return is exactly linear in the
+    # market's, e.g. a return equal to the risk-free rate) leaves the quadratic form undefined
+    # (an R-squared within 1e-12 of one is a line up to rounding)
+    resid_var = np.diag(sigma)
+    scale = np.sqrt(resid_var)
+    if np.any(resid_var <= 1e-12 * y.var(axis=0)) or np.linalg.matrix_rank(
+            sigma / np.outer(scale, scale)) < N:
+        return GRSTest(False, "the residual covariance is singular (an asset's excess return "
+                       "is exactly a line in the market's, e.g. a return equal to the risk-free "
+                       "rate)", assets, N, T, nan, N, T - N - 1, nan)
     quad = float(alpha @ np.linalg.solve(sigma, alpha))
     f = (T - N - 1) / N * quad / (1.0 + mu * mu / var_m)
     return GRSTest(True, "", assets, N, T, float(f), N, T - N - 1,
