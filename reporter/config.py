@@ -84,8 +84,11 @@ class AnalysisSection(_Strict):
     # period's rate) or a fixed annual decimal rate
     mar: Annotated[Annotated[float, Field(ge=-1.0, le=1.0)] | None,
                    BeforeValidator(lambda v: None if v == "risk_free" else v)] = None
-    # covariance behind risk contributions: "auto" (Ledoit-Wolf when holdings >= window / 10)
-    covariance: Literal["auto", "ledoit_wolf", "sample"] = "auto"
+    # covariance behind risk contributions (reporter/analytics/covariance.py): shrinkage toward
+    # constant correlation (default), toward the identity ("ledoit_wolf"; "auto" as before)
+    covariance: Literal["constant_correlation", "auto", "ledoit_wolf",
+                        "sample"] = "constant_correlation"
+    vasicek_prior: Literal["holdings", "market"] = "holdings"   # prior mean: theirs, or 1
     random_subsets: Annotated[int, Field(ge=10, le=10_000)] = 200
     seed: Annotated[int, Field(ge=0)] = 20261130
 
@@ -218,7 +221,8 @@ class Settings:
     compare_build: Path | None = None        # [compare] previous = a build folder
     compare_archive: Path | None = None      # [compare] previous = "archive:DIR"
     mar: float | None = None             # fixed annual MAR; None = the risk-free rate
-    covariance: str = "auto"             # "auto" | "ledoit_wolf" | "sample"
+    covariance: str = "constant_correlation"   # | "auto" | "ledoit_wolf" | "sample"
+    vasicek_prior: str = "holdings"      # "holdings" | "market": Vasicek prior's mean
     random_subsets: int = 200            # random equal-weight portfolios per size
     seed: int = 20261130                 # seed of those random draws
 
@@ -399,6 +403,7 @@ def load_settings(pack: Path | str) -> Settings:
         compare_archive=compare_archive,
         mar=None if model.analysis.mar is None else float(model.analysis.mar),
         covariance=model.analysis.covariance,
+        vasicek_prior=model.analysis.vasicek_prior,
         random_subsets=model.analysis.random_subsets,
         seed=model.analysis.seed,
         mandates=mandates,

@@ -41,11 +41,14 @@ def test_fixed_mar_and_sample_covariance(tmp_path):
     a = assemble(s)
     p = a.results.portfolio_summary()
     assert p["covariance_method"] == "sample" and p["covariance_shrinkage"] == 0.0
-    assert p["mar"] == pytest.approx(0.005) and p["mar_source"] == "fixed annual rate"
-    # the downside deviation below 0.5% a month, from the portfolio series (by hand)
+    # 6% a year as a monthly rate that compounds to it: 1.06^(1/12) - 1 (by hand)
+    monthly = 1.06 ** (1 / 12) - 1
+    assert p["mar"] == pytest.approx(monthly, rel=1e-12) and p["mar_source"] == "fixed annual rate"
+    assert p["mar_ann"] == pytest.approx(0.06, rel=1e-12)
+    # the downside deviation below that monthly rate, from the portfolio series (by hand)
     port = a.results.portfolio_series
     assert p["downside_deviation"] == pytest.approx(
-        np.sqrt(np.mean(np.minimum(port - 0.005, 0) ** 2)), rel=1e-12)
+        np.sqrt(np.mean(np.minimum(port - monthly, 0) ** 2)), rel=1e-12)
     html = a.html()
     assert "sample covariance" in html and "6.0% a year" in html
 

@@ -26,6 +26,7 @@ from reporter.analytics.regression import (
     shift,
     up_down_betas,
     vasicek_beta,
+    vasicek_prior,
 )
 
 INDUSTRIES = ["NoDur", "Durbl", "Manuf", "Enrgy", "Chems", "BusEq", "Telcm", "Utils"]
@@ -99,16 +100,46 @@ def test_masked_ols_errors_match_statsmodels(french):
 
 def test_scholes_williams_against_direct_formula(french):
     # Scholes and Williams (1977): (b_-1 + b_0 + b_+1) / (1 + 2 rho_m), each b a simple OLS
-    # slope (statsmodels) on the periods where the lag and lead both exist
+    # slope (statsmodels) on the periods where the lag and lead both exist, and rho_m the
+    # market's first-order autocorrelation over every consecutive pair of the window
     y, x = panel(french, 240, gaps=False)
     got = scholes_williams_beta(y, x, 24)
     lag, lead = shift(x, 1), shift(x, -1)
     rows = slice(1, len(x) - 1)
-    rho = np.corrcoef(x[rows][1:], x[rows][:-1])[0, 1]
+    rho = np.corrcoef(x[1:], x[:-1])[0, 1]            # all 239 pairs of the window
     for j in range(len(INDUSTRIES)):
         b = [sm.OLS(y[rows, j], sm.add_constant(z[rows])).fit().params[1]
              for z in (lag, x, lead)]
         np.testing.assert_allclose(got[j], sum(b) / (1 + 2 * rho), rtol=1e-9)
+    # with the period before the window, the first period has its lag too (statsmodels on
+    # rows 0..T-2 with the lag taken from the longer series)
+    y_long, x_long = panel(french, 241, gaps=False)
+    got = scholes_williams_beta(y, x, 24, before=x_long[:1])
+    lag = x_long[:-1]
+    rows = slice(0, len(x) - 1)
+    for j in range(len(INDUSTRIES)):
+        b = [sm.OLS(y[rows, j], sm.add_constant(z[rows])).fit().params[1]
+             for z in (lag, x, lead)]
+        np.testing.assert_allclose(got[j], sum(b) / (1 + 2 * rho), rtol=1e-9)
+
+
+@pytest.mark.parametrize("k", [1, 2])
+def test_dimson_uses_market_lags_from_before_the_window(french, k):
+    # Dimson (1979) with the window's first k periods keeping their lags, taken from the
+    # market's returns just before the window; reference: statsmodels OLS on the lags and
+    # leads built from the longer series (leads after the window are never used)
+    y, x = panel(french, 240)
+    x_long = french["MktRF"].to_numpy()[-240 - k:]
+    got = dimson_beta(y, x, lags=k, min_obs=24, before=x_long[:k])
+    X = np.column_stack([np.ones_like(x)] + [shift(x_long, s)[k:] if s > 0 else shift(x, s)
+                                             for s in range(-k, k + 1)])
+    for j in range(len(INDUSTRIES)):
+        ok = np.isfinite(y[:, j]) & np.isfinite(X).all(axis=1)
+        assert ok[:k].any() or not np.isfinite(y[:k, j]).any()
+        ref = sm.OLS(y[ok, j], X[ok]).fit()
+        np.testing.assert_allclose(got[j], ref.params[1:].sum(), rtol=1e-9)
+    # without the earlier periods the estimate differs (fewer periods are used)
+    assert not np.allclose(got, dimson_beta(y, x, lags=k, min_obs=24), rtol=1e-6)
 
 
 def test_blume_formula():
@@ -118,25 +149,51 @@ def test_blume_formula():
 
 
 def test_vasicek_hand_computed():
-    # Betas 0.8, 1.0, 1.2: m = 1.0, v = 0.04 (ddof=1). For b = 1.2 with s = 0.2 (s^2 = 0.04):
-    # (1/0.04 + 1.2/0.04) / (1/0.04 + 1/0.04) = (25 + 30) / 50 = 1.1, worked by hand.
-    # For b = 0.8 with s = 0.1: (25 + 0.8/0.01) / (25 + 100) = 105 / 125 = 0.84.
-    got = vasicek_beta(np.array([0.8, 1.0, 1.2]), np.array([0.1, 0.3, 0.2]))
-    np.testing.assert_allclose(got[[0, 2]], [0.84, 1.1], rtol=1e-12)
-    np.testing.assert_allclose(got[1], (25 + 1 / 0.09) / (25 + 1 / 0.09), rtol=1e-12)
+    # Vasicek (1973): (m/v + b/s^2) / (1/v + 1/s^2), with v the variance of the *true* betas.
+    # Betas 0.6, 1.0, 1.4 with s = 0.1, 0.2, 0.2, worked by hand: spread (ddof=1) 0.16,
+    # mean s^2 = 0.09/3 = 0.03, so v = 0.13 and m = 1.0. For b = 1.4:
+    # (1/0.13 + 1.4/0.04) / (1/0.13 + 1/0.04).
+    b, s = np.array([0.6, 1.0, 1.4]), np.array([0.1, 0.2, 0.2])
+    assert vasicek_prior(b, s) == pytest.approx((1.0, 0.13), rel=1e-12)
+    got = vasicek_beta(b, s)
+    assert got[2] == pytest.approx((1 / 0.13 + 1.4 / 0.04) / (1 / 0.13 + 25), rel=1e-12)
+    assert got[0] == pytest.approx((1 / 0.13 + 0.6 / 0.01) / (1 / 0.13 + 100), rel=1e-12)
+    # prior "market": m = 1 and the spread about it, mean((b - 1)^2) = 0.32/3, by hand
+    m, v = vasicek_prior(b, s, "market")
+    assert (m, v) == pytest.approx((1.0, 0.32 / 3 - 0.03), rel=1e-12)
+    got = vasicek_beta(np.array([0.6, 1.2, 1.4]), s, "market")
+    v = (0.16 + 0.04 + 0.16) / 3 - 0.03
+    assert got[1] == pytest.approx((1 / v + 1.2 / 0.04) / (1 / v + 25), rel=1e-12)
+    # noise larger than the spread: the stated floor, a tenth of the spread (0.04 here)
+    m, v = vasicek_prior(np.array([0.8, 1.0, 1.2]), np.array([0.1, 0.3, 0.2]))
+    assert v == pytest.approx(0.004, rel=1e-12)
 
 
 def test_vasicek_matches_published_formula_on_real_data(french):
-    # Vasicek (1973): (m/v + b/s^2) / (1/v + 1/s^2), m and v across holdings (ddof=1)
+    # Vasicek (1973): (m/v + b/s^2) / (1/v + 1/s^2), m across holdings and v the spread of
+    # the betas (ddof=1) less their mean squared standard error, here the Newey-West ones
+    # (statsmodels HAC, the pack's default errors)
     y, x = panel(french, 60, gaps=False)
     fits = fit_market_model(y, x, 24)
-    m, v = fits.beta.mean(), fits.beta.var(ddof=1)
-    s2 = fits.beta_se**2
+    _, se = hac_standard_errors(y, x, fits)
+    for j in range(len(INDUSTRIES)):
+        X = sm.add_constant(x)
+        L = int(newey_west_lags(60))
+        ref = sm.OLS(y[:, j], X).fit(cov_type="HAC", cov_kwds={"maxlags": L,
+                                                               "use_correction": True})
+        assert se[j] == pytest.approx(ref.bse[1], rel=1e-9)
+    m = fits.beta.mean()
+    v = fits.beta.var(ddof=1) - np.mean(se**2)
+    assert v > 0.1 * fits.beta.var(ddof=1)          # not at the floor on these data
+    s2 = se**2
     want = (m / v + fits.beta / s2) / (1 / v + 1 / s2)
-    np.testing.assert_allclose(vasicek_beta(fits.beta, fits.beta_se), want, rtol=1e-12)
+    adj = vasicek_beta(fits.beta, se)
+    np.testing.assert_allclose(adj, want, rtol=1e-12)
     # shrinkage: each adjusted beta lies between its OLS beta and the cross-sectional mean
-    adj = vasicek_beta(fits.beta, fits.beta_se)
     assert np.all((adj - m) * (fits.beta - m) >= 0) and np.all(abs(adj - m) <= abs(fits.beta - m))
+    # toward the market's beta of 1 with prior "market"
+    adj1 = vasicek_beta(fits.beta, se, "market")
+    assert np.all(abs(adj1 - 1) <= abs(fits.beta - 1))
 
 
 def test_rolling_matches_statsmodels_refit(french):

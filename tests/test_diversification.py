@@ -73,18 +73,142 @@ def test_ledoit_wolf_matches_scikit_learn(french):
         np.testing.assert_allclose(got.matrix, ref.covariance_, rtol=1e-10, atol=1e-16)
 
 
-def test_ledoit_wolf_with_gaps_is_lw_of_the_centred_matrix(french):
-    # gaps: each column centred on its own periods, a missing period a zero deviation; the
-    # estimate is then scikit-learn's LedoitWolf(assume_centered=True) of that matrix
-    r = french[PORTFOLIOS].to_numpy()[:60].copy()
-    r[:20, 3] = np.nan
+def _constant_correlation_reference(r):
+    """Ledoit and Wolf (2004), "Honey, I shrunk the sample covariance matrix", written out
+    from the paper with T x N x N arrays: S (divisor T), r_bar, F, pi, rho, gamma, kappa."""
+    T, N = r.shape
+    x = r - r.mean(axis=0)
+    S = x.T @ x / T
+    var = np.diag(S)
+    sd = np.sqrt(var)
+    r_bar = ((S / np.outer(sd, sd)).sum() - N) / (N * (N - 1))
+    F = r_bar * np.outer(sd, sd)
+    np.fill_diagonal(F, var)
+    Y = x[:, :, None] * x[:, None, :]
+    pi = ((Y - S) ** 2).mean(axis=0)
+    theta = ((x**2 - var)[:, :, None] * (Y - S)).mean(axis=0)     # theta[i, j] = theta_ii,ij
+    rho = np.trace(pi)
+    for i in range(N):
+        for j in range(N):
+            if i != j:
+                rho += r_bar / 2 * (np.sqrt(var[j] / var[i]) * theta[i, j]
+                                    + np.sqrt(var[i] / var[j]) * theta[j, i])
+    kappa = (pi.sum() - rho) / ((F - S) ** 2).sum()
+    delta = max(0.0, min(1.0, kappa / T))
+    return delta * F + (1 - delta) * S, delta
+
+
+def test_constant_correlation_matches_the_papers_formulas(french):
+    # reference: Ledoit and Wolf (2004) "Honey" formulas, written independently above
+    r = french[PORTFOLIOS[:12]].to_numpy()
+    for rows in (slice(0, 24), slice(0, 120), slice(None)):
+        got = estimate_covariance(r[rows])          # the default method
+        want, delta = _constant_correlation_reference(r[rows])
+        assert got.method == "constant_correlation" and got.eigenvalues_clipped == 0
+        assert got.shrinkage == pytest.approx(delta, rel=1e-10)
+        np.testing.assert_allclose(got.matrix, want, rtol=1e-10, atol=1e-16)
+    # the target keeps each holding's own variance
+    np.testing.assert_allclose(np.diag(got.matrix), r.var(axis=0), rtol=1e-12)
+
+
+def test_late_starter_variance_from_its_own_periods(french):
+    # real industry portfolios, 60 months; one starts 40 months late (20 of 60). The old
+    # estimate filled its missing months with zero deviations, so its variance was about
+    # 20/60 of its own: volatility x0.58. Now it is its sample variance over its own 20
+    # periods (divisor n, as in the paper), and the matrix stays PSD.
+    r = french[PORTFOLIOS].to_numpy()[-60:].copy()
+    r[:40, 3] = np.nan
     r[30:35, 7] = np.nan
-    x = centred(r)
-    assert (x[:20, 3] == 0).all()
-    np.testing.assert_allclose(x[20:, 3], r[20:, 3] - r[20:, 3].mean(), rtol=1e-12)
-    ref = LedoitWolf(assume_centered=True).fit(x)
-    got = estimate_covariance(r, "ledoit_wolf")
-    np.testing.assert_allclose(got.matrix, ref.covariance_, rtol=1e-10, atol=1e-16)
+    own = r[40:, 3]
+    for method in ("constant_correlation", "sample"):    # (the identity target moves it)
+        est = estimate_covariance(r, method)
+        assert np.linalg.eigvalsh(est.matrix).min() >= -1e-15
+        ratio = np.sqrt(est.matrix[3, 3]) / np.std(own, ddof=1)
+        if method == "constant_correlation":
+            # the target keeps the diagonal; clipping to PSD can only raise a gapped one
+            assert np.sqrt(19 / 20) - 1e-12 <= ratio < 1.05
+            if est.eigenvalues_clipped == 0:
+                assert ratio == pytest.approx(np.sqrt(19 / 20), rel=1e-9)
+        else:                                          # divisor n - 1
+            assert 1 - 1e-12 <= ratio < 1.1
+    zero_filled = np.sqrt((centred(r)[:, 3] ** 2).sum() / 60) / np.std(own, ddof=1)
+    assert zero_filled < 0.6                          # what it was
+
+
+def test_gaps_match_a_pair_by_pair_computation(french):
+    # the vectorised sums against a direct loop over pairs: each pair's covariance on its
+    # common periods (own means), pi_ij / n_ij and theta / n_ij in the intensity
+    r = french[PORTFOLIOS[:9]].to_numpy()[-60:].copy()
+    r[:40, 3] = np.nan
+    r[30:35, 7] = np.nan
+    r[50:, 5] = np.nan
+    T, N = r.shape
+    ok = np.isfinite(r)
+    x = r - np.nanmean(r, axis=0)
+    n, S, pi, th = (np.zeros((N, N)) for _ in range(4))
+    for i in range(N):
+        for j in range(N):
+            c = ok[:, i] & ok[:, j]
+            n[i, j], S[i, j] = c.sum(), (x[c, i] * x[c, j]).mean()
+    for i in range(N):
+        for j in range(N):
+            c = ok[:, i] & ok[:, j]
+            pi[i, j] = ((x[c, i] * x[c, j] - S[i, j]) ** 2).mean()
+            th[i, j] = ((x[c, i] ** 2 - S[i, i]) * (x[c, i] * x[c, j] - S[i, j])).mean()
+    var = np.diag(S)
+    sd = np.sqrt(var)
+    r_bar = ((S / np.outer(sd, sd)).sum() - N) / (N * (N - 1))
+    F = r_bar * np.outer(sd, sd)
+    np.fill_diagonal(F, var)
+    rho = np.trace(pi / n) + sum(
+        r_bar / 2 * (np.sqrt(var[j] / var[i]) * th[i, j] + np.sqrt(var[i] / var[j]) * th[j, i])
+        / n[i, j] for i in range(N) for j in range(N) if i != j)
+    delta = np.clip(((pi / n).sum() - rho) / ((F - S) ** 2).sum(), 0, 1)
+    got = estimate_covariance(r)
+    assert got.shrinkage == pytest.approx(delta, rel=1e-10)
+    np.testing.assert_allclose(got.matrix, delta * F + (1 - delta) * S, rtol=1e-10)
+
+
+def test_clipping_keeps_the_matrix_positive_semi_definite():
+    # pairwise estimates from different periods need not be PSD: three series where a and b
+    # agree on the first half, b and c on the second, and a and c are opposite on the whole
+    rng = np.random.default_rng(3)
+    z = rng.normal(size=(40, 3))
+    r = np.column_stack([z[:, 0], z[:, 0], -z[:, 0]]) + 0.01 * z
+    r[20:, 0] = np.nan                   # a only in the first half
+    r[:20, 2] = np.nan                   # c only in the second
+    r[:20, 1] = z[:20, 0]
+    r[20:, 1] = -z[20:, 0]
+    raw = estimate_covariance(r, "sample")
+    assert raw.eigenvalues_clipped >= 1
+    assert np.linalg.eigvalsh(raw.matrix).min() >= -1e-12
+    # the nearest PSD matrix (Frobenius norm; Higham 1988): the pairwise estimate, each
+    # column on its own mean and each pair on its common periods (divisor n_ij - 1), with
+    # its negative eigenvalues set to zero (numpy.linalg.eigh)
+    ok = np.isfinite(r)
+    x = r - np.nanmean(r, axis=0)
+    pair = np.array([[(x[ok[:, i] & ok[:, j], i] * x[ok[:, i] & ok[:, j], j]).sum()
+                      / ((ok[:, i] & ok[:, j]).sum() - 1) for j in range(3)] for i in range(3)])
+    w, v = np.linalg.eigh(pair)
+    assert w.min() < 0
+    np.testing.assert_allclose(raw.matrix, (v * np.maximum(w, 0)) @ v.T, atol=1e-12)
+
+
+def test_model_tracking_error_is_near_the_realised_one_on_real_data(french):
+    # real data: 12 industries equally weighted against the market, 60 months. The realised
+    # tracking error is sd(r_p - r_m); the identity target pulls correlations toward zero and
+    # overstates the model's, the constant-correlation target stays close
+    r = french[PORTFOLIOS[:12]].to_numpy()[-60:]
+    m = (french["MktRF"] + french["RF"]).to_numpy()[-60:]
+    w = np.full(12, 1 / 12)
+    realised = np.std(r @ w - m, ddof=1)
+    figures = {}
+    for method in ("constant_correlation", "ledoit_wolf"):
+        held, active = holdings_and_active(r, m, method)
+        figures[method] = risk_contributions(w, held.matrix, active.matrix).tracking_error
+    cc, ident = figures["constant_correlation"] / realised, figures["ledoit_wolf"] / realised
+    assert 0.9 < cc < 1.1 and ident > 1.1
+    assert abs(cc - 1) < abs(ident - 1) / 2
 
 
 def test_active_covariance_matches_scikit_learn_on_relative_returns(french):
@@ -106,6 +230,7 @@ def test_active_covariance_matches_scikit_learn_on_relative_returns(french):
 def test_auto_rule():
     # common practice, no source: shrink when holdings are many relative to the periods
     assert choose_method("auto", 60, 60) == "ledoit_wolf"
+    assert choose_method("constant_correlation", 5, 120) == "constant_correlation"
     assert choose_method("auto", 5, 120) == "sample"
     assert choose_method("sample", 500, 60) == "sample"
 

@@ -208,8 +208,14 @@ def test_risk_contributions_file(demo_build):
     assert h["vol_share"].sum() == pytest.approx(1.0, rel=1e-8)
     assert total["vol_contribution"] == pytest.approx(p["model_volatility"], rel=1e-9)
     assert total["te_contribution"] == pytest.approx(p["model_tracking_error"], rel=1e-9)
-    # 60 holdings against a 60-period window: the "auto" rule shrinks (Ledoit-Wolf)
-    assert p["covariance_method"] == "ledoit_wolf" and 0 < p["covariance_shrinkage"] < 1
+    # the default: shrinkage toward constant correlation (Ledoit and Wolf 2004), and the
+    # model's figures over the realised ones of the same window
+    assert p["covariance_method"] == "constant_correlation"
+    assert 0 < p["covariance_shrinkage"] < 1
+    assert p["model_to_realised_volatility"] == pytest.approx(
+        p["model_volatility"] / p["volatility"], rel=1e-12)
+    assert p["model_to_realised_tracking_error"] == pytest.approx(
+        p["model_tracking_error"] / p["tracking_error"], rel=1e-12)
     assert p["diversification_ratio"] > 1
     assert -1 < p["average_correlation"] < 1
     assert list(h["vol_contribution"]) == sorted(h["vol_contribution"], reverse=True)

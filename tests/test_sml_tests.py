@@ -65,6 +65,16 @@ def test_fama_macbeth_matches_linearmodels(french):
     # the slope against the premium: a paired t on gamma1_t - market premium_t
     gap = g[:, 1] - x
     assert t.slope_gap_t == pytest.approx(stats.ttest_1samp(gap, 0.0).statistic, rel=1e-10)
+    # Shanken (1992), Theorem 1 (single traded factor), written out from the paper: the
+    # corrected variance of the premium is (1 + lambda^2/sigma_f^2) x the Fama-MacBeth
+    # variance + sigma_f^2/T; the zero-beta rate's is (1 + lambda^2/sigma_f^2) x its own.
+    lam, var_f = ref.params["beta"], np.var(x, ddof=1)
+    c = lam**2 / var_f
+    se_slope = np.sqrt((1 + c) * ref.std_errors["beta"] ** 2 + var_f / 180)
+    se_const = np.sqrt((1 + c) * ref.std_errors["const"] ** 2)
+    assert t.slope_se_shanken == pytest.approx(se_slope, rel=1e-8)
+    assert t.intercept_se_shanken == pytest.approx(se_const, rel=1e-8)
+    assert t.slope_se_shanken > t.slope_se and t.intercept_se_shanken >= t.intercept_se
 
 
 def test_fama_macbeth_with_missing_returns_matches_linearmodels(french):
@@ -118,5 +128,9 @@ def test_grs_says_why_it_does_not_apply(french):
     y, x = _excess(french, T=22)        # 21 assets, 22 periods: T = N + 1
     g = grs_test(y, x)
     assert not g.applies and "T = 22, N = 21" in g.reason and np.isnan(g.f_stat)
+    # no degrees of freedom where the test does not apply (null in portfolio.json, not -1)
+    assert g.df_num is None and g.df_den is None
+    empty = grs_test(y[:, :0], x)
+    assert not empty.applies and empty.df_num is None and empty.df_den is None
     ok = grs_test(y[:, :10], x)
     assert ok.applies and ok.df_den == 11

@@ -9,7 +9,7 @@ from functools import cached_property
 import numpy as np
 import pandas as pd
 
-from reporter.analytics.covariance import CovarianceEstimate, choose_method, holdings_and_active
+from reporter.analytics.covariance import CovarianceEstimate, holdings_and_active, model_figures
 from reporter.analytics.diversification import (
     Concentration,
     EqualWeightCurve,
@@ -47,6 +47,7 @@ from reporter.analytics.regression import (
     t_critical,
     up_down_betas,
     vasicek_beta,
+    vasicek_summary,
 )
 from reporter.analytics.returns import Window, period_keys, portfolio_returns
 from reporter.analytics.sml import (
@@ -135,6 +136,8 @@ class PackResults:
                 f"{tag}_intercept_t": t.intercept_t,
                 f"{tag}_slope": t.slope, f"{tag}_slope_se": t.slope_se,
                 f"{tag}_premium": t.premium, f"{tag}_slope_gap_t": t.slope_gap_t,
+                f"{tag}_intercept_se_shanken": t.intercept_se_shanken,
+                f"{tag}_slope_se_shanken": t.slope_se_shanken,
             })
         for tag, g in (("grs_holdings", self.grs_holdings), ("grs_sectors", self.grs_sectors)):
             out.update({
@@ -177,17 +180,13 @@ class PackResults:
 
     def diversification_summary(self) -> dict:
         """The covariance and risk figures added to ``results/portfolio.json``."""
-        root = np.sqrt(self.periods_per_year)
-        rc, cv = self.risk, self.covariance
+        root, rc, cv = np.sqrt(self.periods_per_year), self.risk, self.covariance
         n_eff = int(round(self.concentration.effective_n))
         return {
-            "covariance_method": cv.method,
-            "covariance_shrinkage": cv.shrinkage,
-            "covariance_active_shrinkage": self.covariance_active.shrinkage,
-            "model_volatility": rc.volatility,
-            "model_volatility_ann": rc.volatility * root,
-            "model_tracking_error": rc.tracking_error,
-            "model_tracking_error_ann": rc.tracking_error * root,
+            **model_figures(cv, self.covariance_active, rc.volatility, rc.tracking_error,
+                            self.ratios.volatility, self.performance.benchmark_tracking_error
+                            if self.tracking_reference == "benchmark"
+                            else self.ratios.tracking_error, self.periods_per_year),
             "diversification_ratio": rc.diversification_ratio,
             "average_correlation": self.average_correlation,
             "random_subset_draws": self.band.draws,
@@ -242,7 +241,7 @@ class PackResults:
             "sortino": q.sortino,
             "sortino_ann": q.sortino * np.sqrt(P),
             "mar": q.mar,
-            "mar_ann": q.mar * P,
+            "mar_ann": q.mar * P if q.mar_source == "risk-free rate" else (1 + q.mar) ** P - 1,
             "mar_source": q.mar_source,
             "return_arithmetic_ann": q.return_arithmetic_ann,
             "return_geometric_ann": q.return_geometric_ann,
@@ -372,7 +371,7 @@ class PackResults:
             "idiosyncratic_share": 1.0 - self.variance.systematic_share,
             "average_variance": self.curve.average_variance,
             "average_covariance": self.curve.average_covariance,
-            "rolling_window": self.rolling.window,
+            "rolling_window": self.rolling.window, "rolling_errors": "ols",
             **self.portfolio_extra,
             **self.performance_summary(),
             **self.diversification_summary(),
@@ -472,10 +471,9 @@ def analyse(inputs: ValidInputs, settings: Settings,
     var = variance_split(weights, fits.beta, fits.residual_vol, x)
     pair_cov, pair_corr = pairwise_covariance_and_correlation(win.returns[:, ok])
     curve = equal_weight_curve(pair_cov)
-    cov_method = choose_method(settings.covariance, len(weights), win.n_periods)
     bench_win = _align_optional(benchmark, win.dates, settings.frequency)
     cov, cov_active = holdings_and_active(
-        win.returns, win.market if bench_win is None else bench_win, cov_method)
+        win.returns, win.market if bench_win is None else bench_win, settings.covariance)
     risk = risk_contributions(weights, cov.matrix, cov_active.matrix)
     avg_corr = average_pairwise_correlation(corr=pair_corr)
     n_fit = int(ok.sum())
@@ -487,10 +485,6 @@ def analyse(inputs: ValidInputs, settings: Settings,
 
     beta_up, beta_down = up_down_betas(y, x, settings.min_obs, prep=prep)
     port_ex = (port - win.risk_free)[:, None]
-    dimson = np.concatenate([dimson_beta(port_ex, x, settings.dimson_lags, settings.min_obs),
-                             dimson_beta(y, x, settings.dimson_lags, settings.min_obs, prep)])
-    sw = np.concatenate([scholes_williams_beta(port_ex, x, settings.min_obs),
-                         scholes_williams_beta(y, x, settings.min_obs)])
     p_up, p_down = up_down_betas(port_ex, x, settings.min_obs)
 
     line_cs = cross_sectional_test(fits.mean_excess[ok], fits.beta[ok],
@@ -508,6 +502,12 @@ def analyse(inputs: ValidInputs, settings: Settings,
 
     release_free_memory()      # the window's temporaries, before the whole history's
     hist = build_window(inputs, settings, periods=0)
+    pre = hist.market_excess[:len(hist.dates) - win.n_periods]   # the market before the window
+    dimson = np.concatenate([
+        dimson_beta(port_ex, x, settings.dimson_lags, settings.min_obs, before=pre),
+        dimson_beta(y, x, settings.dimson_lags, settings.min_obs, prep, before=pre)])
+    sw = np.concatenate([scholes_williams_beta(port_ex, x, settings.min_obs, pre),
+                         scholes_williams_beta(y, x, settings.min_obs, pre)])
     rolling = rolling_betas(hist.excess_returns, hist.market_excess, settings.rolling_window)
     hist_raw = portfolio_returns(hist.returns, weights)
     if portfolio is not None:
@@ -548,7 +548,7 @@ def analyse(inputs: ValidInputs, settings: Settings,
     sec["beta_differs_from_1"] = np.where(ok, (beta_lo > 1) | (beta_hi < 1), False)
     sec["alpha_differs_from_0"] = np.where(ok, (alpha_lo > 0) | (alpha_hi < 0), False)
     sec["beta_blume"] = blume_beta(fits.beta, settings.blume_intercept, settings.blume_slope)
-    sec["beta_vasicek"] = vasicek_beta(fits.beta, fits.beta_se)
+    sec["beta_vasicek"] = vasicek_beta(fits.beta, b_se, settings.vasicek_prior)
     sec["beta_up"] = np.where(ok, beta_up, np.nan)
     sec["beta_down"] = np.where(ok, beta_down, np.nan)
     sec["beta_dimson"] = np.where(ok, dimson[1:], np.nan)
@@ -568,7 +568,7 @@ def analyse(inputs: ValidInputs, settings: Settings,
         "beta_dimson": float(dimson[0]), "beta_scholes_williams": float(sw[0]),
         "beta_blume": float(blume_beta(pfit.beta, settings.blume_intercept,
                                        settings.blume_slope)),
-        "dimson_lags": settings.dimson_lags,
+        "dimson_lags": settings.dimson_lags, **vasicek_summary(fits.beta, b_se, settings),
     }
     return PackResults(
         window=win, fits=fits, sml=sml, portfolio_series=port, portfolio_fit=pfit,

@@ -218,9 +218,10 @@ def performance(dates: np.ndarray, port: np.ndarray, market: np.ndarray,
                 benchmark: np.ndarray | None = None) -> PerformanceRatios:
     """The ratios of :class:`PerformanceRatios` from aligned per-period series over the window.
 
-    ``mar`` is a fixed annual minimum acceptable return (decimal), applied as mar / P per
-    period; None uses the risk-free rate of each period. Periods where the portfolio has no
-    return are left out. Sharpe ratio = mean(r_p - r_f) / sd(r_p - r_f), ddof = 1.
+    ``mar`` is a fixed annual minimum acceptable return (decimal), applied per period as the
+    geometric rate (1 + mar)^(1/P) - 1, which compounds to it over a year; None uses the
+    risk-free rate of each period. Periods where the portfolio has no return are left out.
+    Sharpe ratio = mean(r_p - r_f) / sd(r_p - r_f), ddof = 1.
     """
     P = periods_per_year
     ok = np.isfinite(port)
@@ -233,7 +234,7 @@ def performance(dates: np.ndarray, port: np.ndarray, market: np.ndarray,
     eta = lo_scale(np.concatenate([rho, np.zeros(max(0, P - 1 - len(rho)))]), P)
     m_ex = m - f
     m2 = float(f.mean() + sr * np.std(m_ex, ddof=1))
-    floor = f if mar is None else np.full(n, mar / P)
+    floor = f if mar is None else np.full(n, (1.0 + mar) ** (1.0 / P) - 1.0)
     shortfall = np.minimum(p - floor, 0.0)
     dd_dev = float(np.sqrt(np.mean(shortfall**2)))
     dd = max_drawdown(p)

@@ -312,18 +312,49 @@ def blume_beta(beta: np.ndarray, intercept: float = 0.33, slope: float = 0.67) -
     return intercept + slope * np.asarray(beta, float)
 
 
-def vasicek_beta(beta: np.ndarray, beta_se: np.ndarray) -> np.ndarray:
-    """Vasicek (1973) Bayesian shrinkage toward the cross-section of the holdings' betas.
+VASICEK_FLOOR_SHARE = 0.1   # prior variance >= this share of the betas' spread (our choice)
 
-    (m/v + b/s^2) / (1/v + 1/s^2), with m and v the cross-sectional mean and variance
-    (ddof=1) of the fitted OLS betas, b a holding's OLS beta and s its OLS standard error.
-    """
+
+def vasicek_prior(beta: np.ndarray, beta_se: np.ndarray,
+                  prior: str = "holdings") -> tuple[float, float]:
+    """The prior (mean m, variance v) of Vasicek (1973) from the holdings' estimates.
+
+    ``prior="holdings"``: m is the cross-sectional mean of the fitted betas and the spread
+    d = their sample variance (ddof = 1); ``"market"``: m = 1, the market's beta, and
+    d = mean((b - 1)^2). The prior's variance is that of the *true* betas, so the sampling
+    noise is taken out: v = d - mean(s^2), with s each holding's standard error. It is
+    floored at VASICEK_FLOOR_SHARE x d (a tenth of the observed spread; our choice, no
+    source), since noise can exceed the whole spread in a short window. NaN when fewer than
+    two holdings are fitted."""
     b = np.asarray(beta, float)
     s2 = np.asarray(beta_se, float) ** 2
     ok = np.isfinite(b) & np.isfinite(s2)
     if ok.sum() < 2:
+        return float("nan"), float("nan")
+    if prior == "market":
+        m, spread = 1.0, float(np.mean((b[ok] - 1.0) ** 2))
+    else:
+        m, spread = float(b[ok].mean()), float(b[ok].var(ddof=1))
+    return m, max(spread - float(s2[ok].mean()), VASICEK_FLOOR_SHARE * spread)
+
+
+def vasicek_summary(beta: np.ndarray, beta_se: np.ndarray, settings) -> dict:
+    """The prior behind ``beta_vasicek`` for ``results/portfolio.json``, from the holdings'
+    betas and the errors the pack uses (``settings.vasicek_prior`` names the prior)."""
+    m, v = vasicek_prior(beta, beta_se, settings.vasicek_prior)
+    return {"vasicek_prior": settings.vasicek_prior, "vasicek_prior_mean": m,
+            "vasicek_prior_variance": v}
+
+
+def vasicek_beta(beta: np.ndarray, beta_se: np.ndarray, prior: str = "holdings") -> np.ndarray:
+    """Vasicek (1973) Bayesian shrinkage: (m/v + b/s^2) / (1/v + 1/s^2), with b a holding's
+    beta, s its standard error (the errors the pack uses: Newey-West by default) and the
+    prior (m, v) from :func:`vasicek_prior`."""
+    b = np.asarray(beta, float)
+    s2 = np.asarray(beta_se, float) ** 2
+    m, v = vasicek_prior(b, beta_se, prior)
+    if not np.isfinite(v):
         return np.full_like(b, np.nan)
-    m, v = float(b[ok].mean()), float(b[ok].var(ddof=1))
     with np.errstate(invalid="ignore", divide="ignore"):
         return (m / v + b / s2) / (1.0 / v + 1.0 / s2)
 
@@ -396,26 +427,42 @@ def shift(x: np.ndarray, k: int) -> np.ndarray:
     return out
 
 
+def with_before(x: np.ndarray, before: np.ndarray | None, k: int) -> np.ndarray:
+    """x lagged k periods (out[t] = x[t - k]) where the first k values come from the last
+    values of ``before`` (the series just before the window; NaN where it has none). k < 0 is
+    a lead, NaN at the window's end: nothing after the window is used."""
+    if k <= 0 or before is None:
+        return shift(x, k)
+    pre = np.asarray(before, float)[-k:]
+    return shift(np.concatenate([np.full(k - len(pre), np.nan), pre, x]), k)[k:]
+
+
 def dimson_beta(y: np.ndarray, x: np.ndarray, lags: int, min_obs: int,
-                prep: Prepared | None = None) -> np.ndarray:
+                prep: Prepared | None = None, before: np.ndarray | None = None) -> np.ndarray:
     """Dimson (1979) beta: the sum of the slopes in one OLS of y on the market's excess
-    return at lags -k..+k (with an intercept); periods without every lag are dropped."""
+    return at lags -k..+k (with an intercept). The lags of the window's first periods come
+    from ``before`` (the market's excess returns just before the window) where given; other
+    periods without every lag are dropped."""
     x = np.asarray(x, float)
-    cols = [np.ones_like(x)] + [shift(x, k) for k in range(-lags, lags + 1)]
+    cols = [np.ones_like(x)] + [with_before(x, before, k) for k in range(-lags, lags + 1)]
     coef, _, _ = masked_ols(y, np.column_stack(cols), min_obs, prep or Prepared.of(y, x))
     return coef[:, 1:].sum(axis=1)
 
 
-def scholes_williams_beta(y: np.ndarray, x: np.ndarray, min_obs: int) -> np.ndarray:
+def scholes_williams_beta(y: np.ndarray, x: np.ndarray, min_obs: int,
+                          before: np.ndarray | None = None) -> np.ndarray:
     """Scholes and Williams (1977) beta: (b_-1 + b_0 + b_+1) / (1 + 2 rho_m), where b_j is the
-    simple-regression slope of y_t on x_{t+j} and rho_m the market's first-order
-    autocorrelation, all on the periods where y_t, x_{t-1}, x_t and x_{t+1} all exist."""
-    lag, lead = shift(x, 1), shift(x, -1)
+    simple-regression slope of y_t on x_{t+j}, on the periods where y_t, x_{t-1}, x_t and
+    x_{t+1} all exist (x_{t-1} of the first period from ``before`` where given), and rho_m
+    the market's first-order autocorrelation over every pair of consecutive periods of the
+    window."""
+    x = np.asarray(x, float)
+    lag, lead = with_before(x, before, 1), shift(x, -1)
     common = np.isfinite(lag) & np.isfinite(lead) & np.isfinite(x)
     yy = np.where(common[:, None], y, np.nan)
     b = [fit_market_model(yy, np.where(common, z, np.nan), min_obs).beta for z in (lag, x, lead)]
-    ok = common
-    rho = float(np.corrcoef(x[ok][1:], x[ok][:-1])[0, 1]) if ok.sum() > 3 else np.nan
+    pair = np.isfinite(x[1:]) & np.isfinite(x[:-1])
+    rho = float(np.corrcoef(x[1:][pair], x[:-1][pair])[0, 1]) if pair.sum() > 2 else np.nan
     return (b[0] + b[1] + b[2]) / (1.0 + 2.0 * rho)
 
 

@@ -103,6 +103,9 @@ class LineTest:
     premium: float               # the realised mean market premium over the same periods
     slope_gap_t: float           # t-statistic of slope - premium
     intercept_t: float
+    # Shanken (1992) errors-in-variables corrected standard errors (Fama-MacBeth only)
+    intercept_se_shanken: float = float("nan")
+    slope_se_shanken: float = float("nan")
 
     @property
     def slope_t(self) -> float:
@@ -142,7 +145,13 @@ def fama_macbeth(excess: np.ndarray, beta: np.ndarray, market_excess: np.ndarray
     intercepts, with standard errors sd(gamma_t)/sqrt(T) (ddof = 1). The slope is compared
     with the market premium through the mean of gamma1_t - (r_m,t - r_f,t) and its standard
     error. Vectorised over periods with masked sums; periods with fewer than ``min_assets``
-    holdings are dropped. Returns the test and the T x 2 period estimates (NaN if dropped)."""
+    holdings are dropped. Returns the test and the T x 2 period estimates (NaN if dropped).
+
+    The betas are estimated, so the plain errors are too small; beside them the Shanken
+    (1992) corrected errors: se(g0)^2 (1 + c) for the intercept and se(g1)^2 (1 + c) + s_m^2/T
+    for the slope, with c = g1^2 / s_m^2 and s_m^2 the variance (ddof = 1) of the market's
+    excess return over the same periods (Shanken 1992, Theorem 1; Cochrane, *Asset Pricing*,
+    ch. 12)."""
     b = np.asarray(beta, dtype=float)
     use = np.isfinite(b)
     y = excess[:, use]
@@ -167,10 +176,14 @@ def fama_macbeth(excess: np.ndarray, beta: np.ndarray, market_excess: np.ndarray
     gap = g1[keep] - market_excess[keep]
     s0 = float(np.std(g0[keep], ddof=1) / root)
     s1 = float(np.std(g1[keep], ddof=1) / root)
+    slope = float(g1[keep].mean())
+    var_m = float(np.var(market_excess[keep], ddof=1))
+    c = slope * slope / var_m if var_m > 0 else float("nan")
     test = LineTest("Fama-MacBeth", int(use.sum()), T, float(g0[keep].mean()), s0,
-                    float(g1[keep].mean()), s1, float(market_excess[keep].mean()),
+                    slope, s1, float(market_excess[keep].mean()),
                     float(gap.mean() / (np.std(gap, ddof=1) / root)),
-                    float(g0[keep].mean()) / s0)
+                    float(g0[keep].mean()) / s0, float(s0 * np.sqrt(1.0 + c)),
+                    float(np.sqrt(s1 * s1 * (1.0 + c) + var_m / T)))
     return test, g
 
 
@@ -184,8 +197,8 @@ class GRSTest:
     n_assets: int
     n_periods: int
     f_stat: float
-    df_num: int
-    df_den: int
+    df_num: int | None          # None (null in JSON) where the test does not apply
+    df_den: int | None
     p_value: float
 
 
@@ -202,10 +215,11 @@ def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdi
     T, N = y.shape
     nan = float("nan")
     if N == 0:
-        return GRSTest(False, "no assets with a complete history", assets, 0, T, nan, 0, 0, nan)
+        return GRSTest(False, "no assets with a complete history", assets, 0, T, nan, None,
+                       None, nan)
     if not (T > N + 1):
         return GRSTest(False, f"needs more periods than assets plus one (T = {T}, N = {N})",
-                       assets, N, T, nan, N, T - N - 1, nan)
+                       assets, N, T, nan, None, None, nan)
     X = np.column_stack([np.ones(T), x])
     coef, *_ = np.linalg.lstsq(X, y, rcond=None)
     e = y - X @ coef
