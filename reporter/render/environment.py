@@ -145,6 +145,19 @@ class PackSandbox(ImmutableSandboxedEnvironment):
             return False
         return super().is_safe_attribute(obj, attr, value)
 
+    def get_template(self, name, parent=None, globals=None):
+        """The template ``name``; a syntax error in it becomes an
+        :class:`~reporter.errors.InputError` naming the template and line, and so does any
+        other failure to load it at the top (``parent`` None). Under an ``include`` or
+        ``extends`` (``parent`` given) the error goes on to the render, whose traceback
+        holds the including template's line."""
+        try:
+            return super().get_template(name, parent, globals)
+        except TemplateError as exc:
+            if parent is None or isinstance(exc, TemplateSyntaxError):
+                raise template_error(exc, self) from None
+            raise
+
 
 class CheckedTemplate(Template):
     """A template whose top-level render maps template errors to an
@@ -179,8 +192,10 @@ def template_error(exc: BaseException, env: Environment) -> InputError:
     if isinstance(exc, TemplateSyntaxError) and exc.lineno:
         where = _template_place(exc.filename, exc.lineno, env, exc.name)
     if where is None:
-        for frame in reversed(traceback.extract_tb(exc.__traceback__)):
-            where = _template_place(frame.filename, frame.lineno, env)
+        # the innermost frame that is a template's (Jinja gives template frames the
+        # template's file name and line); read from the frames, no source file opened
+        for frame, line in reversed(list(traceback.walk_tb(exc.__traceback__))):
+            where = _template_place(frame.f_code.co_filename, line, env)
             if where is not None:
                 break
     if isinstance(exc, TemplateNotFound):
