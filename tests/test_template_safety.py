@@ -132,7 +132,8 @@ def test_globals_escape_is_refused(case, tmp_path, monkeypatch, capsys):
 
 
 def test_numpy_and_path_attributes_are_out_of_reach(tmp_path):
-    env = make_environment()
+    (tmp_path / "tpl").mkdir()
+    env = make_environment(tmp_path / "tpl")
     target = tmp_path / "written.bin"
     for tpl, value in (("{{ x.tofile(p) }}", np.float64(1.5)),
                        ("{{ x.write_text('x') }}", target),

@@ -7,8 +7,8 @@ string from an input file is escaped in HTML.
 
 A user template is untrusted (it comes from a pack folder), so every template runs in Jinja's
 immutable sandbox (no ``_`` attributes such as ``cycler.__init__.__globals__``, no changing
-of lists or dicts), with no attribute of a numpy, pandas, path, file or module object
-(``x.tofile(...)`` would write a file); the loaders never follow a link out of their
+of lists or dicts), and, with user templates, no attribute of a numpy, pandas, path, file or
+module object (``x.tofile(...)`` would write a file); the loaders never follow a link out of their
 folder; and, when user templates are in use, the rendered HTML is checked by
 :func:`reporter.render.safety.check_html`. A template error becomes an
 :class:`~reporter.errors.InputError` naming the template and line (:func:`template_error`).
@@ -135,14 +135,18 @@ _UNSAFE_MODULES = ("numpy", "pandas", "pathlib", "os", "io", "posix", "altair", 
 
 
 class PackSandbox(ImmutableSandboxedEnvironment):
-    """Jinja's immutable sandbox, with no attribute of a numpy, pandas, path, file or module
-    object reachable either."""
+    """Jinja's immutable sandbox. With user templates (``user_templates`` set), no attribute
+    of a numpy, pandas, path, file or module object is reachable either. (The packaged
+    site templates, which never run beside user templates, read pandas tables.)"""
+
+    user_templates: Path | None = None
 
     def is_safe_attribute(self, obj, attr: str, value) -> bool:
-        kind = type(obj)
-        module = kind.__module__ or ""
-        if module.split(".")[0] in _UNSAFE_MODULES or kind.__name__ == "module":
-            return False
+        if self.user_templates is not None:
+            kind = type(obj)
+            module = kind.__module__ or ""
+            if module.split(".")[0] in _UNSAFE_MODULES or kind.__name__ == "module":
+                return False
         return super().is_safe_attribute(obj, attr, value)
 
     def get_template(self, name, parent=None, globals=None):
@@ -167,7 +171,7 @@ class CheckedTemplate(Template):
 
     def render(self, *args, **kwargs) -> str:
         env = self.environment
-        user = getattr(env, "user_templates", None)
+        user = env.user_templates
         try:
             html = super().render(*args, **kwargs)
         except (TemplateError, RecursionError) as exc:
