@@ -89,6 +89,9 @@ def test_build_with_a_remote_resource_in_its_template_fails_clearly(tmp_path, no
     code = main(["build", str(pack), "--out", str(out), "--quiet"])
     err = capsys.readouterr().err
     assert code == 2
-    assert "pack.pdf: refused to fetch 'https://cdn.example.net/crest.png'" in err
+    # the rendered HTML is checked before the PDF is drawn (reporter.render.safety); the
+    # fetcher above stays as the second line for anything that reaches WeasyPrint
+    assert "templates/pack.html.j2: refused remote reference " \
+        "'https://cdn.example.net/crest.png'" in err
     assert "Traceback" not in err and "nothing was written" in err
     assert not out.exists()
