@@ -93,8 +93,7 @@ class OutputSet:
                 fh.flush()
                 os.fsync(fh.fileno())
         except OSError as exc:          # a full disk: the build stops, cleanly
-            raise WriteFailed(f"{dest}: cannot write ({exc.strerror or exc}); the output "
-                              "folder was left as it was") from None
+            raise _write_failed(exc, dest) from None
         self._written[rel] = sink.digest.hexdigest()
 
     def sha256(self, rel: str) -> str:
@@ -170,12 +169,12 @@ def open_staging(target: Path, kind: str = "pack") -> Path:
 
 
 def _write_failed(exc: OSError, target: Path) -> WriteFailed:
-    """One line for an error of the machine while writing ``target``: the path, the
-    system's reason and its code (ENOSPC, EROFS, EACCES...)."""
+    """One line for an error of the machine while writing ``target``: the system's reason
+    and its code (ENOSPC, EROFS, EACCES...), and the file or folder it refused."""
     code = errno.errorcode.get(exc.errno, "") if exc.errno else ""
     reason = f"{exc.strerror or exc}{f' ({code})' if code else ''}"
-    return WriteFailed(f"{exc.filename or target}: cannot write ({reason}); {target} was "
-                       "left as it was")
+    at = f", at {exc.filename}" if exc.filename and str(exc.filename) != str(target) else ""
+    return WriteFailed(f"{target}: cannot write ({reason}{at}); nothing was replaced")
 
 
 def _host_tag() -> str:

@@ -372,6 +372,12 @@ def test_the_repositorys_site_folder_may_be_replaced_by_a_site(tmp_path):
     README and marker only; an older clone holds the one-line marker of earlier versions."""
     check_target(REPO / "site", "site")
     assert read_marker(REPO / "site").kind == "site"
+    fresh = tmp_path / "fresh" / "site"             # the two files under version control
+    fresh.mkdir(parents=True)
+    for name in ("README.md", BUILD_MARKER):
+        shutil.copy(REPO / "site" / name, fresh / name)
+    check_target(fresh, "site")
+    assert "README.md" in read_marker(fresh).files
     older = tmp_path / "site"
     older.mkdir()
     shutil.copy(REPO / "site" / "README.md", older / "README.md")
