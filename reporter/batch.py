@@ -21,6 +21,7 @@ from pathlib import Path
 
 from reporter.build import build_time
 from reporter.errors import EXIT_FAILED, InputError, OutputError, Problem, ReporterError
+from reporter.output_folder import refuse_overlap
 from reporter.writer import refuse_archive
 
 BUILT, FAILED = "built", "failed"
@@ -94,6 +95,7 @@ def build_all(schemes_dir: Path | str, out: Path | str, *, workers: int | None =
     """
     packs = discover(schemes_dir)
     out = Path(out).absolute()
+    refuse_overlap(schemes_dir, out, "folder of schemes")
     check_target_root(out)
     at = build_time()
     tasks = [(str(p.absolute()), str(out / p.name), strict, at) for p in packs]
@@ -107,7 +109,11 @@ def build_all(schemes_dir: Path | str, out: Path | str, *, workers: int | None =
 
 
 def check_target_root(out: Path) -> None:
-    """``out`` holds one build folder per scheme: refuse an archive, or a file."""
+    """``out`` holds one build folder per scheme: refuse an archive, a file, or a link (each
+    scheme's folder is checked as a single build's is)."""
+    if out.is_symlink():
+        raise OutputError(f"{out}: is a symbolic link (to {os.readlink(out)}); give the folder "
+                          "itself as --out")
     refuse_archive(out)
     if out.exists() and not out.is_dir():
         raise OutputError(f"{out}: exists and is not a folder")

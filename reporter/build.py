@@ -32,6 +32,7 @@ from reporter.jsonvalues import json_text
 from reporter.limits import LimitsReport, evaluate_limits
 from reporter.memory import release_free_memory
 from reporter.models import ValidInputs
+from reporter.output_folder import refuse_overlap
 from reporter.progress import Progress
 from reporter.render.html import export_charts, print_charts, render_html
 from reporter.render.pdf import render_pdf
@@ -258,6 +259,7 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     progress = progress or Progress(quiet=True)
     out = Path(out)
     settings = load_settings(pack)
+    refuse_overlap(settings.pack_dir, out, "pack folder")
     check_target(out)
     a = assemble(settings, strict=strict, progress=progress, at=at)
     files = finish_build(a, out, progress)

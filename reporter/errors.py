@@ -63,6 +63,13 @@ class OutputError(ReporterError):
     exit_code = EXIT_BAD_INPUT
 
 
+class WriteFailed(ReporterError):
+    """The output could not be written (a full disk, a read-only or forbidden folder): an
+    error of the machine, not of the inputs; exit code 1. The earlier output is untouched."""
+
+    exit_code = EXIT_FAILED
+
+
 class Collector:
     """Gathers problems across a whole stage, so that all are reported together."""
 

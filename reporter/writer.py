@@ -6,7 +6,12 @@ refuses paths outside the output folder and a second write to the same path; a l
 (:meth:`OutputSet.add_written`) goes straight into the staging folder (:func:`open_staging`)
 instead of memory. Then :func:`commit` writes the rest there and swaps the folder in with
 one atomic ``renameat2(RENAME_EXCHANGE)`` (Linux), falling back to two renames elsewhere.
-A build that fails, or is killed, before the swap leaves the target exactly as it was.
+A build that fails, or is killed, before the swap leaves the target exactly as it was; a
+full disk or a read-only folder is :class:`~reporter.errors.WriteFailed` (one line, exit 1).
+
+Which folders may be replaced is decided in :mod:`reporter.output_folder`: only an empty
+folder, or one whose ``.reporter-build`` marker (written here with the list of every file
+written) lists every file in it, with no archive anywhere inside, and never a link.
 """
 
 from __future__ import annotations
@@ -26,10 +31,18 @@ from collections.abc import Callable
 from pathlib import Path, PurePosixPath
 from typing import BinaryIO
 
-from reporter.errors import OutputError
+from reporter.errors import OutputError, WriteFailed
+from reporter.output_folder import (
+    ARCHIVE_MARKER,
+    BUILD_MARKER,
+    check_target,
+    marker_bytes,
+    refuse_archive,
+)
 
-BUILD_MARKER = ".reporter-build"
-ARCHIVE_MARKER = "ledger.sqlite"
+__all__ = ["ARCHIVE_MARKER", "BUILD_MARKER", "OutputSet", "check_target", "commit",
+           "open_staging", "place_in_archive", "quarantine", "refuse_archive"]
+
 _TMP_TAG = ".tmp-"
 
 
@@ -68,16 +81,19 @@ class OutputSet:
             self._files[rel] = buf.getbuffer()
             return
         dest = self.staging / rel
-        with self._lock:
-            if self.discarded:
-                raise OutputError(f"{rel}: the build was abandoned; not written")
-            dest.parent.mkdir(parents=True, exist_ok=True)
-            fh = open(dest, "wb")              # once open, discard() only unlinks it
-        with fh:
-            sink = _HashingSink(fh, self)
-            write(sink)
-            fh.flush()
-            os.fsync(fh.fileno())
+        try:
+            with self._lock:
+                if self.discarded:
+                    raise OutputError(f"{rel}: the build was abandoned; not written")
+                dest.parent.mkdir(parents=True, exist_ok=True)
+                fh = open(dest, "wb")              # once open, discard() only unlinks it
+            with fh:
+                sink = _HashingSink(fh, self)
+                write(sink)
+                fh.flush()
+                os.fsync(fh.fileno())
+        except OSError as exc:          # a full disk: the build stops, cleanly
+            raise _write_failed(exc, dest) from None
         self._written[rel] = sink.digest.hexdigest()
 
     def sha256(self, rel: str) -> str:
@@ -132,70 +148,33 @@ class _HashingSink:
         self.fh.flush()
 
 
-# What the marker file says: which kind of output the folder holds.
-MARKER_TEXT = {"pack": b"committee-pack-reporter build output\n",
-               "site": b"committee-pack-reporter site output\n"}
-KIND_NAME = {"pack": "a pack build", "site": "a trustees' site"}
-
-
-def marker_kind(folder: Path) -> str | None:
-    """The kind of output (``pack`` or ``site``) a folder's marker names; None without one.
-    Sites made before sites had a marker of their own carry the pack text: a folder with that
-    text, an ``index.html`` and no ``pack.pdf`` is taken for a site."""
-    try:
-        text = (Path(folder) / BUILD_MARKER).read_bytes()
-    except OSError:
-        return None
-    if text == MARKER_TEXT["site"]:
-        return "site"
-    legacy_site = (Path(folder) / "index.html").is_file() and not (
-        Path(folder) / "pack.pdf").exists()
-    return "site" if legacy_site else "pack"
-
-
-def check_target(target: Path, kind: str = "pack") -> None:
-    """Refuse a target that is (or is inside) an archive, an existing folder that is not an
-    earlier output of this tool, or an earlier output of the other ``kind`` (a pack build
-    never replaces a trustees' site, nor the reverse), so that nobody's files are replaced by
-    mistake."""
-    target = Path(target).absolute()
-    refuse_archive(target)
-    if target.exists():
-        if not target.is_dir():
-            raise OutputError(f"{target}: exists and is not a folder")
-        entries = [e for e in os.listdir(target)]
-        if entries and BUILD_MARKER not in entries:
-            raise OutputError(f"{target}: folder exists, is not empty and is not "
-                              f"{KIND_NAME[kind]}; refusing to replace it (choose another --out)")
-        found = marker_kind(target) if entries else None
-        if found is not None and found != kind:
-            raise OutputError(f"{target}: holds {KIND_NAME[found]}, not {KIND_NAME[kind]}; "
-                              "refusing to replace it (choose another --out)")
-
-
-def refuse_archive(target: Path) -> None:
-    """Refuse a path that is, or is inside, a sign-off archive (a folder with a ledger)."""
-    target = Path(target).absolute()
-    for folder in (target, *target.parents):
-        if (folder / ARCHIVE_MARKER).exists():
-            raise OutputError(f"{target}: refusing to write into the archive at {folder}; "
-                              "signed packs are never overwritten")
-
-
 def open_staging(target: Path, kind: str = "pack") -> Path:
     """Check ``target`` (see :func:`check_target`) and make the temporary folder beside it
     into which a build is written before :func:`commit` swaps it in. It is named with this
     machine's name, this process's id and a random token (``.NAME.tmp-HOST-PID-TOKEN``), so
     that a later build on the same machine can clear it away if this one is killed, and a
     build on another machine sharing the folder (a cluster's workers) never takes it for
-    its own or judges it by a process id that means nothing there."""
+    its own or judges it by a process id that means nothing there. A folder that cannot be
+    made (read-only, forbidden, full) is :class:`WriteFailed`."""
     target = Path(target).absolute()
     check_target(target, kind)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    _remove_stale_temps(target)
-    tmp = target.parent / f"{_own_staging_prefix(target)}{secrets.token_hex(4)}"
-    tmp.mkdir()
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        _remove_stale_temps(target)
+        tmp = target.parent / f"{_own_staging_prefix(target)}{secrets.token_hex(4)}"
+        tmp.mkdir()
+    except OSError as exc:
+        raise _write_failed(exc, target) from None
     return tmp
+
+
+def _write_failed(exc: OSError, target: Path) -> WriteFailed:
+    """One line for an error of the machine while writing ``target``: the system's reason
+    and its code (ENOSPC, EROFS, EACCES...), and the file or folder it refused."""
+    code = errno.errorcode.get(exc.errno, "") if exc.errno else ""
+    reason = f"{exc.strerror or exc}{f' ({code})' if code else ''}"
+    at = f", at {exc.filename}" if exc.filename and str(exc.filename) != str(target) else ""
+    return WriteFailed(f"{target}: cannot write ({reason}{at}); nothing was replaced")
 
 
 def _host_tag() -> str:
@@ -223,14 +202,11 @@ def commit(files: OutputSet, target: Path, kind: str = "pack") -> None:
     else:
         tmp = open_staging(target, kind)
     try:
-        (tmp / BUILD_MARKER).write_bytes(MARKER_TEXT[kind])
+        _write_new(tmp / BUILD_MARKER, marker_bytes(kind, files.paths))
         for rel in files.in_memory:
             dest = tmp / rel
             dest.parent.mkdir(parents=True, exist_ok=True)
-            with open(dest, "wb") as fh:
-                fh.write(files[rel])
-                fh.flush()
-                os.fsync(fh.fileno())
+            _write_new(dest, files[rel])
         if target.exists():
             if not _exchange(tmp, target):
                 old = target.parent / f".{target.name}.old-{os.getpid()}"
@@ -241,14 +217,28 @@ def commit(files: OutputSet, target: Path, kind: str = "pack") -> None:
                     os.rename(old, target)      # put the earlier output back
                     raise
                 tmp = old
-            shutil.rmtree(tmp)
         else:
             os.rename(tmp, target)
-        _fsync_dir(target.parent)
-    except BaseException:
-        if tmp.exists() and tmp != target:
-            shutil.rmtree(tmp, ignore_errors=True)
+    except BaseException as exc:
+        shutil.rmtree(tmp, ignore_errors=True)
+        if isinstance(exc, OSError):
+            raise _write_failed(exc, target) from None
         raise
+    # the new output is in place: what follows cannot undo that
+    if tmp.exists():
+        shutil.rmtree(tmp, ignore_errors=True)      # the earlier output, now swapped out
+    try:
+        _fsync_dir(target.parent)
+    except OSError:
+        pass
+
+
+def _write_new(dest: Path, data: bytes | memoryview) -> None:
+    """Write ``data`` to the new file ``dest`` and flush it to disk."""
+    with open(dest, "wb") as fh:
+        fh.write(data)
+        fh.flush()
+        os.fsync(fh.fileno())
 
 
 def _exchange(a: Path, b: Path) -> bool:

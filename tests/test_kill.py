@@ -127,6 +127,7 @@ def test_refuses_a_folder_that_is_not_a_build(tmp_path, capsys):
     assert code == 2
     assert "Traceback" not in err
     assert err.splitlines() == [f"reporter: {out}: folder exists, is not empty and is not a "
-                                "pack build; refusing to replace it (choose another --out)"]
+                                "pack build; refusing to replace it (choose another --out); "
+                                "in the way: minutes.txt"]
     assert tree(out) == before
     assert leftovers(out) == []

@@ -309,9 +309,15 @@ def test_existing_site_is_replaced_whole_and_other_folders_are_refused(site_arch
                                                                        capsys):
     out = tmp_path / "site"
     assert run_cli(capsys, "site", "--archive", site_archive, "--out", out, "--quiet")[0] == 0
+    # a file the site did not write is never deleted: the rebuild is refused, naming it
     (out / "stray.txt").write_text("left from before")
+    code, _, err = run_cli(capsys, "site", "--archive", site_archive, "--out", out, "--quiet")
+    assert code == 2 and "this tool did not write there (stray.txt)" in err
+    assert (out / "stray.txt").read_text() == "left from before"
+    (out / "stray.txt").unlink()
+    (out / "index.html").write_text("an old index")       # a file the site wrote: replaced
     assert run_cli(capsys, "site", "--archive", site_archive, "--out", out, "--quiet")[0] == 0
-    assert not (out / "stray.txt").exists() and (out / "index.html").is_file()
+    assert (out / "index.html").read_text() != "an old index"
     papers = tmp_path / "papers"
     papers.mkdir()
     (papers / "minutes.docx").write_bytes(b"x")

@@ -14,7 +14,7 @@ import pytest
 
 import reporter.build as build
 from reporter.config import load_settings
-from reporter.errors import OutputError
+from reporter.errors import OutputError, WriteFailed
 from reporter.progress import Progress
 from reporter.writer import BUILD_MARKER, OutputSet, commit, open_staging
 from tests.conftest import DEMO
@@ -161,7 +161,7 @@ def test_without_an_atomic_exchange_a_failed_rename_puts_the_earlier_output_back
     monkeypatch.setattr(writer.os, "rename", rename)
     second = OutputSet()
     second.add("a.txt", "later")
-    with pytest.raises(OSError, match="simulated"):
+    with pytest.raises(WriteFailed, match="simulated failure"):
         commit(second, out)
     monkeypatch.setattr(writer.os, "rename", real_rename)
     assert tree(out) == before
