@@ -57,12 +57,12 @@ def period_returns(dates: np.ndarray, portfolio: np.ndarray, market: np.ndarray,
 
     ``dates`` are the market's period dates up to ``period_end`` (ascending), ``portfolio`` and
     ``market`` the per-period decimal returns on them; the history starts at the portfolio's
-    first return. Trailing periods are calendar periods of ``period_end``: a trailing period of
-    k months holds the periods dated after ``period_end`` less k months (for monthly data, the
-    months after that date's month), and the year to date the periods dated in
-    ``period_end``'s calendar year, as the calendar-year rows count them. A weekly period is
-    placed by its own date, not by the week that the boundary falls in. A trailing period is
-    reported only when the history covers all of it. Under a year the return is cumulative
+    first return. Trailing periods are calendar periods of ``period_end``: the year to date
+    holds the periods dated in ``period_end``'s calendar year, as the calendar-year rows count
+    them; a trailing period of k months holds the periods (months, ISO weeks or days) after
+    the one containing ``period_end`` less k months (one year of weekly data is 52 or 53
+    weeks). A trailing period is reported only when the history covers all of it. Under a
+    year the return is cumulative
     (``basis = "cumulative"``); at a year or more it is annualised geometrically,
     (1 + R)^(P/n) - 1 (``basis = "annualised"``), as GIPS requires.
     ``difference`` is portfolio minus market (arithmetic). Calendar years are
@@ -107,10 +107,11 @@ def period_returns(dates: np.ndarray, portfolio: np.ndarray, market: np.ndarray,
             skey = period_keys(np.array([np.datetime64(start, "D")]), frequency)[0]
             if keys[0] > skey + slack:
                 continue            # the history does not cover the whole period
-            # monthly: the months after the boundary's month; weekly and daily: the periods
-            # dated after the boundary (a week ending 2 January is in the new year)
-            idx = np.flatnonzero(keys > skey if frequency == "monthly"
-                                 else d > np.datetime64(start, "D"))
+            # the year to date is the periods dated in period_end's year, as the calendar
+            # rows count them (a week ending 2 January is in the new year even though its
+            # ISO week began in December); k months: the periods after the boundary's period
+            idx = np.flatnonzero(d.astype("datetime64[Y]").astype(int) + 1970
+                                 == period_end.year if months == 0 else keys > skey)
             years = months / 12
         if len(idx) == 0 or not np.isfinite(portfolio[idx]).all():
             continue
