@@ -97,8 +97,6 @@ class PackContext:
     dimson_lags: int
     show_thin_trading: bool          # daily or weekly data
     beta_not_one: list[dict]         # the largest BETA_LIST_MAX whose beta interval excludes 1
-    curve_90: int                    # holdings at which 90% of diversifiable variance is gone
-    curve_95: int
     charts: dict[str, alt.TopLevelMixin] = field(repr=False)
     sections: tuple[Section, ...] = SECTIONS
     cautions: tuple[str, ...] = CAUTIONS
@@ -126,13 +124,6 @@ def _records(df) -> list[dict]:
             for r in df.to_dict(orient="records")]
 
 
-def _holdings_to_remove(res: PackResults, share: float) -> int:
-    """Smallest n at which an equal-weight portfolio has removed ``share`` of the
-    diversifiable variance: 1 - 1/n >= share."""
-    n = np.arange(1, 10_000)
-    return int(n[np.argmax(res.curve.diversifiable_removed(n) >= share - 1e-12)])
-
-
 def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
                   charts: dict[str, alt.TopLevelMixin], fingerprint: str,
                   build_time: dt.datetime, *, limits: LimitsReport | None = None,
@@ -144,8 +135,7 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
                   if s.anchor != "changes" or changes is not None or compare_note)
     sec = res.securities.copy()
     # the alpha t-statistic from the errors behind the pack's intervals and SML positions
-    se_used = sec["alpha_se_hac"] if settings.errors == "hac" else sec["alpha_se"]
-    sec["alpha_t_used"] = sec["alpha"] / se_used
+    sec["alpha_t_used"] = sec["alpha_t"]
     by_weight = sec.sort_values(["weight", "security_id"], ascending=[False, True],
                                 kind="stable")
     fitted = sec[sec["status"] == "fitted"]
@@ -182,7 +172,6 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
                               .head(BETA_LIST_MAX)),
         beta_not_one_total=int(by_weight["beta_differs_from_1"].astype(bool).sum()),
         compact_appendix=len(by_weight) > COMPACT_APPENDIX_FROM,
-        curve_90=_holdings_to_remove(res, 0.90), curve_95=_holdings_to_remove(res, 0.95),
         charts=charts,
         limits=limits,
         holding_limit_status=limits.holding_status() if limits else {},

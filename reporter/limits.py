@@ -211,8 +211,9 @@ def evaluate_limits(cfg: LimitsSection, res: PackResults) -> LimitsReport:
 
     Figures used: portfolio beta is the regression beta (``beta_regression``); holding
     weights are absolute weights |w|; sector weights are net sums of weights; effective N
-    is 1/sum(w^2); tracking error is sd(r_p - r_m) x sqrt(P); the specific share is
-    1 - the single-index systematic share.
+    is 1/sum(w^2); tracking error is sd(r_p - r_b) x sqrt(P) against the benchmark when the
+    pack has one, else sd(r_p - r_m) x sqrt(P) (``tracking_error_ann``); the specific share is
+    1 - R^2 of the portfolio's own regression on the market (``idiosyncratic_share``).
     """
     m = cfg.watch_margin
     p = res.portfolio_summary()

@@ -91,8 +91,10 @@ def constructed(tmp_path_factory):
         "min_effective_n": 1 / np.sum(WEIGHTS**2),     # inverse Herfindahl
         "min_holdings": 6.0,
         "max_tracking_error_ann": np.std(rp - m, ddof=1) * np.sqrt(12),
-        # single-index split (Sharpe 1963)
-        "max_idiosyncratic_share": idio / (sys_var + idio),
+        # 1 - R^2 of the portfolio's own regression (statsmodels OLS)
+        "max_idiosyncratic_share": 1 - port.rsquared,
+        # the single-index split (Sharpe 1963), kept beside it
+        "idiosyncratic_share_if_uncorrelated": idio / (sys_var + idio),
         "mean_excess": np.mean(rp - f),
         "market_excess": m - f, "portfolio_excess": rp - f,
     }
@@ -131,6 +133,15 @@ def test_each_limit_at_each_status(constructed, key, kind, ref_key, status):
     assert check.threshold == pytest.approx(threshold)
     assert check.status == status
     assert [c.limit for c in report.exceptions] == ([] if status == WITHIN else [key])
+
+
+def test_specific_share_counts_correlated_residuals(constructed):
+    # the limit checks 1 - R^2; the diagonal model's figure is kept for comparison
+    res, ref = constructed
+    p = res.portfolio_summary()
+    np.testing.assert_allclose(p["idiosyncratic_share_if_uncorrelated"],
+                               ref["idiosyncratic_share_if_uncorrelated"], rtol=1e-9)
+    assert p["systematic_share"] + p["idiosyncratic_share"] == pytest.approx(1.0, abs=1e-15)
 
 
 @pytest.mark.parametrize("limit,status", [(5, WITHIN), (6, WATCH), (7, BREACH)])

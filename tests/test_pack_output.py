@@ -65,6 +65,36 @@ def test_portfolio_json_keys(demo_build):
     assert p["beta_ci_low"] < p["beta_regression"] < p["beta_ci_high"]
 
 
+def test_every_t_statistic_matches_the_standard_error_beside_it(demo_build):
+    # t = estimate / se for every pair, in both files; the unqualified pair is under the
+    # pack's errors (HAC by default), and the explicit _ols and _hac pairs name theirs
+    # (definition of the t-statistic; no outside figure needed)
+    sec = pd.read_csv(demo_build / "results/securities.csv")
+    p = json.loads((demo_build / "results/portfolio.json").read_text())
+    assert p["errors"] == "hac"
+    fitted = sec[sec["status"] == "fitted"]
+    for est in ("alpha", "beta"):
+        for tag in ("", "_ols", "_hac"):
+            np.testing.assert_allclose(fitted[f"{est}_t{tag}"],
+                                       fitted[est] / fitted[f"{est}_se{tag}"], rtol=1e-9)
+            want = p["beta_regression" if est == "beta" else "alpha"] / p[f"{est}_se{tag}"]
+            assert p[f"{est}_t{tag}"] == pytest.approx(want, rel=1e-12), (est, tag)
+        np.testing.assert_allclose(fitted[f"{est}_se"], fitted[f"{est}_se_hac"], rtol=1e-12)
+        assert p[f"{est}_se"] == p[f"{est}_se_hac"]
+        assert not np.allclose(fitted[f"{est}_se_ols"], fitted[f"{est}_se_hac"])
+    # alpha_p: two-sided, Student's t with n - 2 df under the same errors (scipy)
+    from scipy import stats
+
+    np.testing.assert_allclose(
+        fitted["alpha_p"], 2 * stats.t.sf(np.abs(fitted["alpha_t"]), fitted["n_obs"] - 2),
+        rtol=0, atol=1e-9)                      # the file holds 10 decimal places
+    # the SML counts: flagged = p below 1 - confidence; by chance = n x (1 - confidence)
+    assert p["sml_n_flagged"] == int((fitted["alpha_p"] < 0.05).sum()) == int(
+        fitted["sml_position"].isin(["above the line", "below the line"]).sum())
+    assert p["sml_n_expected_by_chance"] == pytest.approx(0.05 * len(fitted))
+    assert p["sml_n_flagged_fdr"] <= p["sml_n_flagged"]
+
+
 def _compare_csv(got: pd.DataFrame, want: pd.DataFrame) -> None:
     assert list(got.columns) == list(want.columns)
     for col in want.columns:

@@ -81,9 +81,23 @@ def test_pack_figures_match_statsmodels(tmp_path, french, window):
             continue
         ref = sm.OLS(y[ok], sm.add_constant(x[ok])).fit()
         np.testing.assert_allclose(
-            row[["alpha", "beta", "alpha_se", "beta_se", "r_squared"]].to_numpy(dtype=float),
-            [ref.params[0], ref.params[1], ref.bse[0], ref.bse[1], ref.rsquared],
+            row[["alpha", "beta", "alpha_se_ols", "beta_se_ols", "alpha_t_ols", "beta_t_ols",
+                 "r_squared"]].to_numpy(dtype=float),
+            [ref.params[0], ref.params[1], ref.bse[0], ref.bse[1], ref.tvalues[0],
+             ref.tvalues[1], ref.rsquared],
             rtol=1e-8, atol=1e-13, err_msg=sid)
+        # statsmodels OLS, HAC with the lag pinned to the pack's rule and the T/(T-2)
+        # correction; use_t gives Student's t with n - 2 df for the p-value
+        lags = int(np.floor(4 * (ok.sum() / 100) ** (2 / 9)))
+        hac = sm.OLS(y[ok], sm.add_constant(x[ok])).fit(
+            cov_type="HAC", cov_kwds={"maxlags": lags, "use_correction": True}, use_t=True)
+        # the unqualified se, t and p are under the default errors, HAC
+        np.testing.assert_allclose(
+            row[["alpha_se_hac", "beta_se_hac", "alpha_t_hac", "beta_t_hac", "alpha_se",
+                 "alpha_t", "beta_se", "beta_t", "alpha_p"]].to_numpy(dtype=float),
+            [hac.bse[0], hac.bse[1], hac.tvalues[0], hac.tvalues[1], hac.bse[0],
+             hac.tvalues[0], hac.bse[1], hac.tvalues[1], hac.pvalues[0]],
+            rtol=1e-7, err_msg=sid)
     summary = res.portfolio_summary()
     assert summary["n_periods"] == window
     assert summary["window_end"] == df["date"].iloc[-1]
@@ -91,3 +105,48 @@ def test_pack_figures_match_statsmodels(tmp_path, french, window):
     np.testing.assert_allclose(summary["mean_market_premium"], win["MktRF"].mean(), rtol=1e-12)
     # the Hlth holding has only 20 periods: it is reported, not fitted
     assert sec.loc["Hlth", "n_obs"] == 20 and np.isnan(sec.loc["Hlth", "beta"])
+
+
+def test_portfolio_errors_specific_share_and_fdr_on_real_data(tmp_path, french):
+    """On the real industry returns (window of 60 months, no gaps): the portfolio's own
+    regression gives the specific share, its t-statistics match the errors beside them, and
+    the false-discovery reading matches statsmodels ``multipletests``."""
+    from statsmodels.stats.multitest import multipletests
+
+    df = write_french_pack(tmp_path, french, 60, {})
+    settings = load_settings(tmp_path)
+    res = analyse(validate_pack(settings), settings)
+    p = res.portfolio_summary()
+    win = df.tail(60)
+    y = res.portfolio_series - win["RF"].to_numpy()
+    X = sm.add_constant(win["MktRF"].to_numpy())
+    ols = sm.OLS(y, X).fit()                                     # statsmodels OLS
+    hac = sm.OLS(y, X).fit(cov_type="HAC", cov_kwds={"maxlags": p["hac_lags"],
+                                                     "use_correction": True}, use_t=True)
+    np.testing.assert_allclose(
+        [p["idiosyncratic_share"], p["systematic_share"], p["beta_se_ols"], p["beta_t_ols"],
+         p["alpha_t_ols"], p["beta_se_hac"], p["beta_t_hac"], p["alpha_t_hac"], p["beta_se"],
+         p["beta_t"], p["alpha_p"]],
+        [1 - ols.rsquared, ols.rsquared, ols.bse[1], ols.tvalues[1], ols.tvalues[0],
+         hac.bse[1], hac.tvalues[1], hac.tvalues[0], hac.bse[1], hac.tvalues[1],
+         hac.pvalues[0]], rtol=1e-8)
+    # with complete data the portfolio's residual is sum w_i e_i (OLS is linear in y), so
+    # 1 - R^2 = w' E'E w / SST holds every covariance between the holdings' residuals, which
+    # the diagonal model's sum_i w_i^2 sigma_e,i^2 leaves out (numpy, by hand)
+    ex = win[INDUSTRIES].to_numpy() - win[["RF"]].to_numpy()
+    E = ex - X @ np.linalg.lstsq(X, ex, rcond=None)[0]
+    w = np.full(len(INDUSTRIES), 1 / len(INDUSTRIES))
+    full = w @ E.T @ E @ w / np.sum((y - y.mean()) ** 2)
+    assert p["idiosyncratic_share"] == pytest.approx(full, rel=1e-9)
+    # Sharpe's (1963) diagonal model: beta_p^2 var(x) + sum_i w_i^2 SSR_i / (n - 2)
+    diag = np.sum(w**2 * np.sum(E**2, axis=0) / (60 - 2))
+    assert p["idiosyncratic_share_if_uncorrelated"] == pytest.approx(
+        diag / (ols.params[1] ** 2 * np.var(X[:, 1], ddof=1) + diag), rel=1e-9)
+    assert abs(p["idiosyncratic_share_if_uncorrelated"] - p["idiosyncratic_share"]) > 0.01
+    sec = res.securities
+    reject, *_ = multipletests(sec["alpha_p"].to_numpy(), alpha=0.05, method="fdr_bh")
+    want = np.where(reject, np.where(sec["alpha"] > 0, "above the line", "below the line"),
+                    "within estimation error")
+    assert list(sec["sml_position_fdr"]) == list(want)
+    assert p["sml_n_flagged_fdr"] == int(reject.sum())
+    assert p["sml_n_flagged"] == int((sec["alpha_p"] < 0.05).sum())

@@ -99,6 +99,26 @@ class EqualWeightCurve:
         1 - 1/n."""
         return 1.0 - 1.0 / np.asarray(n, dtype=float)
 
+    def holdings_for_share(self, share: float) -> int | None:
+        """Smallest n of equally weighted holdings whose volatility has fallen by ``share``
+        of the way from one holding's to the floor: sigma(1) - sigma(n) >=
+        share x (sigma(1) - sigma(inf)), with sigma(n) = sqrt(v/n + (1 - 1/n) c) and
+        sigma(inf) = sqrt(max(c, 0)), v the average variance and c the average covariance.
+        In volatility, the unit trustees see, so it moves with the average correlation:
+        sigma(n)^2 <= s^2 with s = sigma(1) - share x (sigma(1) - sigma(inf)) gives
+        n >= (v - c) / (s^2 - c). 1 when nothing is diversifiable; None without figures."""
+        v, c = self.average_variance, self.average_covariance
+        if not (np.isfinite(v) and np.isfinite(c)) or v <= 0:
+            return None
+        if v <= c:
+            return 1
+        s1, s_inf = np.sqrt(v), np.sqrt(max(c, 0.0))
+        target = s1 - share * (s1 - s_inf)
+        gap = target * target - c
+        if gap <= 0:
+            return None
+        return max(int(np.ceil((v - c) / gap - 1e-9)), 1)
+
 
 def equal_weight_curve(cov: np.ndarray) -> EqualWeightCurve:
     """Average variance and average pairwise covariance from a covariance matrix."""

@@ -9,7 +9,8 @@ from functools import cached_property
 import numpy as np
 import pandas as pd
 
-from reporter.analytics.covariance import CovarianceEstimate, holdings_and_active, model_figures
+from reporter.analytics import summaries
+from reporter.analytics.covariance import CovarianceEstimate, holdings_and_active
 from reporter.analytics.diversification import (
     Concentration,
     EqualWeightCurve,
@@ -55,8 +56,10 @@ from reporter.analytics.sml import (
     LineTest,
     Ratios,
     SecurityMarketLine,
+    alpha_p_values,
     cross_sectional_test,
     fama_macbeth,
+    fdr_positions,
     grs_test,
     performance_ratios,
     security_market_line,
@@ -68,11 +71,14 @@ from reporter.models import DatedSeries, ValidInputs
 
 SECURITY_COLUMNS = [
     "security_id", "name", "sector", "weight", "n_obs", "status",
-    "alpha", "alpha_se", "alpha_t", "beta", "beta_se", "beta_t", "r_squared", "residual_vol",
+    "alpha", "alpha_se", "alpha_t", "alpha_p", "beta", "beta_se", "beta_t", "r_squared",
+    "residual_vol",
     "mean_excess_return", "sml_expected_excess", "sml_residual", "treynor", "sml_position",
     "alpha_ann", "residual_vol_ann", "mean_excess_return_ann", "sml_expected_excess_ann",
-    "sml_residual_ann", "treynor_ann",
-    "alpha_se_hac", "beta_se_hac", "beta_ci_low", "beta_ci_high", "beta_differs_from_1",
+    "sml_residual_ann", "treynor_ann", "sml_position_fdr",
+    "alpha_se_ols", "alpha_t_ols", "beta_se_ols", "beta_t_ols",
+    "alpha_se_hac", "alpha_t_hac", "beta_se_hac", "beta_t_hac", "beta_ci_low", "beta_ci_high",
+    "beta_differs_from_1",
     "alpha_differs_from_0", "beta_blume", "beta_vasicek", "beta_up", "beta_down",
     "beta_dimson", "beta_scholes_williams",
     "mean_excess_return_se", "sharpe", "sharpe_ann", "appraisal_ratio", "appraisal_ratio_ann",
@@ -178,28 +184,6 @@ class PackResults:
             out[f"{c}_ann"] = out[c] * root
         return out[RISK_COLUMNS]
 
-    def diversification_summary(self) -> dict:
-        """The covariance and risk figures added to ``results/portfolio.json``."""
-        root, rc, cv = np.sqrt(self.periods_per_year), self.risk, self.covariance
-        n_eff = int(round(self.concentration.effective_n))
-        return {
-            **model_figures(cv, self.covariance_active, rc.volatility, rc.tracking_error,
-                            self.ratios.volatility, self.performance.benchmark_tracking_error
-                            if self.tracking_reference == "benchmark"
-                            else self.ratios.tracking_error, self.periods_per_year),
-            "diversification_ratio": rc.diversification_ratio,
-            "average_correlation": self.average_correlation,
-            "random_subset_draws": self.band.draws,
-            "random_subset_seed": self.band.seed,
-            "random_share_below_portfolio": self.band.share_below(n_eff,
-                                                                  self.ratios.volatility),
-            "equal_weight_volatility_at_effective_n_ann": float(
-                np.sqrt(self.curve.variance(self.concentration.effective_n)) * root),
-            # smallest n with 1 - 1/n >= share on the equal-weight curve
-            "holdings_for_90pct_diversifiable": int(np.ceil(1 / (1 - 0.90) - 1e-9)),
-            "holdings_for_95pct_diversifiable": int(np.ceil(1 / (1 - 0.95) - 1e-9)),
-        }
-
     @cached_property
     def growth_table(self) -> pd.DataFrame:
         """Growth of one unit, portfolio and market (and benchmark, when given), from the first
@@ -214,60 +198,6 @@ class PackResults:
         } | ({} if self.history_benchmark is None else {
             "benchmark": np.where(np.isfinite(self.history_benchmark[start:]).cumsum() > 0,
                                   growth_of_one(self.history_benchmark[start:]), np.nan)}))
-
-    def performance_summary(self) -> dict:
-        """The performance figures added to ``results/portfolio.json`` (see README)."""
-        P, q = self.periods_per_year, self.performance
-        return {
-            "sharpe_se": q.sharpe_se,
-            "sharpe_ann_se": q.sharpe_se * np.sqrt(P),
-            "sharpe_ann_lo": q.sharpe_ann_lo,
-            "sharpe_ann_lo_se": q.sharpe_ann_lo_se,
-            "lo_scale": q.lo_scale,
-            "first_autocorrelation": q.first_autocorrelation,
-            "appraisal_ratio": q.appraisal_ratio,
-            "appraisal_ratio_ann": q.appraisal_ratio * np.sqrt(P),
-            "m2": q.m2,
-            "m2_ann": q.m2 * P,
-            "m2_excess": q.m2_excess,
-            "m2_excess_ann": q.m2_excess * P,
-            "max_drawdown": q.max_drawdown,
-            "drawdown_peak": q.drawdown_peak,
-            "drawdown_trough": q.drawdown_trough,
-            "drawdown_recovery": q.drawdown_recovery,
-            "market_max_drawdown": q.market_max_drawdown,
-            "downside_deviation": q.downside_deviation,
-            "downside_deviation_ann": q.downside_deviation * np.sqrt(P),
-            "sortino": q.sortino,
-            "sortino_ann": q.sortino * np.sqrt(P),
-            "mar": q.mar,
-            "mar_ann": q.mar * P if q.mar_source == "risk-free rate" else (1 + q.mar) ** P - 1,
-            "mar_source": q.mar_source,
-            "return_arithmetic_ann": q.return_arithmetic_ann,
-            "return_geometric_ann": q.return_geometric_ann,
-            "market_return_arithmetic_ann": q.market_return_arithmetic_ann,
-            "market_return_geometric_ann": q.market_return_geometric_ann,
-            "tracking_reference": self.tracking_reference,
-            "portfolio_source": self.portfolio_source,
-            **self._benchmark_figures(),
-        }
-
-    def _benchmark_figures(self) -> dict:
-        """Figures against the optional benchmark; None (null in JSON) without one."""
-        P, q = self.periods_per_year, self.performance
-        figures = {
-            "benchmark_active_return": q.benchmark_active_return,
-            "benchmark_active_return_ann": q.benchmark_active_return * P,
-            "benchmark_tracking_error": q.benchmark_tracking_error,
-            "benchmark_tracking_error_ann": q.benchmark_tracking_error * np.sqrt(P),
-            "benchmark_information_ratio": q.benchmark_information_ratio,
-            "benchmark_information_ratio_ann": q.benchmark_information_ratio * np.sqrt(P),
-            "benchmark_return_arithmetic_ann": q.benchmark_return_arithmetic_ann,
-            "benchmark_return_geometric_ann": q.benchmark_return_geometric_ann,
-        }
-        if self.tracking_reference != "benchmark":
-            return dict.fromkeys(figures)
-        return figures
 
     @property
     def rolling_table(self) -> pd.DataFrame:
@@ -314,70 +244,9 @@ class PackResults:
         return t_idx, j_idx, b, e, b - tcrit * e, b + tcrit * e
 
     def portfolio_summary(self) -> dict:
-        """The flat figures written to ``results/portfolio.json`` (see README for units)."""
-        P = self.periods_per_year
-        f, r, c, w = self.portfolio_fit, self.ratios, self.concentration, self.window
-        return {
-            "window_start": str(w.dates[0]),
-            "window_end": str(w.dates[-1]),
-            "n_periods": int(w.n_periods),
-            "n_obs": f.n_obs,
-            "periods_per_year": P,
-            "mean_risk_free": self.sml.mean_risk_free,
-            "mean_risk_free_ann": self.sml.mean_risk_free * P,
-            "mean_market_premium": self.sml.mean_market_premium,
-            "mean_market_premium_ann": self.sml.mean_market_premium * P,
-            "beta_weighted": self.beta_weighted,
-            "beta_regression": f.beta,
-            "beta_se": f.beta_se,
-            "beta_se_hac": f.beta_se_hac,
-            "hac_lags": f.hac_lags,
-            "errors": f.errors,
-            "beta_t": f.beta_t,
-            "beta_ci_low": f.beta_ci[0],
-            "beta_ci_high": f.beta_ci[1],
-            "fitted_weight": self.fitted_weight,
-            "alpha": f.alpha,
-            "alpha_se": f.alpha_se,
-            "alpha_se_hac": f.alpha_se_hac,
-            "alpha_t": f.alpha_t,
-            "alpha_ci_low": f.alpha_ci[0],
-            "alpha_ci_high": f.alpha_ci[1],
-            "alpha_ann": f.alpha * P,
-            "r_squared": f.r_squared,
-            "residual_vol": f.residual_vol,
-            "residual_vol_ann": f.residual_vol * np.sqrt(P),
-            "mean_excess_return": r.mean_excess,
-            "mean_excess_return_ann": r.mean_excess * P,
-            "volatility": r.volatility,
-            "volatility_ann": r.volatility * np.sqrt(P),
-            "sharpe": r.sharpe,
-            "sharpe_ann": r.sharpe * np.sqrt(P),
-            "market_sharpe_ann": r.market_sharpe * np.sqrt(P),
-            "treynor": r.treynor,
-            "treynor_ann": r.treynor * P,
-            "active_return": r.active_return,
-            "active_return_ann": r.active_return * P,
-            "tracking_error": r.tracking_error,
-            "tracking_error_ann": r.tracking_error * np.sqrt(P),
-            "information_ratio": r.information_ratio,
-            "information_ratio_ann": r.information_ratio * np.sqrt(P),
-            "n_holdings": c.n_holdings,
-            "n_fitted": int(self.fits.fitted.sum()),
-            "effective_n": c.effective_n,
-            "top10_weight": c.top10_weight,
-            "largest_weight": c.largest_weight,
-            "systematic_share": self.variance.systematic_share,
-            "idiosyncratic_share": 1.0 - self.variance.systematic_share,
-            "average_variance": self.curve.average_variance,
-            "average_covariance": self.curve.average_covariance,
-            "rolling_window": self.rolling.window, "rolling_errors": "ols",
-            **self.portfolio_extra,
-            **self.performance_summary(),
-            **self.diversification_summary(),
-            **self.line_tests_summary(),
-        }
-
+        """The flat figures written to ``results/portfolio.json`` (see README for units);
+        assembled in :mod:`reporter.analytics.summaries`."""
+        return summaries.portfolio_summary(self)
 
 def build_window(inputs: ValidInputs, settings: Settings, periods: int | None = None) -> Window:
     """The last ``periods`` (default ``settings.window``) market periods up to ``period_end``,
@@ -514,13 +383,15 @@ def analyse(inputs: ValidInputs, settings: Settings,
         hist_raw = _align_optional(portfolio, hist.dates, settings.frequency)
     hist_port = hist_raw - hist.risk_free
     perf = performance(win.dates, port, win.market, win.risk_free, pfit.alpha,
-                       pfit.residual_vol, P, settings.mar, benchmark=bench_win)
+                       pfit.residual_vol, P, settings.mar, benchmark=bench_win,
+                       hac_lags=settings.hac_lags)
     bench_hist = _align_optional(benchmark, hist.dates, settings.frequency)
     periods = period_returns(hist.dates, hist_raw, hist.market, settings.period_end,
                              settings.frequency, P, benchmark=bench_hist)
     rolling_port = rolling_betas(hist_port[:, None], hist.market_excess, settings.rolling_window)
 
-    with np.errstate(invalid="ignore"):
+    alpha_p = alpha_p_values(fits.alpha, a_se, fits.n_obs)
+    with np.errstate(invalid="ignore", divide="ignore"):
         beta_lo, beta_hi = fits.beta - tcrit * b_se, fits.beta + tcrit * b_se
         alpha_lo, alpha_hi = fits.alpha - tcrit * a_se, fits.alpha + tcrit * a_se
     sec = pd.DataFrame({
@@ -530,8 +401,10 @@ def analyse(inputs: ValidInputs, settings: Settings,
         "weight": weights,
         "n_obs": fits.n_obs,
         "status": np.where(ok, "fitted", f"not fitted: fewer than {settings.min_obs} periods"),
-        "alpha": fits.alpha, "alpha_se": fits.alpha_se, "alpha_t": fits.alpha_t,
-        "beta": fits.beta, "beta_se": fits.beta_se, "beta_t": fits.beta_t,
+        # se and t under ``errors`` (as the intervals and positions); both kinds named below
+        "alpha": fits.alpha, "alpha_se": a_se, "alpha_t": fits.alpha / a_se,
+        "alpha_p": alpha_p,
+        "beta": fits.beta, "beta_se": b_se, "beta_t": fits.beta / b_se,
         "r_squared": fits.r_squared, "residual_vol": fits.residual_vol,
         "mean_excess_return": np.where(ok, fits.mean_excess, np.nan),
         "sml_expected_excess": sml.expected_excess, "sml_residual": sml.residual,
@@ -541,8 +414,11 @@ def analyse(inputs: ValidInputs, settings: Settings,
     sec["residual_vol_ann"] = sec["residual_vol"] * np.sqrt(P)
     for col in ("mean_excess_return", "sml_expected_excess", "sml_residual", "treynor"):
         sec[f"{col}_ann"] = sec[col] * P
-    sec["alpha_se_hac"] = alpha_se_hac
-    sec["beta_se_hac"] = beta_se_hac
+    sec["sml_position_fdr"] = fdr_positions(fits.alpha, alpha_p, ok, 1 - settings.confidence)
+    sec["alpha_se_ols"], sec["alpha_t_ols"] = fits.alpha_se, fits.alpha_t
+    sec["beta_se_ols"], sec["beta_t_ols"] = fits.beta_se, fits.beta_t
+    sec["alpha_se_hac"], sec["alpha_t_hac"] = alpha_se_hac, fits.alpha / alpha_se_hac
+    sec["beta_se_hac"], sec["beta_t_hac"] = beta_se_hac, fits.beta / beta_se_hac
     sec["beta_ci_low"] = beta_lo
     sec["beta_ci_high"] = beta_hi
     sec["beta_differs_from_1"] = np.where(ok, (beta_lo > 1) | (beta_hi < 1), False)

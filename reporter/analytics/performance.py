@@ -17,6 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from reporter.analytics.regression import newey_west_lags
 from reporter.analytics.returns import period_keys
 
 # trailing periods: (key, label, months back; 0 = year to date, None = whole history)
@@ -56,11 +57,15 @@ def period_returns(dates: np.ndarray, portfolio: np.ndarray, market: np.ndarray,
 
     ``dates`` are the market's period dates up to ``period_end`` (ascending), ``portfolio`` and
     ``market`` the per-period decimal returns on them; the history starts at the portfolio's
-    first return. A trailing period of k months holds the
-    periods dated after ``period_end`` less k months; it is reported only when the history
-    covers all of it. Under a year the return is cumulative (``basis = "cumulative"``); at a year
-    or more it is annualised geometrically, (1 + R)^(P/n) - 1 (``basis = "annualised"``), as GIPS
-    requires. ``difference`` is portfolio minus market (arithmetic). Calendar years are
+    first return. Trailing periods are calendar periods of ``period_end``: the year to date
+    holds the periods dated in ``period_end``'s calendar year, as the calendar-year rows count
+    them; a trailing period of k months holds the periods (months, ISO weeks or days) after
+    the one containing ``period_end`` less k months (one year of weekly data is 52 or 53
+    weeks). A trailing period is reported only when the history covers all of it. Under a
+    year the return is cumulative
+    (``basis = "cumulative"``); at a year or more it is annualised geometrically,
+    (1 + R)^(P/n) - 1 (``basis = "annualised"``), as GIPS requires.
+    ``difference`` is portfolio minus market (arithmetic). Calendar years are
     cumulative; a part year is labelled as such. Columns: :data:`PERIOD_RETURN_COLUMNS`.
     """
     # the history starts at the portfolio's first return (periods before it are not held)
@@ -102,7 +107,11 @@ def period_returns(dates: np.ndarray, portfolio: np.ndarray, market: np.ndarray,
             skey = period_keys(np.array([np.datetime64(start, "D")]), frequency)[0]
             if keys[0] > skey + slack:
                 continue            # the history does not cover the whole period
-            idx = np.flatnonzero(keys > skey)
+            # the year to date is the periods dated in period_end's year, as the calendar
+            # rows count them (a week ending 2 January is in the new year even though its
+            # ISO week began in December); k months: the periods after the boundary's period
+            idx = np.flatnonzero(d.astype("datetime64[Y]").astype(int) + 1970
+                                 == period_end.year if months == 0 else keys > skey)
             years = months / 12
         if len(idx) == 0 or not np.isfinite(portfolio[idx]).all():
             continue
@@ -162,10 +171,52 @@ def autocorrelations(x: np.ndarray, lags: int) -> np.ndarray:
 def lo_scale(rho: np.ndarray, q: int) -> float:
     """Lo's (2002, eq. 17) scale eta(q) = q / sqrt(q + 2 sum_{k=1}^{q-1} (q - k) rho_k) that
     turns a per-period Sharpe ratio into a q-period one; sqrt(q) when returns are
-    uncorrelated."""
+    uncorrelated. With q - 1 *sample* autocorrelations this is biased upward in short
+    samples (their noise adds up); :func:`lo_scale_ar1` is the stable form the pack uses."""
     k = np.arange(1, q)
     inner = q + 2.0 * float(np.sum((q - k) * np.asarray(rho)[: q - 1]))
     return float(q / np.sqrt(inner)) if inner > 0 else float("nan")
+
+
+def lo_scale_ar1(rho1: float, q: int) -> float:
+    """Lo's (2002) eta(q) for returns that follow an AR(1) with first autocorrelation
+    ``rho1``: rho_k = rho1^k in eq. 17, which sums in closed form to
+    q / sqrt(q + 2 rho/(1 - rho) (q - (1 - rho^q)/(1 - rho))). One estimated parameter
+    instead of q - 1, so the scale stays near sqrt(q) for independent returns at any q.
+    ``rho1`` is clipped to [-0.99, 0.99]."""
+    r = float(np.clip(rho1, -0.99, 0.99)) if np.isfinite(rho1) else float("nan")
+    if not np.isfinite(r):
+        return float("nan")
+    if r == 0.0:
+        return float(np.sqrt(q))
+    inner = q + 2.0 * r / (1.0 - r) * (q - (1.0 - r**q) / (1.0 - r))
+    return float(q / np.sqrt(inner)) if inner > 0 else float("nan")
+
+
+def sharpe_se_gmm(excess: np.ndarray, lags: int) -> float:
+    """Standard error of a per-period Sharpe ratio when returns need not be independent
+    (Lo 2002, section 3.2, the GMM case): SR = mu/sigma with the moments
+    psi_t = (r_t - mu, (r_t - mu)^2 - sigma^2), whose long-run covariance S is estimated by
+    Newey and West (1987) with Bartlett weights 1 - j/(lags + 1); then
+    var(SR) = g' S g / T with g = (1/sigma, -mu/(2 sigma^3)). Under iid normal returns
+    g' S g = 1 + SR^2/2, the iid formula (Lo 2002, eq. 9)."""
+    r = np.asarray(excess, dtype=float)
+    r = r[np.isfinite(r)]
+    T = len(r)
+    if T < 3:
+        return float("nan")
+    mu = float(r.mean())
+    e = r - mu
+    var = float(e @ e / T)
+    psi = np.column_stack([e, e * e - var])
+    S = psi.T @ psi / T
+    for j in range(1, min(int(lags), T - 1) + 1):
+        g = psi[j:].T @ psi[:-j] / T
+        S += (1.0 - j / (lags + 1.0)) * (g + g.T)
+    sd = np.sqrt(var)
+    grad = np.array([1.0 / sd, -mu / (2.0 * sd**3)])
+    v = float(grad @ S @ grad)
+    return float(np.sqrt(v / T)) if v > 0 else float("nan")
 
 
 def sharpe_se_iid(sharpe: float, n: int) -> float:
@@ -184,9 +235,11 @@ class PerformanceRatios:
     n_obs: int
     sharpe: float
     sharpe_se: float                 # iid (Lo 2002, eq. 9)
-    sharpe_ann_lo: float             # eta(P) x sharpe (Lo 2002)
-    sharpe_ann_lo_se: float          # eta(P) x sharpe_se: eta treated as known
+    sharpe_se_hac: float             # non-iid: Lo's GMM form, Newey-West moments
+    sharpe_ann_lo: float             # eta(P) x sharpe (Lo 2002, AR(1) case)
+    sharpe_ann_lo_se: float          # eta(P) x sharpe_se_hac: eta treated as known
     lo_scale: float                  # eta(P); sqrt(P) for uncorrelated returns
+    sharpe_hac_lags: int             # Newey-West lags behind sharpe_se_hac
     first_autocorrelation: float     # rho_1 of the excess returns
     appraisal_ratio: float           # alpha / residual volatility
     m2: float                        # mean r_f + sharpe x sd(r_m - r_f)
@@ -215,7 +268,8 @@ class PerformanceRatios:
 def performance(dates: np.ndarray, port: np.ndarray, market: np.ndarray,
                 risk_free: np.ndarray, alpha: float, residual_vol: float,
                 periods_per_year: int, mar: float | None = None,
-                benchmark: np.ndarray | None = None) -> PerformanceRatios:
+                benchmark: np.ndarray | None = None,
+                hac_lags: int | None = None) -> PerformanceRatios:
     """The ratios of :class:`PerformanceRatios` from aligned per-period series over the window.
 
     ``mar`` is a fixed annual minimum acceptable return (decimal), applied per period as the
@@ -230,8 +284,10 @@ def performance(dates: np.ndarray, port: np.ndarray, market: np.ndarray,
     ex = p - f
     sr = float(ex.mean() / np.std(ex, ddof=1))
     se = sharpe_se_iid(sr, n)
-    rho = autocorrelations(ex, min(P - 1, n - 2))
-    eta = lo_scale(np.concatenate([rho, np.zeros(max(0, P - 1 - len(rho)))]), P)
+    rho = autocorrelations(ex, 1) if n > 2 else np.array([np.nan])
+    eta = lo_scale_ar1(float(rho[0]), P)
+    lags = int(newey_west_lags(n)) if hac_lags is None else int(hac_lags)
+    se_hac = sharpe_se_gmm(ex, lags)
     m_ex = m - f
     m2 = float(f.mean() + sr * np.std(m_ex, ddof=1))
     floor = f if mar is None else np.full(n, (1.0 + mar) ** (1.0 / P) - 1.0)
@@ -253,8 +309,9 @@ def performance(dates: np.ndarray, port: np.ndarray, market: np.ndarray,
         return str(d[i]) if 0 <= i < n else ""
 
     return PerformanceRatios(
-        n_obs=n, sharpe=sr, sharpe_se=se, sharpe_ann_lo=eta * sr, sharpe_ann_lo_se=eta * se,
-        lo_scale=eta, first_autocorrelation=float(rho[0]) if len(rho) else float("nan"),
+        n_obs=n, sharpe=sr, sharpe_se=se, sharpe_se_hac=se_hac, sharpe_ann_lo=eta * sr,
+        sharpe_ann_lo_se=eta * se_hac, lo_scale=eta, sharpe_hac_lags=lags,
+        first_autocorrelation=float(rho[0]),
         appraisal_ratio=float(alpha / residual_vol) if residual_vol > 0 else float("nan"),
         m2=m2, m2_excess=m2 - float(m.mean()),
         max_drawdown=dd.max_drawdown, drawdown_peak=when(dd.peak) if dd.peak >= 0 else (

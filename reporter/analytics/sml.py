@@ -55,6 +55,46 @@ def security_market_line(fits: MarketModelFits, market_excess: np.ndarray,
     )
 
 
+def alpha_p_values(alpha: np.ndarray, alpha_se: np.ndarray, n_obs: np.ndarray) -> np.ndarray:
+    """Two-sided p-value of each alpha, 2 P(t_{n-2} > |alpha / se|), under the errors in
+    ``alpha_se`` (the ones the positions use); NaN where not fitted."""
+    from scipy import stats
+
+    with np.errstate(invalid="ignore", divide="ignore"):
+        t = np.abs(np.asarray(alpha, dtype=float) / np.asarray(alpha_se, dtype=float))
+        df = np.maximum(np.asarray(n_obs, dtype=float) - 2, 1)
+        return np.where(np.isfinite(t), 2.0 * stats.t.sf(t, df), np.nan)
+
+
+def benjamini_hochberg(p_values: np.ndarray, level: float) -> np.ndarray:
+    """Rejections under Benjamini and Hochberg's (1995) step-up control of the false
+    discovery rate at ``level``: with the m finite p-values sorted, p_(1) <= ... <= p_(m),
+    reject the k smallest for the largest k with p_(k) <= k level / m. NaN is never
+    rejected and does not count in m."""
+    p = np.asarray(p_values, dtype=float)
+    out = np.zeros(len(p), dtype=bool)
+    ok = np.flatnonzero(np.isfinite(p))
+    m = len(ok)
+    if m == 0:
+        return out
+    order = ok[np.argsort(p[ok], kind="stable")]
+    below = np.flatnonzero(p[order] <= level * np.arange(1, m + 1) / m)
+    if len(below):
+        out[order[: below[-1] + 1]] = True
+    return out
+
+
+def fdr_positions(alpha: np.ndarray, p_values: np.ndarray, fitted: np.ndarray,
+                  level: float) -> np.ndarray:
+    """Each holding's place against the line after the Benjamini-Hochberg control at
+    ``level`` (1 - confidence) across the fitted holdings: above or below only when its
+    alpha survives; "" where not fitted (object array)."""
+    keep = benjamini_hochberg(np.where(fitted, p_values, np.nan), level)
+    pos = np.where(~np.asarray(fitted, dtype=bool), "",
+                   np.where(keep & (alpha > 0), ABOVE, np.where(keep, BELOW, WITHIN)))
+    return pos.astype(object)
+
+
 @dataclass(frozen=True)
 class Ratios:
     """Portfolio performance ratios against the market proxy (per period)."""
