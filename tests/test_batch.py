@@ -8,7 +8,8 @@ import re
 import pandas as pd
 import pytest
 
-from reporter.build import _results_csv, assemble
+from reporter.build import assemble
+from reporter.csvsafe import csv_text
 from reporter.cli import main
 from reporter.config import load_settings
 from tests.conftest import DEMO, FIXED_EPOCH
@@ -80,7 +81,7 @@ def check_batch(schemes, out, code, stdout, stderr):
     # the outputs are what a single build of each folder gives
     for name in built:
         a = assemble(load_settings(schemes / name))
-        assert (out / name / "results/securities.csv").read_text() == _results_csv(a.results)
+        assert (out / name / "results/securities.csv").read_text() == csv_text(a.results.securities)
         assert (out / name / "pack.html").read_text() == a.html(), name
     # plain progress lines in a pipe: one per scheme
     assert len(re.findall(r"^reporter: \[\d+/12\] scheme-\d\d (built|failed)", stderr,
