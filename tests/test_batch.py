@@ -9,9 +9,9 @@ import pandas as pd
 import pytest
 
 from reporter.build import assemble
-from reporter.csvsafe import csv_text
 from reporter.cli import main
 from reporter.config import load_settings
+from reporter.csvsafe import csv_text
 from tests.conftest import DEMO, FIXED_EPOCH
 
 N_SCHEMES = 12
