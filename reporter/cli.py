@@ -74,13 +74,23 @@ def check(pack: Path, strict: bool, debug: bool) -> None:
 def sign_off_cmd(build_dir: Path, archive: Path, signer: str, role, minute_ref, note,
                  supersedes: bool, reason, quiet: bool, debug: bool) -> None:
     """Sign off the reviewed build in BUILD_DIR and archive it as PDF/A-3b."""
-    from reporter.archive.signoff import SignOffRequest, sign_off
+    from reporter.archive.signoff import BrokenArchive, SignOffRequest, sign_off
     from reporter.progress import Progress
 
     request = SignOffRequest(signer=signer, role=role, minute_ref=minute_ref, note=note,
                              supersedes=supersedes, reason=reason)
-    report = _run(lambda: sign_off(build_dir, archive, request,
-                                   progress=Progress(quiet=quiet)), debug)
+
+    def run():
+        try:
+            return sign_off(build_dir, archive, request, progress=Progress(quiet=quiet))
+        except BrokenArchive as exc:          # each problem on its own line, then the summary
+            for line in exc.findings[:MAX_LINES]:
+                click.echo(f"{exc.archive}: {line}", err=True)
+            if len(exc.findings) > MAX_LINES:
+                click.echo(f"... and {len(exc.findings) - MAX_LINES} more problems", err=True)
+            raise
+
+    report = _run(run, debug)
     e = report.entry
     click.echo(f"signed off {report.pdf}")
     click.echo(f"  ledger entry {e.seq}, revision {e.revision}"
@@ -93,15 +103,30 @@ def sign_off_cmd(build_dir: Path, archive: Path, signer: str, role, minute_ref, 
 @click.argument("file", required=False, type=click.Path(path_type=Path))
 @click.option("--archive", "-a", required=True, type=click.Path(path_type=Path),
               help="Archive folder.")
+@click.option("--head", "heads", multiple=True, metavar="HASH",
+              help="A ledger head from the minutes: check that it is an entry of an intact "
+                   "chain (repeatable).")
+@click.option("--head-file", type=click.Path(path_type=Path),
+              help="A file of minuted heads, one a line ('#' comments, blank lines allowed).")
 @debug_option
-def verify(file: Path | None, archive: Path, debug: bool) -> None:
+def verify(file: Path | None, archive: Path, heads: tuple[str, ...], head_file: Path | None,
+           debug: bool) -> None:
     """Check the whole archive, or (with FILE) whether FILE is a signed pack in it.
 
-    Exit 0 when intact (or FILE is archived), 1 when not, 2 when the archive cannot be read.
+    With --head or --head-file, also check that each minuted head is an entry of the
+    chain, so that a ledger rewritten after it was minuted is caught.
+
+    Exit 0 when intact (or FILE is archived), 1 when not, 2 when the archive cannot be read
+    or a head is not a sha256.
     """
+    from reporter.archive.anchor import check_heads, parse_head, read_heads_file
     from reporter.archive.verify import find_file, verify_archive
 
     if file is not None:
+        if heads or head_file is not None:
+            click.echo("reporter: --head and --head-file check the whole archive; give them "
+                       "without FILE", err=True)
+            raise _Exit(EXIT_BAD_INPUT)
         if not file.is_file():
             click.echo(f"reporter: {file}: no such file", err=True)
             raise _Exit(EXIT_BAD_INPUT)
@@ -116,18 +141,30 @@ def verify(file: Path | None, archive: Path, debug: bool) -> None:
                        + (f"; superseded by entry {m.superseded_by.seq}"
                           if m.superseded_by else ""))
         return
+    minuted = _run(lambda: [parse_head(h, "--head") for h in heads]
+                   + (read_heads_file(head_file) if head_file is not None else []), debug)
     report = _run(lambda: verify_archive(archive), debug)
     for f in report.findings:
         click.echo(str(f))
     for n in report.notes:
         click.echo(f"note: {n}")
-    n_files = sum(len(e.file_hashes) for e in report.entries) if report.intact else None
+    checks = check_heads(report, minuted)
+    for c in checks:
+        click.echo(str(c))
+    unanchored = sum(not c.anchored for c in checks)
     if report.intact:
+        n_files = sum(len(e.file_hashes) for e in report.entries)
         click.echo(f"archive intact: {len(report.entries)} entries, {n_files} files, "
                    f"ledger head {report.head_hash or '(empty)'}")
-        return
-    click.echo(f"archive NOT intact: {len(report.findings)} problem(s)")
-    raise _Exit(EXIT_FAILED)
+    else:
+        click.echo(f"archive NOT intact: {len(report.findings)} problem(s)")
+    if unanchored:
+        click.echo(f"{unanchored} of {len(checks)} minuted head(s) NOT anchored: the ledger "
+                   "does not hold the chain the minutes recorded")
+    elif checks:
+        click.echo(f"all {len(checks)} minuted head(s) anchored")
+    if unanchored or not report.intact:
+        raise _Exit(EXIT_FAILED)
 
 
 @cli.command()

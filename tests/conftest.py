@@ -71,24 +71,20 @@ def signed_archive(demo_build, tmp_path_factory) -> Path:
 # --- the trustees' site --------------------------------------------------------------------
 
 SITE_PERIODS = ("2026-09-30", "2026-10-31", "2026-11-30")
-# limit results as another stage writes them (results/limits.json): invented test values,
-# added to two of the three periods so the site meets both their presence and absence
+# The policy limits of the two earlier periods (invented test values): fewer than the demo's,
+# so the site meets limits that some periods did not report, and tighter in 2026-10-31, so
+# the largest holding breaches there. The builds write their own results/limits.json from
+# these (a limits file put into a build by hand is refused at sign-off: it is not what the
+# inputs give).
 SITE_LIMITS = {
-    "2026-09-30": [
-        {"limit": "Largest holding weight", "value": 0.071, "threshold": 0.08,
-         "status": "within"},
-        {"limit": "Portfolio beta", "value": 1.07, "threshold": 1.10, "status": "watch"},
-    ],
-    "2026-10-31": [
-        {"limit": "Largest holding weight", "value": 0.083, "threshold": 0.08,
-         "status": "breach"},
-        {"limit": "Portfolio beta", "value": 1.08, "threshold": 1.10, "status": "watch"},
-    ],
+    "2026-09-30": "[limits]\nbeta_max = 1.10\nmax_holding_weight = 0.08\n",
+    "2026-10-31": "[limits]\nbeta_max = 1.10\nmax_holding_weight = 0.07\n",
 }
 
 
-def _pack_for_period(tmp: Path, period: str) -> Path:
-    """A copy of the demo pack folder whose pack.toml ends at ``period``."""
+def _pack_for_period(tmp: Path, period: str, limits: str | None = None) -> Path:
+    """A copy of the demo pack folder whose pack.toml ends at ``period`` (and, with
+    ``limits``, has that ``[limits]`` table instead of the demo's)."""
     import shutil
 
     dest = tmp / f"pack-{period}"
@@ -96,30 +92,20 @@ def _pack_for_period(tmp: Path, period: str) -> Path:
     toml = dest / "pack.toml"
     text = toml.read_text(encoding="utf-8")
     assert "period_end = 2026-11-30" in text
-    toml.write_text(text.replace("period_end = 2026-11-30", f"period_end = {period}"),
-                    encoding="utf-8")
+    text = text.replace("period_end = 2026-11-30", f"period_end = {period}")
+    if limits is not None:
+        assert text.count("[limits]") == 1 and text.rstrip().endswith(
+            "max_idiosyncratic_share = 0.10")          # the demo's table is the last one
+        text = text[:text.index("[limits]")] + limits
+    toml.write_text(text, encoding="utf-8")
     return dest
-
-
-def _add_limits(build: Path, limits: list[dict]) -> None:
-    """Put results/limits.json into a build as the build itself would (listed in the
-    manifest with its sha256), so that sign-off archives it with the other results."""
-    import hashlib
-    import json
-
-    data = (json.dumps(limits, indent=2) + "\n").encode("utf-8")
-    (build / "results" / "limits.json").write_bytes(data)
-    manifest = build / "results" / "manifest.json"
-    m = json.loads(manifest.read_text(encoding="utf-8"))
-    m["output_sha256"]["results/limits.json"] = hashlib.sha256(data).hexdigest()
-    manifest.write_text(json.dumps(m, indent=2, sort_keys=True) + "\n", encoding="utf-8")
 
 
 @pytest.fixture(scope="session")
 def site_archive(signed_archive, tmp_path_factory) -> Path:
     """Three signed periods: a copy of ``signed_archive`` (2026-11-30 signed, then signed
     again with --supersedes: entries 1 and 2) with the demo pack re-dated to 2026-09-30 and
-    2026-10-31 signed after it (entries 3 and 4, both carrying results/limits.json).
+    2026-10-31 signed after it (entries 3 and 4, with the limits of :data:`SITE_LIMITS`).
     Ledger order is therefore not period order."""
     import shutil
 
@@ -130,9 +116,8 @@ def site_archive(signed_archive, tmp_path_factory) -> Path:
     shutil.copytree(signed_archive, archive)
     for period in SITE_PERIODS[:2]:
         build = tmp / f"build-{period}"
-        assert main(["build", str(_pack_for_period(tmp, period)), "--out", str(build),
-                     "--quiet"]) == 0
-        _add_limits(build, SITE_LIMITS[period])
+        pack = _pack_for_period(tmp, period, SITE_LIMITS[period])
+        assert main(["build", str(pack), "--out", str(build), "--quiet"]) == 0
         assert main(["sign-off", str(build), "--archive", str(archive), "--quiet",
                      "--by", SIGNER["by"], "--role", SIGNER["role"],
                      "--minute-ref", f"IC-{period[:7]}/01"]) == 0

@@ -193,11 +193,19 @@ def test_limit_status_trend_reads_limits_json_and_tolerates_its_absence(site_dir
     page = site_dir / "trends" / "limits.html"
     rows = _values(_specs(page)["chart-trend"])
     got = sorted((r["period_end"], r["limit"], r["status"]) for r in rows)
-    # expected, read here from the archive: the test values put into 2026-09-30 and
-    # 2026-10-31, and the limits.json the build wrote for 2026-11-30 (current revision 2)
-    current = "2026-11-30/tarnbrook-valley-2026-11-30-r2/results/limits.json"
-    built = json.loads((site_archive / current).read_text(encoding="utf-8"))["limits"]
-    periods = dict(SITE_LIMITS, **{"2026-11-30": built})
+    # expected, read here from the archive: the limits.json each period's build wrote
+    # (2026-09-30 and 2026-10-31 with the fewer limits of SITE_LIMITS; 2026-11-30's current
+    # revision 2 with the demo's)
+    current = {p: f"{p}/tarnbrook-valley-{p}" for p in SITE_PERIODS}
+    current["2026-11-30"] += "-r2"
+    periods = {p: json.loads((site_archive / f"{folder}/results/limits.json").read_text(
+        encoding="utf-8"))["limits"] for p, folder in current.items()}
+    assert {p: len(v) for p, v in periods.items()} == {
+        p: SITE_LIMITS[p].count(" = ") for p in SITE_LIMITS} | {"2026-11-30": 9}
+    # the tighter holding limit of 2026-10-31 is breached (checked against holdings.csv's
+    # largest weight, 0.076349 in the demo data, above 0.07)
+    by_limit = {i["limit"]: i for i in periods["2026-10-31"]}
+    assert by_limit["max_holding_weight"]["status"] == "breach"
     want = sorted((p, item["limit"], item["status"]) for p, items in periods.items()
                   for item in items)
     assert got == want
@@ -250,6 +258,71 @@ def test_checking_page_names_each_system_tool(site_dir, site_archive):
     assert sha(pdf.read_bytes()) in text
 
 
+class _EntryHashCells(HTMLParser):
+    """The text of each ``<code class="... entry-hash">`` with the open table elements (and
+    their scope) around it."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.stack: list[tuple[str, dict]] = []
+        self.cells: list[tuple[str, list[tuple[str, dict]]]] = []
+        self.row_header: list[str | None] = []
+        self._in_code = self._in_row_th = False
+
+    def handle_starttag(self, tag, attrs):
+        attrs = dict(attrs)
+        if tag in ("table", "tr", "td", "th", "dd"):
+            self.stack.append((tag, attrs))
+        if tag == "tr":
+            self.row_header.append(None)
+        if tag == "th" and attrs.get("scope") == "row":
+            self._in_row_th = True
+        if tag == "code" and "entry-hash" in attrs.get("class", "").split():
+            self._in_code = True
+            self.cells.append(("", list(self.stack)))
+
+    def handle_endtag(self, tag):
+        if tag == "code":
+            self._in_code = False
+        if tag == "th":
+            self._in_row_th = False
+        if tag in ("table", "tr", "td", "th", "dd") and self.stack:
+            self.stack.pop()
+
+    def handle_data(self, data):
+        if self._in_code:
+            text, stack = self.cells[-1]
+            self.cells[-1] = (text + data, stack)
+        if self._in_row_th and self.row_header:
+            self.row_header[-1] = (self.row_header[-1] or "") + data
+
+
+def test_index_and_checking_page_print_every_entry_hash(site_dir, site_archive):
+    entries = ledger_entries(site_archive)
+    want = sorted(e["entry_hash"] for e in entries)
+    index = (site_dir / "index.html").read_text(encoding="utf-8")
+    cells = _EntryHashCells()
+    cells.feed(index)
+    assert sorted(text for text, _ in cells.cells) == want
+    assert all(stack[-1][0] == "dd" for _, stack in cells.cells)      # beside the PDF's sha
+    for e in entries:
+        assert f"Ledger entry {e['seq']} hash</dt>" in index
+    assert "compare it with the hash written in the minutes" in index
+
+    checking = (site_dir / "checking.html").read_text(encoding="utf-8")
+    cells = _EntryHashCells()
+    cells.feed(checking)
+    # oldest first, one table row per entry, its number the row's header (scope="row")
+    assert [text for text, _ in cells.cells] == [e["entry_hash"] for e in entries]
+    # (the header row's cells are scope="col": it has no row header)
+    assert cells.row_header == [None, *[str(e["seq"]) for e in entries]]
+    for _, stack in cells.cells:
+        assert [t for t, _ in stack] == ["table", "tr", "td"]
+    assert '<th scope="col">Entry hash</th>' in checking
+    assert "--head-file HEADS.txt" in checking
+    assert "hash written in the minutes" in checking
+
+
 def test_pages_have_one_h1_ordered_headings_and_a_skip_link(site_dir):
     for page in site_dir.rglob("*.html"):
         if page.name == "pack.html":
@@ -297,6 +370,7 @@ def test_tampered_archive_is_refused_and_nothing_is_written(site_archive, tmp_pa
     data = bytearray(pdf.read_bytes())
     data[len(data) // 3] ^= 0x01
     pdf.write_bytes(bytes(data))
+    pdf.chmod(0o444)            # read-only again: only the changed bytes give it away
     out = tmp_path / "site"
     code, _, err = run_cli(capsys, "site", "--archive", archive, "--out", out)
     assert code == 1

@@ -1,24 +1,26 @@
 """Sign off a reviewed build: a PDF/A-3b that carries its data, archived read-only, and a
 ledger entry chained to the one before it.
 
-What is signed is exactly what was reviewed. Sign-off refuses a build folder whose files no
-longer match its manifest, inputs that changed since the build, or a re-render (with the
-build's own timestamp) that does not reproduce the build's HTML byte for byte. The signed
-PDF is that pack with its cover status set to signed and one sign-off page added at the end,
-so every earlier page keeps its page number.
+What is signed is exactly what was reviewed. Sign-off refuses an archive that fails
+:func:`reporter.archive.verify.verify_archive` (a sign-off never extends a broken chain), a
+build folder whose files no longer match its manifest, inputs that changed since the build,
+and a re-render (with the build's own timestamp) that does not reproduce every output of the
+build byte for byte: the HTML, every results file and the manifest (see
+:mod:`reporter.archive.review`; the draft ``pack.pdf`` is the one file not re-rendered, and
+why is stated there). The signed PDF is that pack with its cover status set to signed and
+one sign-off page added at the end, so every earlier page keeps its page number.
 
-Order of work, so that a crash leaves nothing half-recorded: everything is rendered in
-memory; the ledger's write lock is taken; the refusal rules are checked again under the
-lock; the files are placed (staging folder, then no-replace renames); then the entry is
-inserted and committed. A kill after the files are placed and before the commit leaves
-files with no entry, which ``verify`` names and ``repair`` moves to quarantine.
+Order of work, so that a crash leaves nothing half-recorded: the archive is verified;
+everything is rendered in memory; the ledger's write lock is taken; the archive is verified
+again and the refusal rules are checked again under the lock; the files are placed
+(staging folder, then no-replace renames); then the entry is inserted and committed. A kill
+after the files are placed and before the commit leaves files with no entry, which
+``verify`` names and ``repair`` moves to quarantine.
 """
 
 from __future__ import annotations
 
 import datetime as dt
-import hashlib
-import json
 import sqlite3
 from dataclasses import dataclass
 from pathlib import Path
@@ -36,12 +38,13 @@ from reporter.archive.ledger import (
     entries_for,
     last_entry,
 )
-from reporter.build import assemble
+from reporter.archive.review import input_path, read_build, reproduce, sha256
+from reporter.archive.verify import load_entries, verify_archive
 from reporter.config import INPUT_ROLES, Settings, load_settings
-from reporter.errors import EXIT_FAILED, InputError, OutputError, Problem, ReporterError
+from reporter.errors import EXIT_FAILED, InputError, Problem, ReporterError
 from reporter.progress import Progress
 from reporter.render.pdf import render_pdf
-from reporter.writer import BUILD_MARKER, OutputSet, place_in_archive
+from reporter.writer import OutputSet, place_in_archive
 
 PDF_VARIANT = "pdf/a-3b"
 MAX_TEXT = 500
@@ -72,53 +75,6 @@ class SignOffReport:
     superseded: Entry | None
 
 
-@dataclass(frozen=True)
-class ReviewedBuild:
-    """A build folder whose files were checked against its manifest."""
-
-    folder: Path
-    manifest: dict
-    files: dict[str, bytes]      # relative path -> bytes, manifest included
-
-
-def sha256(data: bytes) -> str:
-    return hashlib.sha256(data).hexdigest()
-
-
-def read_build(folder: Path) -> ReviewedBuild:
-    """Load a build folder and check every output against the sha256 in its manifest."""
-    folder = Path(folder)
-    manifest_path = folder / "results" / "manifest.json"
-    if not (folder / BUILD_MARKER).is_file() or not manifest_path.is_file():
-        raise InputError([Problem(str(folder), "not a pack build (no results/manifest.json); "
-                                  "run 'reporter build' first")])
-    try:
-        manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
-        expected = manifest["output_sha256"]
-        _ = manifest["pack_dir"], manifest["pack_name"], manifest["built_utc"]
-    except (ValueError, KeyError, TypeError) as exc:
-        raise InputError([Problem(str(manifest_path), "not a manifest this version can sign "
-                                  f"({exc}); rebuild the pack")]) from None
-    problems, files = [], {"results/manifest.json": manifest_path.read_bytes()}
-    on_disk = {str(p.relative_to(folder)) for p in folder.rglob("*") if p.is_file()}
-    for rel in sorted(on_disk - set(expected) - {BUILD_MARKER, "results/manifest.json"}):
-        problems.append(Problem(str(folder / rel), "not written by the build; remove it or "
-                                "rebuild before signing"))
-    for rel, digest in sorted(expected.items()):
-        path = folder / rel
-        if not path.is_file():
-            problems.append(Problem(str(path), "missing from the build; rebuild the pack"))
-            continue
-        data = path.read_bytes()
-        if sha256(data) != digest:
-            problems.append(Problem(str(path), "changed since the build (sha256 differs from "
-                                    "the manifest); rebuild and review it again"))
-        files[rel] = data
-    if problems:
-        raise InputError(problems)
-    return ReviewedBuild(folder, manifest, files)
-
-
 def archive_name(pack_name: str, period_end: str, revision: int) -> str:
     """``<pack>-<period>``, with ``-r<n>`` from the second revision on."""
     base = f"{pack_name}-{period_end}"
@@ -132,6 +88,8 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
     archive = Path(archive).absolute()
     _check_request(request)
     _check_archive_folder(archive)
+    with progress.stage("verify archive"):
+        refuse_broken_archive(archive)
     with progress.stage("check build"):
         build = read_build(Path(build_dir))
         settings = load_settings(build.manifest["pack_dir"])
@@ -139,31 +97,26 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
         existing = _existing(archive, settings.name, period)
         _refuse(existing, request, settings.name, period)
     with progress.stage("re-render"):
-        built_at = dt.datetime.strptime(build.manifest["built_utc"], "%Y-%m-%dT%H:%M:%SZ")
-        a = assemble(settings, at=built_at.replace(tzinfo=dt.UTC))
-        _check_inputs_unchanged(settings, a.hashes, build)
-        if sha256(a.html(for_print=False).encode("utf-8")) != \
-                build.manifest["output_sha256"]["pack.html"]:
-            raise OutputError(f"{build.folder}: rebuilding from the inputs does not reproduce "
-                              "its pack.html (a different tool version or templates?); "
-                              "rebuild the pack, review it, then sign it off")
+        a, outputs = reproduce(build, settings)
     revision = existing[-1].revision + 1 if existing else 1
     superseded = existing[-1] if existing else None
     name = archive_name(settings.name, period, revision)
     signed_utc = dt.datetime.now(dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
     with progress.stage("pdf"):
-        pdf = _signed_pdf(a, build, settings, request, name, revision, superseded, signed_utc)
-    files = OutputSet()
+        pdf = _signed_pdf(a, outputs, build.manifest, settings, request, name, revision,
+                          superseded, signed_utc)
+    files = OutputSet()                   # the re-rendered bytes (equal to the build's)
     files.add(f"{period}/{name}.pdf", pdf)
-    files.add(f"{period}/{name}/pack.html", build.files["pack.html"])
-    for rel in sorted(build.files):
+    files.add(f"{period}/{name}/pack.html", outputs["pack.html"])
+    for rel in outputs.paths:
         if rel.startswith("results/"):
-            files.add(f"{period}/{name}/{rel}", build.files[rel])
+            files.add(f"{period}/{name}/{rel}", outputs[rel])
 
     archive.mkdir(parents=True, exist_ok=True)
     con = connect_for_writing(archive)
     try:
         con.execute("BEGIN IMMEDIATE")   # waits while another sign-off holds the lock
+        refuse_broken_archive(archive, locked=True)   # again: nothing else can change it now
         now_existing = entries_for(con, settings.name, period)
         _refuse(now_existing, request, settings.name, period)
         if [e.seq for e in now_existing] != [e.seq for e in existing]:
@@ -195,11 +148,12 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
     return SignOffReport(entry=entry, pdf=archive / entry.pdf_path, superseded=superseded)
 
 
-def _signed_pdf(a, build: ReviewedBuild, settings: Settings, request: SignOffRequest,
-                name: str, revision: int, superseded: Entry | None, signed_utc: str) -> bytes:
+def _signed_pdf(a, outputs: OutputSet, manifest: dict, settings: Settings,
+                request: SignOffRequest, name: str, revision: int, superseded: Entry | None,
+                signed_utc: str) -> bytes:
     """The pack as PDF/A-3b with the sign-off page, carrying pack.toml, the inputs and the
-    results files as embedded attachments."""
-    hashes = build.manifest["input_sha256"]
+    (re-rendered) results files as embedded attachments."""
+    hashes = manifest["input_sha256"]
     order = [k for k in ("pack.toml", *INPUT_ROLES) if k in hashes]   # a fund may have no
     #                                                                   one holdings file
     keys = order + sorted(set(hashes) - set(order))
@@ -221,11 +175,11 @@ def _signed_pdf(a, build: ReviewedBuild, settings: Settings, request: SignOffReq
         seen.add(name)
         what = ("the pack's settings" if key == "pack.toml" else f"{key} input"
                 if key in settings.inputs else "commentary")
-        attachments.append(Attachment(string=_input_path(settings, key).read_bytes(),
+        attachments.append(Attachment(string=input_path(settings, key).read_bytes(),
                                       name=name, description=what, relationship="Source"))
-    for rel in sorted(build.files):
+    for rel in outputs.paths:
         if rel.startswith("results/"):
-            attachments.append(Attachment(string=build.files[rel], name=rel,
+            attachments.append(Attachment(string=bytes(outputs[rel]), name=rel,
                                           description="results file", relationship="Data"))
     return render_pdf(a.html(for_print=True, signoff=record), base_dir=settings.pack_dir,
                       allowed=(settings.pack_dir,), variant=PDF_VARIANT,
@@ -267,15 +221,6 @@ def _check_archive_folder(archive: Path) -> None:
                                   "not an archive (choose an empty or new folder)")])
 
 
-def _input_path(settings: Settings, key: str) -> Path:
-    """The file behind a key of the manifest's ``input_sha256`` (a role, or a path)."""
-    if key == "pack.toml":
-        return settings.config_path
-    if key in settings.inputs:
-        return settings.inputs[key].path
-    return settings.pack_dir / key
-
-
 def _input_name(settings: Settings, key: str) -> str:
     """How an input is named on the sign-off page and in the PDF's attachments."""
     if key == "pack.toml":
@@ -285,14 +230,39 @@ def _input_name(settings: Settings, key: str) -> str:
     return key                                # commentary files and images, by path
 
 
-def _check_inputs_unchanged(settings: Settings, now: dict[str, str],
-                            build: ReviewedBuild) -> None:
-    then = build.manifest["input_sha256"]
-    changed = [k for k in sorted(set(now) | set(then)) if now.get(k) != then.get(k)]
-    if changed:
-        raise InputError([Problem(str(_input_path(settings, k)), "changed since the pack was "
-                                  "built; rebuild and review the new pack before signing it "
-                                  "off") for k in changed])
+def refuse_broken_archive(archive: Path, *, locked: bool = False) -> None:
+    """Run the full :func:`verify_archive` of an existing archive and refuse it, with every
+    finding on its own line, unless it is intact (a new archive has nothing to check).
+    Unless the caller holds the ledger's write lock (``locked``), it is taken for the
+    check, so that another sign-off's files placed a moment before its entry is committed
+    are not taken for unrecorded files."""
+    if not (archive / LEDGER_NAME).exists():
+        return
+    if locked:
+        report = verify_archive(archive)
+    else:
+        load_entries(archive)             # a file that is no ledger: ArchiveUnreadable
+        con = connect_for_writing(archive)
+        try:
+            con.execute("BEGIN IMMEDIATE")
+            report = verify_archive(archive)
+            con.execute("ROLLBACK")
+        finally:
+            con.close()
+    if not report.intact:
+        raise BrokenArchive(archive, [str(f) for f in report.findings])
+
+
+class BrokenArchive(ArchiveError):
+    """The archive fails verification: nothing is signed into it (exit 1). ``findings``
+    holds one line per problem (the command line prints each before the summary)."""
+
+    def __init__(self, archive: Path, findings: list[str]) -> None:
+        self.archive, self.findings = archive, findings
+        super().__init__(
+            f"{archive}: the archive fails verification ({len(findings)} problem(s)); "
+            "nothing was signed. A sign-off never extends a broken archive: restore it "
+            "from a backup (or run 'reporter repair' for unrecorded files) first")
 
 
 def _existing(archive: Path, pack_name: str, period: str) -> list[Entry]:
@@ -331,5 +301,5 @@ def head_hash(archive: Path) -> str | None:
         con.close()
 
 
-__all__ = ["ArchiveError", "SignOffReport", "SignOffRequest", "archive_name", "head_hash",
-           "read_build", "sign_off"]
+__all__ = ["ArchiveError", "BrokenArchive", "SignOffReport", "SignOffRequest", "archive_name",
+           "head_hash", "read_build", "sign_off"]

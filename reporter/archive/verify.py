@@ -8,7 +8,17 @@ crash left behind.
   sequence numbers skip (an entry was deleted or reordered);
 - ``changed``: an archived file's sha256 differs from its entry;
 - ``missing``: a file an entry records is not there;
-- ``unrecorded``: a file in the archive that no entry records.
+- ``unrecorded``: a file in the archive that no entry records;
+- ``symlink``: a symbolic link anywhere in the archive (an archive holds only plain files
+  and folders; a link could lead a reader to a writable copy elsewhere, so a recorded file
+  reached through one is not read);
+- ``outside``: an entry records a path that is not a plain relative path inside the
+  archive (absolute, with ``..`` or ``.`` parts, backslashes, empty parts); it is not read;
+- ``pdf``: an entry's ``pdf_path`` is not one of its recorded files with ``pdf_sha256``;
+- ``writable``: a recorded file whose mode lets anyone write it (sign-off places every
+  file read-only, mode 0444, see :func:`reporter.writer.place_in_archive`).
+
+Anchoring the chain to the heads minuted at sign-off is :mod:`reporter.archive.anchor`.
 
 Left-over staging folders of interrupted sign-offs are not part of the archive; they are
 listed as notes, and ``repair`` moves them, like unrecorded files, to ``quarantine/``.
@@ -20,8 +30,9 @@ import datetime as dt
 import hashlib
 import os
 import sqlite3
+import stat
 from dataclasses import dataclass, field
-from pathlib import Path
+from pathlib import Path, PurePosixPath
 
 from reporter.archive.ledger import (
     GENESIS,
@@ -130,29 +141,96 @@ def archive_files(archive: Path) -> tuple[list[str], list[str]]:
     return sorted(files), staging
 
 
+def symlinks(archive: Path) -> list[str]:
+    """Every symbolic link in the archive (files and folders, quarantine and staging
+    included), relative to the archive; links to folders are not followed."""
+    out = []
+    for dirpath, dirnames, filenames in os.walk(archive):
+        rel_dir = Path(dirpath).relative_to(archive)
+        out.extend((rel_dir / n).as_posix() for n in (*dirnames, *filenames)
+                   if os.path.islink(os.path.join(dirpath, n)))
+    return sorted(out)
+
+
+def path_problem(rel: object) -> str | None:
+    """Why a path recorded in an entry is not a plain relative path inside the archive, or
+    None when it is one."""
+    if not isinstance(rel, str) or not rel:
+        return "which is not a path"
+    if "\\" in rel or "\x00" in rel:
+        return "which holds a backslash or NUL character"
+    p = PurePosixPath(rel)
+    if p.is_absolute():
+        return "which is absolute (outside the archive)"
+    if any(part in ("..", ".") for part in rel.split("/")):
+        return "which has '..' or '.' parts (it may lead outside the archive)"
+    if str(p) != rel:
+        return "which has empty parts"
+    return None
+
+
+def _linked_part(archive: Path, rel: str) -> str | None:
+    """The first part of ``rel`` (from the archive down) that is a symbolic link."""
+    parts = PurePosixPath(rel).parts
+    for i in range(1, len(parts) + 1):
+        if (archive.joinpath(*parts[:i])).is_symlink():
+            return "/".join(parts[:i])
+    return None
+
+
+def _file_hashes(e: Entry) -> dict[str, str] | None:
+    try:
+        hashes = e.file_hashes
+    except ValueError:
+        return None
+    if not isinstance(hashes, dict) or not all(isinstance(d, str) for d in hashes.values()):
+        return None
+    return hashes
+
+
 def verify_archive(archive: Path | str) -> ArchiveReport:
     """Check every entry's files and the whole chain (see the module docstring)."""
     archive = Path(archive)
     entries = load_entries(archive)
     findings = chain_findings(entries)
     on_disk, staging = archive_files(archive)
+    findings += [Finding("symlink", rel, f"is a symbolic link (to {os.readlink(archive / rel)!r})"
+                         "; an archive holds only plain files and folders, so it is not "
+                         "followed (restore the file itself from a backup)")
+                 for rel in symlinks(archive)]
     recorded: set[str] = set()
     for e in entries:
-        try:
-            hashes = e.file_hashes
-        except ValueError:
-            findings.append(Finding("ledger-edited", f"{LEDGER_NAME} entry {e.seq}",
-                                    "its file list is not valid JSON"))
+        where = f"{LEDGER_NAME} entry {e.seq}"
+        hashes = _file_hashes(e)
+        if hashes is None:
+            findings.append(Finding("ledger-edited", where, "its file list is not a JSON "
+                                    "object of path to sha256"))
             continue
-        recorded.update(hashes)
+        if hashes.get(e.pdf_path) != e.pdf_sha256:
+            findings.append(Finding("pdf", where, f"its PDF {e.pdf_path!r} is not one of its "
+                                    "recorded files with its recorded sha256"))
         for rel, digest in sorted(hashes.items()):
+            reason = path_problem(rel)
+            if reason is not None:
+                findings.append(Finding("outside", where, f"records the path {rel!r}, "
+                                        f"{reason}; it was not read"))
+                continue
+            recorded.add(rel)
             path = archive / rel
+            if _linked_part(archive, rel) is not None:
+                continue                       # named above as a symlink; never followed
             if not path.is_file():
                 findings.append(Finding("missing", rel, f"recorded by entry {e.seq} but not "
                                         "in the archive"))
-            elif file_sha256(path) != digest:
+                continue
+            if file_sha256(path) != digest:
                 findings.append(Finding("changed", rel, f"sha256 differs from entry {e.seq} "
                                         "(the file was altered)"))
+            mode = stat.S_IMODE(path.lstat().st_mode)
+            if mode & (stat.S_IWUSR | stat.S_IWGRP | stat.S_IWOTH):
+                findings.append(Finding("writable", rel, f"mode {mode:04o} lets it be written; "
+                                        "archived files are read-only (0444). Check it, then "
+                                        "'chmod a-w' it"))
     for rel in sorted(set(on_disk) - recorded):
         findings.append(Finding("unrecorded", rel, "in the archive but no ledger entry "
                                 "records it ('reporter repair' moves it to quarantine)"))

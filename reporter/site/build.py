@@ -244,7 +244,7 @@ def render_site(archive: Path, packs: list[SignedPack], head_hash: str | None) -
              grid=_limit_grid(t.rows, periods) if t.value is None else None)
     page("methods.html", "methods.html.j2")
     page("checking.html", "checking.html.j2", example=ordered[0] if ordered else None,
-         pack_pdf=pack_pdf)
+         pack_pdf=pack_pdf, ledger=sorted((p.entry for p in packs), key=lambda e: e.seq))
     palette = {"ink": INK, "teal": TEAL, "ochre": OCHRE, "brick": BRICK, "grey": GREY}
     files.add("assets/site.css", env.get_template("site/site.css.j2").render(**palette))
     files.add("assets/site.js", _static("site.js"))
