@@ -219,6 +219,9 @@ def results_files(a: Assembled, files: OutputSet) -> None:
             buf = io.StringIO()
             table.to_csv(buf, index=False, lineterminator="\n", float_format="%.10g")
             files.add(rel, buf.getvalue())
+    if res.stress is not None:
+        files.add("results/risk_scenarios.json", json_text(res.stress.as_json()))
+        files.add("results/risk_scenarios.csv", res.stress.csv_text())
     if a.limits is not None:
         files.add("results/limits.json", json_text(a.limits.as_json()))
     if settings.compare_build is not None or settings.compare_archive is not None:

@@ -31,6 +31,7 @@ from reporter.errors import InputError, Problem
 from reporter.stress_config import StressSection
 
 THREE_MONTHS = {"monthly": 3, "weekly": 13, "daily": 63}   # periods in a rolling quarter
+UNITS = {"monthly": "months", "weekly": "weeks", "daily": "days"}
 N_WORST = 5
 TOP_HOLDINGS = 10
 FEW_TAIL_PERIODS = 5   # warn when fewer periods than this are expected beyond the VaR
@@ -56,6 +57,7 @@ class StressResults:
     seed: int
     portfolio_value: float | None      # sum of market values, when the holdings give them
     few_periods: list[str]             # warnings on estimates resting on few periods
+    unit: str = "periods"              # "months", "weeks" or "days": the backtest's reading
 
     def figure(self, measure: str, method: str, level: float, horizon: str) -> float:
         """One VaR or ES value (NaN when it was not computed)."""
@@ -71,7 +73,7 @@ class StressResults:
             "shocks": self.shocks,
             "var": [f.as_json() for f in self.figures if f.measure == "var"],
             "es": [f.as_json() for f in self.figures if f.measure == "es"],
-            "backtest": self.backtest.as_json(),
+            "backtest": self.backtest.as_json() | {"reading": self.backtest.reading(self.unit)},
             "scenarios": self.scenarios,
             "z_specific": self.z_specific, "interval_confidence": self.confidence,
             "bootstrap": {"method": "stationary (Politis and Romano 1994)",
@@ -272,4 +274,4 @@ def stress_analysis(cfg: StressSection, *, frequency: str, periods_per_year: int
     return StressResults(shocks=shocks, figures=figures, backtest=test, scenarios=scenarios,
                          z_specific=z, confidence=confidence, draws=cfg.bootstrap_draws,
                          block_length=float(block), seed=seed, portfolio_value=value,
-                         few_periods=few)
+                         few_periods=few, unit=UNITS[frequency])
