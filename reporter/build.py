@@ -212,6 +212,9 @@ def results_files(a: Assembled, files: OutputSet) -> None:
         for rel, table in (("results/period_returns.csv", res.period_table),
                            ("results/risk_contributions.csv", res.risk_table)):
             files.add(rel, csv_text(table))
+    if res.stress is not None:
+        files.add("results/risk_scenarios.json", json_text(res.stress.as_json()))
+        files.add("results/risk_scenarios.csv", res.stress.csv_text())
     if a.limits is not None:
         files.add("results/limits.json", json_text(a.limits.as_json()))
     if settings.compare_build is not None or settings.compare_archive is not None:

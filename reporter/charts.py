@@ -306,7 +306,9 @@ def build_charts(res: PackResults, limits=None,
     """Every chart of the pack, keyed by the name the templates use. ``limits`` (a
     :class:`reporter.limits.LimitsReport`, optional) marks sector limits on the sector chart;
     ``market_label`` names the series the regressions are against (a mandate's benchmark)."""
-    return {
+    from reporter.stress_charts import stress_charts  # it draws with this module's palette
+
+    return stress_charts(res.stress, market_label) | {
         "rolling_portfolio": rolling_portfolio_chart(res),
         "rolling_holdings": rolling_holdings_chart(res),
         "sml": sml_chart(res, market_label),

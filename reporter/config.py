@@ -18,6 +18,7 @@ from typing import Annotated, Literal
 from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, ValidationError
 
 from reporter.errors import InputError, Problem
+from reporter.stress_config import Shock, StressSection
 
 PERIODS_PER_YEAR = {"monthly": 12, "weekly": 52, "daily": 252}
 INPUT_ROLES = ("holdings", "returns", "market", "risk_free")
@@ -127,6 +128,9 @@ class LimitsSection(_Strict):
     min_holdings: Annotated[int, Field(ge=1)] | None = None
     max_tracking_error_ann: Annotated[float, Field(gt=0.0, le=5.0)] | None = None
     max_idiosyncratic_share: Fraction | None = None
+    max_var_95_ann: Annotated[float, Field(gt=0.0, le=5.0)] | None = None   # historical VaR
+    max_stress_loss: Fraction | None = None       # loss from beta x stress_shock
+    stress_shock: Shock = -0.20
     watch_margin: Annotated[float, Field(ge=0.0, lt=1.0)] = 0.10
 
 
@@ -175,6 +179,7 @@ class PackFile(_Strict):
     compare: CompareSection | None = None
     fund: FundSection | None = None
     mandates: list[MandateSection] | None = None
+    stress: StressSection = StressSection()
 
 
 @dataclass(frozen=True)
@@ -228,6 +233,7 @@ class Settings:
 
     mandates: tuple[Mandate, ...] = ()  # empty: a single-portfolio pack
     fund_benchmark: str | None = None   # "market" | "file" | "policy" (funds only)
+    stress: StressSection = StressSection()   # [stress]
 
     @property
     def periods_per_year(self) -> int:
@@ -259,9 +265,9 @@ DEFAULT_STALE_RUN = {"monthly": 3, "weekly": 4, "daily": 5}
 
 
 def _loc(loc: tuple) -> str:
-    # a list position is kept after "mandates" (mandates.1.name), dropped elsewhere
+    # a list position is kept after "mandates" and "scenarios" (mandates.1.name), dropped elsewhere
     return ".".join(str(p) for k, p in enumerate(loc)
-                    if (not isinstance(p, int) or (k and loc[k - 1] == "mandates"))
+                    if (not isinstance(p, int) or (k and loc[k - 1] in ("mandates", "scenarios")))
                     and p not in _UNION_TAGS)
 
 
@@ -408,6 +414,7 @@ def load_settings(pack: Path | str) -> Settings:
         seed=model.analysis.seed,
         mandates=mandates,
         fund_benchmark=fund_benchmark,
+        stress=model.stress,
     )
 
 

@@ -56,6 +56,7 @@ SECTIONS = (
     Section("beta", "Beta estimates"),
     Section("sml", "Security market line"),
     Section("diversification", "Diversification"),
+    Section("stress", "Stress and scenarios"),
     Section("holdings", "Holdings appendix"),
     Section("methodology", "Methodology"),
     Section("cautions", "Cautions"),
@@ -117,6 +118,7 @@ class PackContext:
     risk_sectors: list[dict] = field(default_factory=list)    # contributions by sector
     covariance_auto: bool = True     # the method was chosen by the "auto" rule
     has_benchmark: bool = False      # an optional benchmark series was given
+    stress: dict = field(default_factory=dict)   # results/risk_scenarios.json's content
 
 
 def _records(df) -> list[dict]:
@@ -185,4 +187,5 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         risk_sectors=_records(res.risk_table[res.risk_table["level"] == "sector"]),
         covariance_auto=settings.covariance == "auto",
         has_benchmark="benchmark" in settings.inputs,
+        stress=res.stress.as_json() if res.stress is not None else {},
     )

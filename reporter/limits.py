@@ -34,6 +34,8 @@ LABELS = {
     "min_holdings": "Number of holdings, minimum",
     "max_tracking_error_ann": "Tracking error (annualised), maximum",
     "max_idiosyncratic_share": "Specific share of variance, maximum",
+    "max_var_95_ann": "Value at risk 95%, one year (historical), maximum",
+    "max_stress_loss": "Loss in the stress shock (beta), maximum",
 }
 # the order in which limits are listed (and compared between packs)
 LIMIT_KEYS = tuple(LABELS)
@@ -213,7 +215,9 @@ def evaluate_limits(cfg: LimitsSection, res: PackResults) -> LimitsReport:
     weights are absolute weights |w|; sector weights are net sums of weights; effective N
     is 1/sum(w^2); tracking error is sd(r_p - r_b) x sqrt(P) against the benchmark when the
     pack has one, else sd(r_p - r_m) x sqrt(P) (``tracking_error_ann``); the specific share is
-    1 - R^2 of the portfolio's own regression on the market (``idiosyncratic_share``).
+    1 - R^2 of the portfolio's own regression on the market (``idiosyncratic_share``); value
+    at risk is the historical one-year 95% figure of the stress chapter (NaN, and so a note,
+    when 0.95 is not among ``[stress] levels``); the stress loss is -beta x ``stress_shock``.
     """
     m = cfg.watch_margin
     p = res.portfolio_summary()
@@ -276,6 +280,12 @@ def evaluate_limits(cfg: LimitsSection, res: PackResults) -> LimitsReport:
     if cfg.max_idiosyncratic_share is not None:
         checks.append(_scalar("max_idiosyncratic_share", "max", p["idiosyncratic_share"],
                               cfg.max_idiosyncratic_share, m))
+    if cfg.max_var_95_ann is not None:
+        var = res.stress.figure("var", "historical", 0.95, "year") if res.stress else np.nan
+        checks.append(_scalar("max_var_95_ann", "max", var, cfg.max_var_95_ann, m))
+    if cfg.max_stress_loss is not None:     # the loss is -beta x shock (positive in a fall)
+        checks.append(_scalar("max_stress_loss", "max", -p["beta_regression"] * cfg.stress_shock,
+                              cfg.max_stress_loss, m))
     target = None
     beta_out = [c for c in checks if c.limit in ("beta_min", "beta_max") and c.status == BREACH]
     for c in checks:

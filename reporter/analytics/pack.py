@@ -64,6 +64,7 @@ from reporter.analytics.sml import (
     performance_ratios,
     security_market_line,
 )
+from reporter.analytics.stress import StressResults, stress_analysis
 from reporter.config import Settings
 from reporter.errors import InputError, Problem
 from reporter.memory import release_free_memory
@@ -131,6 +132,7 @@ class PackResults:
     tracking_reference: str           # "market proxy" | "benchmark": what risk TE is against
     history_benchmark: np.ndarray | None  # r_b per period over history_dates (NaN if absent)
     portfolio_source: str             # "current weights" | "portfolio returns file"
+    stress: StressResults | None = None   # shocks, scenarios, VaR/ES, backtest
 
     def line_tests_summary(self) -> dict:
         """The tests of the security market line added to ``results/portfolio.json``."""
@@ -439,6 +441,11 @@ def analyse(inputs: ValidInputs, settings: Settings,
     for c in extra:
         sec[c] = hold[c].to_numpy()
     sec = sec[SECURITY_COLUMNS + extra]
+    stress = stress_analysis(
+        settings.stress, frequency=settings.frequency, periods_per_year=P,
+        confidence=settings.confidence, seed=settings.seed, win=win, hist=hist, weights=weights,
+        securities=sec, beta=pfit.beta, beta_ci=pfit.beta_ci, resid_vol=pfit.residual_vol,
+        model_sd=risk.volatility, benchmark=bench_hist)
     portfolio_extra = {
         "beta_up": float(p_up[0]), "beta_down": float(p_down[0]),
         "beta_dimson": float(dimson[0]), "beta_scholes_williams": float(sw[0]),
@@ -460,4 +467,5 @@ def analyse(inputs: ValidInputs, settings: Settings,
         tracking_reference="market proxy" if benchmark is None else "benchmark",
         history_benchmark=bench_hist,
         portfolio_source="current weights" if portfolio is None else "portfolio returns file",
+        stress=stress,
     )
