@@ -54,6 +54,9 @@ _XML_ILLEGAL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
 _XML_ESCAPE_LIKE = re.compile(r"_(x[0-9A-Fa-f]{4}_)")
 _ANN = re.compile(r"_ann(?![a-z])")
 MIN_WIDTH, MAX_WIDTH = 8, 60
+# results/period_returns.csv: each row's return over its own period (cumulative or annualised,
+# as its ``basis`` says)
+PERIOD_RETURNS = ("portfolio", "market", "difference", "benchmark", "benchmark_difference")
 
 
 @dataclass(frozen=True)
@@ -66,49 +69,56 @@ class Sheet:
     table: pd.DataFrame
     key: str | None = None
     keyed: tuple[str, ...] = ()
+    returns: tuple[str, ...] = ()       # return columns whose period is the row's (see basis)
 
 
 # --- formats and units, from column names ---------------------------------------------------
 
 def _base(name: str) -> str:
-    """The name without its ``_ann`` mark and any dotted prefix (``beta.change`` -> kept)."""
-    return _ANN.sub("", name.lower())
+    """The name without its ``_ann`` mark; of a dotted key its last part, except that every
+    figure under ``beta.`` (the beta change in changes.json) is a beta."""
+    b = _ANN.sub("", name.lower())
+    return "beta" if b.startswith("beta.") else b.rsplit(".", 1)[-1]
 
 
 def is_ratio(name: str) -> bool:
-    """Betas, t-statistics, z, ratios and counts of effective holdings: ``0.00``."""
+    """Betas, t-statistics, z, F, correlations, shrinkage and ratios: ``0.00``."""
     b = _base(name)
-    return (b.endswith(("_t", "_z", ".z")) or b in ("z", "critical", "beta.critical")
-            or any(w in b for w in ("beta", "ratio", "sharpe", "r_squared", "effective_n")))
+    return (b.endswith(("_t", "_z", "_f")) or b in ("z", "critical", "target", "lo_scale")
+            or any(w in b for w in ("beta", "ratio", "sharpe", "sortino", "r_squared",
+                                    "effective_n", "correlation", "shrinkage")))
 
 
 def is_weight(name: str) -> bool:
-    """Weights and shares (decimals of the portfolio, not per period)."""
+    """Weights, shares and margins (decimals of a whole, not per period)."""
     b = _base(name)
-    return any(w in b for w in ("weight", "share", "range_low", "range_high"))
+    return any(w in b for w in ("weight", "share", "range_low", "range_high", "margin"))
 
 
 def is_return(name: str) -> bool:
     """Per-period decimal returns, alphas, volatilities and their kin (annualised with _ann)."""
     b = _base(name)
-    return any(w in b for w in (
+    return b in ("m2", "m2_excess", "mar", "change") or any(w in b for w in (
         "return", "_ret", "ret_", "alpha", "vol", "tracking_error", "te_contribution",
-        "sml_residual", "sml_expected", "mean_excess", "risk_free", "market_premium",
-        "treynor", "residual_before", "residual_now", "residual_change"))
+        "sml_residual", "sml_expected", "mean_excess", "risk_free", "premium", "treynor",
+        "residual_before", "residual_now", "residual_change", "deviation", "drawdown",
+        "intercept", "slope"))
 
 
 def is_count(name: str) -> bool:
-    b = _base(name).rsplit(".", 1)[-1]
-    return b.startswith("n_") or b in ("hac_lags", "periods_per_year", "rolling_window",
-                                       "n_holdings", "holdings")
+    b = _base(name)
+    return b.startswith("n_") or b in ("hac_lags", "periods_per_year", "rolling_window")
 
 
 def number_format(name: str) -> str | None:
     """The display format of a number in column (or under key) ``name``; None: General.
     Ratios are tested first (``alpha_t`` is a t-statistic, ``beta_ci_low`` a beta)."""
+    b = _base(name)
+    if b.endswith("p_value"):
+        return "0.0000"
     if is_ratio(name):
         return DECIMAL2
-    if is_weight(name) or is_return(name) or _base(name).endswith(".change"):
+    if is_weight(name) or is_return(name):
         return PERCENT
     if is_count(name):
         return INTEGER
@@ -116,14 +126,16 @@ def number_format(name: str) -> str | None:
 
 
 def unit_note(name: str, period: str) -> str:
-    """``annualised``, ``per period (<period>)`` or empty, from the column name."""
-    if _ANN.search(name.lower()):
-        return "annualised"
+    """``annualised``, ``per period (<period>)`` or empty, from the column name: returns,
+    alphas, volatilities and the Sharpe, information and appraisal ratios are per period
+    unless ``_ann``; weights, betas and t-statistics have no period."""
     b = _base(name)
-    if not is_weight(name) and (is_return(name) or any(
-            w in b for w in ("sharpe", "information_ratio", "appraisal_ratio"))):
-        return f"per period ({period})"
-    return ""
+    periodic = any(w in b for w in ("sharpe", "sortino", "information_ratio",
+                                    "appraisal_ratio")) or (
+        is_return(name) and not is_weight(name) and not is_ratio(name) and "differs" not in b)
+    if not periodic:
+        return ""
+    return "annualised" if _ANN.search(name.lower()) else f"per period ({period})"
 
 
 # --- cells ---------------------------------------------------------------------------------
@@ -189,12 +201,14 @@ def _write_table(ws, sheet: Sheet, period: str) -> None:
     cols = [str(c) for c in df.columns]
     bold = Font(bold=True)
     for j, name in enumerate(cols, start=1):
-        _text(ws.cell(row=1, column=j), unit_note(name, period))
+        note = "over the row's period, on its basis" if name in sheet.returns else unit_note(
+            name, period)
+        _text(ws.cell(row=1, column=j), note)
         ws.cell(row=1, column=j).font = Font(italic=True)
         head = ws.cell(row=2, column=j)
         _text(head, name)
         head.font = bold
-    formats = [number_format(c) for c in cols]
+    formats = [PERCENT if c in sheet.returns else number_format(c) for c in cols]
     keyed = {cols.index(c) for c in sheet.keyed if c in cols}
     keys = df[sheet.key].tolist() if sheet.key in df.columns else None
     for i, row in enumerate(df.itertuples(index=False, name=None), start=3):
@@ -335,7 +349,7 @@ def pack_sheets(a) -> list[Sheet]:
     sheets = [Sheet("securities", tables[0]),
               key_value("portfolio", json_ready(portfolio)),
               Sheet("risk contributions", tables[1]),
-              Sheet("period returns", tables[2])]
+              Sheet("period returns", tables[2], returns=PERIOD_RETURNS)]
     if a.limits is not None:
         sheets += limits_sheets(json_ready(a.limits.as_json()))
     if settings.compare_build is not None or settings.compare_archive is not None:

@@ -146,7 +146,12 @@ def test_headers_frozen_filtered_and_formatted(book, demo_build):
         assert fmt[name] == "0.00", name
     assert unit["alpha_ann"] == unit["residual_vol_ann"] == "annualised"
     assert unit["alpha"] == unit["mean_excess_return"] == "per period (month)"
-    assert unit["weight"] is None and unit["beta"] is None
+    assert unit["weight"] is None and unit["beta"] is None and unit["alpha_t"] is None
+    assert unit["sharpe"] == "per period (month)" and unit["sharpe_ann"] == "annualised"
+    per = book["period returns"]
+    pcol = {c.value: c.column for c in per[2]}
+    assert per.cell(row=3, column=pcol["portfolio"]).number_format == "0.00%"
+    assert per.cell(row=1, column=pcol["difference"]).value.startswith("over the row's period")
     # the portfolio's values take their format from their key
     port = {r[0].value: r[1] for r in book["portfolio"].iter_rows(min_row=3)}
     assert port["tracking_error_ann"].number_format == "0.00%"
@@ -155,6 +160,10 @@ def test_headers_frozen_filtered_and_formatted(book, demo_build):
     lim = {r[0].value: r[4] for r in book["limits"].iter_rows(min_row=3)}
     assert lim["max_holding_weight"].number_format == "0.00%"
     assert lim["beta_max"].number_format == "0.00"
+    summary = {r[0].value: r[1] for r in book["limits summary"].iter_rows(min_row=3)}
+    if "beta_target.cash_share" in summary:       # the beta mix, when beta is out of band
+        assert summary["beta_target.cash_share"].number_format == "0.00%"
+        assert summary["beta_target.target"].number_format == "0.00"
 
 
 def test_about_sheet(book, demo_build):
