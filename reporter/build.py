@@ -37,6 +37,7 @@ from reporter.progress import Progress
 from reporter.render.html import export_charts, print_charts, render_html
 from reporter.render.pdf import render_pdf
 from reporter.validate import read_inputs, validate_tables
+from reporter.workbook import pack_workbook
 from reporter.writer import OutputSet, check_target, commit, open_staging
 
 
@@ -221,6 +222,7 @@ def results_files(a: Assembled, files: OutputSet) -> None:
         doc = a.changes.as_json() if a.changes is not None else {
             "previous": None, "note": ctx.compare_note}
         files.add("results/changes.json", json_text(doc))
+    files.add("results/pack.xlsx", pack_workbook(a))   # the same tables, for a spreadsheet
 
 
 def pack_files(a: Assembled, html: str, pdf: bytes, files: OutputSet | None = None

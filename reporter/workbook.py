@@ -1,0 +1,399 @@
+"""``results/pack.xlsx``: the officer's workbook, one sheet per results table.
+
+A first "About" sheet (pack, period, build time, input fingerprint, tool version, the
+cautions), then one sheet per results table of the build: securities, portfolio (key and
+value), risk contributions, period returns, limits, changes, and for a fund the mandates
+and the overlap between them. The rolling betas stay in their CSV only (a daily history of
+2,000 holdings is 4.5 million rows, past a worksheet's 1,048,576).
+
+Each table sheet has a units line in row 1 (``annualised`` for a column whose name carries
+``_ann``, ``per period`` for the other returns, alphas, volatilities and per-period ratios),
+the column names of the CSV in row 2, its rows from row 3; both header rows are frozen and an
+autofilter sits on row 2. Decimal returns, weights, shares and volatilities are shown as
+percentages, betas, t-statistics and ratios as ``0.00``; the stored value is the full float.
+
+Text is written as text, never as a formula (OWASP guidance on CSV and formula injection):
+every text cell is a string cell (``t="s"``), and one that begins with ``=``, ``+``, ``-``,
+``@``, a tab, a carriage return or an apostrophe also carries the "quote prefix" style, so
+that editing it in a spreadsheet keeps it text. The text is the original (the CSVs' escape
+apostrophe is not added). Characters that XML 1.0 cannot hold (C0 controls other than tab,
+line feed and carriage return) are written as ECMA-376's ``_xHHHH_`` escape, which Excel
+shows as the character; openpyxl reads the escape back as written.
+
+The file is byte-identical for the same inputs and build time: the document's created and
+modified times are the build time, and the zip is rewritten with every entry stamped with
+the build time, in a fixed order.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import io
+import math
+import re
+import zipfile
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+from openpyxl import Workbook
+from openpyxl.styles import Alignment, Font
+from openpyxl.utils import get_column_letter
+from openpyxl.writer.excel import ExcelWriter
+
+from reporter import __version__
+from reporter.csvsafe import needs_escape
+from reporter.jsonvalues import json_ready
+
+PERCENT = "0.00%"
+DECIMAL2 = "0.00"
+INTEGER = "0"
+DATE = "yyyy-mm-dd"
+PERIOD_WORD = {12: "month", 52: "week", 252: "day", 4: "quarter", 1: "year"}
+_XML_ILLEGAL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
+_XML_ESCAPE_LIKE = re.compile(r"_(x[0-9A-Fa-f]{4}_)")
+_ANN = re.compile(r"_ann(?![a-z])")
+MIN_WIDTH, MAX_WIDTH = 8, 60
+# results/period_returns.csv: each row's return over its own period (cumulative or annualised,
+# as its ``basis`` says)
+PERIOD_RETURNS = ("portfolio", "market", "difference", "benchmark", "benchmark_difference")
+
+
+@dataclass(frozen=True)
+class Sheet:
+    """One worksheet: ``table``'s columns and rows. ``key`` names a column whose text decides
+    the number format of the columns in ``keyed`` row by row (the portfolio's ``value`` by its
+    key, a limit's ``value`` and ``threshold`` by the limit)."""
+
+    name: str
+    table: pd.DataFrame
+    key: str | None = None
+    keyed: tuple[str, ...] = ()
+    returns: tuple[str, ...] = ()       # return columns whose period is the row's (see basis)
+
+
+# --- formats and units, from column names ---------------------------------------------------
+
+def _base(name: str) -> str:
+    """The name without its ``_ann`` mark; of a dotted key its last part, except that every
+    figure under ``beta.`` (the beta change in changes.json) is a beta."""
+    b = _ANN.sub("", name.lower())
+    return "beta" if b.startswith("beta.") else b.rsplit(".", 1)[-1]
+
+
+def is_ratio(name: str) -> bool:
+    """Betas, t-statistics, z, F, correlations, shrinkage and ratios: ``0.00``."""
+    b = _base(name)
+    return (b.endswith(("_t", "_z", "_f")) or b in ("z", "critical", "target", "lo_scale")
+            or any(w in b for w in ("beta", "ratio", "sharpe", "sortino", "r_squared",
+                                    "effective_n", "correlation", "shrinkage")))
+
+
+def is_weight(name: str) -> bool:
+    """Weights, shares and margins (decimals of a whole, not per period)."""
+    b = _base(name)
+    return any(w in b for w in ("weight", "share", "range_low", "range_high", "margin"))
+
+
+def is_return(name: str) -> bool:
+    """Per-period decimal returns, alphas, volatilities and their kin (annualised with _ann)."""
+    b = _base(name)
+    return b in ("m2", "m2_excess", "mar", "change") or any(w in b for w in (
+        "return", "_ret", "ret_", "alpha", "vol", "tracking_error", "te_contribution",
+        "sml_residual", "sml_expected", "mean_excess", "risk_free", "premium", "treynor",
+        "residual_before", "residual_now", "residual_change", "deviation", "drawdown",
+        "intercept", "slope"))
+
+
+def is_count(name: str) -> bool:
+    b = _base(name)
+    return b.startswith("n_") or b in ("hac_lags", "periods_per_year", "rolling_window")
+
+
+def number_format(name: str) -> str | None:
+    """The display format of a number in column (or under key) ``name``; None: General.
+    Ratios are tested first (``alpha_t`` is a t-statistic, ``beta_ci_low`` a beta)."""
+    b = _base(name)
+    if b.endswith("p_value"):
+        return "0.0000"
+    if is_ratio(name):
+        return DECIMAL2
+    if is_weight(name) or is_return(name):
+        return PERCENT
+    if is_count(name):
+        return INTEGER
+    return None
+
+
+def unit_note(name: str, period: str) -> str:
+    """``annualised``, ``per period (<period>)`` or empty, from the column name: returns,
+    alphas, volatilities and the Sharpe, information and appraisal ratios are per period
+    unless ``_ann``; weights, betas and t-statistics have no period."""
+    b = _base(name)
+    periodic = any(w in b for w in ("sharpe", "sortino", "information_ratio",
+                                    "appraisal_ratio")) or (
+        is_return(name) and not is_weight(name) and not is_ratio(name) and "differs" not in b)
+    if not periodic:
+        return ""
+    return "annualised" if _ANN.search(name.lower()) else f"per period ({period})"
+
+
+# --- cells ---------------------------------------------------------------------------------
+
+def sheet_text(text: str) -> str:
+    """``text`` as a worksheet can hold it: characters XML 1.0 forbids as ``_xHHHH_``, and a
+    literal ``_xHHHH_`` protected as ``_x005F_xHHHH_`` (ECMA-376 Part 1, ST_Xstring)."""
+    text = _XML_ESCAPE_LIKE.sub(r"_x005F_\1", text)
+    return _XML_ILLEGAL.sub(lambda m: f"_x{ord(m.group()):04X}_", text)
+
+
+def _put(cell, value, fmt: str | None) -> None:
+    """Write ``value`` into ``cell``: NaN and None as an empty cell, text as text."""
+    if value is None or value is pd.NaT:
+        return
+    if isinstance(value, bool | np.bool_):
+        cell.value = bool(value)
+    elif isinstance(value, int | np.integer):
+        cell.value = int(value)
+        cell.number_format = fmt or INTEGER
+    elif isinstance(value, float | np.floating):
+        v = float(value)
+        if math.isnan(v):
+            return
+        if math.isinf(v):                  # no number a worksheet holds; as the CSV writes it
+            _text(cell, "inf" if v > 0 else "-inf")
+            return
+        cell.value = v
+        if fmt:
+            cell.number_format = fmt
+    elif isinstance(value, pd.Timestamp | np.datetime64 | dt.datetime):
+        cell.value = pd.Timestamp(value).to_pydatetime()
+        cell.number_format = DATE
+    elif isinstance(value, dt.date):
+        cell.value = value
+        cell.number_format = DATE
+    elif isinstance(value, list | tuple):
+        _text(cell, "; ".join(str(v) for v in value))
+    else:
+        _text(cell, str(value))
+
+
+def _text(cell, text: str) -> None:
+    cell.value = sheet_text(text)
+    cell.data_type = "s"                   # never a formula, whatever its first character
+    if needs_escape(text):
+        cell.quotePrefix = True
+
+
+def _width(values: list[str]) -> float:
+    longest = max((len(v) for v in values), default=0)
+    return float(min(MAX_WIDTH, max(MIN_WIDTH, longest + 2)))
+
+
+def _shown(value) -> str:
+    if isinstance(value, float | np.floating):
+        return "" if not np.isfinite(value) else f"{value:.4g}"
+    return "" if value is None else str(value)
+
+
+def _write_table(ws, sheet: Sheet, period: str) -> None:
+    df = sheet.table
+    cols = [str(c) for c in df.columns]
+    bold = Font(bold=True)
+    for j, name in enumerate(cols, start=1):
+        note = "over the row's period, on its basis" if name in sheet.returns else unit_note(
+            name, period)
+        _text(ws.cell(row=1, column=j), note)
+        ws.cell(row=1, column=j).font = Font(italic=True)
+        head = ws.cell(row=2, column=j)
+        _text(head, name)
+        head.font = bold
+    formats = [PERCENT if c in sheet.returns else number_format(c) for c in cols]
+    keyed = {cols.index(c) for c in sheet.keyed if c in cols}
+    keys = df[sheet.key].tolist() if sheet.key in df.columns else None
+    for i, row in enumerate(df.itertuples(index=False, name=None), start=3):
+        row_fmt = number_format(str(keys[i - 3])) if keys is not None else None
+        for j, value in enumerate(row):
+            _put(ws.cell(row=i, column=j + 1), value, row_fmt if j in keyed else formats[j])
+    last = get_column_letter(max(len(cols), 1))
+    ws.freeze_panes = "A3"
+    ws.auto_filter.ref = f"A2:{last}{max(len(df) + 2, 2)}"
+    sample = df.head(500)
+    for j, name in enumerate(cols, start=1):
+        shown = [name, *(_shown(v) for v in sample.iloc[:, j - 1].tolist())]
+        ws.column_dimensions[get_column_letter(j)].width = _width(shown)
+
+
+def _write_about(ws, about: list[tuple[str, object]]) -> None:
+    ws.column_dimensions["A"].width = 30
+    ws.column_dimensions["B"].width = 110
+    wrap = Alignment(wrap_text=True, vertical="top")
+    for i, (label, value) in enumerate(about, start=1):
+        a = ws.cell(row=i, column=1)
+        _text(a, label)
+        a.font = Font(bold=True)
+        a.alignment = wrap
+        b = ws.cell(row=i, column=2)
+        _put(b, value, None)
+        b.alignment = wrap
+
+
+def workbook_bytes(about: list[tuple[str, object]], sheets: list[Sheet], built: dt.datetime,
+                   *, title: str = "", period: str = "period") -> bytes:
+    """The workbook as XLSX bytes: an "About" sheet of ``about`` (label, value) rows, then
+    each of ``sheets``. ``built`` (the build time, UTC) is the document's created and
+    modified time and every zip entry's time, so equal inputs give equal bytes."""
+    wb = Workbook()
+    ws = wb.active
+    ws.title = "About"
+    _write_about(ws, about)
+    for sheet in sheets:
+        _write_table(wb.create_sheet(sheet.name), sheet, period)
+    when = built.astimezone(dt.UTC).replace(tzinfo=None) if built.tzinfo else built
+    props = wb.properties
+    props.creator = f"reporter {__version__}"
+    props.lastModifiedBy = None
+    props.title = sheet_text(title) if title else None
+    props.created = props.modified = when
+    buf = io.BytesIO()
+    ExcelWriter(wb, zipfile.ZipFile(buf, "w", zipfile.ZIP_DEFLATED)).save()
+    return fixed_zip(buf.getvalue(), when)
+
+
+def fixed_zip(data: bytes, when: dt.datetime) -> bytes:
+    """The zip ``data`` rewritten with every entry stamped ``when`` (clamped to what a zip can
+    hold, 1980-2107), the same permissions and system, and ``[Content_Types].xml`` first, then
+    the rest in name order: :mod:`zipfile` otherwise stamps each entry with the clock."""
+    stamp = max(min(when.timetuple()[:6], (2107, 12, 31, 23, 59, 58)), (1980, 1, 1, 0, 0, 0))
+    out = io.BytesIO()
+    with zipfile.ZipFile(io.BytesIO(data)) as src, zipfile.ZipFile(out, "w") as dst:
+        names = sorted(src.namelist(), key=lambda n: (n != "[Content_Types].xml", n))
+        for name in names:
+            info = zipfile.ZipInfo(name, date_time=stamp)
+            info.compress_type = zipfile.ZIP_DEFLATED
+            info.create_system = 3
+            info.external_attr = 0o644 << 16
+            dst.writestr(info, src.read(name), compresslevel=6)
+    return out.getvalue()
+
+
+# --- from a build --------------------------------------------------------------------------
+
+def flatten(doc, prefix: str = "") -> list[tuple[str, object]]:
+    """A JSON document's scalars as ``(dotted key, value)`` in key order; a list of scalars
+    joined by ``; ``; a list of records is left out (it gets a sheet of its own)."""
+    out: list[tuple[str, object]] = []
+    if isinstance(doc, dict):
+        for k in sorted(doc):
+            out += flatten(doc[k], f"{prefix}{k}.")
+        return out
+    key = prefix[:-1]
+    if isinstance(doc, list):
+        if any(isinstance(v, dict) for v in doc):
+            return []
+        return [(key, "; ".join(str(v) for v in doc))]
+    return [(key, doc)]
+
+
+def key_value(name: str, doc: dict) -> Sheet:
+    return Sheet(name, pd.DataFrame(flatten(doc), columns=["key", "value"]),
+                 key="key", keyed=("value",))
+
+
+def _records(records: list[dict], first: dict | None = None) -> pd.DataFrame:
+    rows = [(first or {}) | {k: v for k, v in r.items() if not isinstance(v, list | dict)}
+            for r in records]
+    return pd.DataFrame(rows)
+
+
+def limits_sheets(doc: dict) -> list[Sheet]:
+    """``results/limits.json`` as sheets: the checks, the holdings and sectors each check
+    flags, and the rest (margin, counts, beta mix, notes) as key and value."""
+    keyed = ("value", "threshold", "watch_from")
+    out = [Sheet("limits", _records(doc["limits"]), key="limit", keyed=keyed)]
+    for part in ("holdings", "sectors"):
+        rows = [r for c in doc["limits"] for r in _records(c[part], {"limit": c["limit"]})
+                .to_dict("records")]
+        if rows:
+            out.append(Sheet(f"limit {part}", pd.DataFrame(rows), key="limit", keyed=keyed))
+    out.append(key_value("limits summary", {k: v for k, v in doc.items() if k != "limits"}))
+    return out
+
+
+def changes_sheets(doc: dict) -> list[Sheet]:
+    """``results/changes.json`` as sheets: its figures as key and value, then each list of
+    holdings or limits that changed (when not empty)."""
+    out = [key_value("changes", doc)]
+    for part, title in (("new_holdings", "new holdings"), ("removed_holdings",
+                        "removed holdings"), ("weight_changes", "weight changes"),
+                        ("crossed_sml", "crossed SML"), ("limit_changes", "limit changes")):
+        if doc.get(part):
+            out.append(Sheet(title, _records(doc[part]),
+                             key="key" if part == "limit_changes" else None,
+                             keyed=("value_before", "value_now")))
+    return out
+
+
+def pack_sheets(a) -> list[Sheet]:
+    """The sheets of a build (an ``Assembled`` or a fund's ``FundAssembled``), in the order of
+    the results files; the tables are the DataFrames the CSVs are written from."""
+    settings, res = a.settings, a.results
+    if settings.is_fund:
+        t = a.result_tables()
+        tables = (t["securities"], t["risk_table"], t["period_table"])
+        portfolio = res.portfolio_summary() | {"fund_benchmark": a.inputs.benchmark_label,
+                                               "mandate_weight_source": a.inputs.weight_source}
+    else:
+        tables = (res.securities, res.risk_table, res.period_table)
+        portfolio = res.portfolio_summary()
+    sheets = [Sheet("securities", tables[0]),
+              key_value("portfolio", json_ready(portfolio)),
+              Sheet("risk contributions", tables[1]),
+              Sheet("period returns", tables[2], returns=PERIOD_RETURNS)]
+    if a.limits is not None:
+        sheets += limits_sheets(json_ready(a.limits.as_json()))
+    if settings.compare_build is not None or settings.compare_archive is not None:
+        doc = a.changes.as_json() if a.changes is not None else {
+            "previous": None, "note": a.context.compare_note}
+        sheets += changes_sheets(json_ready(doc))
+    if settings.is_fund:
+        sheets += [Sheet("mandates", a.table), Sheet("overlap", a.overlap),
+                   Sheet("overlap pairs", a.pairs)]
+    return sheets
+
+
+def about_rows(a) -> list[tuple[str, object]]:
+    """The About sheet: what the pack is, when and from what it was built, and its cautions."""
+    ctx = a.context
+    period = PERIOD_WORD.get(ctx.periods_per_year, "period")
+    cautions = list(ctx.cautions)
+    if a.settings.is_fund:
+        from reporter.fund_build import FUND_CAUTION
+
+        cautions.append(FUND_CAUTION)
+    rows: list[tuple[str, object]] = [
+        ("Pack", ctx.title),
+        ("Organisation", ctx.organisation),
+        ("Pack name", a.settings.name),
+        ("Period end", ctx.period_end),
+        ("Built (UTC)", ctx.build_time.strftime("%Y-%m-%d %H:%M:%S")),
+        ("Input fingerprint (sha256)", ctx.fingerprint),
+        ("Tool version", ctx.tool_version),
+        ("Return frequency", f"{ctx.frequency} ({ctx.periods_per_year} periods a year)"),
+        ("Units", "Returns, alphas, volatilities and weights are decimals, shown as "
+                  "percentages. A column or key ending in _ann is annualised; the other "
+                  f"returns, alphas, volatilities and ratios are per period (one {period}). "
+                  "Row 1 of each sheet states this per column; row 2 holds the column names "
+                  "of the results CSV files."),
+        ("Source", "The same figures as the results CSV and JSON files of this build; "
+                   "rolling betas are in results/rolling_beta.csv only."),
+    ]
+    rows += [(f"Caution {i}", text) for i, text in enumerate(cautions, start=1)]
+    return rows
+
+
+def pack_workbook(a) -> bytes:
+    """``results/pack.xlsx`` of a build, dated with the build time of its context."""
+    ctx = a.context
+    return workbook_bytes(about_rows(a), pack_sheets(a), ctx.build_time, title=ctx.title,
+                          period=PERIOD_WORD.get(ctx.periods_per_year, "period"))
