@@ -21,7 +21,8 @@ from reporter.errors import InputError, Problem
 
 PERIODS_PER_YEAR = {"monthly": 12, "weekly": 52, "daily": 252}
 INPUT_ROLES = ("holdings", "returns", "market", "risk_free")
-OPTIONAL_ROLES = ("benchmark", "portfolio_returns")   # read only when pack.toml names them
+OPTIONAL_ROLES = ("benchmark", "portfolio_returns",   # read only when pack.toml names them
+                  "factors", "benchmark_sectors", "weights_history")   # see factor_inputs
 
 
 class _Strict(BaseModel):
@@ -63,6 +64,9 @@ class InputsSection(_Strict):
     risk_free: str | InputFile
     benchmark: str | InputFile | None = None   # optional `date, return` series
     portfolio_returns: str | InputFile | None = None   # optional: the portfolio's own returns
+    factors: str | InputFile | None = None             # optional: see reporter.factor_inputs
+    benchmark_sectors: str | InputFile | None = None
+    weights_history: str | InputFile | None = None
     delimiter: Annotated[str, Field(min_length=1, max_length=1)] = ","
     decimal: Literal[".", ","] = "."
     date_format: Annotated[str, Field(min_length=2)] = "%Y-%m-%d"
