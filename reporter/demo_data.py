@@ -169,7 +169,7 @@ def style_files(out: Path, iso: list[str], rets: np.ndarray, w: np.ndarray,
     cheap = np.isin(sector_of, ["Financials", "Energy", "Utilities", "Materials"])
     dear = np.isin(sector_of, ["Technology", "Health Care", "Consumer Discretionary"])
     value = (np.nanmean(rets[:, cheap], axis=1) - np.nanmean(rets[:, dear], axis=1)
-             + rng.normal(0.001, 0.008, T))
+             + rng.normal(0.005, 0.008, T))
     momentum = rng.normal(0.004, 0.03, T)
     _write(out / "factors.csv", ["date", "size", "value", "momentum"],
            [[iso[k], f"{size[k]:.6f}", f"{value[k]:.6f}", f"{momentum[k]:.6f}"]
