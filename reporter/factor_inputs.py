@@ -188,8 +188,8 @@ def _benchmark_sectors(raw: RawTable, settings: Settings, win,
     off = sums[np.abs(sums["total"] - 1.0) > settings.weight_tolerance]
     for _, r in off.head(MAX_PER_CHECK).iterrows():
         coll.error(place(raw.name, raw.row_number(int(r["row"])), "weight"),
-                   f"the benchmark's sector weights for {r['date']} sum to {r['total']:.6g}, "
-                   f"not 1 (tolerance {settings.weight_tolerance:g})")
+                   f"the benchmark's sector weights for {np.datetime64(r['date'], 'D')} "
+                   f"sum to {r['total']:.6g}, not 1 (tolerance {settings.weight_tolerance:g})")
     if len(off) > MAX_PER_CHECK:
         coll.error(raw.name, f"... and {len(off) - MAX_PER_CHECK} more periods whose sector "
                    "weights do not sum to 1")
@@ -208,7 +208,7 @@ def _weights_history(raw: RawTable, settings: Settings, win, holdings: RawTable 
     valid = ~np.isnat(dates)
     if holdings is not None and "security_id" in holdings.table.column_names:
         known = set(as_text(holdings, "security_id", Collector(), allow_empty=True))
-        for i in np.flatnonzero([v not in known and v for v in ids])[:MAX_PER_CHECK]:
+        for i in np.flatnonzero([bool(v) and v not in known for v in ids])[:MAX_PER_CHECK]:
             coll.error(place(raw.name, raw.row_number(int(i)), "security_id"),
                        f"security id {ids[i]!r} is not in the holdings file")
     if not settings.allow_short:
