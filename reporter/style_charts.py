@@ -32,7 +32,7 @@ def loadings_chart(style: StyleResults) -> alt.LayerChart:
                            alt.Tooltip("high:Q", format=".2f")])
     zero = alt.Chart(pd.DataFrame({"x": [0.0]})).mark_rule(
         color=INK, strokeDash=[4, 3]).encode(x=alt.X("x:Q"))
-    return alt.layer(zero, bars, pts).properties(width=WIDTH, height=36 * len(names) + 20)
+    return alt.layer(zero, bars, pts).properties(width=WIDTH, height=26 * len(names) + 10)
 
 
 def attribution_chart(style: StyleResults) -> alt.Chart:
@@ -53,7 +53,7 @@ def attribution_chart(style: StyleResults) -> alt.Chart:
         color=alt.Color("effect:N", scale=colour, title="Effect", sort=list(EFFECTS)),
         tooltip=[alt.Tooltip("sector:N"), alt.Tooltip("effect:N"),
                  alt.Tooltip("value:Q", format=".2%")],
-    ).properties(width=WIDTH, height=max(120, 30 * len(order)))
+    ).properties(width=WIDTH, height=max(100, 18 * len(order)))
 
 
 def style_charts(style: StyleResults | None) -> dict[str, alt.TopLevelMixin]:
