@@ -491,6 +491,10 @@ def resolve_mandates(model: PackFile, fname: str, add_input, problems: list[Prob
         problems.append(Problem(f"{fname}:inputs.{which}", "not used in a fund with mandates: "
                                 "give the fund's benchmark in [fund] and each mandate's in "
                                 "[[mandates]]"))
+    for role in ("factors", "benchmark_sectors", "weights_history"):   # see factor_inputs
+        if getattr(model.inputs, role) is not None:
+            problems.append(Problem(f"{fname}:inputs.{role}", "not used in a fund with "
+                                    "mandates yet: give it in a single-portfolio pack"))
     return tuple(out), kind
 
 

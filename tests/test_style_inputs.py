@@ -151,3 +151,23 @@ def test_without_style_files_nothing_changes(tmp_path):
     assert a.style is None and a.context.style is None and a.context.attribution is None
     assert "style" not in [s.anchor for s in a.context.sections]
     assert not any(c.endswith("_loading") for c in a.results.securities.columns)
+
+
+def test_a_fund_refuses_the_style_inputs(tmp_path):
+    import shutil
+
+    from reporter.errors import InputError
+    from tests.conftest import REPO
+
+    folder = tmp_path / "fund"
+    shutil.copytree(REPO / "inputs" / "demo-fund", folder)
+    shutil.copy(REPO / "inputs" / "demo" / "factors.csv", folder / "factors.csv")
+    toml = (folder / "pack.toml").read_text(encoding="utf-8")
+    (folder / "pack.toml").write_text(toml.replace(
+        'risk_free = "risk_free.csv"', 'risk_free = "risk_free.csv"\nfactors = "factors.csv"', 1),
+        encoding="utf-8")
+    with pytest.raises(InputError) as err:
+        load_settings(folder)
+    assert [str(p) for p in err.value.problems] == [
+        "pack.toml:inputs.factors: not used in a fund with mandates yet: give it in a "
+        "single-portfolio pack"]
