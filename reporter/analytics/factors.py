@@ -118,7 +118,8 @@ def fit_factor_model(y: np.ndarray, market_excess: np.ndarray, factors: np.ndarr
     L = np.full(len(n), hac_lags) if hac_lags is not None else newey_west_lags(nf)
     S = _long_run_scores(e, X0, m, L)
     k = X.shape[1]
-    xtx = np.einsum("ti,tj,tn->nij", X0, X0, m)
+    xtx = (np.stack([X0[:, a] * X0[:, b] for a in range(k) for b in range(k)])
+           @ m).T.reshape(len(n), k, k)                 # X'diag(m_j)X for every column j
     with np.errstate(invalid="ignore", divide="ignore"):
         inv = np.linalg.inv(np.where(fitted[:, None, None], xtx, np.eye(k)))
         cov = inv @ S @ inv * (nf / (nf - k))[:, None, None]
@@ -138,36 +139,44 @@ def _long_run_scores(e: np.ndarray, X0: np.ndarray, m: np.ndarray,
     interior gap are compacted first (their observed periods moved together, in order), so
     that their lags run over consecutive observations as statsmodels' do on the dropped
     series."""
-    T, k = X0.shape
-    N = e.shape[1]
+    k = X0.shape[1]
+    S = np.empty((e.shape[1], k, k))
+    gapped = interior_gaps(m > 0)
+    plain, holed = np.flatnonzero(~gapped), np.flatnonzero(gapped)
+    if len(plain):
+        S[plain] = _shared_scores(e[:, plain], X0, L[plain])
+    if len(holed):
+        S[holed] = _compacted_scores(e[:, holed], X0, m[:, holed] > 0, L[holed])
+    return S
+
+
+def _shared_scores(e: np.ndarray, X0: np.ndarray, L: np.ndarray) -> np.ndarray:
+    """:func:`_long_run_scores` for columns on the common rows of ``X0``."""
+    k, N = X0.shape[1], e.shape[1]
     pairs = [(a, b) for a in range(k) for b in range(k)]
-    S = np.empty((N, k, k))
-    cross = np.stack([X0[:, a] * X0[:, b] for a, b in pairs]) @ (e * e)
-    S[:, :, :] = cross.T.reshape(N, k, k)
+    S = (np.stack([X0[:, a] * X0[:, b] for a, b in pairs]) @ (e * e)).T.reshape(N, k, k)
     for lag in range(1, int(L.max(initial=0)) + 1):
         w = np.where(lag <= L, 1.0 - lag / (L + 1.0), 0.0)
         g = (np.stack([X0[lag:, a] * X0[:-lag, b] for a, b in pairs])
              @ (e[lag:] * e[:-lag])).T.reshape(N, k, k)
         S += w[:, None, None] * (g + g.transpose(0, 2, 1))
-    gapped = np.flatnonzero(interior_gaps(m > 0))
-    if len(gapped):
-        S[gapped] = _compacted_scores(e[:, gapped], X0, m[:, gapped] > 0, L[gapped])
     return S
 
 
 def _compacted_scores(e: np.ndarray, X0: np.ndarray, mask: np.ndarray,
                       L: np.ndarray) -> np.ndarray:
     """:func:`_long_run_scores` for columns whose observed periods are first moved to the top
-    (in order), so each column has its own regressors (T x G x k)."""
-    order = np.argsort(~mask, axis=0, kind="stable")
-    mc = np.take_along_axis(mask, order, axis=0)
-    ec = np.where(mc, np.take_along_axis(e, order, axis=0), 0.0)
-    Xc = X0[order] * mc[:, :, None]                  # T x G x k
-    s = ec[:, :, None] * Xc                          # scores, T x G x k
-    S = np.einsum("tga,tgb->gab", s, s)
+    (in order), so each column has its own regressors: scores G x T x k, and the sums are
+    batched matrix products (k x T)(T x k) per column and lag."""
+    order = np.argsort(~mask, axis=0, kind="stable").T          # G x T
+    mc = np.take_along_axis(mask.T, order, axis=1)
+    ec = np.where(mc, np.take_along_axis(e.T, order, axis=1), 0.0)
+    s = X0[order] * ec[:, :, None]                               # G x T x k
+    st = s.transpose(0, 2, 1)
+    S = st @ s
     for lag in range(1, int(L.max(initial=0)) + 1):
         w = np.where(lag <= L, 1.0 - lag / (L + 1.0), 0.0)
-        g = np.einsum("tga,tgb->gab", s[lag:], s[:-lag])
+        g = st[:, :, lag:] @ s[:, :-lag]
         S += w[:, None, None] * (g + g.transpose(0, 2, 1))
     return S
 
