@@ -141,3 +141,16 @@ def test_a_factor_portfolio_on_itself(french):
     fits = fit_factor_model(F[:, [1]], df["MktRF"].to_numpy(), F, tuple(FACTORS), min_obs=24)
     np.testing.assert_allclose(fits.coef[0], [0, 0, 0, 1, 0], atol=1e-12)
     np.testing.assert_allclose(fits.r_squared[0], 1.0, rtol=1e-12)
+
+
+def test_ols_errors_drive_the_intervals_when_chosen(french):
+    y, x, F = _data(french, 60, gaps=True)
+    fits = fit_factor_model(y, x, F, tuple(FACTORS), min_obs=24, errors="ols")
+    lo, hi = fits.intervals()
+    for j in (0, 1, 4):
+        ok = np.isfinite(y[:, j])
+        # reference: statsmodels OLS with classical errors, its t-based intervals and p-values
+        ref = sm.OLS(y[ok, j], sm.add_constant(np.column_stack([x, F])[ok])).fit()
+        np.testing.assert_allclose(np.column_stack([lo[j], hi[j]]), ref.conf_int(0.05),
+                                   rtol=1e-8)
+        np.testing.assert_allclose(fits.p_values[j], ref.pvalues, rtol=1e-7)
