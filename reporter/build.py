@@ -20,6 +20,7 @@ import pyarrow.csv as pacsv
 from reporter import __version__
 from reporter.analytics.changes import PackChanges, compare_packs
 from reporter.analytics.pack import ROLLING_COLUMNS, PackResults, analyse
+from reporter.analytics.style import StyleResults, analyse_style
 from reporter.benchmark import validate_benchmark, validate_portfolio_returns
 from reporter.changes import read_previous
 from reporter.charts import build_charts
@@ -28,6 +29,7 @@ from reporter.config import Settings, load_settings
 from reporter.context import PackContext, build_context
 from reporter.csvsafe import csv_text, escape_array
 from reporter.errors import InputError, Problem
+from reporter.factor_inputs import validate_style_inputs
 from reporter.jsonvalues import json_text
 from reporter.limits import LimitsReport, evaluate_limits
 from reporter.memory import release_free_memory
@@ -36,6 +38,7 @@ from reporter.output_folder import refuse_overlap
 from reporter.progress import Progress
 from reporter.render.html import export_charts, print_charts, render_html
 from reporter.render.pdf import render_pdf
+from reporter.style_charts import style_charts
 from reporter.validate import read_inputs, validate_tables
 from reporter.workbook import pack_workbook
 from reporter.writer import OutputSet, check_target, commit, open_staging
@@ -123,6 +126,7 @@ class Assembled:
     changes: PackChanges | None = None
     compare_warnings: list[Problem] = field(default_factory=list)
     commentary: CommentarySet = field(default_factory=CommentarySet)
+    style: StyleResults | None = None    # factor model and attribution, when given
 
     def html(self, for_print: bool = False, signoff: dict | None = None) -> str:
         charts = (self.print_svgs or self.svgs) if for_print else self.svgs
@@ -166,12 +170,14 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
     with progress.stage("validate"):
         benchmark, bench_problems = validate_benchmark(settings, raws)
         own, own_problems = validate_portfolio_returns(settings, raws)
-        inputs = validate_tables(settings, raws,
-                                 [*read_problems, *bench_problems, *own_problems], strict=strict)
+        style_in, style_problems = validate_style_inputs(settings, raws)
+        inputs = validate_tables(settings, raws, [*read_problems, *bench_problems,
+                                                  *own_problems, *style_problems], strict=strict)
         del raws                    # the typed inputs hold everything needed from here on
         release_free_memory()
     with progress.stage("analyse"):
         res = analyse(inputs, settings, benchmark=benchmark, portfolio=own)
+        res, style = analyse_style(res, inputs.holdings.frame, settings, style_in)
         hashes = input_hashes(settings)
         hashes.update(commentary.hashes)        # the commentary files and their images
         limits = evaluate_limits(settings.limits, res) if settings.limits else None
@@ -181,14 +187,16 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
                                     limits.as_json()["limits"] if limits else None,
                                     settings.confidence)
     with progress.stage("chart"):
-        charts = build_charts(res, limits)
+        charts = build_charts(res, limits) | style_charts(style)
         ctx = build_context(settings, inputs, res, charts, fingerprint(hashes),
                             at or build_time(), limits=limits, changes=changes,
-                            compare_note=compare_note, commentary=commentary.by_section)
+                            compare_note=compare_note, commentary=commentary.by_section,
+                            style=style)
         svgs = export_charts(ctx)
         for_pdf = print_charts(ctx, svgs)
     return Assembled(settings, inputs, res, ctx, svgs, hashes, print_svgs=for_pdf, limits=limits,
-                     changes=changes, compare_warnings=compare_warnings, commentary=commentary)
+                     changes=changes, compare_warnings=compare_warnings, commentary=commentary,
+                     style=style)
 
 
 def results_files(a: Assembled, files: OutputSet) -> None:
@@ -208,7 +216,10 @@ def results_files(a: Assembled, files: OutputSet) -> None:
             files.add("results/mandate_limits.json", json_text(mandate_limits))
     else:
         files.add("results/securities.csv", csv_text(res.securities))
-        files.add("results/portfolio.json", json_text(res.portfolio_summary()))
+        style = a.style.summary() if a.style is not None else {}
+        files.add("results/portfolio.json", json_text(res.portfolio_summary() | style))
+        if a.style is not None and a.style.attribution is not None:
+            files.add("results/attribution.csv", csv_text(a.style.attribution.table()))
         files.add_written("results/rolling_beta.csv", lambda sink: write_rolling_csv(res, sink))
         for rel, table in (("results/period_returns.csv", res.period_table),
                            ("results/risk_contributions.csv", res.risk_table)):

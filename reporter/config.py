@@ -22,7 +22,8 @@ from reporter.stress_config import Shock, StressSection
 
 PERIODS_PER_YEAR = {"monthly": 12, "weekly": 52, "daily": 252}
 INPUT_ROLES = ("holdings", "returns", "market", "risk_free")
-OPTIONAL_ROLES = ("benchmark", "portfolio_returns")   # read only when pack.toml names them
+OPTIONAL_ROLES = ("benchmark", "portfolio_returns",   # read only when pack.toml names them
+                  "factors", "benchmark_sectors", "weights_history")   # see factor_inputs
 
 
 class _Strict(BaseModel):
@@ -64,6 +65,9 @@ class InputsSection(_Strict):
     risk_free: str | InputFile
     benchmark: str | InputFile | None = None   # optional `date, return` series
     portfolio_returns: str | InputFile | None = None   # optional: the portfolio's own returns
+    factors: str | InputFile | None = None             # optional: see reporter.factor_inputs
+    benchmark_sectors: str | InputFile | None = None
+    weights_history: str | InputFile | None = None
     delimiter: Annotated[str, Field(min_length=1, max_length=1)] = ","
     decimal: Literal[".", ","] = "."
     date_format: Annotated[str, Field(min_length=2)] = "%Y-%m-%d"
@@ -499,6 +503,10 @@ def resolve_mandates(model: PackFile, fname: str, add_input, problems: list[Prob
         problems.append(Problem(f"{fname}:inputs.{which}", "not used in a fund with mandates: "
                                 "give the fund's benchmark in [fund] and each mandate's in "
                                 "[[mandates]]"))
+    for role in ("factors", "benchmark_sectors", "weights_history"):   # see factor_inputs
+        if getattr(model.inputs, role) is not None:
+            problems.append(Problem(f"{fname}:inputs.{role}", "not used in a fund with "
+                                    "mandates yet: give it in a single-portfolio pack"))
     return tuple(out), kind
 
 

@@ -19,6 +19,7 @@ from reporter.analytics.sml import ABOVE, BELOW
 from reporter.config import Settings
 from reporter.limits import LimitsReport
 from reporter.models import ValidInputs
+from reporter.style_context import attribution_view, factor_view
 
 CAUTIONS = (
     "Every figure in this pack is a statistical estimate from a finite sample of past returns "
@@ -55,6 +56,8 @@ SECTIONS = (
     Section("market-risk", "Market risk"),
     Section("beta", "Beta estimates"),
     Section("sml", "Security market line"),
+    Section("style", "Alpha before and after style"),
+    Section("attribution", "Attribution by sector"),
     Section("diversification", "Diversification"),
     Section("stress", "Stress and scenarios"),
     Section("holdings", "Holdings appendix"),
@@ -119,6 +122,8 @@ class PackContext:
     covariance_auto: bool = True     # the method was chosen by the "auto" rule
     has_benchmark: bool = False      # an optional benchmark series was given
     stress: dict = field(default_factory=dict)   # results/risk_scenarios.json's content
+    style: dict | None = None        # reporter.style_context.factor_view (factors file given)
+    attribution: dict | None = None  # reporter.style_context.attribution_view
 
 
 def _records(df) -> list[dict]:
@@ -130,11 +135,14 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
                   charts: dict[str, alt.TopLevelMixin], fingerprint: str,
                   build_time: dt.datetime, *, limits: LimitsReport | None = None,
                   changes: PackChanges | None = None, compare_note: str | None = None,
-                  commentary: dict | None = None) -> PackContext:
+                  commentary: dict | None = None, style=None) -> PackContext:
     """Assemble the context for the pack templates. The "Since last pack" section is
     listed only when there is a comparison (or a note saying why there is none)."""
+    views = {"style": style and factor_view(style, res),
+             "attribution": style and attribution_view(style)}
     shown = tuple(s for s in SECTIONS
-                  if s.anchor != "changes" or changes is not None or compare_note)
+                  if (s.anchor != "changes" or changes is not None or compare_note)
+                  and views.get(s.anchor, True))
     sec = res.securities.copy()
     # the alpha t-statistic from the errors behind the pack's intervals and SML positions
     sec["alpha_t_used"] = sec["alpha_t"]
@@ -188,4 +196,5 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         covariance_auto=settings.covariance == "auto",
         has_benchmark="benchmark" in settings.inputs,
         stress=res.stress.as_json() if res.stress is not None else {},
+        style=views["style"], attribution=views["attribution"],
     )

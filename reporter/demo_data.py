@@ -46,6 +46,8 @@ holdings = "holdings.csv"
 returns = "returns.csv"
 market = "market.csv"
 risk_free = "risk_free.csv"
+factors = "factors.csv"
+benchmark_sectors = "benchmark_sectors.csv"
 
 [analysis]
 window = 60
@@ -147,6 +149,51 @@ def generate(out: Path, n_holdings: int = 60) -> None:
     _write(out / "returns.csv", ["date", "security_id", "return"],
            [[iso[k], ids[i], f"{rets[k, i]:.6f}"] for k in range(N_MONTHS)
             for i in range(n_holdings) if present[k, i]])
+    style_files(out, iso, np.where(present, rets, np.nan), w, np.array(sector_of), beta,
+                rf, mkt_excess, sector_shock)
+
+
+def style_files(out: Path, iso: list[str], rets: np.ndarray, w: np.ndarray,
+                sector_of: np.ndarray, beta: np.ndarray, rf: np.ndarray,
+                mkt_excess: np.ndarray, sector_shock: dict) -> None:
+    """Write factors.csv and benchmark_sectors.csv (invented). A second seeded generator,
+    so the files above do not move. The size and value factors are long-short portfolios
+    of the demo's own holdings (small minus large weights; four sectors minus three), so
+    holdings load on them as they would on real ones; momentum is noise."""
+    rng = np.random.default_rng(SEED + 1)
+    T = len(iso)
+    by_w = np.argsort(w)
+    small, large = by_w[:20], by_w[-20:]
+    size = (np.nanmean(rets[:, small], axis=1) - np.nanmean(rets[:, large], axis=1)
+            + rng.normal(0.001, 0.006, T))
+    cheap = np.isin(sector_of, ["Financials", "Energy", "Utilities", "Materials"])
+    dear = np.isin(sector_of, ["Technology", "Health Care", "Consumer Discretionary"])
+    value = (np.nanmean(rets[:, cheap], axis=1) - np.nanmean(rets[:, dear], axis=1)
+             + rng.normal(0.005, 0.008, T))
+    momentum = rng.normal(0.004, 0.03, T)
+    _write(out / "factors.csv", ["date", "size", "value", "momentum"],
+           [[iso[k], f"{size[k]:.6f}", f"{value[k]:.6f}", f"{momentum[k]:.6f}"]
+            for k in range(T)])
+    # the benchmark: every sector but Telecommunications, plus Real Estate, which the
+    # portfolio does not hold; weights drift slowly around a blend of the portfolio's and
+    # equal weights
+    sectors = [s for s in SECTORS if s != "Telecommunications"] + ["Real Estate"]
+    held = np.array([w[sector_of == s].sum() for s in sectors])
+    base = 0.6 * held / held.sum() + 0.4 / len(sectors)
+    drift = np.cumsum(rng.normal(0, 0.03, (T, len(sectors))), axis=0)
+    weights = base * np.exp(drift - drift.mean(axis=0))
+    weights = np.round(weights / weights.sum(axis=1, keepdims=True), 6)
+    top = np.argmax(weights, axis=1)
+    weights[np.arange(T), top] += np.round(1.0 - weights.sum(axis=1), 6)
+    shock = dict(sector_shock) | {"Real Estate": rng.normal(0, 0.018, T)}
+    sbeta = {s: float(beta[sector_of == s].mean()) if (sector_of == s).any() else 0.8
+             for s in sectors}
+    rows = []
+    for k in range(T):
+        for j, s in enumerate(sectors):
+            r = rf[k] + sbeta[s] * mkt_excess[k] + 0.8 * shock[s][k] + rng.normal(0, 0.004)
+            rows.append([iso[k], s, f"{weights[k, j]:.6f}", f"{r:.6f}"])
+    _write(out / "benchmark_sectors.csv", ["date", "sector", "weight", "return"], rows)
 
 
 def _write(path: Path, header: list[str], rows: list[list[str]]) -> None:
