@@ -18,6 +18,7 @@ from typing import Annotated, Literal
 from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, ValidationError
 
 from reporter.errors import InputError, Problem
+from reporter.invisible import toml_problems
 from reporter.stress_config import Shock, StressSection
 
 PERIODS_PER_YEAR = {"monthly": 12, "weekly": 52, "daily": 252}
@@ -323,6 +324,8 @@ def load_settings(pack: Path | str) -> Settings:
         raise InputError([Problem(fname, f"not UTF-8 text ({exc.reason})")]) from None
     except tomllib.TOMLDecodeError as exc:
         raise InputError([Problem(fname, f"not valid TOML: {exc}")]) from None
+    if hidden := toml_problems(raw, fname):
+        raise InputError(hidden)
     try:
         model = PackFile.model_validate(raw)
     except ValidationError as exc:

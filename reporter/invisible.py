@@ -1,0 +1,35 @@
+"""Invisible format characters in pack.toml's text (titles, names, mandate and scenario
+names): each is an error naming its key, as in every data file (see
+``reporter.validate.text``). A right-to-left override in a title would make the cover of a
+signed pack read other than its bytes."""
+
+from __future__ import annotations
+
+import unicodedata
+
+from reporter.errors import Problem
+
+
+def format_characters(text: str) -> list[str]:
+    """The distinct Unicode format characters (category Cf) in ``text``, as ``U+XXXX``."""
+    return sorted({f"U+{ord(c):04X}" for c in text if unicodedata.category(c) == "Cf"})
+
+
+def toml_problems(raw, fname: str, key: str = "") -> list[Problem]:
+    """One problem per string value (or table key) of a parsed TOML document that holds a
+    format character, named by its dotted key (list items by position)."""
+    problems: list[Problem] = []
+    if isinstance(raw, dict):
+        for k, v in raw.items():
+            here = f"{key}.{k}" if key else str(k)
+            if found := format_characters(str(k)):
+                problems.append(Problem(f"{fname}:{here}", "invisible control character in "
+                                        f"a key: {', '.join(found)}"))
+            problems += toml_problems(v, fname, here)
+    elif isinstance(raw, list):
+        for i, v in enumerate(raw):
+            problems += toml_problems(v, fname, f"{key}.{i}")
+    elif isinstance(raw, str) and (found := format_characters(raw)):
+        problems.append(Problem(f"{fname}:{key}",
+                                f"invisible control character {', '.join(found)}"))
+    return problems

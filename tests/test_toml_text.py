@@ -1,0 +1,35 @@
+"""pack.toml's text carries no invisible format characters (issue: a right-to-left override
+in a title or a mandate name makes the page read other than its bytes)."""
+
+from __future__ import annotations
+
+import shutil
+
+import pytest
+
+from tests.conftest import DEMO, run_cli
+
+
+@pytest.mark.parametrize("char", ["\u202e", "\u200b", "\u2066", "\ufeff"])
+def test_format_character_in_pack_toml_is_an_error_naming_the_key(tmp_path, capsys, char):
+    pack = tmp_path / "pack"
+    shutil.copytree(DEMO, pack)
+    toml = pack / "pack.toml"
+    text = toml.read_text(encoding="utf-8")
+    old = 'organisation = "Tarnbrook Valley Staff Pension Scheme"'
+    assert old in text
+    toml.write_text(text.replace(old, f'organisation = "Tarnbrook{char} Valley"'),
+                    encoding="utf-8")
+    code, out, err = run_cli(capsys, "check", pack)
+    assert code == 2
+    assert err.splitlines()[0] == (f"pack.toml:pack.organisation: invisible control character "
+                                   f"U+{ord(char):04X}")
+
+
+def test_ordinary_accents_and_symbols_are_fine():
+    from reporter.invisible import format_characters, toml_problems
+
+    assert format_characters("Caf\u00e9 \u00a3 \u2013 \u00e9") == []
+    assert [str(p) for p in toml_problems(
+        {"mandates": [{"name": "ok"}, {"name": "a\u202eb"}]}, "pack.toml")] == [
+        "pack.toml:mandates.1.name: invisible control character U+202E"]
