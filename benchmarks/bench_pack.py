@@ -246,6 +246,16 @@ def table(results: dict[str, dict], batch_result: dict | None,
     return "\n".join(lines)
 
 
+def workload_problems(workloads: str) -> str:
+    """Why a ``--workloads`` list is refused (names are lower case, comma-separated), or ""."""
+    known = [*WORKLOADS, "batch"]
+    bad = [w for w in workloads.split(",") if w not in known]
+    if not bad:
+        return ""
+    return (f"unknown workload(s) {', '.join(repr(w) for w in bad)}; "
+            f"choose from {', '.join(known)}")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--child", nargs=2, metavar=("WORKLOAD", "DIR"))
@@ -255,6 +265,9 @@ def main() -> None:
                     help="time WeasyPrint on variants of the pack (with --workloads NAME)")
     ap.add_argument("--out", type=Path, default=HERE.parent / "BENCHMARKS.md")
     args = ap.parse_args()
+    unknown = workload_problems(args.workloads)
+    if unknown:
+        ap.error(unknown)
     if args.child:
         child(args.child[0], Path(args.child[1]), args.investigate)
         return

@@ -39,3 +39,10 @@ def test_report_ratios_are_the_measured_ones(small):
     total = sum(s.values())
     assert f"whole build {total:.2f} s = {total / sum(f.values()):.2f} x" in text
     assert "| 2 | 1.60 |" in text and "Machine:" in text
+
+
+def test_unknown_workload_names_are_refused():
+    # "Large" (capitalised) used to run nothing at all, silently
+    assert bench_pack.workload_problems("small,large,batch") == ""
+    msg = bench_pack.workload_problems("Large,small")
+    assert msg.startswith("unknown workload(s) 'Large'") and "choose from small, large" in msg
