@@ -378,9 +378,9 @@ def load_settings(pack: Path | str) -> Settings:
         add_input("returns", defaults.prices, "inputs.prices")
     mandates, fund_benchmark = resolve_mandates(model, fname, add_input, problems)
     for role, spec in inputs.items():
-        if spec.thousands is not None and spec.thousands in (spec.decimal, spec.delimiter):
-            problems.append(Problem(f"{fname}:inputs.{role}", "the thousands separator is the "
-                                    "decimal mark or the delimiter"))
+        if spec.thousands == spec.decimal:
+            problems.append(Problem(f"{fname}:inputs.{role}", "the thousands separator and the "
+                                    "decimal mark are the same character"))
         if spec.delimiter == spec.decimal:
             problems.append(Problem(f"{fname}:inputs.{role}",
                                     "the delimiter and the decimal mark are the same character"))
