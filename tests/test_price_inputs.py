@@ -94,8 +94,8 @@ def test_a_missing_price_costs_both_returns(packs, layout):
 
 def test_custodian_numbers(tmp_path, capsys):
     """Thousands separators and accounting negatives, as a custodian export writes them."""
-    from tests.data.make_bad_cases import make_case
     from tests.data.bad_pack import write_pack
+    from tests.data.make_bad_cases import make_case
 
     pack = make_case("thousands_without_setting")
     pack.toml["inputs"]["thousands"] = '","'
