@@ -38,3 +38,26 @@ def returns_or_prices(inputs, fname: str) -> list[Problem]:
         return [Problem(f"{fname}:inputs.returns", "required key is missing (or give prices, "
                         "a price or total-return index file)")]
     return []
+
+
+# what an unnamed series is called in the pack (never its file name)
+DEFAULT_NAMES = {"market": "Market proxy", "benchmark": "Benchmark", "risk_free": "Risk-free rate",
+                 "portfolio_returns": "Portfolio returns", "fund.benchmark": "Fund benchmark"}
+
+
+def series_name(settings, role: str) -> str:
+    """The name a series is shown by: ``name = ...`` from pack.toml, else a plain label
+    (:data:`DEFAULT_NAMES`; a mandate's benchmark is "Benchmark")."""
+    spec = settings.inputs.get(role)
+    if spec is not None and spec.label:
+        return spec.label
+    return DEFAULT_NAMES.get(role, "Benchmark")
+
+
+def against_phrase(settings, role: str) -> str:
+    """What a mandate is measured against, in words: "its benchmark (Domestic equity
+    index)", "its benchmark, the market proxy" or "its benchmark"."""
+    spec = settings.inputs.get(role)
+    if spec is not None and spec.label:
+        return f"its benchmark ({spec.label})"
+    return "its benchmark, the market proxy" if role == "market" else "its benchmark"
