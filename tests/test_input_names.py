@@ -48,9 +48,9 @@ def test_names_and_managers_are_shown(demo_fund):
     for name in ("Domestic equity index", "Overseas equity index", "Minimum-volatility index",
                  "Broad market index"):
         assert name in text, name
-    assert "Domestic equity, managed by Harrowmere Asset Managers" in text
-    assert "Bond-proxy equity, managed by Harrowmere Asset Managers" in text
-    assert "measured against its benchmark (Domestic equity index)" in text
+    assert ("Domestic equity Managed by Harrowmere Asset Managers. 3" in text
+            and "measured against its benchmark (Domestic equity index)" in text)
+    assert "Bond-proxy equity Managed by Harrowmere Asset Managers. 1" in text
     assert re.search(r"<th scope=\"col\">Manager</th>", html)
     assert text.count("Tennick Lane Partners") >= 2      # the overview and the heading
 
