@@ -133,3 +133,34 @@ def test_date_hint():
     assert date_format_hint("2024-08-31", "%d/%m/%Y") == \
         '; it reads as year-first: set date_format = "%Y-%m-%d"'
     assert date_format_hint("last month", "%Y-%m-%d") == ""
+
+
+@pytest.mark.parametrize(("change", "expected"), [
+    (lambda t: t.replace('returns = "returns.csv"',
+                         'returns = "returns.csv"\nprices = "returns.csv"'),
+     "pack.toml:inputs.prices: give returns or prices, not both"),
+    (lambda t: t.replace('returns = "returns.csv"\n', ""),
+     "pack.toml:inputs.returns: required key is missing (or give prices, a price or "
+     "total-return index file)"),
+    (lambda t: t.replace('holdings = "holdings.csv"',
+                         'holdings = { path = "holdings.csv", values = "prices" }'),
+     "pack.toml:inputs.holdings.values: only the returns, market proxy and benchmark files may "
+     "be given as prices"),
+    (lambda t: t.replace('holdings = "holdings.csv"',
+                         'holdings = { path = "holdings.csv", name = "Custodian" }'),
+     "pack.toml:inputs.holdings.name: a name is shown only for the market proxy, a benchmark, "
+     "the portfolio returns and the risk-free rate"),
+    (lambda t: t.replace('[inputs]', '[inputs]\nthousands = "."\ndecimal = "."'),
+     "pack.toml:inputs.holdings: the thousands separator and the decimal mark are the same "
+     "character"),
+])
+def test_settings_problems(tmp_path, capsys, change, expected):
+    from tests.data.bad_pack import base_pack, write_pack
+
+    write_pack(base_pack(), tmp_path)
+    toml = tmp_path / "pack.toml"
+    toml.write_text(change(toml.read_text()))
+    assert main(["check", str(tmp_path)]) == 2
+    err = capsys.readouterr().err
+    assert err.splitlines()[0] == expected
+    assert "Traceback" not in err
