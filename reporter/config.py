@@ -18,6 +18,7 @@ from typing import Annotated, Literal
 from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, ValidationError
 
 from reporter.errors import InputError, Problem
+from reporter.input_options import input_file_problems, returns_or_prices
 from reporter.invisible import toml_problems
 from reporter.stress_config import Shock, StressSection
 
@@ -51,17 +52,22 @@ class InputFile(_Strict):
     delimiter: Annotated[str, Field(min_length=1, max_length=1)] | None = None
     decimal: Literal[".", ","] | None = None
     date_format: Annotated[str, Field(min_length=2)] | None = None
+    thousands: Literal[",", ".", " ", "'"] | None = None
+    name: Annotated[str, Field(min_length=1, max_length=120)] | None = None  # shown in the pack
+    values: Literal["returns", "prices"] | None = None   # a price or total-return index file
 
 
 class InputsSection(_Strict):
     """``[inputs]``: the data files, relative to ``pack.toml``.
 
     Each may be a plain path or an inline table ``{ path = ..., delimiter = ";" ... }``.
-    ``delimiter``, ``decimal`` and ``date_format`` given here apply to every file.
+    ``delimiter``, ``decimal``, ``date_format`` and ``thousands`` given here apply to every
+    file. ``prices`` (a price or total-return index file) may stand in for ``returns``.
     """
 
     holdings: str | InputFile | None = None   # required, except when every mandate names its own
-    returns: str | InputFile
+    returns: str | InputFile | None = None
+    prices: str | InputFile | None = None
     market: str | InputFile
     risk_free: str | InputFile
     benchmark: str | InputFile | None = None   # optional `date, return` series
@@ -72,6 +78,7 @@ class InputsSection(_Strict):
     delimiter: Annotated[str, Field(min_length=1, max_length=1)] = ","
     decimal: Literal[".", ","] = "."
     date_format: Annotated[str, Field(min_length=2)] = "%Y-%m-%d"
+    thousands: Literal[",", ".", " ", "'"] | None = None
 
 
 class AnalysisSection(_Strict):
@@ -157,6 +164,7 @@ class MandateSection(_Strict):
     """
 
     name: Annotated[str, Field(min_length=1, max_length=80)]
+    manager: Annotated[str, Field(min_length=1, max_length=120)] | None = None
     holdings: str | InputFile | None = None
     benchmark: str | InputFile | None = None
     strategic_weight: Annotated[float, Field(ge=0.0, le=1.0)]
@@ -198,6 +206,9 @@ class InputSpec:
     delimiter: str
     decimal: str
     date_format: str
+    thousands: str | None = None     # thousands separator in numbers, if any
+    label: str | None = None         # the name pack.toml gives the series, shown in the pack
+    values: str = "returns"          # "returns" | "prices" (a price or total-return index)
 
 
 @dataclass(frozen=True)
@@ -263,6 +274,7 @@ class Mandate:
     range: tuple[float, float] | None
     declared_weight: float | None
     limits: LimitsSection | None
+    manager: str | None = None
 
 
 DEFAULT_ROLLING_WINDOW = {"monthly": 36, "weekly": 104, "daily": 252}
@@ -359,7 +371,11 @@ def load_settings(pack: Path | str) -> Settings:
             delimiter=spec.delimiter or defaults.delimiter,
             decimal=spec.decimal or defaults.decimal,
             date_format=spec.date_format or defaults.date_format,
+            thousands=spec.thousands or defaults.thousands, label=spec.name,
+            values="prices" if role == "returns" and key == "inputs.prices" else
+            spec.values or "returns",
         )
+        problems.extend(input_file_problems(role, spec, key, fname))
         fmt_problem = date_format_problem(spec.date_format) if spec.date_format else None
         if fmt_problem:
             problems.append(Problem(f"{fname}:{key}.date_format", fmt_problem))
@@ -370,8 +386,14 @@ def load_settings(pack: Path | str) -> Settings:
     for role in INPUT_ROLES + OPTIONAL_ROLES:
         if getattr(defaults, role) is not None:
             add_input(role, getattr(defaults, role), f"inputs.{role}")
+    problems.extend(returns_or_prices(defaults, fname))
+    if defaults.prices is not None and defaults.returns is None:
+        add_input("returns", defaults.prices, "inputs.prices")
     mandates, fund_benchmark = resolve_mandates(model, fname, add_input, problems)
     for role, spec in inputs.items():
+        if spec.thousands == spec.decimal:
+            problems.append(Problem(f"{fname}:inputs.{role}", "the thousands separator and the "
+                                    "decimal mark are the same character"))
         if spec.delimiter == spec.decimal:
             problems.append(Problem(f"{fname}:inputs.{role}",
                                     "the delimiter and the decimal mark are the same character"))
@@ -484,7 +506,7 @@ def resolve_mandates(model: PackFile, fname: str, add_input, problems: list[Prob
                            holdings_role=h_role, benchmark_role=b_role,
                            strategic_weight=m.strategic_weight,
                            range=tuple(m.range) if m.range is not None else None,
-                           declared_weight=m.weight, limits=m.limits))
+                           declared_weight=m.weight, limits=m.limits, manager=m.manager))
     total = sum(m.strategic_weight for m in model.mandates)
     if abs(total - 1.0) > STRATEGIC_TOLERANCE:
         problems.append(Problem(f"{fname}:mandates", f"the strategic weights sum to {total:.6g}, "

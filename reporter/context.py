@@ -85,7 +85,7 @@ class PackContext:
     returns_shape: str
     weight_source: str
     weights_normalised: bool
-    input_names: dict[str, str]
+    input_names: dict[str, str | None]   # each input's name from pack.toml (None: unnamed)
     portfolio: dict
     holdings: list[dict]             # every holding, largest weight first
     sml_above: list[dict]            # furthest above the line (by residual)
@@ -124,6 +124,7 @@ class PackContext:
     stress: dict = field(default_factory=dict)   # results/risk_scenarios.json's content
     style: dict | None = None        # reporter.style_context.factor_view (factors file given)
     attribution: dict | None = None  # reporter.style_context.attribution_view
+    input_kinds: dict[str, str] = field(default_factory=dict)  # "returns" | "prices"
 
 
 def _records(df) -> list[dict]:
@@ -164,7 +165,8 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         window=settings.window, min_obs=settings.min_obs, confidence=settings.confidence,
         returns_shape=inputs.returns.shape, weight_source=inputs.holdings.weight_source,
         weights_normalised=inputs.holdings.normalised,
-        input_names={r: s.display for r, s in settings.inputs.items()},
+        input_names={r: s.label for r, s in settings.inputs.items()},
+        input_kinds={r: s.values for r, s in settings.inputs.items()},
         portfolio=res.portfolio_summary(),
         holdings=_records(by_weight),
         sml_above=_records(ranked.head(k)),

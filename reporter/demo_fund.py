@@ -72,7 +72,8 @@ currency = "GBP"
 [inputs]
 holdings = "holdings.csv"        # one file: a mandate column names each holding's mandate
 returns = "returns.csv"
-market = "market.csv"            # the fund's broad market proxy; the bond-proxy mandate's benchmark
+# the fund's broad market proxy; the bond-proxy mandate's benchmark
+market = { path = "market.csv", name = "Broad market index" }
 risk_free = "risk_free.csv"
 
 [analysis]
@@ -88,7 +89,8 @@ min_effective_n = 40
 
 [[mandates]]
 name = "Domestic equity"
-benchmark = "benchmark_domestic.csv"
+manager = "Harrowmere Asset Managers"
+benchmark = { path = "benchmark_domestic.csv", name = "Domestic equity index" }
 strategic_weight = 0.35
 range = [0.30, 0.40]
 [mandates.limits]
@@ -98,7 +100,8 @@ max_tracking_error_ann = 0.04
 
 [[mandates]]
 name = "Overseas equity"
-benchmark = "benchmark_overseas.csv"
+manager = "Calloway Brook Investors"
+benchmark = { path = "benchmark_overseas.csv", name = "Overseas equity index" }
 strategic_weight = 0.30
 range = [0.25, 0.35]
 [mandates.limits]
@@ -106,7 +109,8 @@ max_holding_weight = 0.06
 
 [[mandates]]
 name = "Low-volatility equity"
-benchmark = "benchmark_lowvol.csv"
+manager = "Tennick Lane Partners"
+benchmark = { path = "benchmark_lowvol.csv", name = "Minimum-volatility index" }
 strategic_weight = 0.20
 range = [0.17, 0.23]
 [mandates.limits]
@@ -114,6 +118,7 @@ beta_max = 0.9
 
 [[mandates]]
 name = "Bond-proxy equity"
+manager = "Harrowmere Asset Managers"
 strategic_weight = 0.15
 range = [0.13, 0.17]
 """

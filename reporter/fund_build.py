@@ -144,6 +144,7 @@ class FundAssembled:
         t = self.table
         return {
             "benchmark_label": self.inputs.benchmark_label,
+            "managers": {m.name: m.manager for m in self.settings.mandates},
             "weight_source": self.inputs.weight_source,
             "mandates": _records(t[t["mandate"] != TOTAL_FUND]),
             "total": _records(t[t["mandate"] == TOTAL_FUND])[0],
@@ -277,7 +278,7 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
                       total_limits, changes=changes, compare_note=compare_note)
         parts = tuple(
             _part(m.mandate.name, m.mandate.slug, own, m.inputs, res, fp, at,
-                  f"its benchmark ({m.benchmark_name})", m.weight, None, limits[k],
+                  m.benchmark_phrase, m.weight, None, limits[k],
                   changes=mandate_changes[k], compare_note=mandate_notes[k])
             for k, (m, own, res) in enumerate(zip(fin.mandates, fa.settings,
                                                   fa.mandate_results, strict=True)))

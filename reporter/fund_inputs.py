@@ -24,6 +24,7 @@ import pandas as pd
 from reporter.analytics.returns import period_keys
 from reporter.config import Mandate, Settings
 from reporter.errors import Collector, Problem, place
+from reporter.input_options import against_phrase, series_name
 from reporter.models import DatedSeries, Holdings, ReturnPanel, ValidInputs
 from reporter.readers import RawTable
 from reporter.validate import (
@@ -47,7 +48,8 @@ class MandateInputs:
     mandate: Mandate
     inputs: ValidInputs
     weight: float                    # v_m, the mandate's current weight in the fund
-    benchmark_name: str              # the benchmark file as named in pack.toml
+    benchmark_name: str              # the benchmark's name (pack.toml's name, or "Benchmark")
+    benchmark_phrase: str = "its benchmark"   # the same in a sentence (input_options)
 
 
 @dataclass(frozen=True)
@@ -58,7 +60,7 @@ class FundInputs:
     total: ValidInputs
     mandates: tuple[MandateInputs, ...]
     benchmark_label: str             # what the total fund is measured against, in words
-    benchmark_name: str              # the same in short: a file name or "policy mix"
+    benchmark_name: str              # the same in short: a series' name or "policy mix"
     weight_source: str               # "market values" | "declared weights"
     positions: pd.DataFrame          # mandate, security_id, name, weight_in_mandate,
     #                                  weight_in_fund: one row per holding of each mandate
@@ -262,12 +264,12 @@ def validate_fund(settings: Settings, raws: dict[str, RawTable], read_problems=(
         short = "policy mix"
     elif settings.fund_benchmark == "file":
         fund_market = benches["fund.benchmark"]
-        short = settings.inputs["fund.benchmark"].display
-        label = f"the fund's benchmark ({short})"
+        short = series_name(settings, "fund.benchmark")
+        label = "the fund's benchmark" + (f" ({short})" if short != "Fund benchmark" else "")
     else:
         fund_market = market
-        short = settings.inputs["market"].display
-        label = f"the market proxy ({short})"
+        short = series_name(settings, "market")
+        label = "the market proxy" + (f" ({short})" if short != "Market proxy" else "")
     columns = pd.Index(panel.security_ids)
     out = []
     for m, vm in zip(ms, v, strict=True):          # a handful of mandates
@@ -279,7 +281,8 @@ def validate_fund(settings: Settings, raws: dict[str, RawTable], read_problems=(
             mandate=m, weight=float(vm),
             inputs=ValidInputs(holdings=h, returns=sub, market=benches[m.benchmark_role],
                                risk_free=rf, warnings=[]),
-            benchmark_name=settings.inputs[m.benchmark_role].display))
+            benchmark_name=series_name(settings, m.benchmark_role),
+            benchmark_phrase=against_phrase(settings, m.benchmark_role)))
     total = ValidInputs(holdings=union, returns=panel, market=fund_market, risk_free=rf,
                         warnings=coll.warnings)
     return FundInputs(total=total, mandates=tuple(out), benchmark_label=label,

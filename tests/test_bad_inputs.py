@@ -40,7 +40,8 @@ CASES: dict[str, tuple[str, list[str]]] = {
     "non_numeric_return": (ERROR, [
         "returns.csv:24:return: not a number: '#DIV/0!'"]),
     "unparseable_date": (ERROR, [
-        "returns.csv:30:date: not a valid date in the format '%Y-%m-%d': '31/08/2024'"]),
+        "returns.csv:30:date: not a valid date in the format '%Y-%m-%d': '31/08/2024'; it "
+        'reads as day-first: set date_format = "%d/%m/%Y"']),
     # the impossible date drops the market's February; the gap it leaves is not reported
     # again as a missing period
     "impossible_date": (ERROR, [
@@ -90,6 +91,25 @@ CASES: dict[str, tuple[str, list[str]]] = {
     "window_longer_than_data": (ERROR, [
         "pack.toml:analysis.window: the window (36 periods) is longer than the data: market.csv "
         "has 30 periods up to 2026-06-30"]),
+    # prices compounded from the returns (make_bad_cases._as_prices); a zero and a negative
+    "prices_not_positive": (ERROR, [
+        "prices.csv:43:price: price 0 is not above zero; a price or index level must be "
+        "positive",
+        "prices.csv:85:price: price -5.5 is not above zero; a price or index level must be "
+        "positive"]),
+    # the window is the whole file, one month short because of the gap: the gap is named
+    "market_gap_short_data": (ERROR, [
+        "market.csv:22:date: the dates 2025-08-31 and 2025-10-31 are not consecutive monthly "
+        "periods (a period is missing between them)"]),
+    "thousands_without_setting": (ERROR, [
+        "holdings.csv:2:market_value: not a number: '4,000,000.00'; it has thousands "
+        'separators: set thousands = ","']),
+    # one line for the file; medians of |return| per security: FWX02 1.6468, FWX01 3.65725
+    # (pandas groupby median on the case's file)
+    "many_securities_as_percentages": (ERROR, [
+        "returns.csv:2:return: returns for 4 securities look like percentages (FWX01, FWX02, "
+        "FWX03, FWX04; median |return| 1.65 to 3.66, above 0.25 for monthly data); give "
+        "decimals, e.g. 0.012 for 1.2%"]),
     "market_gap": (ERROR, [
         "market.csv:22:date: the dates 2025-08-31 and 2025-10-31 are not consecutive monthly "
         "periods (a period is missing between them)"]),

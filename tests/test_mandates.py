@@ -521,12 +521,16 @@ def test_demo_fund_pdf(demo_fund_build):
         assert status in line, name
     # a mandate's part: its title page names its benchmark and weight; footers name it
     first = pages["Low-volatility equity"]
-    assert "benchmark_lowvol.csv" in _page_text(pdf, first)
+    title = " ".join(_page_text(pdf, first).split())
+    assert "Managed by Tennick Lane Partners" in title
+    assert "measured against its benchmark (Minimum-volatility index)" in title
     assert "Low-volatility equity" in _page_text(pdf, first + 1).splitlines()[-1] + \
         _page_text(pdf, first + 1)[-300:]
     # the cautions stay on the pack
     text = subprocess.run(["pdftotext", str(pdf), "-"], check=True, capture_output=True,
                           text=True).stdout
+    for spec in load_settings(DEMO_FUND).inputs.values():    # names, never input file names
+        assert spec.display not in text, spec.display
     for phrase in ("not investment advice", "Past performance is not a reliable guide",
                    "appointed investment adviser", "is not comparable with another"):
         assert phrase in re.sub(r"\s+", " ", text), phrase

@@ -3,6 +3,9 @@ with its place."""
 
 from __future__ import annotations
 
+import datetime as dt
+import re
+
 import numpy as np
 import pandas as pd
 import pyarrow as pa
@@ -15,8 +18,14 @@ from reporter.validate.text import normalise_id
 
 
 def as_float(raw: RawTable, column: str, coll: Collector, decimal: str, *,
-             allow_empty: bool, label: str | None = None) -> np.ndarray:
+             allow_empty: bool, label: str | None = None,
+             thousands: str | None = None) -> np.ndarray:
     """Column ``column`` as float64 (NaN where empty); non-numbers are reported.
+
+    Text is read with the ``decimal`` mark, without the ``thousands`` separator when one is
+    given, and an accounting negative ``(1,234.50)`` as -1234.5; vectorised over the column
+    (pyarrow string kernels, then one cast). A non-number that would read with a thousands
+    separator or the other decimal mark says which setting to change.
 
     The texts ``nan``, ``inf``, ``Infinity`` (any case, any sign), and a number too large for
     a float, are "not a finite number", never taken as an empty value, even where an empty
@@ -32,31 +41,32 @@ def as_float(raw: RawTable, column: str, coll: Collector, decimal: str, *,
         null = np.asarray(arr.is_null().to_numpy(zero_copy_only=False), dtype=bool)
         not_finite = ~np.isfinite(values) & ~null
         shown = np.full(len(values), None, dtype=object)
-        shown[not_finite] = [repr(float(v)) for v in values[not_finite]]
+        shown[not_finite] = [repr(repr(float(v))) for v in values[not_finite]]
     else:
-        text = pd.Series(arr.cast(pa.string()).to_pylist(), dtype=object)
-        stripped = text.str.strip()
-        if decimal == ",":
-            stripped = stripped.str.replace(",", ".", regex=False)
-        # a copy: under pandas copy-on-write to_numpy() may return a read-only view
-        values = np.array(pd.to_numeric(stripped, errors="coerce"), dtype=float)
-        blank = text.isna().to_numpy() | (stripped == "").fillna(True).to_numpy()
-        spelled = stripped.str.fullmatch(NOT_FINITE_TEXT, case=False).fillna(False).to_numpy(
-            dtype=bool)
+        text = arr.cast(pa.string())
+        stripped = pc.utf8_trim_whitespace(text)
+        values = _parse_numbers(stripped, decimal, thousands)
+        blank = np.asarray(pc.fill_null(pc.equal(stripped, ""), True).to_numpy(
+            zero_copy_only=False), dtype=bool)
+        spelled = np.asarray(pc.fill_null(pc.match_substring_regex(
+            stripped, f"^{NOT_FINITE_TEXT}$", ignore_case=True), False).to_numpy(
+            zero_copy_only=False), dtype=bool)
         not_finite = (spelled | np.isinf(values)) & ~blank
-        shown = text.to_numpy(dtype=object)
         bad_text = np.isnan(values) & ~blank & ~not_finite
         values[blank] = np.nan
+        shown = np.full(len(values), None, dtype=object)
         capped = _Capped(coll, f"non-numeric values in column {label}")
         for i in np.flatnonzero(bad_text):
+            cell = text[int(i)].as_py()
             capped.add(place(raw.name, raw.row_number(int(i)), label),
-                       f"not a number: {text.iloc[i]!r}")
+                       f"not a number: {cell!r}{separator_hint(cell, decimal, thousands)}")
         capped.close()
     if not_finite.any():
         capped = _Capped(coll, f"values that are not finite numbers in column {label}")
         for i in np.flatnonzero(not_finite):
+            value = shown[i] if shown[i] is not None else repr(arr[int(i)].as_py())
             capped.add(place(raw.name, raw.row_number(int(i)), label),
-                       f"value is not a finite number: {shown[i]!r}")
+                       f"value is not a finite number: {value}")
         capped.close()
         values = np.where(not_finite, np.nan, values)
     if not allow_empty:
@@ -66,6 +76,40 @@ def as_float(raw: RawTable, column: str, coll: Collector, decimal: str, *,
             capped.add(place(raw.name, raw.row_number(int(i)), label), "value is empty")
         capped.close()
     return values
+
+
+def _parse_numbers(stripped: pa.ChunkedArray, decimal: str, thousands: str | None
+                   ) -> np.ndarray:
+    """Trimmed number texts as float64, NaN where a text is empty or not a number."""
+    num = stripped
+    if thousands:
+        num = pc.replace_substring(num, thousands, "")
+    num = pc.replace_substring_regex(num, r"^\((.*)\)$", r"-\1")     # (12.5) -> -12.5
+    if decimal == ",":
+        num = pc.replace_substring(num, ",", ".")
+    try:
+        out = pc.cast(num, pa.float64()).to_numpy(zero_copy_only=False)
+    except pa.ArrowInvalid:              # some text is not a number: NaN there
+        out = pd.to_numeric(num.to_pandas(), errors="coerce")
+    # a copy: the array may be read-only
+    return np.array(out, dtype=float)
+
+
+_GROUPED = re.compile(r"^\(?[+-]?\d{1,3}(?P<sep>[,.' ])\d{3}(?:(?P=sep)\d{3})*"
+                      r"(?:(?P<dec>[.,])\d+)?\)?$")
+
+
+def separator_hint(text: str | None, decimal: str, thousands: str | None) -> str:
+    """``; ... set thousands = ","`` when ``text`` reads as a number with a thousands
+    separator (and a decimal mark other than ``decimal``), else ''."""
+    m = _GROUPED.match((text or "").strip())
+    if m is None or m.group("sep") == m.group("dec"):
+        return ""
+    sep, dec = m.group("sep"), m.group("dec")
+    hint = f"thousands = {sep!r}" if sep != thousands else ""
+    if dec is not None and dec != decimal:
+        hint += (" and " if hint else "") + f"decimal = {dec!r}"
+    return f"; it has thousands separators: set {hint}".replace("'", '"') if hint else ""
 
 
 # how "not a number" and infinity are spelled in text (numpy, pandas, spreadsheets, C)
@@ -107,9 +151,30 @@ def date_codes(raw: RawTable, column: str, date_format: str,
             capped.add(where, "date is empty")
         else:
             text = texts[raw_codes[i]] if texts is not None else str(parsed[raw_codes[i]])
-            capped.add(where, f"not a valid date in the format {date_format!r}: {text!r}")
+            capped.add(where, f"not a valid date in the format {date_format!r}: {text!r}"
+                       + date_format_hint(text, date_format))
     capped.close()
     return codes, parsed[good]
+
+
+# formats a custodian's export often uses, tried on a date that fails, to say what to set
+OTHER_DATE_FORMATS = (("%d/%m/%Y", "day-first"), ("%d.%m.%Y", "day-first"),
+                      ("%d-%m-%Y", "day-first"), ("%m/%d/%Y", "month-first"),
+                      ("%Y-%m-%d", "year-first"), ("%Y/%m/%d", "year-first"))
+
+
+def date_format_hint(text: str, date_format: str) -> str:
+    """``; it reads as day-first: set date_format = "%d/%m/%Y"`` when ``text`` is a date in
+    one of :data:`OTHER_DATE_FORMATS` (the first that reads it), else ''."""
+    for fmt, kind in OTHER_DATE_FORMATS:
+        if fmt == date_format:
+            continue
+        try:
+            dt.datetime.strptime(str(text).strip(), fmt)
+        except ValueError:
+            continue
+        return f'; it reads as {kind}: set date_format = "{fmt}"'
+    return ""
 
 
 def _parse_date_texts(texts: list, date_format: str) -> np.ndarray:

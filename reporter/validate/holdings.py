@@ -55,9 +55,11 @@ def validate_holdings(raw: RawTable, settings: Settings, coll: Collector) -> Hol
     if has_w and has_mv:
         coll.warn(place(raw.name, 1, "market_value"), "both weight and market_value given; "
                   "weights are taken from the weight column")
-    raw_w = as_float(raw, column, coll, spec.decimal, allow_empty=False)
+    raw_w = as_float(raw, column, coll, spec.decimal, allow_empty=False,
+                     thousands=spec.thousands)
     if has_mv:
         frame["market_value"] = as_float(raw, "market_value", coll, spec.decimal,
+                                         thousands=spec.thousands,
                                          allow_empty=False) if has_w else raw_w
     neg = np.flatnonzero(raw_w < 0)
     if len(neg) and not settings.allow_short:

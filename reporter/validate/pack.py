@@ -88,6 +88,28 @@ def _check_return_frequency(settings: Settings, panel: ReturnPanel, mkeys: np.nd
     capped.close()
 
 
+def _report_gaps(settings: Settings, market: DatedSeries, win: np.ndarray,
+                 coll: Collector) -> int:
+    """An error for each pair of market dates at positions ``win`` that are not consecutive
+    periods (one whose date could not be read is reported already); returns how many."""
+    mname = settings.inputs["market"].display
+    gaps = frequency_gaps(market.dates[win], settings.frequency)
+    if market.rows is not None and market.unread_rows is not None and len(market.unread_rows):
+        lo, hi = market.rows[win][gaps - 1], market.rows[win][gaps]
+        unread = np.sort(market.unread_rows)
+        explained = np.searchsorted(unread, hi) > np.searchsorted(unread, lo, side="right")
+        gaps = gaps[~explained]
+    for g in gaps[:MAX_PER_CHECK]:
+        where = (place(mname, int(market.rows[win][g]), "date") if market.rows is not None
+                 else mname)
+        coll.error(where, f"the dates {market.dates[win][g - 1]} and {market.dates[win][g]} "
+                   f"are not consecutive {settings.frequency} periods (a period is missing "
+                   "between them)")
+    if len(gaps) > MAX_PER_CHECK:
+        coll.error(mname, f"... and {len(gaps) - MAX_PER_CHECK} more gaps in the window")
+    return len(gaps)
+
+
 def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
                     panel: ReturnPanel | None, coll: Collector) -> None:
     cfg = settings.config_path.name
@@ -104,27 +126,21 @@ def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
                   f"no holding has a return for the period of period_end {settings.period_end}")
     upto = np.flatnonzero(mkeys <= end_key)
     if len(upto) < settings.window:
-        coll.error(f"{cfg}:analysis.window", f"the window ({settings.window} periods) is longer "
-                   f"than the data: {mname} has {len(upto)} periods up to {settings.period_end}")
+        # a gap makes the data short: name it; the window is too long only if the calendar
+        # from the first date is (daily data have no calendar of their own: say both)
+        gaps = _report_gaps(settings, market, upto, coll)
+        span = int(end_key - mkeys[upto[0]]) + 1 if len(upto) else 0
+        if not gaps or settings.frequency == "daily" or span < settings.window:
+            coll.error(f"{cfg}:analysis.window", f"the window ({settings.window} periods) is "
+                       f"longer than the data: {mname} has {len(upto)} periods up to "
+                       f"{settings.period_end}")
         return
     win = upto[-settings.window:]
-    gaps = frequency_gaps(market.dates[win], settings.frequency)
-    if market.rows is not None and market.unread_rows is not None and len(market.unread_rows):
-        lo, hi = market.rows[win][gaps - 1], market.rows[win][gaps]
-        unread = np.sort(market.unread_rows)
-        explained = np.searchsorted(unread, hi) > np.searchsorted(unread, lo, side="right")
-        gaps = gaps[~explained]     # a date that could not be read is reported already
-    for g in gaps[:MAX_PER_CHECK]:
-        where = (place(mname, int(market.rows[win][g]), "date") if market.rows is not None
-                 else mname)
-        coll.error(where, f"the dates {market.dates[win][g - 1]} and {market.dates[win][g]} "
-                   f"are not consecutive {settings.frequency} periods (a period is missing "
-                   "between them)")
-    if len(gaps) > MAX_PER_CHECK:
-        coll.error(mname, f"... and {len(gaps) - MAX_PER_CHECK} more gaps in the window")
+    _report_gaps(settings, market, win, coll)
     if panel is not None:
         _check_return_frequency(settings, panel, mkeys, coll)
     rkeys = period_keys(rf.dates, settings.frequency)
+
     missing = np.setdiff1d(mkeys[win], rkeys)
     if len(missing):
         at = np.isin(mkeys[win], missing)

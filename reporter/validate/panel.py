@@ -22,10 +22,20 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
     ``matrix`` when the caller has it already.
     """
     pct, med = percent if percent is not None else _percent_columns(matrix, settings.frequency)
-    for j in np.flatnonzero(pct):
-        coll.error(where_of(j), f"returns for {ids[j]} look like percentages (median |return| "
-                   f"{med[j]:.3g} is above {PERCENT_MEDIAN[settings.frequency]} for "
-                   f"{settings.frequency} data); give decimals, e.g. 0.012 for 1.2%")
+    flagged = np.flatnonzero(pct)
+    if len(flagged):         # one line for the file, however many securities
+        limit = f"above {PERCENT_MEDIAN[settings.frequency]} for {settings.frequency} data"
+        if len(flagged) == 1:
+            j = flagged[0]
+            what = f"{ids[j]} look like percentages (median |return| {med[j]:.3g} is {limit})"
+        else:
+            named = ", ".join(ids[j] for j in flagged[:5]) + (", ..." if len(flagged) > 5
+                                                              else "")
+            what = (f"{len(flagged)} securities look like percentages ({named}; median "
+                    f"|return| {np.nanmin(med[flagged]):.3g} to {np.nanmax(med[flagged]):.3g}, "
+                    f"{limit})")
+        coll.error(where_of(flagged[0]), f"returns for {what}; give decimals, e.g. 0.012 for "
+                   "1.2%")
     held = set(holdings.ids) if holdings is not None else set(ids)
     unheld = [s for s in ids if s not in held]
     if unheld and holdings is not None:

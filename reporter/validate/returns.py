@@ -14,6 +14,7 @@ from reporter.validate.cells import _dictionary, as_dates, as_float, date_codes
 from reporter.validate.common import _Capped, _period_word, _require_columns
 from reporter.validate.long_quick import _clean_long_matrix
 from reporter.validate.panel import _finish_panel
+from reporter.validate.prices import PRICE_COLUMN, price_returns, report_non_positive
 from reporter.validate.text import (
     case_clash_message,
     case_clashes,
@@ -28,24 +29,29 @@ def validate_returns(raw: RawTable, holdings: Holdings | None, settings: Setting
     """Long (``date,security_id,return``) or wide (``date`` + one column per id) returns.
 
     ``holdings_raw`` (the holdings file as read) lets messages about a holding name its row.
+    With ``values = "prices"`` (``[inputs] prices``) the file holds prices or index levels
+    (long: ``date,security_id,price``), turned into returns by
+    :func:`reporter.validate.prices.price_returns`.
     """
     names = raw.table.column_names
+    value_col = PRICE_COLUMN if settings.inputs["returns"].values == "prices" else "return"
     if raw.table.num_rows == 0 and names:
         coll.error(raw.name, "the file has no rows")
         return None
-    if "security_id" in names or "return" in names:
-        return _returns_long(raw, holdings, settings, coll, holdings_raw)
+    if "security_id" in names or value_col in names:
+        return _returns_long(raw, holdings, settings, coll, holdings_raw, value_col)
     if "date" in names and len(names) > 1:
         return _returns_wide(raw, holdings, settings, coll, holdings_raw)
-    _require_columns(raw, ("date", "security_id", "return"), (), coll)
+    _require_columns(raw, ("date", "security_id", value_col), (), coll)
     return None
 
 
-def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | None:
-    if not _require_columns(raw, ("date", "security_id", "return"), (), coll):
+def _returns_long(raw, holdings, settings, coll, holdings_raw, value_col) -> ReturnPanel | None:
+    if not _require_columns(raw, ("date", "security_id", value_col), (), coll):
         return None
     spec = settings.inputs["returns"]
-    clean = _clean_long_matrix(raw, spec.date_format, settings.frequency)
+    prices = value_col == PRICE_COLUMN
+    clean = None if prices else _clean_long_matrix(raw, spec.date_format, settings.frequency)
     if clean is not None:
         matrix, keys, ids, percent, row_where = clean
         return _finish_panel(
@@ -55,7 +61,8 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
                 lambda p, s: (p == t) & (s == j))), "return"),
             holdings_raw, percent)
     dcodes, days = date_codes(raw, "date", spec.date_format, coll)
-    values = as_float(raw, "return", coll, spec.decimal, allow_empty=False)
+    values = as_float(raw, value_col, coll, spec.decimal, allow_empty=False,
+                      thousands=spec.thousands)
     # ids are trimmed and put in NFC, so that " FWX01" and "FWX01" are one security, and a
     # blank id is empty: the distinct values are normalised (few), then the codes remapped
     enc = _dictionary(raw.table["security_id"])
@@ -127,14 +134,6 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     matrix = np.empty(shape) if n_cells == space else np.full(shape, np.nan)
     matrix.ravel()[combined] = values if all_ok else values[ok]
 
-    # securities that look like percentages are reported once, in _finish_panel
-    percent = _percent_columns(matrix, settings.frequency)
-    if (values < -1.0).any():
-        pct_code = np.append(percent[0], False)
-        code_of_row = np.where(id_null, len(ids), codes_all)  # len(ids): the "no id" slot
-        _report_below_minus_100(raw, np.where(pct_code[code_of_row], np.nan, values),
-                                "return", "returns below -100%", coll)
-
     # file rows are looked up only when a message needs one (rare), not for every cell
     def first_row(j: int) -> int:
         return int(rows[np.argmax(codes == j)])
@@ -142,6 +141,21 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     def row_of(t: int, j: int) -> int:
         return int(rows[np.flatnonzero(combined == t * n_ids + j)[0]])
 
+    if prices:
+        report_non_positive(raw, values, value_col, coll)
+        returns, keys = price_returns(matrix, uniq_keys, settings.frequency)
+        return _finish_panel(raw, returns, keys, ids, holdings, settings, coll, "long",
+                             lambda j: place(raw.name, raw.row_number(first_row(j)), value_col),
+                             lambda t, j: place(raw.name, raw.row_number(row_of(t + 1, j)),
+                                                value_col),
+                             holdings_raw, _no_percent(len(ids)))
+    # securities that look like percentages are reported once, in _finish_panel
+    percent = _percent_columns(matrix, settings.frequency)
+    if (values < -1.0).any():
+        pct_code = np.append(percent[0], False)
+        code_of_row = np.where(id_null, len(ids), codes_all)  # len(ids): the "no id" slot
+        _report_below_minus_100(raw, np.where(pct_code[code_of_row], np.nan, values),
+                                "return", "returns below -100%", coll)
     return _finish_panel(raw, matrix, uniq_keys, ids, holdings, settings, coll, "long",
                          lambda j: place(raw.name, raw.row_number(first_row(j)), "return"),
                          lambda t, j: place(raw.name, raw.row_number(row_of(t, j)), "return"),
@@ -152,11 +166,16 @@ def _returns_wide(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     spec = settings.inputs["returns"]
     dates = as_dates(raw, "date", spec.date_format, coll)
     columns = [c for c in raw.table.column_names if c != "date"]
-    cols = [as_float(raw, c, coll, spec.decimal, allow_empty=True) for c in columns]
+    cols = [as_float(raw, c, coll, spec.decimal, allow_empty=True, thousands=spec.thousands)
+            for c in columns]
     full = np.column_stack(cols) if cols else np.empty((len(dates), 0))
+    prices = spec.values == "prices"
     # a column that looks like percentages is reported once, in _finish_panel
-    percent = _percent_columns(full, settings.frequency)
-    for j in np.flatnonzero(~percent[0] & (full < -1.0).any(axis=0)):
+    percent = _no_percent(len(columns)) if prices else _percent_columns(full,
+                                                                          settings.frequency)
+    for j in np.flatnonzero((full <= 0).any(axis=0) if prices else []):
+        report_non_positive(raw, full[:, j], columns[j], coll)
+    for j in np.flatnonzero(~percent[0] & (full < -1.0).any(axis=0) & (not prices)):
         _report_below_minus_100(raw, full[:, j], columns[j],
                                 f"returns below -100% in column {columns[j]}", coll)
     ids_ok = _wide_ids(raw, columns, coll)
@@ -174,15 +193,18 @@ def _returns_wide(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     if len(dup) or not ids_ok:
         return None
     ids = [normalise_id(c) for c in columns]
-    matrix = full[ok][order]
+    matrix, keys = full[ok][order], keys[order]
     sorted_rows = rows[order]
-    return _finish_panel(raw, matrix, keys[order], ids, holdings, settings, coll, "wide",
+    if prices:
+        matrix, keys = price_returns(matrix, keys, settings.frequency)
+        sorted_rows = sorted_rows[1:]
+    return _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, "wide",
                          lambda j: place(raw.name, 1, columns[j]),
                          lambda t, j: place(raw.name, raw.row_number(int(sorted_rows[t])),
                                             columns[j]),
                          # column statistics do not depend on row order: reuse them when no
                          # row was dropped for a bad date
-                         holdings_raw, percent if ok.all() else None)
+                         holdings_raw, percent if prices or ok.all() else None)
 
 
 def _wide_ids(raw: RawTable, columns: list[str], coll: Collector) -> bool:
@@ -206,3 +228,8 @@ def _wide_ids(raw: RawTable, columns: list[str], coll: Collector) -> bool:
         coll.error(place(raw.name, 1, first_column[later]),
                    case_clash_message(ids[later], ids[first], None))
     return distinct
+
+
+def _no_percent(n: int) -> tuple[np.ndarray, np.ndarray]:
+    """No column flagged as percentages (prices are never checked for that)."""
+    return np.zeros(n, dtype=bool), np.full(n, np.nan)

@@ -12,20 +12,28 @@ from reporter.models import DatedSeries
 from reporter.readers import RawTable
 from reporter.validate.cells import as_dates, as_float
 from reporter.validate.common import _Capped, _period_word, _require_columns
+from reporter.validate.prices import PRICE_COLUMN, report_non_positive, series_returns
 from reporter.validate.values import PERCENT_MEDIAN, _check_return_values, looks_like_percent
 
 
 def validate_series(raw: RawTable, value_col: str, settings: Settings,
                     coll: Collector) -> DatedSeries | None:
-    """A ``date,<value_col>`` series: dates valid, unique per period, values numeric."""
+    """A ``date,<value_col>`` series: dates valid, unique per period, values numeric.
+
+    A return series given as prices (``values = "prices"``) is a ``date,price`` file, and
+    its returns are those of consecutive periods (:mod:`reporter.validate.prices`)."""
+    spec = settings.inputs["market" if value_col == "return" else "risk_free"]
+    prices = value_col == "return" and spec.values == "prices"
+    if prices:
+        value_col = PRICE_COLUMN
     if not _require_columns(raw, ("date", value_col), (), coll):
         return None
     if raw.table.num_rows == 0:
         coll.error(raw.name, "the file has no rows")
         return None
-    spec = settings.inputs["market" if value_col == "return" else "risk_free"]
     dates = as_dates(raw, "date", spec.date_format, coll)
-    values = as_float(raw, value_col, coll, spec.decimal, allow_empty=False)
+    values = as_float(raw, value_col, coll, spec.decimal, allow_empty=False,
+                      thousands=spec.thousands)
     ok = ~np.isnat(dates)
     keys = period_keys(dates[ok], settings.frequency)
     rows = np.flatnonzero(ok)
@@ -41,7 +49,10 @@ def validate_series(raw: RawTable, value_col: str, settings: Settings,
                    + f"{dates[i]} (first at row {raw.row_number(int(first))})"
                    + ("" if same else f"; the data do not look {settings.frequency}"))
     capped.close()
-    _check_return_values(raw, values, value_col, settings, coll, label=value_col)
+    if prices:
+        report_non_positive(raw, values, value_col, coll)
+    else:
+        _check_return_values(raw, values, value_col, settings, coll, label=value_col)
     if value_col == "return":
         _warn_extreme_index_moves(raw, values, settings, coll)
     if value_col == "rate":
@@ -54,8 +65,10 @@ def validate_series(raw: RawTable, value_col: str, settings: Settings,
         return None         # (no valid date at all: every row has been reported already)
     d, v = dates[ok], values[ok]
     order = np.argsort(d)
-    return DatedSeries(dates=d[order], values=v[order],
-                       rows=raw.row_numbers(np.flatnonzero(ok)[order]),
+    d, v, at = d[order], v[order], np.flatnonzero(ok)[order]
+    if prices:
+        d, v, at = series_returns(d, v, at, keys[order], settings.frequency)
+    return DatedSeries(dates=d, values=v, rows=raw.row_numbers(at),
                        unread_rows=raw.row_numbers(np.flatnonzero(~ok)))
 
 

@@ -239,6 +239,46 @@ def market_extreme_return(p: Pack) -> None:
     p.rows("market.csv")[20][1] = "4.2"                  # line 22: +420% in one month
 
 
+def _as_prices(p: Pack) -> None:
+    """The returns file as a long price file: each security's returns compounded from 100
+    (the first period's price is 100, so that file has one return fewer)."""
+    level: dict[str, float] = {}
+    rows = []
+    for date, sid, r in p.rows("returns.csv"):
+        level[sid] = level[sid] * (1 + float(r)) if sid in level else 100.0
+        rows.append([date, sid, f"{level[sid]:.6f}"])
+    del p.tables["returns.csv"]
+    p.tables["prices.csv"] = (["date", "security_id", "price"], rows)
+    del p.toml["inputs"]["returns"]
+    p.toml["inputs"]["prices"] = '"prices.csv"'
+
+
+def prices_not_positive(p: Pack) -> None:
+    _as_prices(p)
+    p.rows("prices.csv")[10 * 4 + 1][2] = "0"                       # line 43 (FWX02)
+    p.rows("prices.csv")[20 * 4 + 3][2] = "-5.5"                    # line 85 (FWX04)
+
+
+def market_gap_short_data(p: Pack) -> None:
+    # the window is every period of the file, and one month is missing: the gap is the
+    # problem, not the length of the window
+    p.toml["analysis"]["window"] = "30"
+    market_gap(p)
+
+
+def thousands_without_setting(p: Pack) -> None:
+    header, rows = p.tables["holdings.csv"]
+    header[3] = "market_value"
+    for row, value in zip(rows, ('"4,000,000.00"', "3000000", "2000000", "1000000"),
+                          strict=True):
+        row[3] = value                                              # line 2: separators
+
+
+def many_securities_as_percentages(p: Pack) -> None:
+    for row in p.rows("returns.csv"):                               # every security
+        row[2] = f"{float(row[2]) * 100:.4f}"
+
+
 CASES: dict[str, Callable[[Pack], None]] = {f.__name__: f for f in (
     missing_required_column, unknown_column, duplicate_security_id, duplicate_row_same_value,
     duplicate_row_different_value, non_numeric_return, unparseable_date, impossible_date,
@@ -252,7 +292,8 @@ CASES: dict[str, Callable[[Pack], None]] = {f.__name__: f for f in (
     missing_input_file, risk_free_annual_percentage, risk_free_annual_decimal,
     blank_line_then_bad_value, quoted_line_break_then_bad_value, ragged_row,
     returns_without_rows, trailing_delimiter,
-    market_extreme_return,
+    market_extreme_return, prices_not_positive, market_gap_short_data,
+    thousands_without_setting, many_securities_as_percentages,
     *surprise_cases.CASES,
 )}
 
