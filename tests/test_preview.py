@@ -243,3 +243,18 @@ def test_the_command_prints_its_address_and_stops_on_ctrl_c(tmp_path):
         if proc.poll() is None:
             proc.kill()
             proc.wait(timeout=WAIT_S)
+
+
+def test_a_taken_port_is_one_line_and_exit_2(tmp_path, capsys):
+    from reporter.cli import main
+
+    with socket.socket() as taken:
+        taken.bind(("127.0.0.1", 0))
+        taken.listen()
+        port = taken.getsockname()[1]
+        code = main(["preview", str(DEMO), "--port", str(port)])
+    out, err = capsys.readouterr()
+    assert code == 2
+    lines = [ln for ln in err.strip().splitlines() if not ln.startswith("building ")]
+    assert len(lines) == 1 and lines[0].startswith(f"reporter: cannot listen on 127.0.0.1:{port}")
+    assert "Traceback" not in err and out == ""
