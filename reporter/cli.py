@@ -235,6 +235,40 @@ def site(archive: Path, out: Path, quiet: bool, debug: bool) -> None:
                f"files, {report.n_bytes:,} bytes; ledger head {report.head_hash or '(empty)'}")
 
 
+@cli.command()
+@click.argument("pack", type=click.Path(exists=True, path_type=Path))
+@click.option("--port", "-p", type=click.IntRange(0, 65535), default=8765, show_default=True,
+              help="Port to serve on; 0 picks a free one (printed).")
+@click.option("--host", default="127.0.0.1", show_default=True,
+              help="Address to listen on. Another than 127.0.0.1 shows the unsigned pack to "
+                   "anyone who can reach this machine.")
+@debug_option
+def preview(pack: Path, port: int, host: str, debug: bool) -> None:
+    """Serve PACK's HTML and rebuild it as its files change; the page reloads itself.
+
+    A commentary or template edit re-renders without re-estimating. Nothing is written.
+    Ctrl-C stops.
+    """
+    from reporter.preview.server import Preview
+
+    def report(page, changed: bool) -> None:
+        if not page.ok:
+            for line in page.problems[:MAX_LINES]:
+                click.echo(line, err=True)
+            click.echo(f"reporter: {len(page.problems)} problem(s); the page lists them",
+                       err=True)
+        elif changed:
+            click.echo(f"rebuilt ({'HTML only' if page.stages == 'render' else 'in full'})",
+                       err=True)
+
+    click.echo(f"building {pack} ...", err=True)
+    server = _run(lambda: Preview(pack, host, port, on_update=report), debug)
+    report(server.state.page, True)
+    click.echo(f"previewing {pack} at {server.url} (Ctrl-C stops)")
+    _run(server.serve_forever, debug)
+    click.echo("preview stopped")
+
+
 def _print_warnings(warnings) -> None:
     for w in warnings[:MAX_LINES]:
         click.echo(str(w), err=True)

@@ -24,6 +24,7 @@ from importlib import resources
 from pathlib import Path
 
 from jinja2 import (
+    BytecodeCache,
     ChoiceLoader,
     Environment,
     FileSystemLoader,
@@ -238,17 +239,21 @@ def _template_place(filename: str | None, line: int | None, env: Environment,
     return None
 
 
-def make_environment(user_templates: Path | None = None) -> Environment:
+def make_environment(user_templates: Path | None = None,
+                     bytecode_cache: BytecodeCache | None = None) -> Environment:
     """The sandboxed Jinja environment with the layered loader and the display filters.
     With ``user_templates``, every top-level render's HTML is checked for references and
-    elements a pack may not hold (:mod:`reporter.render.safety`)."""
+    elements a pack may not hold (:mod:`reporter.render.safety`). ``bytecode_cache`` keeps
+    compiled templates between environments (the preview's re-renders); Jinja recompiles a
+    template whose source changed."""
     default = FolderLoader(default_templates_dir())
     loaders = []
     if user_templates is not None:
         loaders.append(FolderLoader(user_templates))
     loaders += [PrefixLoader({"default": default}), default]
     env = PackSandbox(loader=ChoiceLoader(loaders), autoescape=True, undefined=StrictUndefined,
-                      trim_blocks=True, lstrip_blocks=True, keep_trailing_newline=True)
+                      trim_blocks=True, lstrip_blocks=True, keep_trailing_newline=True,
+                      bytecode_cache=bytecode_cache)
     env.template_class = CheckedTemplate
     env.user_templates = Path(user_templates) if user_templates is not None else None
     env.filters.update(pct=pct, bp=bp, num=num, longdate=longdate, fit=fit)

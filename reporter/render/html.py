@@ -73,15 +73,17 @@ def print_charts(ctx: PackContext, svgs: dict[str, Markup]) -> dict[str, Markup]
 
 def render_html(ctx: PackContext, svgs: dict[str, Markup], *, for_print: bool,
                 user_templates=None, template: str = "pack.html.j2",
-                signoff: dict | None = None, extra: dict | None = None) -> str:
+                signoff: dict | None = None, extra: dict | None = None,
+                bytecode_cache=None) -> str:
     """The pack as one self-contained HTML document (CSS and SVG inline).
 
     ``signoff`` (the sign-off record) adds the approval to the cover and a last page.
     ``extra`` sets ``part`` (True: only the portfolio's chapters, for a fund pack),
     ``anchor_prefix`` (prefixed to every id), ``part_title``, and ``market_word`` and
     ``proxy_word`` (what the regressions are against: "market proxy" and "proxy" by default).
+    ``bytecode_cache``: compiled templates kept between calls (see :func:`make_environment`).
     """
-    env = make_environment(user_templates)
+    env = make_environment(user_templates, bytecode_cache)
     values = {f.name: getattr(ctx, f.name) for f in fields(ctx)}
     values.pop("charts")
     values.update({"part": False, "anchor_prefix": "", "part_title": None,
