@@ -1,4 +1,4 @@
-"""Sign off a reviewed build: a PDF/A-3b that carries its data, archived read-only, and a
+"""Sign off a reviewed build: a tagged PDF/A-3a that carries its data, archived read-only, and a
 ledger entry chained to the one before it.
 
 What is signed is exactly what was reviewed. Sign-off refuses a build folder whose files no
@@ -36,6 +36,7 @@ from reporter.archive.ledger import (
     entries_for,
     last_entry,
 )
+from reporter.archive.signature import page_record, sign_pdf, signature_columns
 from reporter.build import assemble
 from reporter.config import INPUT_ROLES, Settings, load_settings
 from reporter.errors import EXIT_FAILED, InputError, OutputError, Problem, ReporterError
@@ -43,7 +44,7 @@ from reporter.progress import Progress
 from reporter.render.pdf import render_pdf
 from reporter.writer import BUILD_MARKER, OutputSet, place_in_archive
 
-PDF_VARIANT = "pdf/a-3b"
+PDF_VARIANT = "pdf/a-3a"          # tagged (ISO 19005-3, level A)
 MAX_TEXT = 500
 
 
@@ -63,6 +64,7 @@ class SignOffRequest:
     note: str | None = None
     supersedes: bool = False
     reason: str | None = None
+    key: object | None = None    # a keys.SigningKey: sign the PDF digitally (PAdES B-B)
 
 
 @dataclass(frozen=True)
@@ -153,6 +155,8 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
     signed_utc = dt.datetime.now(dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
     with progress.stage("pdf"):
         pdf = _signed_pdf(a, build, settings, request, name, revision, superseded, signed_utc)
+        if request.key is not None:                      # digital signature (signature.py)
+            pdf = sign_pdf(pdf, request.key, reason=f"sign-off by {request.signer}")
     files = OutputSet()
     files.add(f"{period}/{name}.pdf", pdf)
     files.add(f"{period}/{name}/pack.html", build.files["pack.html"])
@@ -184,6 +188,7 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
                 "tool_version": __version__,
                 "supersedes": superseded.seq if superseded else None,
                 "reason": request.reason,
+                **signature_columns(request.key, pdf if request.key else None),
             })
             con.execute("COMMIT")
     except BaseException:
@@ -197,7 +202,7 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
 
 def _signed_pdf(a, build: ReviewedBuild, settings: Settings, request: SignOffRequest,
                 name: str, revision: int, superseded: Entry | None, signed_utc: str) -> bytes:
-    """The pack as PDF/A-3b with the sign-off page, carrying pack.toml, the inputs and the
+    """The pack as tagged PDF/A-3a with the sign-off page, carrying pack.toml, the inputs and the
     results files as embedded attachments."""
     hashes = build.manifest["input_sha256"]
     order = [k for k in ("pack.toml", *INPUT_ROLES) if k in hashes]   # a fund may have no
@@ -211,7 +216,7 @@ def _signed_pdf(a, build: ReviewedBuild, settings: Settings, request: SignOffReq
         "supersedes": (f"{superseded.pdf_path} (entry {superseded.seq}, signed by "
                        f"{superseded.signer} on {_readable(superseded.signed_utc)})")
                        if superseded else None,
-        "inputs": shown,
+        "inputs": shown, "digital": page_record(request.key, signed_utc),
     }
     attachments, seen = [], set()
     for key in keys:
