@@ -9,6 +9,8 @@ AXE_VERSION := 4.14.1
 AXE := build/npm/node_modules/axe-core/axe.min.js
 DEMO_RUN := build/demo-run
 DEMO_PERIODS := 2026-09-30 2026-10-31
+# a throwaway passphrase for the throwaway demo keys (never a real key's)
+DEMO_KEY_PASS := demo-only-not-secret
 SIGNER := --by "Ruth Okafor" --role "Chair of the investment committee"
 
 .PHONY: demo test lint lock demo-data bad-cases golden bench clean browser
@@ -49,8 +51,21 @@ demo: $(STAMP)
 	  $(BIN)/reporter sign-off $(DEMO_RUN)/build-$$p --archive $(DEMO_RUN)/archive \
 	    $(SIGNER) --minute-ref IC-$$p --quiet || exit 1; \
 	done
-	$(BIN)/reporter sign-off build/demo --archive $(DEMO_RUN)/archive $(SIGNER) \
-	  --minute-ref IC-2026-11-30 --quiet
+	REPORTER_DEMO_KEY_PASS=$(DEMO_KEY_PASS) $(BIN)/python -m reporter.archive.keys \
+	  $(DEMO_RUN)/DEMO-ONLY-signer.p12 "DEMO ONLY Ruth Okafor, chair"
+	REPORTER_DEMO_KEY_PASS=$(DEMO_KEY_PASS) $(BIN)/python -m reporter.archive.keys \
+	  $(DEMO_RUN)/DEMO-ONLY-secretary.p12 "DEMO ONLY Tomas Lindqvist, secretary"
+	REPORTER_DEMO_KEY_PASS=$(DEMO_KEY_PASS) $(BIN)/reporter sign-off build/demo \
+	  --archive $(DEMO_RUN)/archive $(SIGNER) --minute-ref IC-2026-11-30 --quiet \
+	  --key $(DEMO_RUN)/DEMO-ONLY-signer.p12 --key-pass-env REPORTER_DEMO_KEY_PASS
+	REPORTER_DEMO_KEY_PASS=$(DEMO_KEY_PASS) $(BIN)/reporter countersign \
+	  $(DEMO_RUN)/archive/2026-11-30/tarnbrook-valley-2026-11-30.pdf --archive $(DEMO_RUN)/archive \
+	  --by "Tomas Lindqvist" --role "Secretary to the committee" --minute-ref IC-2026-11-30 \
+	  --key $(DEMO_RUN)/DEMO-ONLY-secretary.p12 --key-pass-env REPORTER_DEMO_KEY_PASS
+	cat $(DEMO_RUN)/DEMO-ONLY-signer.pem $(DEMO_RUN)/DEMO-ONLY-secretary.pem \
+	  > $(DEMO_RUN)/DEMO-ONLY-roots.pem
+	$(BIN)/reporter verify $(DEMO_RUN)/archive/2026-11-30/tarnbrook-valley-2026-11-30-r2.pdf \
+	  --archive $(DEMO_RUN)/archive --trust $(DEMO_RUN)/DEMO-ONLY-roots.pem
 	$(BIN)/reporter site --archive $(DEMO_RUN)/archive --out site
 
 # Browser tests need Debian's chromium; PDF checks need poppler-utils (CI runs as root on a

@@ -21,6 +21,32 @@ strict_option = click.option("--strict", is_flag=True, help="Treat warnings as e
 quiet_option = click.option("--quiet", "-q", is_flag=True, help="Print no progress.")
 
 
+def key_options(fn):
+    """--key and --key-pass-env: a digital signature with a PKCS#12 key."""
+    fn = click.option("--key-pass-env", metavar="NAME",
+                      help="Environment variable holding the key's passphrase (else a "
+                      "prompt on the terminal).")(fn)
+    return click.option("--key", type=click.Path(path_type=Path),
+                        help="Signer's PKCS#12 (.p12) key: sign the PDF digitally.")(fn)
+
+
+def _print_signatures(file: Path, trust: Path | None, matches, debug: bool) -> bool:
+    """Report each digital signature of FILE; False when one fails, or when the ledger
+    records one for the file and it has none (a stripped signature)."""
+    from reporter.archive.signature import describe
+
+    if file.suffix.lower() != ".pdf":
+        return True
+    lines, ok = _run(lambda: describe(file, trust), debug)
+    for line in lines:
+        click.echo(line)
+    expected = [m.entry for m in matches if m.entry.cert_sha256]
+    if expected and lines == [f"{file}: carries no digital signature"]:
+        click.echo(f"{file}: the ledger records a digital signature that is missing")
+        return False
+    return ok
+
+
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="reporter")
 def cli() -> None:
@@ -69,16 +95,19 @@ def check(pack: Path, strict: bool, debug: bool) -> None:
 @click.option("--supersedes", is_flag=True,
               help="Replace this period's signed pack with this one (both are kept).")
 @click.option("--reason", help="Why the earlier sign-off is superseded (with --supersedes).")
+@key_options
 @quiet_option
 @debug_option
 def sign_off_cmd(build_dir: Path, archive: Path, signer: str, role, minute_ref, note,
-                 supersedes: bool, reason, quiet: bool, debug: bool) -> None:
-    """Sign off the reviewed build in BUILD_DIR and archive it as PDF/A-3b."""
+                 supersedes: bool, reason, key, key_pass_env, quiet: bool,
+                 debug: bool) -> None:
+    """Sign off the reviewed build in BUILD_DIR and archive it as a tagged PDF/A-3a."""
     from reporter.archive.signoff import BrokenArchive, SignOffRequest, sign_off
     from reporter.progress import Progress
 
+    signing_key = _open_key(key, key_pass_env, debug)
     request = SignOffRequest(signer=signer, role=role, minute_ref=minute_ref, note=note,
-                             supersedes=supersedes, reason=reason)
+                             supersedes=supersedes, reason=reason, key=signing_key)
 
     def run():
         try:
@@ -97,6 +126,48 @@ def sign_off_cmd(build_dir: Path, archive: Path, signer: str, role, minute_ref, 
                + (f", supersedes entry {e.supersedes}" if e.supersedes else ""))
     click.echo(f"  pdf sha256   {e.pdf_sha256}")
     click.echo(f"  ledger head  {e.entry_hash}  (note this in the minutes)")
+    click.echo(f"  digital signature: {e.cert_subject}, certificate sha256 {e.cert_sha256}"
+               if e.cert_sha256 else "  the PDF carries no digital signature (--key adds one)")
+
+
+@cli.command()
+@click.argument("pdf", type=click.Path(path_type=Path))
+@click.option("--archive", "-a", required=True, type=click.Path(path_type=Path),
+              help="Archive folder holding PDF.")
+@click.option("--by", "signer", required=True, help="Name of the person countersigning.")
+@click.option("--role", help="Their role, e.g. secretary to the committee.")
+@click.option("--minute-ref", help="Reference of the minute that records the approval.")
+@key_options
+@debug_option
+def countersign(pdf: Path, archive: Path, signer: str, role, minute_ref, key, key_pass_env,
+                debug: bool) -> None:
+    """Add the next signer's digital signature to the archived PDF, as a new revision."""
+    from reporter.archive.countersign import countersign as run
+
+    if key is None:
+        click.echo("reporter countersign: --key is required", err=True)
+        raise _Exit(EXIT_BAD_INPUT)
+    signing_key = _open_key(key, key_pass_env, debug)
+    report = _run(lambda: run(pdf, archive, signing_key, signer=signer, role=role,
+                              minute_ref=minute_ref), debug)
+    e = report.entry
+    click.echo(f"countersigned {report.pdf}")
+    click.echo(f"  ledger entry {e.seq}, revision {e.revision}, supersedes entry "
+               f"{e.supersedes}")
+    click.echo(f"  digital signature: {e.cert_subject}, certificate sha256 {e.cert_sha256}")
+    click.echo(f"  ledger head  {e.entry_hash}  (note this in the minutes)")
+
+
+def _open_key(key: Path | None, pass_env: str | None, debug: bool):
+    """The checked signing key of --key (None without it)."""
+    if key is None:
+        if pass_env is not None:
+            click.echo("reporter: --key-pass-env needs --key", err=True)
+            raise _Exit(EXIT_BAD_INPUT)
+        return None
+    from reporter.archive.keys import open_key
+
+    return _run(lambda: open_key(key, pass_env), debug)
 
 
 @cli.command()
@@ -108,9 +179,11 @@ def sign_off_cmd(build_dir: Path, archive: Path, signer: str, role, minute_ref, 
                    "chain (repeatable).")
 @click.option("--head-file", type=click.Path(path_type=Path),
               help="A file of minuted heads, one a line ('#' comments, blank lines allowed).")
+@click.option("--trust", type=click.Path(path_type=Path),
+              help="PEM file of trusted root certificates: check each signature's chain.")
 @debug_option
 def verify(file: Path | None, archive: Path, heads: tuple[str, ...], head_file: Path | None,
-           debug: bool) -> None:
+           trust: Path | None, debug: bool) -> None:
     """Check the whole archive, or (with FILE) whether FILE is a signed pack in it.
 
     With --head or --head-file, also check that each minuted head is an entry of the
@@ -131,6 +204,7 @@ def verify(file: Path | None, archive: Path, heads: tuple[str, ...], head_file: 
             click.echo(f"reporter: {file}: no such file", err=True)
             raise _Exit(EXIT_BAD_INPUT)
         matches = _run(lambda: find_file(file, archive), debug)
+        signed_ok = _print_signatures(file, trust, matches, debug)
         if not matches:
             click.echo(f"{file}: NOT in the archive (its sha256 matches no ledger entry)")
             raise _Exit(EXIT_FAILED)
@@ -140,6 +214,8 @@ def verify(file: Path | None, archive: Path, heads: tuple[str, ...], head_file: 
                        f"ending {e.period_end}, signed off by {e.signer} on {e.signed_utc}"
                        + (f"; superseded by entry {m.superseded_by.seq}"
                           if m.superseded_by else ""))
+        if not signed_ok:
+            raise _Exit(EXIT_FAILED)
         return
     minuted = _run(lambda: [parse_head(h, "--head") for h in heads]
                    + (read_heads_file(head_file) if head_file is not None else []), debug)

@@ -46,12 +46,12 @@ def signed_pdf(signed_archive) -> pypdf.PdfReader:
 
 # --- the signed document --------------------------------------------------------------
 
-def test_signed_pdf_declares_pdfa_3b(signed_pdf):
-    # ISO 19005-3 identification schema: pdfaid:part = 3, pdfaid:conformance = B
+def test_signed_pdf_declares_pdfa_3a(signed_pdf):
+    # ISO 19005-3 identification schema: pdfaid:part = 3, pdfaid:conformance = A (tagged)
     xmp = signed_pdf.xmp_metadata.rdf_root.toxml()
     ns = "http://www.aiim.org/pdfa/ns/id/"
     assert f'xmlns:pdfaid="{ns}"' in xmp
-    assert 'pdfaid:part="3"' in xmp and 'pdfaid:conformance="B"' in xmp
+    assert 'pdfaid:part="3"' in xmp and 'pdfaid:conformance="A"' in xmp
     # PDF/A needs an output intent (the colour space the document is printed in)
     assert "/OutputIntents" in signed_pdf.trailer["/Root"]
 

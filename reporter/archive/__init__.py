@@ -3,7 +3,7 @@
 Layout of an archive folder::
 
     ledger.sqlite                         the entries (see ledger.py)
-    <period_end>/<name>.pdf               the signed PDF/A-3b, read-only
+    <period_end>/<name>.pdf               the signed, tagged PDF/A-3a, read-only
     <period_end>/<name>/pack.html         the build's HTML, read-only
     <period_end>/<name>/results/...       the build's results files, read-only
     quarantine/<stamp>/...                files 'repair' found with no entry (kept)

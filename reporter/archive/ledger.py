@@ -4,6 +4,15 @@ Each entry's ``entry_hash`` is the sha256 of its other columns written as canoni
 (sorted keys, no spaces, UTF-8), and that includes ``prev_hash``, the previous entry's hash.
 Editing any column of any entry, deleting or reordering entries, changes a hash that a later
 entry (or the recomputation) no longer matches, so :mod:`reporter.archive.verify` finds it.
+Digital signatures (:mod:`reporter.archive.signature`) add three columns,
+:data:`SIGNATURE_COLUMNS`: the signer certificate's subject, its sha256 and the signing time
+in the PDF's signature. A ledger lacks the columns until its first digitally signed entry (so a
+ledger with no such entry is exactly as before); it is read as if they were NULL and is
+given them (``ALTER TABLE ... ADD COLUMN``, inside the sign-off's own
+transaction) when a digitally signed entry is appended. A NULL signature column is left out
+of the entry hash, so every entry written before the columns existed keeps its hash; a set
+one is hashed, so blanking it later breaks the entry's hash like any other edit.
+
 The chain cannot protect its own last entry against someone who rewrites it and every hash
 after it: the head hash that sign-off prints is meant to be written into the minutes, where
 it anchors the chain outside the archive.
@@ -79,6 +88,9 @@ class Entry:
     reason: str | None
     prev_hash: str
     entry_hash: str
+    cert_subject: str | None = None       # the digital signature's certificate, if any
+    cert_sha256: str | None = None
+    cert_signed_utc: str | None = None
 
     @property
     def file_hashes(self) -> dict[str, str]:
@@ -90,10 +102,26 @@ class Entry:
 
     def computed_hash(self) -> str:
         """The hash this entry's contents give (equal to ``entry_hash`` unless edited)."""
-        return entry_hash({k: v for k, v in asdict(self).items() if k != "entry_hash"})
+        return entry_hash(_hashed(asdict(self)))
 
 
 COLUMNS = tuple(f.name for f in fields(Entry))
+SIGNATURE_COLUMNS = ("cert_subject", "cert_sha256", "cert_signed_utc")
+
+
+def _hashed(row: dict) -> dict:
+    """The columns an entry's hash covers: all but ``entry_hash``, and the signature
+    columns only when set (so entries from before those columns keep their hashes)."""
+    return {k: v for k, v in row.items()
+            if k != "entry_hash" and not (k in SIGNATURE_COLUMNS and v is None)}
+
+
+def _select(con: sqlite3.Connection) -> str:
+    """The SELECT list of :data:`COLUMNS`, with NULL for signature columns that an older
+    ledger does not have."""
+    have = {row[1] for row in con.execute("PRAGMA table_info(entries)")}
+    return ", ".join(c if c in have or c not in SIGNATURE_COLUMNS else f"NULL AS {c}"
+                     for c in COLUMNS)
 
 
 def canonical_json(obj) -> str:
@@ -166,19 +194,19 @@ def connect_read_only(archive: Path) -> sqlite3.Connection:
 
 def read_entries(con: sqlite3.Connection) -> list[Entry]:
     """Every entry, in sequence order."""
-    rows = con.execute(f"SELECT {', '.join(COLUMNS)} FROM entries ORDER BY seq").fetchall()
+    rows = con.execute(f"SELECT {_select(con)} FROM entries ORDER BY seq").fetchall()
     return [Entry(*row) for row in rows]
 
 
 def last_entry(con: sqlite3.Connection) -> Entry | None:
-    row = con.execute(f"SELECT {', '.join(COLUMNS)} FROM entries "
+    row = con.execute(f"SELECT {_select(con)} FROM entries "
                       "ORDER BY seq DESC LIMIT 1").fetchone()
     return Entry(*row) if row else None
 
 
 def entries_for(con: sqlite3.Connection, pack_name: str, period_end: str) -> list[Entry]:
     """The entries of one pack and period, oldest revision first."""
-    rows = con.execute(f"SELECT {', '.join(COLUMNS)} FROM entries WHERE pack_name = ? "
+    rows = con.execute(f"SELECT {_select(con)} FROM entries WHERE pack_name = ? "
                        "AND period_end = ? ORDER BY revision", (pack_name, period_end)).fetchall()
     return [Entry(*row) for row in rows]
 
@@ -188,11 +216,17 @@ def append(con: sqlite3.Connection, columns: dict) -> Entry:
     last = last_entry(con)
     row = dict(columns, seq=(last.seq + 1) if last else 1,
                prev_hash=last.entry_hash if last else GENESIS)
-    missing = set(COLUMNS) - {"entry_hash"} - set(row)
+    missing = set(COLUMNS) - {"entry_hash"} - set(SIGNATURE_COLUMNS) - set(row)
     if missing:
         raise ValueError(f"ledger entry lacks {sorted(missing)}")
-    row = {k: row[k] for k in COLUMNS if k != "entry_hash"}
-    row["entry_hash"] = entry_hash(row)
-    con.execute(f"INSERT INTO entries ({', '.join(COLUMNS)}) VALUES "
-                f"({', '.join('?' * len(COLUMNS))})", [row[k] for k in COLUMNS])
+    row = {k: row.get(k) for k in COLUMNS if k != "entry_hash"}
+    row["entry_hash"] = entry_hash(_hashed(row))
+    stored = [k for k in COLUMNS if k not in SIGNATURE_COLUMNS or row[k] is not None]
+    if any(row[k] is not None for k in SIGNATURE_COLUMNS):
+        have = {r[1] for r in con.execute("PRAGMA table_info(entries)")}
+        for column in SIGNATURE_COLUMNS:       # an older ledger gains them, in this transaction
+            if column not in have:
+                con.execute(f"ALTER TABLE entries ADD COLUMN {column} TEXT")
+    con.execute(f"INSERT INTO entries ({', '.join(stored)}) VALUES "
+                f"({', '.join('?' * len(stored))})", [row[k] for k in stored])
     return Entry(**row)

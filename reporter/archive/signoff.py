@@ -1,4 +1,4 @@
-"""Sign off a reviewed build: a PDF/A-3b that carries its data, archived read-only, and a
+"""Sign off a reviewed build: a tagged PDF/A-3a that carries its data, archived read-only, and a
 ledger entry chained to the one before it.
 
 What is signed is exactly what was reviewed. Sign-off refuses an archive that fails
@@ -39,6 +39,7 @@ from reporter.archive.ledger import (
     last_entry,
 )
 from reporter.archive.review import input_path, read_build, reproduce, sha256
+from reporter.archive.signature import page_record, sign_pdf, signature_columns
 from reporter.archive.verify import load_entries, verify_archive
 from reporter.config import INPUT_ROLES, Settings, load_settings
 from reporter.errors import EXIT_FAILED, InputError, Problem, ReporterError
@@ -46,7 +47,7 @@ from reporter.progress import Progress
 from reporter.render.pdf import render_pdf
 from reporter.writer import OutputSet, place_in_archive
 
-PDF_VARIANT = "pdf/a-3b"
+PDF_VARIANT = "pdf/a-3a"          # tagged (ISO 19005-3, level A)
 MAX_TEXT = 500
 
 
@@ -66,6 +67,7 @@ class SignOffRequest:
     note: str | None = None
     supersedes: bool = False
     reason: str | None = None
+    key: object | None = None    # a keys.SigningKey: sign the PDF digitally (PAdES B-B)
 
 
 @dataclass(frozen=True)
@@ -105,6 +107,8 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
     with progress.stage("pdf"):
         pdf = _signed_pdf(a, outputs, build.manifest, settings, request, name, revision,
                           superseded, signed_utc)
+        if request.key is not None:                      # digital signature (signature.py)
+            pdf = sign_pdf(pdf, request.key, reason=f"sign-off by {request.signer}")
     files = OutputSet()                   # the re-rendered bytes (equal to the build's)
     files.add(f"{period}/{name}.pdf", pdf)
     files.add(f"{period}/{name}/pack.html", outputs["pack.html"])
@@ -137,6 +141,7 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
                 "tool_version": __version__,
                 "supersedes": superseded.seq if superseded else None,
                 "reason": request.reason,
+                **signature_columns(request.key, pdf if request.key else None),
             })
             con.execute("COMMIT")
     except BaseException:
@@ -151,8 +156,8 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
 def _signed_pdf(a, outputs: OutputSet, manifest: dict, settings: Settings,
                 request: SignOffRequest, name: str, revision: int, superseded: Entry | None,
                 signed_utc: str) -> bytes:
-    """The pack as PDF/A-3b with the sign-off page, carrying pack.toml, the inputs and the
-    (re-rendered) results files as embedded attachments."""
+    """The pack as tagged PDF/A-3a with the sign-off page, carrying pack.toml, the inputs and
+    the (re-rendered) results files as embedded attachments."""
     hashes = manifest["input_sha256"]
     order = [k for k in ("pack.toml", *INPUT_ROLES) if k in hashes]   # a fund may have no
     #                                                                   one holdings file
@@ -165,7 +170,7 @@ def _signed_pdf(a, outputs: OutputSet, manifest: dict, settings: Settings,
         "supersedes": (f"{superseded.pdf_path} (entry {superseded.seq}, signed by "
                        f"{superseded.signer} on {_readable(superseded.signed_utc)})")
                        if superseded else None,
-        "inputs": shown,
+        "inputs": shown, "digital": page_record(request.key, signed_utc),
     }
     attachments, seen = [], set()
     for key in keys:

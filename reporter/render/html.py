@@ -88,5 +88,17 @@ def render_html(ctx: PackContext, svgs: dict[str, Markup], *, for_print: bool,
     values.pop("charts")
     values.update({"part": False, "anchor_prefix": "", "part_title": None,
                    "market_word": "market proxy", "proxy_word": "proxy"} | (extra or {}))
-    return env.get_template(template).render(**values, svg=svgs, for_print=for_print,
-                                                signoff=signoff)
+    html = env.get_template(template).render(**values, svg=svgs, for_print=for_print,
+                                              signoff=signoff)
+    return chart_alt_text(html) if for_print else html
+
+
+_FIGURE_CHART = re.compile(r'(<figure\b[^>]*?\baria-label="([^"]*)"[^>]*>\s*'
+                           r'<img class="chart-image" alt=")[^"]*(")')
+
+
+def chart_alt_text(html: str) -> str:
+    """Give each print chart image the description of its figure (``aria-label``) as its
+    ``alt`` text, which a tagged PDF carries as the figure's /Alt for screen readers. The
+    label is copied as the template escaped it for an attribute."""
+    return _FIGURE_CHART.sub(lambda m: m.group(1) + m.group(2) + m.group(3), html)

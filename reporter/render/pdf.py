@@ -72,7 +72,9 @@ def render_pdf(html: str, *, base_dir: Path | None = None, allowed: Sequence[Pat
     folder); only files inside ``allowed`` (and ``data:`` URLs) may be used; any other
     request raises :class:`InputError`.
 
-    ``variant`` is a WeasyPrint PDF variant such as ``"pdf/a-3b"`` (ISO 19005-3, level B);
+    Every PDF is tagged (WeasyPrint's ``pdf_tags``: a structure tree of headings, tables,
+    figures with their ``alt`` text, in reading order) for assistive technology.
+    ``variant`` is a WeasyPrint PDF variant such as ``"pdf/a-3a"`` (ISO 19005-3, level A);
     ``attachments`` are embedded files (PDF/A-3 allows any file type as an attachment).
     """
     from reporter.render.environment import default_templates_dir
@@ -82,7 +84,7 @@ def render_pdf(html: str, *, base_dir: Path | None = None, allowed: Sequence[Pat
     base_url = base_dir.resolve().as_uri() + "/" if base_dir is not None else None
     try:
         return HTML(string=html, base_url=base_url, url_fetcher=fetcher).write_pdf(
-            pdf_variant=variant, attachments=list(attachments) or None)
+            pdf_variant=variant, pdf_tags=True, attachments=list(attachments) or None)
     except RefusedFetch as exc:
         where = ", ".join(str(r) for r in fetcher.roots)
         raise InputError([Problem(
