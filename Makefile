@@ -67,6 +67,15 @@ demo: $(STAMP)
 	$(BIN)/reporter verify $(DEMO_RUN)/archive/2026-11-30/tarnbrook-valley-2026-11-30-r2.pdf \
 	  --archive $(DEMO_RUN)/archive --trust $(DEMO_RUN)/DEMO-ONLY-roots.pem
 	$(BIN)/reporter site --archive $(DEMO_RUN)/archive --out site
+	@echo
+	@echo "Done. Open these in a browser or PDF viewer:"
+	@echo "  build/demo/pack.html        the demo pack (build/demo/pack.pdf for print)"
+	@echo "  build/demo/results/         the figures as CSV, JSON and pack.xlsx"
+	@echo "  build/demo-fund/pack.html   a fund of four mandates"
+	@echo "  site/index.html             the trustees' site of the signed demo packs"
+	@echo "Run the tool as $(BIN)/reporter, or first 'source $(BIN)/activate' and then"
+	@echo "  reporter init my-scheme     a starter pack folder to fill in"
+	@echo "  reporter check my-scheme    validate it;  reporter build my-scheme --out build/my-scheme"
 
 # Browser tests need Debian's chromium; PDF checks need poppler-utils (CI runs as root on a
 # fresh Debian machine). Playwright drives /usr/bin/chromium: its own browser download is

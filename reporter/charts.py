@@ -15,8 +15,7 @@ import numpy as np
 import pandas as pd
 
 from reporter.analytics.pack import PORTFOLIO_SERIES, PackResults
-from reporter.analytics.regression import t_critical
-from reporter.analytics.sml import ABOVE, BELOW, WITHIN
+from reporter.analytics.sml import WITHIN
 
 INK, TEAL, OCHRE, BRICK, GREY = "#1d2b36", "#2a6f6f", "#b8741a", "#9c3b2e", "#6b7780"
 FONT = "DejaVu Sans"
@@ -35,61 +34,49 @@ THEME_CONFIG = {
 }
 
 
+def time_axis(dates, max_ticks: int = 8, **kw) -> alt.Axis:
+    """A date axis whose labels never repeat: one tick every whole number of years (every
+    few months when the history is under two years), at most about ``max_ticks``."""
+    d = pd.to_datetime(pd.Series(dates)).dropna()
+    days = float((d.max() - d.min()).days) if len(d) else 0.0
+    if days >= 2 * 365.25:
+        step = max(1, int(np.ceil(days / 365.25 / max_ticks)))
+        return alt.Axis(format="%Y", tickCount={"interval": "year", "step": step},
+                        labelOverlap=True, **kw)
+    step = max(1, int(np.ceil(days / 30.44 / max_ticks)))
+    return alt.Axis(format="%b %Y", tickCount={"interval": "month", "step": step},
+                    labelOverlap=True, **kw)
+
+
+def share_axis(top: float, **kw) -> alt.Axis:
+    """A percentage axis of at most five ticks whose labels do not run together: whole
+    percentages unless the range is under 4%."""
+    return alt.Axis(format=".0%" if top >= 0.04 else ".1%", tickCount=5, labelOverlap=True,
+                    labelFlush=False, **kw)
+
+
+def share_ticks(top: float, most: int = 4) -> list[float]:
+    """Tick values 0, step, 2 step ... up to ``top`` with at most ``most`` ticks, the step
+    a round share (1%, 2%, 2.5%, 5%, 10%, 20%, 25% or 50%)."""
+    for step in (0.01, 0.02, 0.025, 0.05, 0.1, 0.2, 0.25, 0.5):
+        if top / step < most:
+            break
+    return [round(i * step, 6) for i in range(int(top / step + 1e-9) + 1)]
+
+
+def beta_band(limits) -> tuple[float | None, float | None]:
+    """``(beta_min, beta_max)`` of a :class:`reporter.limits.LimitsReport` (None when not
+    set, or without limits)."""
+    found = {c.limit: c.threshold for c in (limits.checks if limits is not None else ())
+             if c.limit in ("beta_min", "beta_max")}
+    return found.get("beta_min"), found.get("beta_max")
+
+
 def sml_chart(res: PackResults, market_label: str = "Market proxy") -> alt.LayerChart:
-    """Each holding's beta against its annualised mean excess return, with the ex post line
-    E[r - r_f] = beta x mean market premium, beta error bars (95%), the market and cash."""
-    P = res.periods_per_year
-    sec = res.securities[res.fits.fitted]
-    n_all = len(sec)
-    sec = thin_holdings(sec)
-    df = pd.DataFrame({
-        "name": sec["name"], "beta": sec["beta"],
-        # the same intervals as the holdings tables (errors and level from the settings)
-        "beta_lo": sec["beta_ci_low"], "beta_hi": sec["beta_ci_high"],
-        "excess": sec["mean_excess_return_ann"], "weight": sec["weight"],
-        "position": sec["sml_position"],
-    })
-    # the mean excess return's interval: t (n - 1 df) x sd / sqrt(n), annualised x P
-    half = t_critical(res.confidence, sec["n_obs"].to_numpy() - 1) * sec[
-        "mean_excess_return_se"].to_numpy() * P
-    df["excess_lo"], df["excess_hi"] = df["excess"] - half, df["excess"] + half
-    mrp = res.sml.mean_market_premium * P
-    hi = float(max(2.0, np.nanmax(df["beta_hi"]) if len(df) else 2.0))
-    lo = float(min(0.0, np.nanmin(df["beta_lo"]) if len(df) else 0.0))
-    line = pd.DataFrame({"beta": [lo, hi], "excess": [lo * mrp, hi * mrp]})
-    anchors = pd.DataFrame({"beta": [0.0, 1.0], "excess": [0.0, mrp],
-                            "label": ["Risk-free", market_label]})
-    x = alt.X("beta:Q", title=f"Beta (bars: {res.confidence:.0%} interval)",
-              scale=alt.Scale(domain=[lo, hi], nice=False))
-    y = alt.Y("excess:Q", title="Mean excess return, annualised", axis=alt.Axis(format="%"))
-    shape_scale = alt.Scale(domain=[ABOVE, WITHIN, BELOW],
-                            range=["triangle-up", "circle", "triangle-down"])
-    colour_scale = alt.Scale(domain=[ABOVE, WITHIN, BELOW], range=[TEAL, GREY, BRICK])
-    base = alt.Chart(df)
-    bars = base.mark_rule(color="#b9c0c5", strokeWidth=1).encode(
-        x=alt.X("beta_lo:Q"), x2=alt.X2("beta_hi:Q"), y=alt.Y("excess:Q"))
-    vbars = base.mark_rule(color="#b9c0c5", strokeWidth=1).encode(
-        x=alt.X("beta:Q"), y=alt.Y("excess_lo:Q"), y2=alt.Y2("excess_hi:Q"))
-    pts = base.mark_point(filled=True, opacity=0.9, size=60).encode(
-        x=x, y=y,
-        shape=alt.Shape("position:N", scale=shape_scale, title="Alpha vs zero"),
-        color=alt.Color("position:N", scale=colour_scale, title="Alpha vs zero"),
-        tooltip=[alt.Tooltip("name:N"), alt.Tooltip("beta:Q", format=".2f"),
-                 alt.Tooltip("excess:Q", format=".1%"), alt.Tooltip("position:N")],
-    )
-    sml = alt.Chart(line).mark_line(color=INK, strokeWidth=1.5).encode(
-        x=alt.X("beta:Q"), y=alt.Y("excess:Q"))
-    anc = alt.Chart(anchors).mark_point(shape="square", size=90, filled=True,
-                                        color=OCHRE).encode(x=alt.X("beta:Q"), y=alt.Y("excess:Q"))
-    lab = alt.Chart(anchors).mark_text(align="left", dx=8, dy=-8, color=INK,
-                                       fontSize=11).encode(x=alt.X("beta:Q"), y=alt.Y("excess:Q"),
-                                                           text=alt.Text("label:N"))
-    chart = alt.layer(bars, vbars, sml, pts, anc, lab).properties(width=WIDTH, height=HEIGHT)
-    if len(sec) < n_all:
-        chart = chart.properties(title=alt.TitleParams(
-            f"{len(sec):,} of {n_all:,} holdings drawn: every one above or below the line, "
-            "then the largest by weight", fontSize=11))
-    return chart
+    """The security market line chart (:func:`reporter.sml_chart.sml_chart`)."""
+    from reporter.sml_chart import sml_chart as draw  # it draws with this module's palette
+
+    return draw(res, market_label)
 
 
 # Altair refuses a chart with more rows than this (its default limit): beyond it a chart
@@ -111,53 +98,11 @@ def thin_holdings(sec: pd.DataFrame, max_rows: int = MAX_CHART_ROWS) -> pd.DataF
     return sec.iloc[keep]
 
 
-STATUS_MARK = {"breach": "\u2716 breach", "watch": "\u25c6 watch"}
-
-
 def sector_chart(res: PackResults, sector_limits: dict[str, dict] | None = None) -> alt.Chart:
-    """Horizontal bars of weight by sector, largest first. With ``sector_limits`` (sector ->
-    {status, threshold}) each sector's maximum is drawn as a tick and a sector on watch or in
-    breach is named so in words and a symbol beside its bar, not by colour alone."""
-    df = res.sectors.copy()
-    order = list(df["sector"])
-    if sector_limits:
-        return _sector_chart_with_limits(df, order, sector_limits)
-    return alt.Chart(df).mark_bar(color=TEAL, height=14).encode(
-        y=alt.Y("sector:N", sort=order, title=None),
-        x=alt.X("weight:Q", title="Weight", axis=alt.Axis(format="%")),
-        tooltip=[alt.Tooltip("sector:N"), alt.Tooltip("weight:Q", format=".1%"),
-                 alt.Tooltip("n_holdings:Q")],
-    ).properties(width=WIDTH - 140, height=max(120, 22 * len(df))) + alt.Chart(df).mark_text(
-        align="left", dx=4, color=INK, fontSize=10).encode(
-        y=alt.Y("sector:N", sort=order), x=alt.X("weight:Q"),
-        text=alt.Text("weight:Q", format=".1%"))
+    """Weight by sector (:func:`reporter.sector_chart.sector_chart`)."""
+    from reporter.sector_chart import sector_chart as draw  # it draws with this palette
 
-
-def _sector_chart_with_limits(df: pd.DataFrame, order: list[str],
-                              sector_limits: dict[str, dict]) -> alt.LayerChart:
-    info = df["sector"].map(lambda s: sector_limits.get(s, {}))
-    df["status"] = info.map(lambda d: d.get("status", "no limit"))
-    df["limit"] = info.map(lambda d: d.get("threshold", np.nan))
-    df["label"] = [f"{w:.1%}" + (f"  {STATUS_MARK[st]} (max {lim:.0%})" if st in STATUS_MARK
-                                 else "")
-                   for w, st, lim in zip(df["weight"], df["status"], df["limit"], strict=True)]
-    y = alt.Y("sector:N", sort=order, title=None)
-    colour = alt.Color("status:N", title="Sector limit",
-                       scale=alt.Scale(domain=["within", "watch", "breach", "no limit"],
-                                       range=[TEAL, OCHRE, BRICK, GREY]))
-    bars = alt.Chart(df).mark_bar(height=14).encode(
-        y=y, x=alt.X("weight:Q", title="Weight (tick: the sector's maximum)",
-                     axis=alt.Axis(format="%")),
-        color=colour,
-        tooltip=[alt.Tooltip("sector:N"), alt.Tooltip("weight:Q", format=".1%"),
-                 alt.Tooltip("n_holdings:Q"), alt.Tooltip("status:N")])
-    ticks = alt.Chart(df[df["limit"].notna()]).mark_tick(
-        color=INK, thickness=2, size=20).encode(y=y, x=alt.X("limit:Q"))
-    text = alt.Chart(df).mark_text(align="left", dx=4, color=INK, fontSize=10).encode(
-        y=y, x=alt.X("xpos:Q"), text=alt.Text("label:N")).transform_calculate(
-        xpos="max(datum.weight, isValid(datum.limit) ? datum.limit : 0)")
-    return alt.layer(bars, ticks, text).properties(width=WIDTH - 200,
-                                                   height=max(120, 22 * len(df)))
+    return draw(res, sector_limits)
 
 
 def diversification_chart(res: PackResults) -> alt.LayerChart:
@@ -208,6 +153,8 @@ def risk_contribution_chart(res: PackResults, top: int = 12) -> alt.HConcatChart
     h = t[t["level"] == "holding"].head(top)
     order = list(h["name"])
     panels = []
+    top = float(np.nanmax(np.r_[h["vol_share"].to_numpy(float), h["te_share"].to_numpy(float),
+                                h["weight"].to_numpy(float), 0.01])) * 1.05
     for col, title in (("vol_share", "Share of volatility"),
                        ("te_share", "Share of tracking error")):
         df = pd.DataFrame({"name": h["name"], "share": h[col], "weight": h["weight"]})
@@ -215,7 +162,8 @@ def risk_contribution_chart(res: PackResults, top: int = 12) -> alt.HConcatChart
                                       height=11).encode(
             y=alt.Y("name:N", sort=order, title=None,
                     axis=alt.Axis(labels=col == "vol_share", labelLimit=170)),
-            x=alt.X("share:Q", title=title, axis=alt.Axis(format="%", tickCount=4)),
+            x=alt.X("share:Q", title=title, scale=alt.Scale(domain=[0.0, top], nice=False),
+                    axis=share_axis(top, values=share_ticks(top))),
             tooltip=[alt.Tooltip("name:N"), alt.Tooltip("share:Q", format=".1%"),
                      alt.Tooltip("weight:Q", format=".1%")])
         ticks = alt.Chart(df).mark_tick(color=OCHRE, thickness=2, size=14).encode(
@@ -238,19 +186,42 @@ def thin_series(df: pd.DataFrame, by: str = "series",
     return df[keep]
 
 
-def rolling_portfolio_chart(res: PackResults) -> alt.LayerChart:
-    """The portfolio's trailing-window beta with its confidence band (OLS errors)."""
+def rolling_portfolio_chart(res: PackResults, band: tuple[float | None, float | None] = (
+        None, None)) -> alt.LayerChart:
+    """The portfolio's trailing-window beta with its confidence band (OLS errors), and the
+    policy band ``(beta_min, beta_max)`` as dashed ochre lines where set."""
     df = thin_series(res.rolling_rows([PORTFOLIO_SERIES])).copy()
-    x = alt.X("date:T", title=None, axis=alt.Axis(format="%Y"))
-    band = alt.Chart(df).mark_area(color=TEAL, opacity=0.18).encode(
+    x = alt.X("date:T", title=None, axis=time_axis(df["date"]))
+    policy = pd.DataFrame({"y": [v for v in band if v is not None]}, dtype=float)
+    seen = np.r_[df["beta_ci_low"].to_numpy(float), df["beta_ci_high"].to_numpy(float),
+                 df["beta"].to_numpy(float), 1.0, policy["y"].to_numpy(float) if len(
+                     policy) else []]
+    seen = seen[np.isfinite(seen)]
+    pad = max(0.05 * float(np.ptp(seen)), 0.02) if len(seen) else 0.1
+    scale = alt.Scale(zero=False, nice=False, domain=[float(seen.min()) - pad,
+                                                      float(seen.max()) + pad]) if len(
+        seen) else alt.Scale(zero=False)
+    y_axis = alt.Axis(format=".2f", tickCount=6, labelOverlap=True)
+    area = alt.Chart(df).mark_area(color=TEAL, opacity=0.18).encode(
         x=x, y=alt.Y("beta_ci_low:Q", title=f"Beta, trailing {res.rolling.window} periods",
-                     scale=alt.Scale(zero=False)), y2=alt.Y2("beta_ci_high:Q"))
+                     scale=scale, axis=y_axis), y2=alt.Y2("beta_ci_high:Q"))
     line = alt.Chart(df).mark_line(color=TEAL, strokeWidth=2).encode(
         x=x, y=alt.Y("beta:Q"), tooltip=[alt.Tooltip("date:T", format="%Y-%m-%d"),
                                   alt.Tooltip("beta:Q", format=".2f")])
     one = alt.Chart(pd.DataFrame({"y": [1.0]})).mark_rule(color=GREY, strokeDash=[4, 3]).encode(
         y=alt.Y("y:Q"))
-    return alt.layer(band, one, line).properties(width=WIDTH, height=220)
+    layers = [area, one, line]
+    if len(policy):
+        layers.append(alt.Chart(policy).mark_rule(color=OCHRE, strokeWidth=1.5,
+                                                  strokeDash=[6, 3]).encode(y=alt.Y("y:Q")))
+    chart = alt.layer(*layers).properties(width=WIDTH, height=220)
+    if len(policy):     # named above the chart, not on the data
+        lo, hi = band
+        words = (f"{lo:.2f} to {hi:.2f}" if lo is not None and hi is not None
+                 else f"at most {hi:.2f}" if hi is not None else f"at least {lo:.2f}")
+        chart = chart.properties(title=alt.TitleParams(
+            f"Dashed ochre: the policy band for beta, {words}", fontSize=10))
+    return chart
 
 
 def rolling_holdings_chart(res: PackResults, top: int = 10) -> alt.Chart:
@@ -262,7 +233,7 @@ def rolling_holdings_chart(res: PackResults, top: int = 10) -> alt.Chart:
     df["holding"] = df["series"].map(names)
     order = [names[i] for i in ids]
     return alt.Chart(df).mark_line(color=INK, strokeWidth=1.2).encode(
-        x=alt.X("date:T", title=None, axis=alt.Axis(format="%Y", tickCount=4)),
+        x=alt.X("date:T", title=None, axis=time_axis(df["date"], max_ticks=3)),
         y=alt.Y("beta:Q", title="Beta", scale=alt.Scale(zero=False)),
         tooltip=[alt.Tooltip("holding:N"), alt.Tooltip("date:T", format="%Y-%m-%d"),
                  alt.Tooltip("beta:Q", format=".2f")],
@@ -285,7 +256,7 @@ def growth_chart(res: PackResults, market_label: str = "Market proxy") -> alt.La
     domain = ["Portfolio", market_label] + (["Benchmark"] if "benchmark" in g else [])
     lo, hi = float(min(df["value"].min(), 1.0)), float(max(df["value"].max(), 1.0))
     line = alt.Chart(df).mark_line(strokeWidth=2).encode(
-        x=alt.X("date:T", title=None, axis=alt.Axis(format="%Y")),
+        x=alt.X("date:T", title=None, axis=time_axis(df["date"])),
         y=alt.Y("value:Q", title="Value of 1 invested (log scale)",
                 scale=alt.Scale(type="log", domain=[lo * 0.95, hi * 1.05], nice=False)),
         color=alt.Color("series:N", scale=alt.Scale(domain=domain,
@@ -309,7 +280,7 @@ def build_charts(res: PackResults, limits=None,
     from reporter.stress_charts import stress_charts  # it draws with this module's palette
 
     return stress_charts(res.stress, market_label) | {
-        "rolling_portfolio": rolling_portfolio_chart(res),
+        "rolling_portfolio": rolling_portfolio_chart(res, beta_band(limits)),
         "rolling_holdings": rolling_holdings_chart(res),
         "sml": sml_chart(res, market_label),
         "sectors": sector_chart(res, limits.sector_status() if limits is not None else None),

@@ -292,6 +292,20 @@ def build_all_cmd(schemes_dir: Path, out: Path, workers, scheduler, strict: bool
 
 
 @cli.command()
+@click.argument("folder", type=click.Path(path_type=Path))
+@debug_option
+def init(folder: Path, debug: bool) -> None:
+    """Start a pack in FOLDER (new or empty): a commented pack.toml and empty CSV files
+    with the right headers."""
+    from reporter.starter import init_pack
+
+    names = _run(lambda: init_pack(folder), debug)
+    click.echo(f"wrote {folder}: " + ", ".join(names))
+    click.echo(f"next: fill in the CSV files and [pack] in pack.toml, then "
+               f"'reporter check {folder}'")
+
+
+@cli.command()
 @click.option("--archive", "-a", required=True, type=click.Path(path_type=Path),
               help="Archive folder to publish (it must pass 'reporter verify').")
 @click.option("--out", "-o", required=True, type=click.Path(path_type=Path),

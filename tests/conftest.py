@@ -94,9 +94,13 @@ def _pack_for_period(tmp: Path, period: str, limits: str | None = None) -> Path:
     assert "period_end = 2026-11-30" in text
     text = text.replace("period_end = 2026-11-30", f"period_end = {period}")
     if limits is not None:
-        assert text.count("[limits]") == 1 and text.rstrip().endswith(
-            "max_idiosyncratic_share = 0.10")          # the demo's table is the last one
-        text = text[:text.index("[limits]")] + limits
+        assert text.count("[limits]") == 1
+        start = text.index("[limits]")
+        # the demo's table runs to the next table header (or the end)
+        end = text.find("\n[", start + 1)
+        end = len(text) if end < 0 else end + 1
+        assert "max_idiosyncratic_share = 0.10" in text[start:end]
+        text = text[:start] + limits + "\n" + text[end:]
     toml.write_text(text, encoding="utf-8")
     return dest
 

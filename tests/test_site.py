@@ -81,7 +81,8 @@ def test_index_lists_every_sign_off_newest_period_first(site_dir, site_archive):
             assert re.search(r'<svg class="icon" aria-hidden="true"[^>]*>.*?</svg> Superseded',
                              block)
         else:
-            assert "Superseded" not in block and "</svg> Current" in block
+            assert "</svg> Superseded" not in block
+            assert "</svg> Latest revision for this period" in block
 
 
 def test_copies_are_the_archived_bytes_and_the_sha256_shown_is_theirs(site_dir, site_archive):
@@ -187,39 +188,137 @@ def test_trends_take_the_latest_sign_off_per_period(site_dir, site_archive):
         assert (f"packs/{stem(e)}/index.html" in beta_page) == (e["seq"] not in superseded)
 
 
-def test_limit_status_trend_reads_limits_json_and_tolerates_its_absence(site_dir, site_archive):
-    import json
+def _current_results(site_archive: Path, name: str) -> dict[str, object]:
+    """``results/<name>`` (JSON) of each period's latest sign-off, read from the archive."""
+    entries = ledger_entries(site_archive)
+    superseded = {e["supersedes"] for e in entries if e["supersedes"]}
+    current = {e["period_end"]: e for e in entries if e["seq"] not in superseded}
+    return {p: json.loads((site_archive / Path(e["pdf_path"]).parent / stem(e) / "results"
+                           / name).read_text(encoding="utf-8")) for p, e in current.items()}
 
+
+# the pack's formats for a limit's figure (templates/pack.html.j2, limit_value), written
+# out again here: beta to 2 decimals, effective number to 1, a count whole, the rest in %
+def _pack_format(limit: str, v: float) -> str:
+    if limit in ("beta_min", "beta_max"):
+        text = f"{v:.2f}"
+    elif limit == "min_effective_n":
+        text = f"{v:.1f}"
+    elif limit == "min_holdings":
+        text = f"{round(v)}"
+    else:
+        text = f"{v * 100:.1f}%"
+    return text.replace("-", "\u2212")
+
+
+class Rows(HTMLParser):
+    """The rows of the first table with ``class_``: each row's period and its cells' text."""
+
+    def __init__(self, class_: str) -> None:
+        super().__init__()
+        self.class_, self.depth, self.rows, self.cell = class_, 0, [], None
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        if tag == "table" and self.class_ in (a.get("class") or "").split():
+            self.depth = 1
+        elif self.depth and tag == "tr" and "data-period" in a:
+            self.rows.append({"period": a["data-period"], "cells": []})
+        elif self.depth and self.rows and tag in ("td", "th") and a.get("scope") != "rowgroup":
+            self.cell = []
+
+    def handle_endtag(self, tag):
+        if tag == "table":
+            self.depth = 0
+        elif self.cell is not None and tag in ("td", "th"):
+            self.rows[-1]["cells"].append(" ".join("".join(self.cell).split()))
+            self.cell = None
+
+    def handle_data(self, data):
+        if self.cell is not None:
+            self.cell.append(data)
+
+
+def test_limit_trend_has_every_limit_of_each_limits_json_in_the_packs_words(site_dir,
+                                                                           site_archive):
     page = site_dir / "trends" / "limits.html"
-    rows = _values(_specs(page)["chart-trend"])
-    got = sorted((r["period_end"], r["limit"], r["status"]) for r in rows)
-    # expected, read here from the archive: the limits.json each period's build wrote
-    # (2026-09-30 and 2026-10-31 with the fewer limits of SITE_LIMITS; 2026-11-30's current
-    # revision 2 with the demo's)
-    current = {p: f"{p}/tarnbrook-valley-{p}" for p in SITE_PERIODS}
-    current["2026-11-30"] += "-r2"
-    periods = {p: json.loads((site_archive / f"{folder}/results/limits.json").read_text(
-        encoding="utf-8"))["limits"] for p, folder in current.items()}
+    periods = {p: v["limits"] for p, v in _current_results(site_archive,
+                                                           "limits.json").items()}
+    # 2026-09-30 and 2026-10-31 with the fewer limits of SITE_LIMITS; 2026-11-30 with the
+    # demo's nine, among them two sector maxima (Energy, and the sectors not named)
     assert {p: len(v) for p, v in periods.items()} == {
         p: SITE_LIMITS[p].count(" = ") for p in SITE_LIMITS} | {"2026-11-30": 9}
+    sectors = [i for i in periods["2026-11-30"] if i["limit"] == "max_sector_weight"]
+    assert sorted(i["scope"] for i in sectors) == ["*", "Energy"]
     # the tighter holding limit of 2026-10-31 is breached (checked against holdings.csv's
     # largest weight, 0.076349 in the demo data, above 0.07)
     by_limit = {i["limit"]: i for i in periods["2026-10-31"]}
     assert by_limit["max_holding_weight"]["status"] == "breach"
-    want = sorted((p, item["limit"], item["status"]) for p, items in periods.items()
-                  for item in items)
-    assert got == want
+
+    parser = Rows("limits-trend")
+    parser.feed(page.read_text(encoding="utf-8"))
+    for period, items in periods.items():
+        rows = [r["cells"] for r in parser.rows if r["period"] == period]
+        assert len(rows) == len(items), period          # one row per limit, none merged
+        want = [[i["label"], _pack_format(i["limit"], i["value"]),
+                 ("at least " if i["kind"] == "min" else "at most ")
+                 + _pack_format(i["limit"], i["threshold"]),
+                 {"within": "● within", "watch": "◆ watch", "breach": "✖ breach"}[i["status"]]]
+                for i in items]
+        assert rows == want, period
     text = page.read_text(encoding="utf-8")
-    # a limit a period did not report is said so in words
-    limits = {item["limit"] for items in periods.values() for item in items}
-    missing = sum(1 for items in periods.values() for lim in limits
-                  if lim not in {i["limit"] for i in items})
-    assert text.count("not reported") == missing
-    # the table marks breaches with the cross and the word (the watch cells are checked
-    # through the chart's data above: the table shows fewer of them, see the closing note)
-    n_breach = len({(p, i["limit"]) for p, items in periods.items() for i in items
-                    if i["status"] == "breach"})
-    assert text.count("✖</span> breach") == n_breach
+    assert "Sector weight: Energy" in text and "beta_max" not in text
+    # the chart has one point per limit and period, by the pack's label
+    chart = _values(_specs(page)["chart-trend"])
+    assert sorted((r["period_end"], r["label"], r["status"]) for r in chart) == sorted(
+        (p, i["label"], i["status"]) for p, items in periods.items() for i in items)
+    assert "not reported" not in text      # every period here has its limits.json
+
+
+def test_index_shows_headline_figures_and_limit_counts(site_dir, site_archive):
+    text = (site_dir / "index.html").read_text(encoding="utf-8")
+    articles = dict(re.findall(r'<article aria-labelledby="pack-(\d+)">(.*?)</article>', text,
+                               re.S))
+    for e in ledger_entries(site_archive):
+        folder = site_archive / Path(e["pdf_path"]).parent / stem(e) / "results"
+        pf = json.loads((folder / "portfolio.json").read_text(encoding="utf-8"))
+        limits = json.loads((folder / "limits.json").read_text(encoding="utf-8"))["limits"]
+        block = articles[str(e["seq"])]
+        assert (f"<dd>{pf['beta_regression']:.2f} <span class=\"muted\">(interval "
+                f"{pf['beta_ci_low']:.2f} to {pf['beta_ci_high']:.2f})") in block
+        assert f"<dd>{pf['tracking_error_ann'] * 100:.2f}%</dd>" in block
+        n = {s: sum(i["status"] == s for i in limits) for s in ("breach", "watch", "within")}
+        assert (f"{n['breach']} in breach, {n['watch']} on watch, {n['within']} within, "
+                f"of {len(limits)}") in block
+
+
+def test_beta_trend_draws_each_periods_policy_band_on_a_sensible_axis(site_dir,
+                                                                      site_archive):
+    limits = _current_results(site_archive, "limits.json")
+    spec = _specs(site_dir / "trends" / "beta.html")["chart-trend"]
+    rows = [r for r in _values(spec) if "beta" in r]
+    band = {p: {i["limit"]: i["threshold"] for i in v["limits"]} for p, v in limits.items()}
+    for r in rows:
+        assert r["band_max"] == band[r["period_end"]].get("beta_max")
+        assert r["band_min"] == band[r["period_end"]].get("beta_min")
+    names = {layer.get("name") for layer in spec["layer"]}
+    assert {"trend_band", "trend_band_min", "trend_band_max"} <= names
+    y = next(la for la in spec["layer"] if la.get("name") == "trend_points")["encoding"]["y"]
+    lo, hi = y["scale"]["domain"]
+    shown = [v for r in rows for v in (r["beta_lo"], r["beta_hi"], r["band_min"],
+                                       r["band_max"]) if v is not None]
+    assert lo < min(shown) and hi > max(shown) and hi - lo >= 0.3
+    assert hi - lo < 2 * (max(shown) - min(shown)) + 0.3     # padded, not stretched
+
+
+def test_pack_page_limits_use_the_packs_labels_and_formats(site_dir, site_archive):
+    e = [e for e in ledger_entries(site_archive) if e["period_end"] == "2026-11-30"][-1]
+    text = (site_dir / "packs" / stem(e) / "index.html").read_text(encoding="utf-8")
+    folder = site_archive / Path(e["pdf_path"]).parent / stem(e) / "results"
+    for i in json.loads((folder / "limits.json").read_text(encoding="utf-8"))["limits"]:
+        assert f"<td>{html.escape(i['label'])}</td>" in text
+        assert f">{_pack_format(i['limit'], i['value'])}</td>" in text
+    assert ">beta_max<" not in text
 
 
 def test_sml_chart_has_every_fitted_holding_with_its_name(site_dir, site_archive):
@@ -421,17 +520,30 @@ def test_bad_limits_file_names_item_and_key():
     from reporter.site.gather import read_limits
 
     good = read_limits(b'[{"limit": "Cash", "value": 0.02, "threshold": null, '
-                       b'"status": "within"}]', "limits.json")
-    assert good == [{"limit": "Cash", "value": 0.02, "threshold": None, "status": "within"}]
+                       b'"status": "within"}, {"limit": "max_sector_weight", "scope": "Energy",'
+                       b' "value": 0.11, "threshold": 0.12, "status": "watch"}]', "limits.json")
+    assert good == [
+        {"limit": "Cash", "scope": None, "kind": None, "value": 0.02, "threshold": None,
+         "status": "within", "key": "Cash", "label": "Cash"},
+        {"limit": "max_sector_weight", "scope": "Energy", "kind": None, "value": 0.11,
+         "threshold": 0.12, "status": "watch", "key": "max_sector_weight:Energy",
+         "label": "Sector weight: Energy"}]
     with pytest.raises(InputError) as exc:
         read_limits(b'[{"limit": "Cash", "value": "2%", "threshold": 0.05, "status": "ok"},'
-                    b' {"value": 1, "threshold": 2, "status": "breach"}, 7]', "limits.json")
+                    b' {"value": 1, "threshold": 2, "status": "breach"}, 7,'
+                    b' {"limit": "Cash", "value": 1, "threshold": 2, "status": "breach",'
+                    b' "scope": 3, "kind": "most"},'
+                    b' {"limit": "Cash", "value": 1, "threshold": 2, "status": "breach"}]',
+                    "limits.json")
     lines = [str(p) for p in exc.value.problems]
     assert lines == [
         "limits.json:1:value: must be a number or null",
         "limits.json:1:status: 'ok' is not one of within, watch, breach",
         "limits.json:2:limit: key missing",
         "limits.json:3: item is not an object",
+        "limits.json:4:scope: must be a text or null",
+        "limits.json:4:kind: must be max or min",
+        "limits.json:5: limit 'Cash' is listed twice",
     ]
     with pytest.raises(InputError, match="not valid JSON"):
         read_limits(b"{", "limits.json")

@@ -78,9 +78,9 @@ def axe_source() -> str | None:
 class Visit:
     """One page load with every request and console message recorded."""
 
-    def __init__(self, browser, base: str, rel: str) -> None:
+    def __init__(self, browser, base: str, rel: str, width: int = 1280) -> None:
         # a time zone west of UTC: a calendar date shown as local time would slip a day
-        self.context = browser.new_context(viewport={"width": 1280, "height": 900},
+        self.context = browser.new_context(viewport={"width": width, "height": 900},
                                            timezone_id="America/New_York")
         self.requests: list[str] = []
         self.blocked: list[str] = []
@@ -297,3 +297,54 @@ def test_holdings_table_sorts_from_the_keyboard(browser, site_dir, site_archive,
         assert not v.console
     finally:
         v.close()
+
+
+# A tablet held upright: every table shows whole at this width (none needs the sideways
+# scroll of its keyboard-reachable region), and the page itself never scrolls sideways.
+NARROW = 768
+
+
+def test_no_table_is_cut_off_at_768_px(browser, site_dir):
+    base = site_dir.resolve().as_uri()
+    axe = axe_source()
+    failures = []
+    for rel in [p for p in site_pages(site_dir) if not p.endswith("/pack.html")]:
+        v = Visit(browser, base, rel, width=NARROW)
+        try:
+            page = v.page
+            overflow = page.evaluate("document.documentElement.scrollWidth - "
+                                     "document.documentElement.clientWidth")
+            if overflow > 0:
+                failures.append(f"{rel}: the page scrolls sideways by {overflow} px")
+            tables = page.eval_on_selector_all("table", """ts => ts.map(t => {
+                const wrap = t.closest('.table-wrap');
+                const box = (wrap || t).getBoundingClientRect();
+                const style = wrap ? getComputedStyle(wrap) : null;
+                return {cls: t.className, width: t.scrollWidth,
+                        room: wrap ? wrap.clientWidth : t.clientWidth,
+                        right: box.right, view: document.documentElement.clientWidth,
+                        scrolls: !!style && ['auto', 'scroll'].includes(style.overflowX),
+                        focusable: !!wrap && wrap.getAttribute('tabindex') === '0'};
+            })""")
+            for t in tables:
+                if t["right"] > t["view"] + 0.5:
+                    failures.append(f"{rel}: table.{t['cls']} runs past the window: {t}")
+                elif t["width"] > t["room"] + 1 and not (t["scrolls"] and t["focusable"]):
+                    failures.append(f"{rel}: table.{t['cls']} is cut off: {t}")
+                elif t["width"] > t["room"] + 1:
+                    # even the holdings list fits at this width (site.css), so no sideways
+                    # scroll is needed to read any table
+                    failures.append(f"{rel}: table.{t['cls']} needs a sideways scroll: {t}")
+            page.screenshot(path=str(ARTEFACTS / f"narrow-{rel.replace('/', '_')}.png"),
+                            full_page=True)
+            if axe is not None:
+                page.add_script_tag(content=axe)
+                serious = page.evaluate(
+                    "async (tags) => (await axe.run(document, {runOnly: {type: 'tag', "
+                    "values: tags}})).violations.filter(v => ['serious', 'critical']"
+                    ".includes(v.impact)).map(v => v.id)", AXE_TAGS)
+                if serious:
+                    failures.append(f"{rel}: axe at {NARROW} px: {serious}")
+        finally:
+            v.close()
+    assert not failures, "\n".join(failures)

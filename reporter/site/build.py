@@ -46,6 +46,7 @@ from reporter.site.gather import (
     newest_first,
     read_packs,
 )
+from reporter.site.limits_view import beta_band, bound_text, limit_counts, limit_text
 from reporter.writer import OutputSet, check_target, commit
 
 # Vega-Lite version of the bundle: the one Altair writes its specifications for
@@ -134,14 +135,19 @@ def trends(packs: list[SignedPack]) -> list[Trend]:
                              for b, p in zip(base, cur, strict=True)],
                             columns=["pack", "title", "period_end", "page", *cols])
 
-    limit_rows = [dict(b, **item) for b, p in zip(base, cur, strict=True)
-                  for item in (p.limits or [])]
-    limits = pd.DataFrame(limit_rows, columns=["pack", "title", "period_end", "page", "limit",
-                                               "value", "threshold", "status"])
+    limit_rows = [dict(b, **item, value_text=limit_text(item["limit"], item["value"]),
+                       bound_text=bound_text(item["limit"], item["kind"], item["threshold"]))
+                  for b, p in zip(base, cur, strict=True) for item in (p.limits or [])]
+    limits = pd.DataFrame(limit_rows, columns=[
+        "pack", "title", "period_end", "page", "key", "label", "limit", "scope", "kind",
+        "value", "threshold", "status", "value_text", "bound_text"])
+    beta = frame({"beta": "beta_regression", "beta_lo": "beta_ci_low",
+                  "beta_hi": "beta_ci_high", "beta_weighted": "beta_weighted"})
+    bands = [beta_band(p.limits) for p in cur]
+    beta["band_min"] = pd.Series([b[0] for b in bands], index=beta.index, dtype=float)
+    beta["band_max"] = pd.Series([b[1] for b in bands], index=beta.index, dtype=float)
     return [
-        Trend("beta", "Portfolio beta", "Portfolio beta at each signed period",
-              frame({"beta": "beta_regression", "beta_lo": "beta_ci_low",
-                     "beta_hi": "beta_ci_high", "beta_weighted": "beta_weighted"}),
+        Trend("beta", "Portfolio beta", "Portfolio beta at each signed period", beta,
               "beta", ".2f", "beta_lo", "beta_hi", "Portfolio beta"),
         Trend("effective-holdings", "Effective number of holdings",
               "Effective number of holdings at each signed period",
@@ -202,7 +208,7 @@ def render_site(archive: Path, packs: list[SignedPack], head_hash: str | None) -
     """Every file of the site, in memory."""
     env = make_environment()
     env.filters["signed_at"] = signed_at
-    env.globals.update(site_charts=site_charts)
+    env.globals.update(site_charts=site_charts, limit_text=limit_text, bound_text=bound_text)
     ordered = newest_first(packs)
     orgs = sorted({p.entry.organisation for p in packs})
     trend_pages = trends(packs)
@@ -219,6 +225,7 @@ def render_site(archive: Path, packs: list[SignedPack], head_hash: str | None) -
         files.add(path, html)
 
     page("index.html", "index.html.j2", packs=ordered, pack_page=pack_page, pack_pdf=pack_pdf,
+         limit_counts=limit_counts,
          pack_html=pack_html, n_periods=len({p.entry.period_end for p in packs}))
     for p in ordered:
         page(pack_page(p), "pack.html.j2", pack=p, pack_page=pack_page, pack_pdf=pack_pdf,
@@ -237,10 +244,12 @@ def render_site(archive: Path, packs: list[SignedPack], head_hash: str | None) -
         spec = None
         if len(t.rows):
             chart = (site_charts.limits_chart(t.rows, periods) if t.value is None else
-                     site_charts.trend_chart(t.rows, t.value, t.axis, t.fmt, lo=t.lo, hi=t.hi))
+                     site_charts.trend_chart(t.rows, t.value, t.axis, t.fmt, lo=t.lo, hi=t.hi,
+                                             band=t.slug == "beta"))
             spec = site_charts.spec_json(chart)
         page(t.path, "trend.html.j2", trend=t, spec=spec,
-             records=t.rows.to_dict(orient="records"),
+             records=t.rows.astype(object).where(t.rows.notna(), None).to_dict(
+                 orient="records"),
              grid=_limit_grid(t.rows, periods) if t.value is None else None)
     page("methods.html", "methods.html.j2")
     page("checking.html", "checking.html.j2", example=ordered[0] if ordered else None,
@@ -272,8 +281,11 @@ def _counts(p: SignedPack) -> dict[str, int]:
 
 
 def _limit_grid(rows: pd.DataFrame, periods: list[str]) -> dict:
-    """Limits (rows) by every signed period (columns) for the limit-status table; a period
-    whose pack has no limit results shows as not reported."""
-    limits = sorted(rows["limit"].unique())
-    cells = {(r["limit"], r["period_end"]): r for r in rows.to_dict(orient="records")}
-    return {"periods": periods, "limits": limits, "cells": cells}
+    """The limit-status table: for every signed period, newest first, each limit its pack
+    reported (one row each, in the pack's own order), and the periods with no limit
+    results."""
+    by_period = {p: [r for r in rows.to_dict(orient="records") if r["period_end"] == p]
+                 for p in periods}
+    return {"periods": [p for p in reversed(periods) if by_period[p]],
+            "rows": by_period, "labels": sorted(rows["label"].unique()),
+            "not_reported": [p for p in periods if not by_period[p]]}

@@ -121,15 +121,43 @@ def rolling_chart(pack: SignedPack) -> alt.LayerChart:
                                                               height=260)
 
 
+def value_domain(values: np.ndarray, min_span: float) -> list[float] | None:
+    """An axis range holding every finite value, padded by a tenth of their spread and at
+    least ``min_span`` wide (so one period, or a flat series, is not stretched over a
+    range of rounding noise)."""
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    if not len(v):
+        return None
+    lo, hi = float(v.min()), float(v.max())
+    pad = max(0.1 * (hi - lo), (min_span - (hi - lo)) / 2, 0.0)
+    return [lo - pad, hi + pad]
+
+
+# the beta axis is never narrower than this (a band of a few hundredths would otherwise
+# fill the chart and make sampling noise look like a trend)
+BETA_MIN_SPAN = 0.3
+
+
 def trend_chart(rows: pd.DataFrame, value: str, title: str, fmt: str, *,
-                lo: str | None = None, hi: str | None = None) -> alt.LayerChart:
+                lo: str | None = None, hi: str | None = None,
+                band: bool = False) -> alt.LayerChart:
     """One figure over the signed period ends: a line and points per pack, with an
-    interval bar when ``lo``/``hi`` are given; the tooltip names pack, period and value."""
+    interval bar when ``lo``/``hi`` are given; the tooltip names pack, period and value.
+    With ``band`` (the beta trend), each period's policy band from its limits
+    (``band_min``/``band_max``, either may be missing) is drawn as a shaded bar and dashed
+    ticks, and the axis keeps the band, the intervals and a span of at least
+    :data:`BETA_MIN_SPAN` in view."""
     df = rows.copy()
     packs = sorted(df["pack"].unique())
     x = _period_x()
-    y = alt.Y(f"{value}:Q", title=title, scale=alt.Scale(zero=False),
-              axis=alt.Axis(format=fmt))
+    cols = [c for c in (value, lo, hi) if c] + (["band_min", "band_max"] if band else [])
+    domain = value_domain(df[cols].to_numpy(dtype=float).ravel(),
+                          BETA_MIN_SPAN if band else 0.0)
+    scale = alt.Scale(zero=False, domain=domain, nice=False) if band and domain else \
+        alt.Scale(zero=False)
+    y = alt.Y(f"{value}:Q", title=title, scale=scale,
+              axis=alt.Axis(format=fmt, tickCount=6, labelOverlap=True))
     colour = alt.Color("pack:N", title="Pack", scale=alt.Scale(
         domain=packs, range=[TEAL, INK, BRICK, OCHRE, GREY][:max(1, len(packs))]),
         legend=None if len(packs) == 1 else alt.Legend())
@@ -139,6 +167,8 @@ def trend_chart(rows: pd.DataFrame, value: str, title: str, fmt: str, *,
     tips = [alt.Tooltip("pack:N", title="Pack"), alt.Tooltip("period_end:N", title="Period"),
             alt.Tooltip(f"{value}:Q", title=title, format=fmt)]
     layers = []
+    if band:
+        layers.extend(_band_layers(df, x, scale))
     if lo and hi:
         tips += [alt.Tooltip(f"{lo}:Q", title="Interval from", format=fmt),
                  alt.Tooltip(f"{hi}:Q", title="Interval to", format=fmt)]
@@ -151,17 +181,41 @@ def trend_chart(rows: pd.DataFrame, value: str, title: str, fmt: str, *,
     return alt.layer(*layers).properties(width="container", height=HEIGHT)
 
 
+def _band_layers(df: pd.DataFrame, x: alt.X, scale: alt.Scale) -> list[alt.Chart]:
+    """The policy band of each period: shaded between beta_min and beta_max where both are
+    set, and a dashed tick at each limit that is set."""
+    both = df.dropna(subset=["band_min", "band_max"])
+    layers = []
+    if len(both):
+        layers.append(alt.Chart(both).mark_bar(color=TEAL, opacity=0.12, size=44).encode(
+            x=x, y=alt.Y("band_min:Q", scale=scale), y2="band_max:Q").properties(
+            name="trend_band"))
+    for col, title in (("band_min", "Policy minimum"), ("band_max", "Policy maximum")):
+        part = df.dropna(subset=[col])
+        if len(part):
+            layers.append(alt.Chart(part).mark_tick(
+                color=GREY, thickness=2, size=44, strokeDash=[4, 3]).encode(
+                x=x, y=alt.Y(f"{col}:Q", scale=scale),
+                tooltip=[alt.Tooltip("period_end:N", title="Period"),
+                         alt.Tooltip(f"{col}:Q", title=title, format=".2f")]).properties(
+                name=f"trend_{col}"))
+    return layers
+
+
 def limits_chart(rows: pd.DataFrame, periods: list[str]) -> alt.Chart:
     """Each limit's status at each signed period end (every one in ``periods`` has a place,
-    reported or not): marker shape and colour by status."""
-    tips = [alt.Tooltip("limit:N", title="Limit"), alt.Tooltip("period_end:N", title="Period"),
+    reported or not): one row per limit label (each sector's maximum its own), marker shape
+    and colour by status; the tooltip gives value and limit in the pack's formats."""
+    tips = [alt.Tooltip("label:N", title="Limit"), alt.Tooltip("period_end:N", title="Period"),
             alt.Tooltip("status:N", title="Status"),
-            alt.Tooltip("value:Q", title="Value", format=".4~g"),
-            alt.Tooltip("threshold:Q", title="Threshold", format=".4~g")]
-    n_limits = max(1, rows["limit"].nunique())
+            alt.Tooltip("value_text:N", title="Value"),
+            alt.Tooltip("bound_text:N", title="Allowed")]
+    rows = rows[["label", "period_end", "status", "value_text", "bound_text"]]
+    n_limits = max(1, rows["label"].nunique())
     return alt.Chart(rows).mark_point(filled=True, size=220, opacity=1).encode(
         x=_period_x(periods),
-        y=alt.Y("limit:N", title=None, sort=sorted(rows["limit"].unique())),
+        y=alt.Y("label:N", title=None, sort=sorted(rows["label"].unique()),
+                axis=alt.Axis(labelLimit=260)),
         shape=alt.Shape("status:N", title="Status", scale=alt.Scale(
             domain=list(LIMIT_STATUSES), range=[LIMIT_SHAPES[s] for s in LIMIT_STATUSES])),
         color=alt.Color("status:N", title="Status", scale=alt.Scale(

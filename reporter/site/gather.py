@@ -20,6 +20,7 @@ from reporter.archive.ledger import Entry
 from reporter.config import TOTAL_FUND
 from reporter.csvsafe import unescape_frame
 from reporter.errors import InputError, Problem
+from reporter.site.limits_view import limit_key, limit_label
 
 LIMIT_STATUSES = ("within", "watch", "breach")
 
@@ -42,7 +43,8 @@ class SignedPack:
 
     ``securities`` has the :data:`SECURITY_COLUMNS` (per-period decimals unless ``_ann``);
     ``rolling`` is the portfolio's trailing-window beta (``date`` as ISO text);
-    ``limits`` is ``results/limits.json`` (a list of ``limit, value, threshold, status``)
+    ``limits`` is ``results/limits.json`` (a list of ``limit, scope, kind, value,
+    threshold, status, key, label``)
     or ``None`` when the pack has no limit results.
     """
 
@@ -124,8 +126,10 @@ def _number(v) -> bool:
 
 def read_limits(data: bytes, where: str) -> list[dict]:
     """Parse ``results/limits.json`` (its ``limits`` list, or a bare list): objects with
-    ``limit`` (text),
-    ``value`` and ``threshold`` (numbers or null) and ``status`` (within, watch or breach).
+    ``limit`` (text), ``value`` and ``threshold`` (numbers or null) and ``status`` (within,
+    watch or breach), and optionally ``scope`` (a sector, ``*`` or null), ``label`` and
+    ``kind`` (``max`` or ``min``). Each item comes back with its ``key`` (limit and scope)
+    and the pack's ``label`` (:mod:`reporter.site.limits_view`).
     Raises :class:`InputError` naming the item and key of every problem."""
     problems: list[Problem] = []
     try:
@@ -137,6 +141,7 @@ def read_limits(data: bytes, where: str) -> list[dict]:
     if not isinstance(items, list):
         raise InputError([Problem(where, "must hold a JSON list of limit objects")])
     out = []
+    seen: set[str | None] = set()
     for i, item in enumerate(items, start=1):
         if not isinstance(item, dict):
             problems.append(Problem(f"{where}:{i}", "item is not an object"))
@@ -152,7 +157,21 @@ def read_limits(data: bytes, where: str) -> list[dict]:
         if "status" in item and item["status"] not in LIMIT_STATUSES:
             problems.append(Problem(f"{where}:{i}:status", f"{item['status']!r} is not one of "
                                     + ", ".join(LIMIT_STATUSES)))
-        out.append({k: item.get(k) for k in ("limit", "value", "threshold", "status")})
+        for key in ("scope", "label"):
+            if item.get(key) is not None and not isinstance(item[key], str):
+                problems.append(Problem(f"{where}:{i}:{key}", "must be a text or null"))
+        if item.get("kind") not in (None, "max", "min"):
+            problems.append(Problem(f"{where}:{i}:kind", "must be max or min"))
+        row = {k: item.get(k) for k in ("limit", "scope", "kind", "value", "threshold",
+                                         "status")}
+        if isinstance(row["limit"], str) and (row["scope"] is None
+                                              or isinstance(row["scope"], str)):
+            row["key"] = limit_key(row["limit"], row["scope"])
+            row["label"] = limit_label(row["limit"], row["scope"], item.get("label"))
+        out.append(row)
+        if "key" in row and row["key"] in seen:
+            problems.append(Problem(f"{where}:{i}", f"limit {row['key']!r} is listed twice"))
+        seen.add(row.get("key"))
     if problems:
         raise InputError(problems)
     return out
