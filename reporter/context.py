@@ -13,6 +13,7 @@ import altair as alt
 import numpy as np
 
 from reporter import __version__
+from reporter.actions import ActionLog
 from reporter.analytics.changes import PackChanges
 from reporter.analytics.pack import PackResults
 from reporter.analytics.sml import ABOVE, BELOW
@@ -117,6 +118,7 @@ class PackContext:
     risk_sectors: list[dict] = field(default_factory=list)    # contributions by sector
     covariance_auto: bool = True     # the method was chosen by the "auto" rule
     has_benchmark: bool = False      # an optional benchmark series was given
+    actions: ActionLog = field(default_factory=ActionLog)    # actions.csv, overdue first
 
 
 def _records(df) -> list[dict]:
@@ -128,7 +130,8 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
                   charts: dict[str, alt.TopLevelMixin], fingerprint: str,
                   build_time: dt.datetime, *, limits: LimitsReport | None = None,
                   changes: PackChanges | None = None, compare_note: str | None = None,
-                  commentary: dict | None = None) -> PackContext:
+                  commentary: dict | None = None,
+                  actions: ActionLog | None = None) -> PackContext:
     """Assemble the context for the pack templates. The "Since last pack" section is
     listed only when there is a comparison (or a note saying why there is none)."""
     shown = tuple(s for s in SECTIONS
@@ -185,4 +188,5 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         risk_sectors=_records(res.risk_table[res.risk_table["level"] == "sector"]),
         covariance_auto=settings.covariance == "auto",
         has_benchmark="benchmark" in settings.inputs,
+        actions=actions or ActionLog(),
     )
