@@ -153,8 +153,11 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
     signed_utc = dt.datetime.now(dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
     with progress.stage("pdf"):
         pdf = _signed_pdf(a, build, settings, request, name, revision, superseded, signed_utc)
+        trustees_pdf = _signed_pdf(a, build, settings, request, name, revision, superseded,
+                                   signed_utc, edition="trustees")
     files = OutputSet()
     files.add(f"{period}/{name}.pdf", pdf)
+    files.add(f"{period}/{name}-trustees.pdf", trustees_pdf)    # in the ledger's files
     files.add(f"{period}/{name}/pack.html", build.files["pack.html"])
     for rel in sorted(build.files):
         if rel.startswith("results/"):
@@ -196,9 +199,10 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
 
 
 def _signed_pdf(a, build: ReviewedBuild, settings: Settings, request: SignOffRequest,
-                name: str, revision: int, superseded: Entry | None, signed_utc: str) -> bytes:
+                name: str, revision: int, superseded: Entry | None, signed_utc: str,
+                edition: str = "full") -> bytes:
     """The pack as PDF/A-3b with the sign-off page, carrying pack.toml, the inputs and the
-    results files as embedded attachments."""
+    results files as embedded attachments; ``edition`` "trustees" for the trustees' edition."""
     hashes = build.manifest["input_sha256"]
     order = [k for k in ("pack.toml", *INPUT_ROLES) if k in hashes]   # a fund may have no
     #                                                                   one holdings file
@@ -227,7 +231,8 @@ def _signed_pdf(a, build: ReviewedBuild, settings: Settings, request: SignOffReq
         if rel.startswith("results/"):
             attachments.append(Attachment(string=build.files[rel], name=rel,
                                           description="results file", relationship="Data"))
-    return render_pdf(a.html(for_print=True, signoff=record), base_dir=settings.pack_dir,
+    return render_pdf(a.html(for_print=True, signoff=record, edition=edition),
+                      base_dir=settings.pack_dir,
                       allowed=(settings.pack_dir,), variant=PDF_VARIANT,
                       attachments=attachments)
 
