@@ -497,7 +497,8 @@ def test_demo_fund_pdf(demo_fund_build):
     for title in ("Fund overview", "Risk and overlap between mandates", TOTAL_FUND, *names):
         assert title in level2, title
     chapters = ["Summary", "Returns and ratios", "Market risk", "Beta estimates",
-                "Security market line", "Diversification", "Holdings appendix"]
+                "Security market line", "Diversification", "Holdings appendix",
+                "Statistical tests"]
     for name in (TOTAL_FUND, *names):
         k = next(i for i, (d, t, _) in enumerate(outline) if d == 1 and t == name)
         below = []
