@@ -18,6 +18,7 @@ import pyarrow as pa
 import pyarrow.csv as pacsv
 
 from reporter import __version__
+from reporter.actions import ActionLog, read_actions
 from reporter.analytics.changes import PackChanges, compare_packs
 from reporter.analytics.pack import ROLLING_COLUMNS, PackResults, analyse
 from reporter.analytics.style import StyleResults, analyse_style
@@ -111,6 +112,20 @@ def write_rolling_csv(res: PackResults, sink, block: int = 50) -> None:
     writer.close()
 
 
+# the PDF editions of a build: edition -> (template, file name)
+EDITIONS = {"full": "pack.html.j2", "trustees": "trustees.html.j2"}
+EDITION_FILES = {"full": "pack.pdf", "trustees": "pack-trustees.pdf"}
+
+
+def actions_stage(settings: Settings, hashes: dict[str, str]) -> ActionLog:
+    """The pack's action log (``actions.csv``, optional); its sha256 joins ``hashes`` so
+    that the input fingerprint, and sign-off's check of the inputs, notice an edit."""
+    log = read_actions(settings.pack_dir, settings.period_end)
+    if log.sha256 is not None:
+        hashes["actions.csv"] = log.sha256
+    return log
+
+
 @dataclass(frozen=True)
 class Assembled:
     """Everything computed for one pack, before any rendering to PDF or writing."""
@@ -128,10 +143,14 @@ class Assembled:
     commentary: CommentarySet = field(default_factory=CommentarySet)
     style: StyleResults | None = None    # factor model and attribution, when given
 
-    def html(self, for_print: bool = False, signoff: dict | None = None) -> str:
+    def html(self, for_print: bool = False, signoff: dict | None = None,
+             edition: str = "full") -> str:
+        """The pack's HTML; ``edition`` "trustees" gives the trustees' edition (the same
+        context through ``trustees.html.j2``)."""
         charts = (self.print_svgs or self.svgs) if for_print else self.svgs
         return render_html(self.context, charts, for_print=for_print,
-                           user_templates=self.settings.templates_dir, signoff=signoff)
+                           user_templates=self.settings.templates_dir, signoff=signoff,
+                           template=EDITIONS[edition], extra={"edition": edition})
 
 
 def read_stage(settings: Settings, strict: bool = False) -> tuple:
@@ -180,6 +199,7 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
         res, style = analyse_style(res, inputs.holdings.frame, settings, style_in)
         hashes = input_hashes(settings)
         hashes.update(commentary.hashes)        # the commentary files and their images
+        actions = actions_stage(settings, hashes)
         limits = evaluate_limits(settings.limits, res) if settings.limits else None
         changes = None
         if previous is not None:
@@ -191,7 +211,7 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
         ctx = build_context(settings, inputs, res, charts, fingerprint(hashes),
                             at or build_time(), limits=limits, changes=changes,
                             compare_note=compare_note, commentary=commentary.by_section,
-                            style=style)
+                            style=style, actions=actions)
         svgs = export_charts(ctx)
         for_pdf = print_charts(ctx, svgs)
     return Assembled(settings, inputs, res, ctx, svgs, hashes, print_svgs=for_pdf, limits=limits,
@@ -236,17 +256,20 @@ def results_files(a: Assembled, files: OutputSet) -> None:
     files.add("results/pack.xlsx", pack_workbook(a))   # the same tables, for a spreadsheet
 
 
-def pack_files(a: Assembled, html: str, pdf: bytes, files: OutputSet | None = None
-               ) -> OutputSet:
-    """Every file of a build: the pack's HTML and PDF, the results files and the manifest
-    (with the sha256 of every other output). ``files``: an output set that holds the results
-    files already (see :func:`finish_build`); by default a new one, in memory, gets them."""
+def pack_files(a: Assembled, html: str, pdf: bytes | dict[str, bytes],
+               files: OutputSet | None = None) -> OutputSet:
+    """Every file of a build: the pack's HTML and PDFs, the results files and the manifest
+    (with the sha256 of every other output). ``pdf``: the PDF of each edition by edition
+    (see :data:`EDITIONS`), or the full pack's bytes alone. ``files``: an output set that holds
+    the results files already (see :func:`finish_build`); by default a new one, in memory,
+    gets them."""
     settings, ctx = a.settings, a.context
     if files is None:
         files = OutputSet()
         results_files(a, files)
     files.add("pack.html", html)
-    files.add("pack.pdf", pdf)
+    for edition, data in ({"full": pdf} if isinstance(pdf, bytes) else pdf).items():
+        files.add(EDITION_FILES[edition], data)
     files.add("results/manifest.json", json_text({
         "tool_version": __version__,
         "pack_name": settings.name,
@@ -260,7 +283,8 @@ def pack_files(a: Assembled, html: str, pdf: bytes, files: OutputSet | None = No
         "input_fingerprint": ctx.fingerprint,
         "input_sha256": a.hashes,
         "input_files": {r: s.display for r, s in settings.inputs.items()}
-        | {rel: rel for rel in a.commentary.hashes},     # commentary files and images
+        | {rel: rel for rel in a.commentary.hashes}      # commentary files and images
+        | ({"actions.csv": "actions.csv"} if "actions.csv" in a.hashes else {}),
         "warnings": [str(w) for w in a.inputs.warnings],
     }))
     return files
@@ -293,15 +317,16 @@ def finish_build(a: Assembled, out: Path, progress: Progress) -> OutputSet:
     settings = a.settings
     with progress.stage("html"):
         html = a.html(for_print=False)
-        print_html = a.html(for_print=True)
+        print_html = {e: a.html(for_print=True, edition=e) for e in EDITIONS}
         release_free_memory()       # the analysis' and charts' temporaries, before the PDF
     files = OutputSet(open_staging(out))
     pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="results")
     try:
         results = pool.submit(results_files, a, files)
         with progress.stage("pdf"):
-            pdf = render_pdf(print_html, base_dir=settings.pack_dir,
-                             allowed=(settings.pack_dir,))
+            pdf = {e: render_pdf(text, base_dir=settings.pack_dir,
+                                 allowed=(settings.pack_dir,))
+                   for e, text in print_html.items()}
         with progress.stage("write"):
             results.result()            # the results files, written meanwhile
             pack_files(a, html, pdf, files)

@@ -40,6 +40,7 @@ from reporter.errors import InputError, Problem
 FOLDER = "commentary"
 # section anchor -> file name; the cautions are the tool's own and take no commentary
 COMMENTARY_FILES = {s.anchor: f"{s.anchor}.md" for s in SECTIONS if s.anchor != "cautions"}
+COMMENTARY_FILES["decisions"] = "decisions.md"   # "Decisions for the committee", first page
 FRONT_MATTER_KEYS = {"author", "date", "title"}
 LINK_SCHEMES = {"https", "http", "mailto"}
 IMAGE_TYPES = {b"\x89PNG\r\n\x1a\n": "image/png", b"\xff\xd8\xff": "image/jpeg"}

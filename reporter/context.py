@@ -13,6 +13,7 @@ import altair as alt
 import numpy as np
 
 from reporter import __version__
+from reporter.actions import ActionLog
 from reporter.analytics.changes import PackChanges
 from reporter.analytics.pack import PackResults
 from reporter.analytics.sml import ABOVE, BELOW
@@ -125,6 +126,7 @@ class PackContext:
     style: dict | None = None        # reporter.style_context.factor_view (factors file given)
     attribution: dict | None = None  # reporter.style_context.attribution_view
     input_kinds: dict[str, str] = field(default_factory=dict)  # "returns" | "prices"
+    actions: ActionLog = field(default_factory=ActionLog)    # actions.csv, overdue first
 
 
 def _records(df) -> list[dict]:
@@ -136,7 +138,8 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
                   charts: dict[str, alt.TopLevelMixin], fingerprint: str,
                   build_time: dt.datetime, *, limits: LimitsReport | None = None,
                   changes: PackChanges | None = None, compare_note: str | None = None,
-                  commentary: dict | None = None, style=None) -> PackContext:
+                  commentary: dict | None = None, style=None,
+                  actions: ActionLog | None = None) -> PackContext:
     """Assemble the context for the pack templates. The "Since last pack" section is
     listed only when there is a comparison (or a note saying why there is none)."""
     views = {"style": style and factor_view(style, res),
@@ -199,4 +202,5 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         has_benchmark="benchmark" in settings.inputs,
         stress=res.stress.as_json() if res.stress is not None else {},
         style=views["style"], attribution=views["attribution"],
+        actions=actions or ActionLog(),
     )

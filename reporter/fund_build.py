@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 from markupsafe import Markup
 
+from reporter.actions import ActionLog
 from reporter.analytics.changes import PackChanges, compare_packs
 from reporter.analytics.fund import (
     MandateRisk,
@@ -97,19 +98,23 @@ class FundAssembled:
         return self.total.limits
 
 
-    def html(self, for_print: bool = False, signoff: dict | None = None) -> str:
+    def html(self, for_print: bool = False, signoff: dict | None = None,
+             edition: str = "full") -> str:
         """The fund pack as one HTML document: cover, contents, the fund's own pages, then
         the total fund and each mandate in the single-portfolio layout, methodology and
-        cautions once."""
+        cautions once. ``edition`` "trustees": the fund's pages and each part's headline
+        pages only (``fund-trustees.html.j2``, ``trustees-mandate.html.j2``)."""
         user = self.settings.templates_dir
+        trustees = edition == "trustees"
         parts = []
         for part in (self.total, *self.parts):
             body = render_html(part.context, part.print_svgs if for_print else part.svgs,
-                               for_print=for_print,
-                               user_templates=user, extra={
+                               for_print=for_print, user_templates=user,
+                               template="trustees-mandate.html.j2" if trustees
+                               else "pack.html.j2", extra={
                                    "part": True, "anchor_prefix": part.slug + "-",
                                    "part_title": part.name, "market_word": "benchmark",
-                                   "proxy_word": "benchmark"})
+                                   "proxy_word": "benchmark", "edition": edition})
             parts.append({"name": part.name, "slug": part.slug, "html": Markup(body),
                           "sections": [s for s in part.context.sections
                                        if s.anchor not in ("methodology", "cautions")],
@@ -120,11 +125,11 @@ class FundAssembled:
         values["commentary"] = dict(self.commentary.by_section)   # every note, for the fund
         values["cautions"] = (*values["cautions"], FUND_CAUTION)
         env = make_environment(user)
-        return env.get_template("fund.html.j2").render(
+        return env.get_template("fund-trustees.html.j2" if trustees else "fund.html.j2").render(
             **values, svg=self.total.print_svgs if for_print else self.total.svgs,
             for_print=for_print, signoff=signoff,
             part=False, anchor_prefix="", part_title=None, parts=parts, fund_svg=self.svgs,
-            market_word="market proxy", proxy_word="proxy",
+            market_word="market proxy", proxy_word="proxy", edition=edition,
             fund=self.fund_context())
 
     def mandate_portfolio_json(self) -> str:
@@ -222,10 +227,12 @@ def _records(df: pd.DataFrame) -> list[dict]:
 def _part(name: str, slug: str, settings: Settings, inputs, res: PackResults,
           fingerprint: str, at: dt.datetime, benchmark: str, weight: float,
           commentary: dict | None, limits: LimitsReport | None,
-          changes: PackChanges | None = None, compare_note: str | None = None) -> FundPart:
+          changes: PackChanges | None = None, compare_note: str | None = None,
+          actions: ActionLog | None = None) -> FundPart:
     charts = build_charts(res, limits, "Benchmark")
     ctx = build_context(settings, inputs, res, charts, fingerprint, at, limits=limits,
-                        commentary=commentary, changes=changes, compare_note=compare_note)
+                        commentary=commentary, changes=changes, compare_note=compare_note,
+                        actions=actions)
     svgs = export_charts(ctx)
     return FundPart(name=name, slug=slug, settings=settings, results=res, context=ctx,
                     svgs=svgs, print_svgs=print_charts(ctx, svgs), limits=limits,
@@ -236,7 +243,7 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
                   progress: Progress | None = None, at: dt.datetime | None = None,
                   ) -> FundAssembled:
     """Read, validate, analyse and chart a fund pack (no output is written)."""
-    from reporter.build import build_time, fingerprint, input_hashes, read_stage
+    from reporter.build import actions_stage, build_time, fingerprint, input_hashes, read_stage
 
     progress = progress or Progress(quiet=True)
     at = at or build_time()
@@ -250,6 +257,7 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
     with progress.stage("analyse"):
         hashes = input_hashes(settings)
         hashes.update(commentary.hashes)
+        actions = actions_stage(settings, hashes)       # the fund's action log, if any
         fp = fingerprint(hashes)
         fa = analyse_fund(fin, settings)
         total_limits = evaluate_limits(settings.limits, fa.results) if settings.limits else None
@@ -275,7 +283,8 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
         total = _part(TOTAL_FUND, TOTAL_SLUG, settings, fin.total, fa.results, fp, at,
                       fin.benchmark_label, 1.0,   # the summary note is on the fund overview
                       {k: c for k, c in commentary.by_section.items() if k != "summary"},
-                      total_limits, changes=changes, compare_note=compare_note)
+                      total_limits, changes=changes, compare_note=compare_note,
+                      actions=actions)
         parts = tuple(
             _part(m.mandate.name, m.mandate.slug, own, m.inputs, res, fp, at,
                   m.benchmark_phrase, m.weight, None, limits[k],

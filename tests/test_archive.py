@@ -94,7 +94,9 @@ def test_attachments_carry_the_exact_inputs_and_results(signed_pdf, demo_build):
     assert commentary
     for rel in commentary:
         assert att[rel] == (DEMO / rel).read_bytes(), rel
-    assert len(att) == 1 + len(INPUT_FILES) + len(results) + len(commentary)
+    # the action log is an input too
+    assert att["actions.csv"] == (DEMO / "actions.csv").read_bytes()
+    assert len(att) == 1 + len(INPUT_FILES) + len(results) + len(commentary) + 1
 
 
 def test_sign_off_page_states_who_when_and_the_input_hashes(signed_pdf, signed_archive):
@@ -148,6 +150,13 @@ def test_ledger_entries_and_hash_chain_recomputed_independently(signed_archive, 
     for e in entries:
         for rel, digest in json.loads(e["files"]).items():
             assert sha(signed_archive / rel) == digest, rel
+        # the trustees' edition is signed and archived beside the full pack, and recorded
+        trustees = e["pdf_path"].removesuffix(".pdf") + "-trustees.pdf"
+        assert trustees in json.loads(e["files"])
+        reader = pypdf.PdfReader(signed_archive / trustees)
+        assert "Trustees' edition" in reader.pages[0].extract_text()
+        assert "Sign-off record" in reader.pages[-1].extract_text()
+        assert len(reader.pages) < len(pypdf.PdfReader(signed_archive / e["pdf_path"]).pages)
     # the chain, computed here from the stored columns: sha256 of canonical JSON
     prev = "0" * 64
     for e in entries:
@@ -159,8 +168,8 @@ def test_ledger_entries_and_hash_chain_recomputed_independently(signed_archive, 
 
 
 def test_verify_intact_archive_and_files(signed_archive, demo_build, capsys):
-    # per entry: the PDF, pack.html and each results file of the build
-    per_entry = 2 + len(list((demo_build / "results").iterdir()))
+    # per entry: the PDF, the trustees' edition, pack.html and each results file of the build
+    per_entry = 3 + len(list((demo_build / "results").iterdir()))
     code, out, _ = run_cli(capsys, "verify", "--archive", signed_archive)
     assert code == 0 and f"archive intact: 2 entries, {2 * per_entry} files" in out
     assert ledger_entries(signed_archive)[-1]["entry_hash"] in out

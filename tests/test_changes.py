@@ -125,7 +125,7 @@ def test_since_last_pack_section(swapped_build):
         if "Crossings of the security market line" in text:
             break
     assert "Since last pack" in text.split("Market risk")[0]    # listed in the contents
-    for phrase in ("3 new holding(s) and 3 removed", "TVX901 Newco plc",
+    for phrase in ("3 new holdings and 3 removed", "TVX901 Newco plc",
                    "within estimation error", "Largest weight changes",
                    "Crossings of the security market line"):
         assert phrase in text, phrase

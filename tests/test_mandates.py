@@ -498,7 +498,7 @@ def test_demo_fund_pdf(demo_fund_build):
         assert title in level2, title
     chapters = ["Summary", "Returns and ratios", "Market risk", "Beta estimates",
                 "Security market line", "Diversification", "Stress and scenarios",
-                "Holdings appendix"]
+                "Holdings appendix", "Statistical tests"]
     for name in (TOTAL_FUND, *names):
         k = next(i for i, (d, t, _) in enumerate(outline) if d == 1 and t == name)
         below = []

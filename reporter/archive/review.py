@@ -9,7 +9,8 @@ too. So sign-off does not trust the build folder's bytes. It runs the build's ow
 compares every file the build wrote with what that gives. Only then is anything signed, and
 what is archived is the re-rendered bytes.
 
-One file is not re-rendered, by design (see :data:`NOT_REPRODUCED`): the draft ``pack.pdf``.
+Two files are not re-rendered, by design (see :data:`NOT_REPRODUCED`): the draft ``pack.pdf``
+and ``pack-trustees.pdf``.
 """
 
 from __future__ import annotations
@@ -36,6 +37,8 @@ MANIFEST = "results/manifest.json"
 NOT_REPRODUCED = {
     "pack.pdf": "the draft PDF is not archived; sign-off renders the signed PDF/A itself "
                 "from the re-rendered HTML",
+    "pack-trustees.pdf": "the draft trustees' edition likewise: sign-off renders its signed "
+                         "PDF/A from the same re-rendered context",
 }
 
 

@@ -107,10 +107,15 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
     with progress.stage("pdf"):
         pdf = _signed_pdf(a, outputs, build.manifest, settings, request, name, revision,
                           superseded, signed_utc)
+        trustees_pdf = _signed_pdf(a, outputs, build.manifest, settings, request, name,
+                                   revision, superseded, signed_utc, edition="trustees")
         if request.key is not None:                      # digital signature (signature.py)
             pdf = sign_pdf(pdf, request.key, reason=f"sign-off by {request.signer}")
+            trustees_pdf = sign_pdf(trustees_pdf, request.key,
+                                    reason=f"sign-off by {request.signer}")
     files = OutputSet()                   # the re-rendered bytes (equal to the build's)
     files.add(f"{period}/{name}.pdf", pdf)
+    files.add(f"{period}/{name}-trustees.pdf", trustees_pdf)    # in the ledger's files
     files.add(f"{period}/{name}/pack.html", outputs["pack.html"])
     for rel in outputs.paths:
         if rel.startswith("results/"):
@@ -155,9 +160,10 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
 
 def _signed_pdf(a, outputs: OutputSet, manifest: dict, settings: Settings,
                 request: SignOffRequest, name: str, revision: int, superseded: Entry | None,
-                signed_utc: str) -> bytes:
+                signed_utc: str, edition: str = "full") -> bytes:
     """The pack as tagged PDF/A-3a with the sign-off page, carrying pack.toml, the inputs and
-    the (re-rendered) results files as embedded attachments."""
+    the (re-rendered) results files as embedded attachments; ``edition`` "trustees" for the
+    trustees' edition."""
     hashes = manifest["input_sha256"]
     order = [k for k in ("pack.toml", *INPUT_ROLES) if k in hashes]   # a fund may have no
     #                                                                   one holdings file
@@ -179,14 +185,16 @@ def _signed_pdf(a, outputs: OutputSet, manifest: dict, settings: Settings,
             continue
         seen.add(name)
         what = ("the pack's settings" if key == "pack.toml" else f"{key} input"
-                if key in settings.inputs else "commentary")
+                if key in settings.inputs else "the action log" if key == "actions.csv"
+                else "commentary")
         attachments.append(Attachment(string=input_path(settings, key).read_bytes(),
                                       name=name, description=what, relationship="Source"))
     for rel in outputs.paths:
         if rel.startswith("results/"):
             attachments.append(Attachment(string=bytes(outputs[rel]), name=rel,
                                           description="results file", relationship="Data"))
-    return render_pdf(a.html(for_print=True, signoff=record), base_dir=settings.pack_dir,
+    return render_pdf(a.html(for_print=True, signoff=record, edition=edition),
+                      base_dir=settings.pack_dir,
                       allowed=(settings.pack_dir,), variant=PDF_VARIANT,
                       attachments=attachments)
 

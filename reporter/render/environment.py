@@ -72,6 +72,14 @@ def num(x, digits: int = 2, signed: bool = False) -> str:
     return s.replace("-", "\u2212")
 
 
+def plural(n, singular: str, plural_form: str | None = None) -> str:
+    """A count with its noun in the right number: ``3 | plural("holding")`` -> '3 holdings',
+    ``1 | plural("holding")`` -> '1 holding'. The plural adds "s" unless given."""
+    count = int(n)
+    word = singular if count == 1 else (plural_form or singular + "s")
+    return f"{count} {word}"
+
+
 def fit(x, width: int, align: str = "<") -> str:
     """Text set in exactly ``width`` characters, for the fixed-width print listing: cut with
     an ellipsis when longer, padded with spaces (``align`` '<' left, '>' right)."""
@@ -256,5 +264,6 @@ def make_environment(user_templates: Path | None = None,
                       bytecode_cache=bytecode_cache)
     env.template_class = CheckedTemplate
     env.user_templates = Path(user_templates) if user_templates is not None else None
-    env.filters.update(pct=pct, bp=bp, num=num, longdate=longdate, fit=fit)
+    env.filters.update(pct=pct, bp=bp, num=num, longdate=longdate, fit=fit,
+                       plural=plural)
     return env

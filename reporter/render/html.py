@@ -80,14 +80,16 @@ def render_html(ctx: PackContext, svgs: dict[str, Markup], *, for_print: bool,
     ``signoff`` (the sign-off record) adds the approval to the cover and a last page.
     ``extra`` sets ``part`` (True: only the portfolio's chapters, for a fund pack),
     ``anchor_prefix`` (prefixed to every id), ``part_title``, and ``market_word`` and
-    ``proxy_word`` (what the regressions are against: "market proxy" and "proxy" by default).
+    ``proxy_word`` (what the regressions are against: "market proxy" and "proxy" by default)
+    and ``edition`` ("full", or "trustees" for the short edition).
     ``bytecode_cache``: compiled templates kept between calls (see :func:`make_environment`).
     """
     env = make_environment(user_templates, bytecode_cache)
     values = {f.name: getattr(ctx, f.name) for f in fields(ctx)}
     values.pop("charts")
     values.update({"part": False, "anchor_prefix": "", "part_title": None,
-                   "market_word": "market proxy", "proxy_word": "proxy"} | (extra or {}))
+                   "market_word": "market proxy", "proxy_word": "proxy",
+                   "edition": "full"} | (extra or {}))
     html = env.get_template(template).render(**values, svg=svgs, for_print=for_print,
                                               signoff=signoff)
     return chart_alt_text(html) if for_print else html
