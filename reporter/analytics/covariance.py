@@ -208,22 +208,29 @@ def _estimate(mo: _Moments, method: str) -> CovarianceEstimate:
         with np.errstate(invalid="ignore", divide="ignore"):
             np.divide(s, nb, out=s)
         s[~valid] = 0.0
-        s2_over_n += float(np.sum(np.where(valid, s * s / np.where(valid, nb, 1.0), 0.0)))
+        np.maximum(nb, 1.0, out=nb)               # (s is 0 wherever n_ij < 2)
+        s2_over_n += float(np.einsum("ij,ij->", s, s / nb))
         if not cc:
             s2 += float(np.einsum("ij,ij->", s, s))
             continue
+        # the off-diagonal pairs with a covariance, between holdings that vary: s is 0 on
+        # every other pair but the diagonal ones, so the sums below are matrix-vector
+        # products with the diagonal taken out
+        rows, cols = _diagonal_of(blk)
         off = valid & (sd[blk, None] > 0) & (sd[None, :] > 0)
-        off[_diagonal_of(blk)] = False
-        corr_sum += float(np.sum((s * inv_sd[blk, None] * inv_sd[None, :])[off]))
-        n_off += int(off.sum())
-        # theta_ii,ij / n_ij = (A_ij - s_ij B_ij) / n_ij^2, A = (x^3)'x, B = (x^2)'m
-        b_mat = np.repeat(q[blk, None], N, axis=1)
-        b_mat[:, mo.gap_idx] = b_gap[blk]
-        with np.errstate(invalid="ignore", divide="ignore"):
-            h_off = np.where(off, 1.0 / nb**2, 0.0)
-        ratio = inv_sd[blk, None] * sd[None, :]      # sqrt(s_jj / s_ii)
-        theta_b += float(np.sum(ratio * s * b_mat * h_off))
-        del off, b_mat, h_off, ratio
+        off[rows, cols] = False
+        n_off += int(np.count_nonzero(off))
+        del off, valid
+        corr_sum += float(inv_sd[blk] @ (s @ inv_sd)) - float(s_diag[blk] @ inv_sd[blk] ** 2)
+        # theta_ii,ij / n_ij = (A_ij - s_ij B_ij) / n_ij^2, A = (x^3)'x, B = (x^2)'m; here
+        # sum_ij sqrt(s_jj / s_ii) s_ij B_ij / n_ij^2, with B_ij = q_i for a complete j
+        e = s * q[blk, None]
+        e[:, mo.gap_idx] = s[:, mo.gap_idx] * b_gap[blk]
+        e /= nb
+        e /= nb
+        e[rows, cols] = 0.0
+        theta_b += float(inv_sd[blk] @ (e @ sd))
+        del e, nb
     ones = np.ones(N)
         # sum_ij pi_ij / n_ij, pi_ij = mean over common periods of (x_i x_j)^2 - s_ij^2
     pi_sum = mo.pair_sum(x2, x2, ones, ones, h_gap, 1.0 / T**2) - s2_over_n
