@@ -1,7 +1,7 @@
 """Benchmark: the risk model's covariance estimates (holdings and active) and the pairwise
-covariance with the average correlation, for N holdings x T periods with 5% late listings
-(invented data): wall time and the peak RSS above the start of each call, sampled from
-/proc/self/statm every 10 ms by a thread. Linux only.
+covariance with the average correlation, for N holdings x T periods with a share of late
+listings (5% unless ``--late``; invented data): wall time and the peak RSS above the start
+of each call, sampled from /proc/self/statm every 10 ms by a thread. Linux only.
 Run: ``python benchmarks/bench_covariance.py 3000 24 [--before]`` (``--before`` also times the
 code the row-block estimators replaced, kept in tests/covariance_before.py).
 """
@@ -52,13 +52,13 @@ def measured(fn):
     return out, dt, (max(peak[0], rss()) - start) / 2**20
 
 
-def panel(N: int, T: int, seed: int = 1):
+def panel(N: int, T: int, seed: int = 1, late_share: float = 0.05):
     rng = np.random.default_rng(seed)
     mkt = rng.normal(0.005, 0.042, T)
     sector = rng.integers(0, 10, N)
     r = (rng.uniform(0.3, 1.8, N) * mkt[:, None] + 0.8 * rng.normal(0, 0.018, (T, 10))[:, sector]
          + rng.normal(0, 1, (T, N)) * rng.uniform(0.02, 0.075, N))
-    late = rng.random(N) < 0.05
+    late = rng.random(N) < late_share
     start = rng.integers(0, T // 2, N)
     r[np.arange(T)[:, None] < np.where(late, start, 0)[None, :]] = np.nan
     return r, mkt
@@ -69,9 +69,10 @@ def main() -> None:
     ap.add_argument("n", type=int)
     ap.add_argument("t", type=int)
     ap.add_argument("--before", action="store_true")
+    ap.add_argument("--late", type=float, default=0.05, help="share of late listings")
     ap.add_argument("--only", choices=["model", "pairwise", "both"], default="both")
     a = ap.parse_args()
-    r, mkt = panel(a.n, a.t)
+    r, mkt = panel(a.n, a.t, late_share=a.late)
     print(f"{a.n} holdings x {a.t} periods, {int(np.isnan(r).any(axis=0).sum())} with gaps")
     if a.only in ("model", "both"):
         (held, act), dt, mb = measured(lambda: holdings_and_active(r, mkt))
