@@ -283,7 +283,10 @@ def _estimate(mo: _Moments, method: str) -> CovarianceEstimate:
     # D = diag(sd), whose eigenvalues are D-scaled 1 - r_bar and 1 + (n - 1) r_bar over the
     # n holdings with sd > 0: F is PSD when -1/(n - 1) <= r_bar <= 1 (always so in exact
     # arithmetic, the correlations of one sample forming a PSD matrix), and then so is the
-    # convex combination. Nothing is tested or clipped, as the Cholesky test found before.
+    # convex combination shrink F + (1 - shrink) S. So no Cholesky test is run: the earlier
+    # code's test found nothing to clip here either (a singular S, N >= T and shrink = 0,
+    # has only rounding-sized negative eigenvalues, far inside its -1e-12 max(s_ii) margin).
+    # Should rounding put r_bar below the bound, the test runs as before.
     if not has_gaps and (n_pos < 2 or r_bar * (n_pos - 1) >= -1.0):
         return CovarianceEstimate(mat, "constant_correlation", shrink, T, N, 0, r_bar)
     # With gaps, the complete holdings' block is shrink (1 - r_bar) diag(s) + shrink r_bar
