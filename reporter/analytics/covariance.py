@@ -123,6 +123,30 @@ class _Moments:
         return cls(x=x, m=m, gram=x.T @ x, gapped=gapped, gap_idx=gap_idx,
                    n_gap=m[:, gap_idx].T @ m, n_own=n_own, T=T)
 
+    def relative_to(self, returns: np.ndarray, ref: np.ndarray) -> _Moments:
+        """The moments of ``returns - ref`` for a reference ``ref`` with every period (so the
+        mask is this one), its Gram matrix taken from this one's instead of a new T N^2
+        product: with e = ref - mean(ref), a complete holding's deviation is x_i - e, so
+        among complete holdings X_a'X_a = X'X - u 1' - 1 u' + e'e, u = X'e. The rows and
+        columns of the holdings with gaps (whose means run over their own periods) are
+        their own products x_a,g' X_a."""
+        xa = centred(np.asarray(returns, dtype=float) - ref[:, None])
+        e = ref - ref.mean()
+        u, ee = self.x.T @ e, float(e @ e)
+        gram = self.gram.copy()
+        for blk in _row_blocks(gram.shape[0]):
+            rows = gram[blk]
+            rows -= u[blk, None]
+            rows -= u[None, :]
+            rows += ee
+        gi = self.gap_idx
+        if gi.size:
+            g_rows = xa[:, gi].T @ xa
+            gram[gi, :] = g_rows
+            gram[:, gi] = g_rows.T
+        return _Moments(x=xa, m=self.m, gram=gram, gapped=self.gapped, gap_idx=gi,
+                        n_gap=self.n_gap, n_own=self.n_own, T=self.T)
+
     def n_rows(self, block: slice) -> np.ndarray:
         """Rows ``block`` of the N x N common periods n_ij."""
         nb = np.full((block.stop - block.start, self.gram.shape[0]), float(self.T))
@@ -134,17 +158,23 @@ class _Moments:
         return nb
 
     def pair_sum(self, a: np.ndarray, b: np.ndarray, p: np.ndarray, q: np.ndarray,
-                 h_gap: np.ndarray, h_full: float) -> float:
-        """sum_ij p_i q_j h_ij (a'b)_ij for T x N ``a``, ``b`` without forming a'b: h is
-        ``h_full`` wherever both columns are complete (``h_gap``: its rows for the gapped
-        holdings), so that block is sum_t (a_t . p)(b_t . q); only rows or columns of gapped
-        holdings need products."""
+                 h_gg: np.ndarray, h_full: float) -> float:
+        """sum_ij p_i q_j h_ij (a'b)_ij for T x N ``a``, ``b`` without forming a'b, where h_ij
+        depends on the pair only through n_ij (0 if n_ij < 2): ``h_full`` wherever both columns
+        are complete, ``h_gg`` among the gapped holdings. Against a complete holding j, n_ij
+        is i's own count, so each block but the gapped x gapped one is a product of
+        T-vectors."""
         c, g = ~self.gapped, self.gapped
-        total = h_full * float((a[:, c] @ p[c]) @ (b[:, c] @ q[c]))
+        a_p, b_q = a[:, c] @ p[c], b[:, c] @ q[c]
+        total = h_full * float(a_p @ b_q)
         if g.any():
-            total += float(np.sum(p[g, None] * q[None, :] * h_gap * (a[:, g].T @ b)))
-            total += float(np.sum(p[c, None] * q[None, g] * h_gap[:, c].T
-                                  * (a[:, c].T @ b[:, g])))
+            gi = self.gap_idx
+            with np.errstate(divide="ignore"):
+                h_own = np.where(self.n_own[gi] >= 2, 1.0 / self.n_own[gi] ** 2, 0.0)
+            total += float((p[gi] * h_own) @ (a[:, gi].T @ b_q))
+            total += float((q[gi] * h_own) @ (b[:, gi].T @ a_p))
+            total += float(np.sum(p[gi, None] * q[None, gi] * h_gg
+                                  * (a[:, gi].T @ b[:, gi])))
         return total
 
 
@@ -180,7 +210,8 @@ def _estimate(mo: _Moments, method: str) -> CovarianceEstimate:
     gram_diag = np.diagonal(mat).copy()
     with np.errstate(invalid="ignore", divide="ignore"):
         s_diag = np.where(n_own >= 2, gram_diag / n_own, 0.0)
-        h_gap = np.where(mo.n_gap >= 2, 1.0 / mo.n_gap**2, 0.0)
+        n_gg = mo.n_gap[:, mo.gap_idx]                 # gapped x gapped common periods
+        h_gg = np.where(n_gg >= 2, 1.0 / n_gg**2, 0.0)
     if method == "sample":
         for blk in _row_blocks(N):
             nb = mo.n_rows(blk)
@@ -233,7 +264,7 @@ def _estimate(mo: _Moments, method: str) -> CovarianceEstimate:
         del e, nb
     ones = np.ones(N)
         # sum_ij pi_ij / n_ij, pi_ij = mean over common periods of (x_i x_j)^2 - s_ij^2
-    pi_sum = mo.pair_sum(x2, x2, ones, ones, h_gap, 1.0 / T**2) - s2_over_n
+    pi_sum = mo.pair_sum(x2, x2, ones, ones, h_gg, 1.0 / T**2) - s2_over_n
     if method == "ledoit_wolf":
         mu = float(s_diag.sum()) / N
         d2 = (s2 - 2.0 * mu * float(s_diag.sum()) + N * mu * mu) / N
@@ -268,7 +299,7 @@ def _estimate(mo: _Moments, method: str) -> CovarianceEstimate:
     with np.errstate(invalid="ignore", divide="ignore"):
         pi_diag = np.where(n_own >= 2, (x4 / n_own - s_diag**2) / n_own, 0.0)
         a_diag = np.where(n_own >= 2, x4 / n_own**2, 0.0) * (sd > 0)
-    theta_a = mo.pair_sum(x2 * mo.x, mo.x, inv_sd, sd, h_gap, 1.0 / T**2) - float(a_diag.sum())
+    theta_a = mo.pair_sum(x2 * mo.x, mo.x, inv_sd, sd, h_gg, 1.0 / T**2) - float(a_diag.sum())
     rho = float(pi_diag.sum()) + r_bar * (theta_a - theta_b)
     shrink = 0.0 if gamma <= 0 else float(np.clip((pi_sum - rho) / gamma, 0.0, 1.0))
     # third pass: shrink F + (1 - shrink) S, in place
@@ -327,8 +358,11 @@ def holdings_and_active(returns: np.ndarray, market: np.ndarray,
     ref = np.asarray(market, dtype=float)
     T, N = r.shape
     method = choose_method(method, N, T)
-    return (_estimate(_Moments.of(r), method),
-            _estimate(_Moments.of(r - ref[:, None]), method))
+    held = _Moments.of(r)
+    active = (held.relative_to(r, ref) if np.isfinite(ref).all()
+              else _Moments.of(r - ref[:, None]))
+    # each estimate is built in its own Gram matrix: two N x N matrices, as the results
+    return _estimate(held, method), _estimate(active, method)
 
 
 def model_figures(held: CovarianceEstimate, active: CovarianceEstimate, model_vol: float,

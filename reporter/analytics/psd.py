@@ -22,9 +22,12 @@ def _explained(mat: np.ndarray, gapped: np.ndarray,
     A = diag(lam) + V diag(sign) V' (lam > 0, sign = +-1; the caller vouches that this A is
     positive definite), by the Woodbury identity
     A^-1 = L^-1 - L^-1 V (diag(sign) + V'L^-1 V)^-1 V'L^-1 with L = diag(lam): O(N k^2)
-    for k = T + 1 columns of V, instead of an O(N^3) Cholesky factor of A."""
+    for k = T + 1 columns of V, instead of an O(N^3) Cholesky factor of A (used when it is
+    the cheaper: long windows, T > N / sqrt(3))."""
     c, g = ~gapped, gapped
     b = mat[np.ix_(c, g)]
+    if low_rank is not None and 3 * low_rank[1].shape[1] ** 2 > low_rank[0].size ** 2:
+        low_rank = None          # k > N_c / sqrt(3): N_c k^2 exceeds the N_c^3 / 3 of Cholesky
     if low_rank is None:
         try:
             low = np.linalg.cholesky(mat[np.ix_(c, c)])
