@@ -165,7 +165,7 @@ class _Moments:
         is i's own count, so each block but the gapped x gapped one is a product of
         T-vectors."""
         c, g = ~self.gapped, self.gapped
-        a_p, b_q = a[:, c] @ p[c], b[:, c] @ q[c]
+        a_p, b_q = a @ np.where(c, p, 0.0), b @ np.where(c, q, 0.0)
         total = h_full * float(a_p @ b_q)
         if g.any():
             gi = self.gap_idx
@@ -182,11 +182,11 @@ def _complete_block_form(mo: _Moments, diag: np.ndarray, scale: float, rank_one:
                          rank_one_weight: float, x_weight: float):
     """(lam, V, sign) with diag(lam) + V diag(sign) V' = the complete holdings' block of
     diag(diag) + rank_one_weight r r' + x_weight X_c'X_c, or None if a lam is not clearly
-    positive (then the Cholesky test decides, as before)."""
+    positive (then the Cholesky test decides, as before) or the window is long."""
     c = ~mo.gapped
     lam = diag[c]
-    if not lam.size or lam.min() <= 1e-8 * scale:
-        return None
+    if not lam.size or lam.min() <= 1e-8 * scale or 3 * (mo.T + 1) ** 2 > lam.size ** 2:
+        return None                  # (the last: a Cholesky factor of the block is cheaper)
     cols, signs = [], []
     if rank_one_weight != 0.0:
         cols.append(np.sqrt(abs(rank_one_weight)) * rank_one[c][:, None])
