@@ -25,8 +25,13 @@ pi_ij / n_ij (and likewise for theta): our generalisation to unequal histories, 
 the papers' formulas when nothing is missing. A pair with fewer than two common periods has
 no covariance estimate: the constant-correlation target's value stands in for it (zero for
 the other two methods). Estimates from different periods need not form a positive
-semi-definite matrix: negative eigenvalues are set to zero (see :func:`_to_psd`;
-``eigenvalues_clipped`` counts them). With no gaps no clipping is needed.
+semi-definite matrix: negative eigenvalues are set to zero (see
+:func:`reporter.analytics.psd.to_psd`; ``eigenvalues_clipped`` counts them). With no gaps no
+clipping is needed, and none is tested for (the argument is in ``_estimate``).
+
+Memory: the estimate is built in place in the N x N Gram matrix X'X, a block of rows at a
+time; besides it only block-sized and N x (holdings with gaps) temporaries are alive. The
+positive semi-definite test with gaps needs no N x N factorisation (see ``to_psd``).
 """
 
 from __future__ import annotations
@@ -34,11 +39,11 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import solve_triangular
+
+from reporter.analytics.psd import to_psd
 
 METHODS = ("constant_correlation", "ledoit_wolf", "sample")
 DEFAULT_METHOD = "constant_correlation"
-EXACT_CLIP_MAX = 500   # holdings up to which a non-PSD estimate gets a full eigendecomposition
 AUTO_RATIO = 0.1   # "auto" shrinks when holdings / periods >= this (common practice, no source)
 
 
@@ -76,15 +81,33 @@ def choose_method(method: str, n_assets: int, n_periods: int) -> str:
     return "ledoit_wolf" if n_assets >= AUTO_RATIO * n_periods else "sample"
 
 
+BLOCK_ELEMENTS = 1 << 20   # N x N work runs over row blocks of about this many elements
+
+
+def _row_blocks(N: int):
+    step = max(1, BLOCK_ELEMENTS // max(N, 1))
+    for start in range(0, N, step):
+        yield slice(start, min(start + step, N))
+
+
+def _diagonal_of(block: slice) -> tuple[np.ndarray, np.ndarray]:
+    """(row, column) positions of the main diagonal inside the row block ``block``."""
+    rows = np.arange(block.stop - block.start)
+    return rows, rows + block.start
+
+
 @dataclass(frozen=True)
 class _Moments:
-    """The pieces every estimator shares, from one pass over the centred returns."""
+    """The pieces every estimator shares, from one pass over the centred returns. Only the
+    rows of n_ij for holdings with gaps are stored: every other pair has n_ij = T."""
 
     x: np.ndarray          # T x N deviations from each column's own mean, 0 where missing
     m: np.ndarray          # T x N float mask
-    n: np.ndarray          # N x N common periods n_ij
-    gram: np.ndarray       # N x N sum over common periods of x_i x_j
+    gram: np.ndarray       # N x N sum over common periods of x_i x_j (the estimate is built in it)
     gapped: np.ndarray     # bool N: columns missing a period of the window
+    gap_idx: np.ndarray    # their positions
+    n_gap: np.ndarray      # g x N: common periods of each gapped holding with every holding
+    n_own: np.ndarray      # N: periods each holding has
     T: int
 
     @classmethod
@@ -92,124 +115,222 @@ class _Moments:
         r = np.asarray(returns, dtype=float)
         mask = np.isfinite(r)
         x = centred(r)
-        T, N = x.shape
+        T = x.shape[0]
         m = mask.astype(float)
-        gapped = mask.sum(axis=0) < T
-        n = np.full((N, N), float(T))
-        if gapped.any():
-            ng = m[:, gapped].T @ m
-            n[gapped, :] = ng
-            n[:, gapped] = ng.T
-        return cls(x=x, m=m, n=n, gram=x.T @ x, gapped=gapped, T=T)
+        n_own = m.sum(axis=0)
+        gapped = n_own < T
+        gap_idx = np.flatnonzero(gapped)
+        return cls(x=x, m=m, gram=x.T @ x, gapped=gapped, gap_idx=gap_idx,
+                   n_gap=m[:, gap_idx].T @ m, n_own=n_own, T=T)
+
+    def relative_to(self, returns: np.ndarray, ref: np.ndarray) -> _Moments:
+        """The moments of ``returns - ref`` for a reference ``ref`` with every period (so the
+        mask is this one), its Gram matrix taken from this one's instead of a new T N^2
+        product: with e = ref - mean(ref), a complete holding's deviation is x_i - e, so
+        among complete holdings X_a'X_a = X'X - u 1' - 1 u' + e'e, u = X'e. The rows and
+        columns of the holdings with gaps (whose means run over their own periods) are
+        their own products x_a,g' X_a."""
+        xa = centred(np.asarray(returns, dtype=float) - ref[:, None])
+        e = ref - ref.mean()
+        u, ee = self.x.T @ e, float(e @ e)
+        gram = self.gram.copy()
+        for blk in _row_blocks(gram.shape[0]):
+            rows = gram[blk]
+            rows -= u[blk, None]
+            rows -= u[None, :]
+            rows += ee
+        gi = self.gap_idx
+        if gi.size:
+            g_rows = xa[:, gi].T @ xa
+            gram[gi, :] = g_rows
+            gram[:, gi] = g_rows.T
+        return _Moments(x=xa, m=self.m, gram=gram, gapped=self.gapped, gap_idx=gi,
+                        n_gap=self.n_gap, n_own=self.n_own, T=self.T)
+
+    def n_rows(self, block: slice) -> np.ndarray:
+        """Rows ``block`` of the N x N common periods n_ij."""
+        nb = np.full((block.stop - block.start, self.gram.shape[0]), float(self.T))
+        if self.gap_idx.size:
+            nb[:, self.gap_idx] = self.n_gap[:, block].T
+            local = np.flatnonzero(self.gapped[block])
+            if local.size:
+                nb[local] = self.n_gap[np.searchsorted(self.gap_idx, local + block.start)]
+        return nb
 
     def pair_sum(self, a: np.ndarray, b: np.ndarray, p: np.ndarray, q: np.ndarray,
-                 h: np.ndarray, h_full: float) -> float:
-        """sum_ij p_i q_j h_ij (a'b)_ij for T x N ``a``, ``b`` without forming a'b: ``h`` is
-        ``h_full`` wherever both columns are complete, so that block is
-        sum_t (a_t . p)(b_t . q); only rows or columns of gapped holdings need products."""
+                 h_gg: np.ndarray, h_full: float) -> float:
+        """sum_ij p_i q_j h_ij (a'b)_ij for T x N ``a``, ``b`` without forming a'b, where h_ij
+        depends on the pair only through n_ij (0 if n_ij < 2): ``h_full`` wherever both columns
+        are complete, ``h_gg`` among the gapped holdings. Against a complete holding j, n_ij
+        is i's own count, so each block but the gapped x gapped one is a product of
+        T-vectors."""
         c, g = ~self.gapped, self.gapped
-        total = h_full * float((a[:, c] @ p[c]) @ (b[:, c] @ q[c]))
+        a_p, b_q = a @ np.where(c, p, 0.0), b @ np.where(c, q, 0.0)
+        total = h_full * float(a_p @ b_q)
         if g.any():
-            total += float(np.sum(p[g, None] * q[None, :] * h[g, :] * (a[:, g].T @ b)))
-            total += float(np.sum(p[c, None] * q[None, g] * h[np.ix_(c, g)]
-                                  * (a[:, c].T @ b[:, g])))
+            gi = self.gap_idx
+            with np.errstate(divide="ignore"):
+                h_own = np.where(self.n_own[gi] >= 2, 1.0 / self.n_own[gi] ** 2, 0.0)
+            total += float((p[gi] * h_own) @ (a[:, gi].T @ b_q))
+            total += float((q[gi] * h_own) @ (b[:, gi].T @ a_p))
+            total += float(np.sum(p[gi, None] * q[None, gi] * h_gg
+                                  * (a[:, gi].T @ b[:, gi])))
         return total
 
 
-def _to_psd(mat: np.ndarray, gapped: np.ndarray) -> tuple[np.ndarray, int]:
-    """``mat`` made positive semi-definite; returns it and the number of negative eigenvalues
-    set to zero. A matrix with a Cholesky factor is returned unchanged. Up to EXACT_CLIP_MAX
-    holdings, every negative eigenvalue is set to zero with the eigenvectors kept: the
-    nearest positive semi-definite matrix in the Frobenius norm (Higham 1988). Above that,
-    to spare an N^3 eigendecomposition, when the block A of the holdings with a complete
-    window is positive definite and the others are at most half, only the block among the
-    holdings with gaps changes: the Schur complement D - B'A^-1 B has its negative
-    eigenvalues set to zero (the complete holdings' estimates, all from one common sample,
-    stay as they are; a gapped holding's variance can only rise). Else the whole matrix is
-    clipped as for a small one."""
-    try:
-        np.linalg.cholesky(mat)
-        return mat, 0
-    except np.linalg.LinAlgError:
-        pass
-    N = mat.shape[0]
-    tol = 1e-12 * max(float(np.abs(np.diagonal(mat)).max(initial=0.0)), 1e-300)
-    g, c = gapped, ~gapped
-    if N > EXACT_CLIP_MAX and 0 < g.sum() <= N / 2:
-        try:
-            low = np.linalg.cholesky(mat[np.ix_(c, c)])
-        except np.linalg.LinAlgError:
-            low = None
-        if low is not None:
-            z = solve_triangular(low, mat[np.ix_(c, g)], lower=True)
-            explained = z.T @ z                                   # B'A^-1 B
-            w, v = np.linalg.eigh(mat[np.ix_(g, g)] - explained)
-            neg = w < -tol
-            if not neg.any():
-                return mat, 0
-            block = explained + (v * np.where(neg, 0.0, w)) @ v.T
-            out = mat.copy()
-            out[np.ix_(g, g)] = (block + block.T) / 2.0
-            return out, int(neg.sum())
-    w, v = np.linalg.eigh(mat)
-    neg = w < -tol
-    if not neg.any():
-        return mat, 0
-    out = (v * np.where(neg, 0.0, w)) @ v.T
-    return (out + out.T) / 2.0, int(neg.sum())
+def _complete_block_form(mo: _Moments, diag: np.ndarray, scale: float, rank_one: np.ndarray,
+                         rank_one_weight: float, x_weight: float):
+    """(lam, V, sign) with diag(lam) + V diag(sign) V' = the complete holdings' block of
+    diag(diag) + rank_one_weight r r' + x_weight X_c'X_c, or None if a lam is not clearly
+    positive (then the Cholesky test decides, as before) or the window is long."""
+    c = ~mo.gapped
+    lam = diag[c]
+    if not lam.size or lam.min() <= 1e-8 * scale or 3 * (mo.T + 1) ** 2 > lam.size ** 2:
+        return None                  # (the last: a Cholesky factor of the block is cheaper)
+    cols, signs = [], []
+    if rank_one_weight != 0.0:
+        cols.append(np.sqrt(abs(rank_one_weight)) * rank_one[c][:, None])
+        signs.append([np.sign(rank_one_weight)])
+    if x_weight > 0.0:
+        cols.append(np.sqrt(x_weight) * mo.x[:, c].T)
+        signs.append(np.ones(mo.T))
+    if not cols:
+        return lam, np.zeros((lam.size, 0)), np.zeros(0)
+    return lam, np.hstack(cols), np.concatenate(signs)
 
 
 def _estimate(mo: _Moments, method: str) -> CovarianceEstimate:
-    T, N = mo.T, mo.n.shape[0]
-    valid = mo.n >= 2
+    """The estimate by ``method``, built in ``mo.gram`` (which it consumes) a block of rows at a
+    time, so that besides the N x N result only block-sized temporaries are alive."""
+    if method not in METHODS:
+        raise ValueError(f"unknown covariance method {method!r}")
+    T, N = mo.T, mo.gram.shape[0]
+    mat, has_gaps = mo.gram, bool(mo.gapped.any())
+    n_own = mo.n_own
+    gram_diag = np.diagonal(mat).copy()
     with np.errstate(invalid="ignore", divide="ignore"):
-        if method == "sample":
-            mat, clipped = _to_psd(np.where(valid, mo.gram / (mo.n - 1.0), 0.0),
-                                   mo.gapped)
-            return CovarianceEstimate(mat, "sample", 0.0, T, N, clipped)
-        if method not in METHODS:
-            raise ValueError(f"unknown covariance method {method!r}")
-        s = np.where(valid, mo.gram / mo.n, 0.0)             # divisor n_ij, as in the papers
-        h = np.where(valid, 1.0 / mo.n**2, 0.0)
+        s_diag = np.where(n_own >= 2, gram_diag / n_own, 0.0)
+        n_gg = mo.n_gap[:, mo.gap_idx]                 # gapped x gapped common periods
+        h_gg = np.where(n_gg >= 2, 1.0 / n_gg**2, 0.0)
+    if method == "sample":
+        for blk in _row_blocks(N):
+            nb = mo.n_rows(blk)
+            with np.errstate(invalid="ignore", divide="ignore"):
+                mat[blk] = np.where(nb >= 2, mat[blk] / (nb - 1.0), 0.0)
+        # with no gaps the sample covariance is a Gram matrix over one sample: PSD
+        mat, clipped = to_psd(mat, mo.gapped) if has_gaps else (mat, 0)
+        return CovarianceEstimate(mat, "sample", 0.0, T, N, clipped)
+    sd = np.sqrt(s_diag)
+    inv_sd = np.where(sd > 0, 1.0 / np.where(sd > 0, sd, 1.0), 0.0)
+    cc = method == "constant_correlation"
+    # first pass: s (divisor n_ij, as in the papers; 0 where n_ij < 2) in place of the Gram
+    # matrix, and the sums over pairs: s^2 / n, s^2, and for the constant-correlation target
+    # the correlations over the off-diagonal pairs (r_bar) and theta_b below
+    s2_over_n = s2 = corr_sum = theta_b = 0.0
+    n_off = 0
     x2 = mo.x * mo.x
+    if cc:
+        q = x2.sum(axis=0)
+        b_gap = x2.T @ mo.m[:, mo.gap_idx]        # B = (x^2)'m against the gapped columns
+    for blk in _row_blocks(N):
+        nb = mo.n_rows(blk)
+        valid = nb >= 2
+        s = mat[blk]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            np.divide(s, nb, out=s)
+        s[~valid] = 0.0
+        np.maximum(nb, 1.0, out=nb)               # (s is 0 wherever n_ij < 2)
+        s2_over_n += float(np.einsum("ij,ij->", s, s / nb))
+        if not cc:
+            s2 += float(np.einsum("ij,ij->", s, s))
+            continue
+        # the off-diagonal pairs with a covariance, between holdings that vary: s is 0 on
+        # every other pair but the diagonal ones, so the sums below are matrix-vector
+        # products with the diagonal taken out
+        rows, cols = _diagonal_of(blk)
+        off = valid & (sd[blk, None] > 0) & (sd[None, :] > 0)
+        off[rows, cols] = False
+        n_off += int(np.count_nonzero(off))
+        del off, valid
+        corr_sum += float(inv_sd[blk] @ (s @ inv_sd)) - float(s_diag[blk] @ inv_sd[blk] ** 2)
+        # theta_ii,ij / n_ij = (A_ij - s_ij B_ij) / n_ij^2, A = (x^3)'x, B = (x^2)'m; here
+        # sum_ij sqrt(s_jj / s_ii) s_ij B_ij / n_ij^2, with B_ij = q_i for a complete j
+        e = s * q[blk, None]
+        e[:, mo.gap_idx] = s[:, mo.gap_idx] * b_gap[blk]
+        e /= nb
+        e /= nb
+        e[rows, cols] = 0.0
+        theta_b += float(inv_sd[blk] @ (e @ sd))
+        del e, nb
     ones = np.ones(N)
-    # sum_ij pi_ij / n_ij, pi_ij = mean over common periods of (x_i x_j)^2 - s_ij^2
-    pi_sum = mo.pair_sum(x2, x2, ones, ones, h, 1.0 / T**2) - float(
-        np.sum(np.where(valid, s * s / np.where(valid, mo.n, 1.0), 0.0)))
+        # sum_ij pi_ij / n_ij, pi_ij = mean over common periods of (x_i x_j)^2 - s_ij^2
+    pi_sum = mo.pair_sum(x2, x2, ones, ones, h_gg, 1.0 / T**2) - s2_over_n
     if method == "ledoit_wolf":
-        mu = float(np.trace(s)) / N
-        d2 = (float(np.einsum("ij,ij->", s, s)) - 2.0 * mu * float(np.trace(s))
-              + N * mu * mu) / N
+        mu = float(s_diag.sum()) / N
+        d2 = (s2 - 2.0 * mu * float(s_diag.sum()) + N * mu * mu) / N
         b2 = min(pi_sum / N, d2)
         shrink = 0.0 if b2 <= 0 or d2 <= 0 else b2 / d2
-        mat = s * (1.0 - shrink)
+        for blk in _row_blocks(N):
+            mat[blk] *= 1.0 - shrink
         mat[np.diag_indices(N)] += shrink * mu
-        mat, clipped = _to_psd(mat, mo.gapped)
+        # with no gaps: (1 - delta) S + delta mu I, S a Gram matrix and mu >= 0, is PSD
+        low = (None if not has_gaps else _complete_block_form(
+            mo, np.full(N, shrink * mu), float(s_diag.max(initial=0.0)), ones, 0.0,
+            (1.0 - shrink) / T))
+        mat, clipped = to_psd(mat, mo.gapped, low) if has_gaps else (mat, 0)
         return CovarianceEstimate(mat, "ledoit_wolf", float(shrink), T, N, clipped)
-    sd = np.sqrt(np.diagonal(s))
-    inv_sd = np.where(sd > 0, 1.0 / np.where(sd > 0, sd, 1.0), 0.0)
-    off = valid & ~np.eye(N, dtype=bool) & (sd[:, None] > 0) & (sd[None, :] > 0)
-    corr = s * inv_sd[:, None] * inv_sd[None, :]
-    r_bar = float(corr[off].mean()) if off.any() else 0.0
-    target = r_bar * np.outer(sd, sd)
-    np.fill_diagonal(target, np.diagonal(s))
-    s = np.where(valid, s, target)                # no common periods: the target stands in
-    gamma = float(np.sum((target - s) ** 2))
-    n_own = np.diagonal(mo.n)
+    r_bar = corr_sum / n_off if n_off else 0.0
+
+    def target_rows(blk: slice) -> np.ndarray:
+        t = r_bar * np.outer(sd[blk], sd)
+        t[_diagonal_of(blk)] = s_diag[blk]
+        return t
+
+    # second pass: the target stands in where a pair has no covariance (n_ij < 2); gamma
+    gamma = 0.0
+    for blk in _row_blocks(N):
+        s, t = mat[blk], target_rows(blk)
+        if has_gaps:
+            invalid = mo.n_rows(blk) < 2
+            s[invalid] = t[invalid]
+        t -= s
+        gamma += float(np.einsum("ij,ij->", t, t))
     x4 = np.einsum("ij,ij->j", x2, x2)            # sum_t x_it^4 over own periods
     with np.errstate(invalid="ignore", divide="ignore"):
-        pi_diag = np.where(n_own >= 2, (x4 / n_own - np.diagonal(s) ** 2) / n_own, 0.0)
+        pi_diag = np.where(n_own >= 2, (x4 / n_own - s_diag**2) / n_own, 0.0)
         a_diag = np.where(n_own >= 2, x4 / n_own**2, 0.0) * (sd > 0)
-    # theta_ii,ij / n_ij = (A_ij - s_ij B_ij) / n_ij^2, A = (x^3)'x, B = (x^2)'m
-    b_mat = np.repeat(x2.sum(axis=0)[:, None], N, axis=1)
-    if mo.gapped.any():
-        b_mat[:, mo.gapped] = x2.T @ mo.m[:, mo.gapped]
-    ratio = inv_sd[:, None] * sd[None, :]          # sqrt(s_jj / s_ii)
-    theta_a = mo.pair_sum(x2 * mo.x, mo.x, inv_sd, sd, h, 1.0 / T**2) - float(a_diag.sum())
-    theta_b = float(np.sum(ratio * s * b_mat * np.where(off, h, 0.0)))
+    theta_a = mo.pair_sum(x2 * mo.x, mo.x, inv_sd, sd, h_gg, 1.0 / T**2) - float(a_diag.sum())
     rho = float(pi_diag.sum()) + r_bar * (theta_a - theta_b)
     shrink = 0.0 if gamma <= 0 else float(np.clip((pi_sum - rho) / gamma, 0.0, 1.0))
-    mat, clipped = _to_psd(shrink * target + (1.0 - shrink) * s, mo.gapped)
+    # third pass: shrink F + (1 - shrink) S, in place
+    for blk in _row_blocks(N):
+        t = target_rows(blk)
+        t *= shrink
+        s = mat[blk]
+        s *= 1.0 - shrink
+        s += t
+    n_pos = int((sd > 0).sum())
+    # With no gaps, S is a Gram matrix (PSD) and F = D (r_bar 11' + (1 - r_bar) I) D,
+    # D = diag(sd), whose eigenvalues are D-scaled 1 - r_bar and 1 + (n - 1) r_bar over the
+    # n holdings with sd > 0: F is PSD when -1/(n - 1) <= r_bar <= 1 (always so in exact
+    # arithmetic, the correlations of one sample forming a PSD matrix), and then so is the
+    # convex combination shrink F + (1 - shrink) S. So no Cholesky test is run: the earlier
+    # code's test found nothing to clip here either (a singular S, N >= T and shrink = 0,
+    # has only rounding-sized negative eigenvalues, far inside its -1e-12 max(s_ii) margin).
+    # Should rounding put r_bar below the bound, the test runs as before.
+    if not has_gaps and (n_pos < 2 or r_bar * (n_pos - 1) >= -1.0):
+        return CovarianceEstimate(mat, "constant_correlation", shrink, T, N, 0, r_bar)
+    # With gaps, the complete holdings' block is shrink (1 - r_bar) diag(s) + shrink r_bar
+    # sd sd' + (1 - shrink) X_c'X_c / T: positive definite when shrink > 0, every sd > 0 and
+    # -1/(N_c - 1) < r_bar < 1 (F_c positive definite, S_c PSD)
+    n_c = int((~mo.gapped).sum())
+    low = None
+    if (shrink > 0 and r_bar < 1 and r_bar * (n_c - 1) > -1.0
+            and bool(np.all(sd[~mo.gapped] > 0))):
+        low = _complete_block_form(mo, shrink * (1.0 - r_bar) * s_diag,
+                                   float(s_diag.max(initial=0.0)), sd, shrink * r_bar,
+                                   (1.0 - shrink) / T)
+    mat, clipped = to_psd(mat, mo.gapped, low)
     return CovarianceEstimate(mat, "constant_correlation", shrink, T, N, clipped, r_bar)
 
 
@@ -223,7 +344,7 @@ def estimate_covariance(returns: np.ndarray,
     scikit-learn's LedoitWolf, ``constant_correlation`` the Ledoit-Wolf (2004) formulas.
     """
     mo = _Moments.of(returns)
-    return _estimate(mo, choose_method(method, mo.n.shape[0], mo.T))
+    return _estimate(mo, choose_method(method, mo.gram.shape[0], mo.T))
 
 
 def holdings_and_active(returns: np.ndarray, market: np.ndarray,
@@ -237,8 +358,11 @@ def holdings_and_active(returns: np.ndarray, market: np.ndarray,
     ref = np.asarray(market, dtype=float)
     T, N = r.shape
     method = choose_method(method, N, T)
-    return (_estimate(_Moments.of(r), method),
-            _estimate(_Moments.of(r - ref[:, None]), method))
+    held = _Moments.of(r)
+    active = (held.relative_to(r, ref) if np.isfinite(ref).all()
+              else _Moments.of(r - ref[:, None]))
+    # each estimate is built in its own Gram matrix: two N x N matrices, as the results
+    return _estimate(held, method), _estimate(active, method)
 
 
 def model_figures(held: CovarianceEstimate, active: CovarianceEstimate, model_vol: float,

@@ -124,9 +124,23 @@ def equal_weight_curve(cov: np.ndarray) -> EqualWeightCurve:
     """Average variance and average pairwise covariance from a covariance matrix."""
     n = cov.shape[0]
     diag = np.diag(cov)
-    off = cov[~np.eye(n, dtype=bool)]
+    total, count = 0.0, 0
+    for blk in _row_blocks(n):          # the off-diagonal mean, a block of rows at a time
+        rows = cov[blk]
+        keep = np.isfinite(rows)
+        keep[np.arange(blk.stop - blk.start), np.arange(blk.start, blk.stop)] = False
+        total += float(rows[keep].sum())
+        count += int(keep.sum())
     return EqualWeightCurve(average_variance=float(np.nanmean(diag)),
-                            average_covariance=float(np.nanmean(off)) if n > 1 else 0.0)
+                            average_covariance=(total / count if count else float("nan"))
+                            if n > 1 else 0.0)
+
+
+def _row_blocks(n: int):
+    """Slices of about a million elements of an n x n matrix, by rows."""
+    step = max(1, (1 << 20) // max(n, 1))
+    for start in range(0, n, step):
+        yield slice(start, min(start + step, n))
 
 
 def pairwise_correlation(returns: np.ndarray) -> np.ndarray:
@@ -150,16 +164,42 @@ def pairwise_correlation(returns: np.ndarray) -> np.ndarray:
 def pairwise_covariance_and_correlation(returns: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """:func:`pairwise_covariance` and :func:`pairwise_correlation` from one set of masked
     cross-products (four matrix products; one when no return is missing)."""
+    cov, corr_rows = _pairwise_moments(returns)
+    N = cov.shape[0]
+    return cov, (corr_rows(slice(0, N)) if N else np.empty((0, 0)))
+
+
+def pairwise_covariance_and_average_correlation(returns: np.ndarray
+                                                ) -> tuple[np.ndarray, float]:
+    """:func:`pairwise_covariance` and :func:`average_pairwise_correlation` without keeping an
+    N x N correlation matrix: the correlations are formed a block of rows at a time and only
+    their mean over the pairs above the diagonal is kept."""
+    cov, corr_rows = _pairwise_moments(returns)
+    N = cov.shape[0]
+    total, count = 0.0, 0
+    for blk in _row_blocks(N):
+        c = corr_rows(blk)
+        upper = np.arange(N)[None, :] > np.arange(blk.start, blk.stop)[:, None]
+        upper &= np.isfinite(c)
+        total += float(c[upper].sum())
+        count += int(upper.sum())
+    return cov, (total / count if count else float("nan"))
+
+
+def _pairwise_moments(returns: np.ndarray):
+    """The pairwise covariance and a function giving rows of the pairwise correlation."""
     returns = np.asarray(returns, dtype=float)      # the in-place steps below stay float64
     mask = np.isfinite(returns)
     if mask.all():
         cov = np.atleast_2d(np.cov(returns, rowvar=False))
         sd = np.sqrt(np.diagonal(cov))
-        with np.errstate(invalid="ignore", divide="ignore"):
-            corr = cov / np.outer(sd, sd)
         if len(returns) < 2:
-            cov[:], corr[:] = np.nan, np.nan
-        return cov, corr
+            cov[:] = np.nan
+
+        def complete_rows(blk: slice) -> np.ndarray:
+            with np.errstate(invalid="ignore", divide="ignore"):
+                return cov[blk] / np.outer(sd[blk], sd)
+        return cov, complete_rows
     # Per pair (i, j), over the periods where both have a return: n[i, j] periods, sx[i, j]
     # the sum of i's returns, sxx[i, j] the sum of their squares (x is 0 where missing). Against
     # a holding j with no gap these are T and i's own column sums, so the masked products are
@@ -197,13 +237,16 @@ def pairwise_covariance_and_correlation(returns: np.ndarray) -> tuple[np.ndarray
         del sx
         cov = np.subtract(n, 1.0)
         np.divide(cxy, cov, out=cov)
-        np.multiply(vx, vx.T, out=tmp)
-        np.sqrt(tmp, out=tmp)
-        corr = np.divide(cxy, tmp, out=tmp)
+        del tmp
     few = n < 2
     cov[few] = np.nan
-    corr[few] = np.nan
-    return cov, corr
+
+    def gapped_rows(blk: slice) -> np.ndarray:
+        with np.errstate(invalid="ignore", divide="ignore"):
+            c = cxy[blk] / np.sqrt(vx[blk] * vx[:, blk].T)
+        c[few[blk]] = np.nan
+        return c
+    return cov, gapped_rows
 
 
 def average_pairwise_correlation(returns: np.ndarray | None = None, *,
@@ -294,7 +337,8 @@ def random_subset_band(cov: np.ndarray, sizes: np.ndarray, draws: int,
     that a size near N costs neither draws x n^2 memory nor time."""
     rng = np.random.default_rng(seed)
     N = cov.shape[0]
-    c = np.nan_to_num(cov)
+    # a copy only when something is missing (N x N is 800 MB for 10,000 holdings)
+    c = cov if np.isfinite(np.sum(cov)) else np.nan_to_num(cov)
     lo, med, hi, ns, all_vols = [], [], [], [], []
     for n in np.asarray(sizes, dtype=int):
         if n < 1 or n > N:

@@ -17,10 +17,9 @@ from reporter.analytics.diversification import (
     RandomSubsetBand,
     RiskContributions,
     VarianceSplit,
-    average_pairwise_correlation,
     concentration,
     equal_weight_curve,
-    pairwise_covariance_and_correlation,
+    pairwise_covariance_and_average_correlation,
     random_subset_band,
     risk_contributions,
     sector_weights,
@@ -340,19 +339,19 @@ def analyse(inputs: ValidInputs, settings: Settings,
     hold = inputs.holdings.frame
     sectors = sector_weights(hold["sector"], weights)
     var = variance_split(weights, fits.beta, fits.residual_vol, x)
-    pair_cov, pair_corr = pairwise_covariance_and_correlation(win.returns[:, ok])
+    pair_cov, avg_corr = pairwise_covariance_and_average_correlation(win.returns[:, ok])
     curve = equal_weight_curve(pair_cov)
-    bench_win = _align_optional(benchmark, win.dates, settings.frequency)
-    cov, cov_active = holdings_and_active(
-        win.returns, win.market if bench_win is None else bench_win, settings.covariance)
-    risk = risk_contributions(weights, cov.matrix, cov_active.matrix)
-    avg_corr = average_pairwise_correlation(corr=pair_corr)
     n_fit = int(ok.sum())
     top = max(min(n_fit, BAND_MAX_SIZE), 1)     # beyond a few hundred the band is a line
     sizes = np.unique(np.concatenate([
         np.round(np.geomspace(1, top, 16)),
         [np.clip(round(conc.effective_n), 1, max(n_fit, 1))]]).astype(int))
     band = random_subset_band(pair_cov, sizes, settings.random_subsets, settings.seed)
+    del pair_cov                # N x N: freed before the risk model's two N x N estimates
+    bench_win = _align_optional(benchmark, win.dates, settings.frequency)
+    cov, cov_active = holdings_and_active(
+        win.returns, win.market if bench_win is None else bench_win, settings.covariance)
+    risk = risk_contributions(weights, cov.matrix, cov_active.matrix)
 
     beta_up, beta_down = up_down_betas(y, x, settings.min_obs, prep=prep)
     port_ex = (port - win.risk_free)[:, None]

@@ -1,0 +1,88 @@
+"""Positive semi-definite repair of covariance estimates made from unequal histories.
+
+Source: N. J. Higham (1988), "Computing a nearest symmetric positive semidefinite matrix",
+Linear Algebra Appl. 103, 103-118 (negative eigenvalues set to zero); the Schur complement
+test of a block matrix and the Woodbury identity (M. A. Woodbury 1950), standard linear
+algebra (e.g. Golub and Van Loan, *Matrix Computations*; recalled from memory).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.linalg import solve_triangular
+
+EXACT_CLIP_MAX = 500   # holdings up to which a non-PSD estimate gets a full eigendecomposition
+LowRank = tuple[np.ndarray, np.ndarray, np.ndarray]
+
+
+def _explained(mat: np.ndarray, gapped: np.ndarray,
+               low_rank: LowRank | None) -> np.ndarray | None:
+    """B'A^-1 B for the block A of the complete holdings and B = mat[complete, gapped], or
+    None when A is not positive definite. With ``low_rank`` = (lam, V, sign) meaning
+    A = diag(lam) + V diag(sign) V' (lam > 0, sign = +-1; the caller vouches that this A is
+    positive definite), by the Woodbury identity
+    A^-1 = L^-1 - L^-1 V (diag(sign) + V'L^-1 V)^-1 V'L^-1 with L = diag(lam): O(N k^2)
+    for k = T + 1 columns of V, instead of an O(N^3) Cholesky factor of A (used when it is
+    the cheaper: long windows, T > N / sqrt(3))."""
+    c, g = ~gapped, gapped
+    b = mat[np.ix_(c, g)]
+    if low_rank is not None and 3 * low_rank[1].shape[1] ** 2 > low_rank[0].size ** 2:
+        low_rank = None          # k > N_c / sqrt(3): N_c k^2 exceeds the N_c^3 / 3 of Cholesky
+    if low_rank is None:
+        try:
+            low = np.linalg.cholesky(mat[np.ix_(c, c)])
+        except np.linalg.LinAlgError:
+            return None
+        z = solve_triangular(low, b, lower=True)
+        return z.T @ z
+    lam, v, sign = low_rank
+    root = np.sqrt(lam)[:, None]
+    bs = b / root                                   # L^-1/2 B
+    vs = v / root                                   # L^-1/2 V
+    w = vs.T @ bs                                   # V'L^-1 B
+    core = vs.T @ vs
+    core[np.diag_indices_from(core)] += sign
+    return bs.T @ bs - w.T @ np.linalg.solve(core, w)
+
+
+def to_psd(mat: np.ndarray, gapped: np.ndarray,
+            low_rank: LowRank | None = None
+            ) -> tuple[np.ndarray, int]:
+    """``mat`` made positive semi-definite (in place where it can); returns it and the number
+    of negative eigenvalues set to zero. Up to EXACT_CLIP_MAX holdings, a matrix with a
+    Cholesky factor is returned unchanged, and otherwise every negative eigenvalue is set to
+    zero with the eigenvectors kept: the nearest positive semi-definite matrix in the
+    Frobenius norm (Higham 1988). Above that, to spare N^3 work, when the block A of the
+    holdings with a complete window is positive definite and the others are at most half,
+    only the block among the holdings with gaps can change: the Schur complement
+    D - B'A^-1 B has its negative eigenvalues set to zero (the complete holdings' estimates,
+    all from one common sample, stay as they are; a gapped holding's variance can only
+    rise). The whole matrix is PSD exactly when that Schur complement is (A being positive
+    definite), so no Cholesky factor of the whole matrix is tried first: none clipped means
+    unchanged, as before. ``low_rank`` gives A as diagonal plus low rank (see
+    :func:`_explained`). Else the whole matrix is clipped as for a small one."""
+    N = mat.shape[0]
+    tol = 1e-12 * max(float(np.abs(np.diagonal(mat)).max(initial=0.0)), 1e-300)
+    g = gapped
+    if N > EXACT_CLIP_MAX and 0 < g.sum() <= N / 2:
+        explained = _explained(mat, gapped, low_rank)
+        if explained is not None:
+            gg = np.ix_(g, g)
+            w, v = np.linalg.eigh(mat[gg] - explained)
+            neg = w < -tol
+            if not neg.any():
+                return mat, 0
+            block = explained + (v * np.where(neg, 0.0, w)) @ v.T
+            mat[gg] = (block + block.T) / 2.0
+            return mat, int(neg.sum())
+    try:
+        np.linalg.cholesky(mat)
+        return mat, 0
+    except np.linalg.LinAlgError:
+        pass
+    w, v = np.linalg.eigh(mat)
+    neg = w < -tol
+    if not neg.any():
+        return mat, 0
+    out = (v * np.where(neg, 0.0, w)) @ v.T
+    return (out + out.T) / 2.0, int(neg.sum())
