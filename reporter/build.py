@@ -18,7 +18,9 @@ import pyarrow as pa
 import pyarrow.csv as pacsv
 
 from reporter import __version__
+from reporter.analytics.allocation import allocation
 from reporter.analytics.changes import PackChanges, compare_packs
+from reporter.analytics.flows import ValueChange, pack_value_change
 from reporter.analytics.pack import ROLLING_COLUMNS, PackResults, analyse
 from reporter.benchmark import validate_benchmark, validate_portfolio_returns
 from reporter.changes import read_previous
@@ -37,6 +39,7 @@ from reporter.progress import Progress
 from reporter.render.html import export_charts, print_charts, render_html
 from reporter.render.pdf import render_pdf
 from reporter.validate import read_inputs, validate_tables
+from reporter.validate.flows import CashFlows, flow_period_start, validate_cash_flows
 from reporter.writer import OutputSet, check_target, commit, open_staging
 
 
@@ -165,8 +168,10 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
     with progress.stage("validate"):
         benchmark, bench_problems = validate_benchmark(settings, raws)
         own, own_problems = validate_portfolio_returns(settings, raws)
-        inputs = validate_tables(settings, raws,
-                                 [*read_problems, *bench_problems, *own_problems], strict=strict)
+        previous_end = previous.period_end if previous is not None else None
+        flows, flow_problems = validate_cash_flows(settings, raws, previous_end)
+        inputs = validate_tables(settings, raws, [*read_problems, *bench_problems,
+                                                  *own_problems, *flow_problems], strict=strict)
         del raws                    # the typed inputs hold everything needed from here on
         release_free_memory()
     with progress.stage("analyse"):
@@ -179,15 +184,29 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
             changes = compare_packs(previous, res,
                                     limits.as_json()["limits"] if limits else None,
                                     settings.confidence)
+        money = value_change_of(settings, res, previous, flows)
     with progress.stage("chart"):
         charts = build_charts(res, limits)
         ctx = build_context(settings, inputs, res, charts, fingerprint(hashes),
                             at or build_time(), limits=limits, changes=changes,
-                            compare_note=compare_note, commentary=commentary.by_section)
+                            compare_note=compare_note, commentary=commentary.by_section,
+                            value_change=money)
         svgs = export_charts(ctx)
         for_pdf = print_charts(ctx, svgs)
     return Assembled(settings, inputs, res, ctx, svgs, hashes, print_svgs=for_pdf, limits=limits,
                      changes=changes, compare_warnings=compare_warnings, commentary=commentary)
+
+
+def value_change_of(settings: Settings, res: PackResults, previous,
+                    flows: CashFlows | None) -> ValueChange | None:
+    """The pack's value and its change since the last pack (see :mod:`analytics.flows`)."""
+    prev_end = previous.period_end if previous is not None else None
+    prev_value = previous.portfolio.get("total_value") if previous is not None else None
+    prev_value = float(prev_value) if isinstance(prev_value, int | float) else None
+    return pack_value_change(
+        settings.currency, settings.period_end, res.portfolio_summary()["total_value"],
+        prev_end, prev_value, flow_period_start(settings, prev_end),
+        flows.dates if flows is not None else None, flows.amounts if flows is not None else None)
 
 
 def results_files(a: Assembled, files: OutputSet) -> None:
@@ -214,6 +233,10 @@ def results_files(a: Assembled, files: OutputSet) -> None:
             files.add(rel, csv_text(table))
     if a.limits is not None:
         files.add("results/limits.json", json_text(a.limits.as_json()))
+    if a.context.value_change is not None:
+        files.add("results/value.json", json_text(a.context.value_change.as_json()))
+    if a.context.allocation:
+        files.add("results/allocation.csv", csv_text(allocation(res.securities)))
     if settings.compare_build is not None or settings.compare_archive is not None:
         doc = a.changes.as_json() if a.changes is not None else {
             "previous": None, "note": ctx.compare_note}

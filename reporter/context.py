@@ -13,7 +13,9 @@ import altair as alt
 import numpy as np
 
 from reporter import __version__
+from reporter.analytics.allocation import allocation
 from reporter.analytics.changes import PackChanges
+from reporter.analytics.flows import ValueChange
 from reporter.analytics.pack import PackResults
 from reporter.analytics.sml import ABOVE, BELOW
 from reporter.config import Settings
@@ -51,6 +53,7 @@ class Section:
 SECTIONS = (
     Section("summary", "Summary"),
     Section("changes", "Since last pack"),
+    Section("allocation", "Allocation"),
     Section("returns", "Returns and ratios"),
     Section("market-risk", "Market risk"),
     Section("beta", "Beta estimates"),
@@ -117,6 +120,11 @@ class PackContext:
     risk_sectors: list[dict] = field(default_factory=list)    # contributions by sector
     covariance_auto: bool = True     # the method was chosen by the "auto" rule
     has_benchmark: bool = False      # an optional benchmark series was given
+    value_change: ValueChange | None = None   # value, change and flows; None: no values
+    allocation: list[dict] = field(default_factory=list)   # analytics.allocation rows
+    stand_ins: list[dict] = field(default_factory=list)    # cash, proxied, excluded holdings
+    has_values: bool = False         # the holdings give market values
+    asset_class_ranges: dict[str, dict] = field(default_factory=dict)  # class -> range status
 
 
 def _records(df) -> list[dict]:
@@ -128,11 +136,14 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
                   charts: dict[str, alt.TopLevelMixin], fingerprint: str,
                   build_time: dt.datetime, *, limits: LimitsReport | None = None,
                   changes: PackChanges | None = None, compare_note: str | None = None,
-                  commentary: dict | None = None) -> PackContext:
+                  commentary: dict | None = None,
+                  value_change: ValueChange | None = None) -> PackContext:
     """Assemble the context for the pack templates. The "Since last pack" section is
     listed only when there is a comparison (or a note saying why there is none)."""
+    alloc = allocation(res.securities)
     shown = tuple(s for s in SECTIONS
-                  if s.anchor != "changes" or changes is not None or compare_note)
+                  if (s.anchor != "changes" or changes is not None or compare_note)
+                  and (s.anchor != "allocation" or not alloc.empty))
     sec = res.securities.copy()
     # the alpha t-statistic from the errors behind the pack's intervals and SML positions
     sec["alpha_t_used"] = sec["alpha_t"]
@@ -145,7 +156,8 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
     counts = {p: int((fitted["sml_position"] == p).sum()) for p in (ABOVE, BELOW)}
     counts["within"] = int(len(fitted) - counts[ABOVE] - counts[BELOW])
     notes = [str(w) for w in inputs.warnings]
-    unfitted = sec[sec["status"] != "fitted"]
+    unfitted = sec[sec["status"].str.startswith("not fitted")]
+    stand_ins = sec[(sec["status"] != "fitted") & ~sec["status"].str.startswith("not fitted")]
     return PackContext(
         title=settings.title, organisation=settings.organisation,
         period_end=settings.period_end, frequency=settings.frequency,
@@ -185,4 +197,7 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         risk_sectors=_records(res.risk_table[res.risk_table["level"] == "sector"]),
         covariance_auto=settings.covariance == "auto",
         has_benchmark="benchmark" in settings.inputs,
+        value_change=value_change, allocation=_records(alloc),
+        stand_ins=_records(stand_ins), has_values="market_value" in sec,
+        asset_class_ranges=limits.asset_class_status() if limits else {},
     )

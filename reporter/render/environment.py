@@ -71,6 +71,15 @@ def num(x, digits: int = 2, signed: bool = False) -> str:
     return s.replace("-", "\u2212")
 
 
+def money(x, currency: str = "", signed: bool = False) -> str:
+    """An amount in whole units of ``currency`` with thousands separators:
+    6931283.2 -> 'GBP 6,931,283'."""
+    if _missing(x):
+        return DASH
+    s = f"{x:+,.0f}" if signed else f"{x:,.0f}"
+    return ((currency + " ") if currency else "") + s.replace("-", "\u2212")
+
+
 def fit(x, width: int, align: str = "<") -> str:
     """Text set in exactly ``width`` characters, for the fixed-width print listing: cut with
     an ellipsis when longer, padded with spaces (``align`` '<' left, '>' right)."""
@@ -251,5 +260,5 @@ def make_environment(user_templates: Path | None = None) -> Environment:
                       trim_blocks=True, lstrip_blocks=True, keep_trailing_newline=True)
     env.template_class = CheckedTemplate
     env.user_templates = Path(user_templates) if user_templates is not None else None
-    env.filters.update(pct=pct, bp=bp, num=num, longdate=longdate, fit=fit)
+    env.filters.update(pct=pct, bp=bp, num=num, longdate=longdate, fit=fit, money=money)
     return env
