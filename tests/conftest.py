@@ -31,6 +31,16 @@ def build_at_fixed_epoch(pack: Path, out: Path) -> int:
             os.environ["SOURCE_DATE_EPOCH"] = old
 
 
+def demo_holdings():
+    """The demo's holdings with a ``weight`` column in place of ``market_value`` (the demo
+    gives market values; weights are their shares of the total)."""
+    import pandas as pd
+
+    h = pd.read_csv(DEMO / "holdings.csv")
+    h["weight"] = h["market_value"] / h["market_value"].sum()
+    return h.drop(columns="market_value")
+
+
 @pytest.fixture(scope="session")
 def demo_build(tmp_path_factory) -> Path:
     """The demo pack built once with a fixed SOURCE_DATE_EPOCH; returns the output folder."""

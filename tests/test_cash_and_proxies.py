@@ -13,7 +13,7 @@ from reporter.analytics.pack import analyse
 from reporter.config import load_settings
 from reporter.errors import InputError
 from reporter.validate import validate_pack
-from tests.conftest import DEMO
+from tests.conftest import DEMO, demo_holdings
 
 # the demo holdings whose returns cover the whole 60-month window (demo_data.py gives
 # TVX006, TVX018, TVX034 and TVX042 short or broken histories)
@@ -22,7 +22,7 @@ BROKEN = ("TVX006", "TVX018", "TVX034", "TVX042")
 
 def _pack(folder, holdings: pd.DataFrame):
     folder.mkdir()
-    for name in ("pack.toml", "returns.csv", "market.csv", "risk_free.csv"):
+    for name in ("pack.toml", "returns.csv", "market.csv", "risk_free.csv", "cash_flows.csv"):
         shutil.copy(DEMO / name, folder / name)
     holdings.to_csv(folder / "holdings.csv", index=False, float_format="%.17g")
     return folder
@@ -38,10 +38,9 @@ def packs(tmp_path_factory):
     """Pack A: the demo's fully covered holdings, weights summing to 1. Pack B: the same
     with every weight scaled by 0.97 and a 3% cash line (no returns of its own)."""
     base = tmp_path_factory.mktemp("cash")
-    h = pd.read_csv(DEMO / "holdings.csv")
-    h = h[~h["security_id"].isin(BROKEN)].reset_index(drop=True)
+    h = demo_holdings()
+    h = h[~h["security_id"].isin(BROKEN) & (h["asset_class"] != "Cash")].reset_index(drop=True)
     h["weight"] = h["weight"] / h["weight"].sum()
-    h["asset_class"] = "Equity"
     with_cash = h.assign(weight=h["weight"] * 0.97)
     cash = pd.DataFrame([{"security_id": "CASH01", "name": "Sterling deposit",
                           "sector": "Cash", "weight": 0.03, "asset_class": "cash"}])
@@ -89,8 +88,9 @@ def test_cash_is_in_the_figures_but_not_on_the_line(packs):
 
 
 def _with_extra(tmp_path, extra: dict, name: str):
-    h = pd.read_csv(DEMO / "holdings.csv")
-    h["weight"] = h["weight"] * 0.98
+    h = demo_holdings()
+    h = h[h["asset_class"] != "Cash"]
+    h["weight"] = h["weight"] / h["weight"].sum() * 0.98
     h["proxy"] = ""
     row = {"security_id": "NEW01", "name": "Newly listed plc", "sector": "Industrials",
            "weight": 0.02, **extra}

@@ -318,7 +318,7 @@ def analyse(inputs: ValidInputs, settings: Settings,
     sector_ex = np.column_stack([
         portfolio_returns(win.returns[:, sector_of == name], weights[sector_of == name])
         for name in sector_names]) - win.risk_free[:, None]
-    full = np.isfinite(sector_ex).all(axis=0) & (np.ptp(sector_ex, axis=0) > 0)   # not cash
+    full = np.isfinite(sector_ex).all(axis=0) & (np.ptp(sector_ex, axis=0) > 1e-12)  # not cash
     grs_s = grs_test(sector_ex[:, full], x, "sector portfolios")
 
     release_free_memory()      # the window's temporaries, before the whole history's
