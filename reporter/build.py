@@ -39,7 +39,12 @@ from reporter.progress import Progress
 from reporter.render.html import export_charts, print_charts, render_html
 from reporter.render.pdf import render_pdf
 from reporter.validate import read_inputs, validate_tables
-from reporter.validate.flows import CashFlows, flow_period_start, validate_cash_flows
+from reporter.validate.flows import (
+    CashFlows,
+    earlier_end,
+    flow_period_start,
+    validate_cash_flows,
+)
 from reporter.writer import OutputSet, check_target, commit, open_staging
 
 
@@ -168,8 +173,8 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
     with progress.stage("validate"):
         benchmark, bench_problems = validate_benchmark(settings, raws)
         own, own_problems = validate_portfolio_returns(settings, raws)
-        previous_end = previous.period_end if previous is not None else None
-        flows, flow_problems = validate_cash_flows(settings, raws, previous_end)
+        flows, flow_problems = validate_cash_flows(settings, raws,
+                                                   earlier_end(settings, previous))
         inputs = validate_tables(settings, raws, [*read_problems, *bench_problems,
                                                   *own_problems, *flow_problems], strict=strict)
         del raws                    # the typed inputs hold everything needed from here on
@@ -200,8 +205,8 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
 def value_change_of(settings: Settings, res: PackResults, previous,
                     flows: CashFlows | None) -> ValueChange | None:
     """The pack's value and its change since the last pack (see :mod:`analytics.flows`)."""
-    prev_end = previous.period_end if previous is not None else None
-    prev_value = previous.portfolio.get("total_value") if previous is not None else None
+    prev_end = earlier_end(settings, previous)
+    prev_value = previous.portfolio.get("total_value") if prev_end is not None else None
     prev_value = float(prev_value) if isinstance(prev_value, int | float) else None
     return pack_value_change(
         settings.currency, settings.period_end, res.portfolio_summary()["total_value"],

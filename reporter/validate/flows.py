@@ -25,6 +25,13 @@ class CashFlows:
     amounts: np.ndarray
 
 
+def earlier_end(settings: Settings, previous) -> dt.date | None:
+    """The period end of the pack compared with, when it is before this pack's (a pack
+    compared with one of the same period has no period between them)."""
+    end = previous.period_end if previous is not None else None
+    return end if end is not None and end < settings.period_end else None
+
+
 def flow_period_start(settings: Settings, previous_end: dt.date | None) -> dt.date:
     """The day before the period the flows belong to: the last pack's period end when there
     is one to compare with, else the end of the period before this pack's last (the last
