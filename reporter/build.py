@@ -20,9 +20,14 @@ import pyarrow.csv as pacsv
 from reporter import __version__
 from reporter.analytics.allocation import allocation
 from reporter.analytics.changes import PackChanges, compare_packs
+from reporter.analytics.fees import fee_figures
 from reporter.analytics.flows import ValueChange, pack_value_change
 from reporter.analytics.pack import ROLLING_COLUMNS, PackResults, analyse
-from reporter.benchmark import validate_benchmark, validate_portfolio_returns
+from reporter.benchmark import (
+    validate_benchmark,
+    validate_gross_returns,
+    validate_portfolio_returns,
+)
 from reporter.changes import read_previous
 from reporter.charts import build_charts
 from reporter.commentary import CommentarySet, read_commentary
@@ -173,10 +178,12 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
     with progress.stage("validate"):
         benchmark, bench_problems = validate_benchmark(settings, raws)
         own, own_problems = validate_portfolio_returns(settings, raws)
+        gross, gross_problems = validate_gross_returns(settings, raws)
         flows, flow_problems = validate_cash_flows(settings, raws,
                                                    earlier_end(settings, previous))
-        inputs = validate_tables(settings, raws, [*read_problems, *bench_problems,
-                                                  *own_problems, *flow_problems], strict=strict)
+        inputs = validate_tables(settings, raws, list(dict.fromkeys(
+            [*read_problems, *bench_problems, *own_problems, *gross_problems,
+             *flow_problems])), strict=strict)
         del raws                    # the typed inputs hold everything needed from here on
         release_free_memory()
     with progress.stage("analyse"):
@@ -190,12 +197,15 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
                                     limits.as_json()["limits"] if limits else None,
                                     settings.confidence)
         money = value_change_of(settings, res, previous, flows)
+        fees = (fee_figures(res.window.dates, own, gross, settings.frequency,
+                            settings.periods_per_year) if own is not None and gross is not None
+                else None)
     with progress.stage("chart"):
         charts = build_charts(res, limits)
         ctx = build_context(settings, inputs, res, charts, fingerprint(hashes),
                             at or build_time(), limits=limits, changes=changes,
                             compare_note=compare_note, commentary=commentary.by_section,
-                            value_change=money)
+                            value_change=money, fees=fees)
         svgs = export_charts(ctx)
         for_pdf = print_charts(ctx, svgs)
     return Assembled(settings, inputs, res, ctx, svgs, hashes, print_svgs=for_pdf, limits=limits,

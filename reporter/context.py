@@ -125,6 +125,7 @@ class PackContext:
     stand_ins: list[dict] = field(default_factory=list)    # cash, proxied, excluded holdings
     has_values: bool = False         # the holdings give market values
     asset_class_ranges: dict[str, dict] = field(default_factory=dict)  # class -> range status
+    fees: dict | None = None         # analytics.fees.fee_figures: net, gross and fee drag
 
 
 def _records(df) -> list[dict]:
@@ -137,7 +138,8 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
                   build_time: dt.datetime, *, limits: LimitsReport | None = None,
                   changes: PackChanges | None = None, compare_note: str | None = None,
                   commentary: dict | None = None,
-                  value_change: ValueChange | None = None) -> PackContext:
+                  value_change: ValueChange | None = None,
+                  fees: dict | None = None) -> PackContext:
     """Assemble the context for the pack templates. The "Since last pack" section is
     listed only when there is a comparison (or a note saying why there is none)."""
     alloc = allocation(res.securities)
@@ -199,5 +201,5 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         has_benchmark="benchmark" in settings.inputs,
         value_change=value_change, allocation=_records(alloc),
         stand_ins=_records(stand_ins), has_values="market_value" in sec,
-        asset_class_ranges=limits.asset_class_status() if limits else {},
+        asset_class_ranges=limits.asset_class_status() if limits else {}, fees=fees,
     )

@@ -16,9 +16,10 @@ from reporter.validate.values import PERCENT_MEDIAN, _check_return_values, looks
 
 
 def validate_series(raw: RawTable, value_col: str, settings: Settings,
-                    coll: Collector) -> DatedSeries | None:
-    """A ``date,<value_col>`` series: dates valid, unique per period, values numeric."""
-    if not _require_columns(raw, ("date", value_col), (), coll):
+                    coll: Collector, optional: tuple[str, ...] = ()) -> DatedSeries | None:
+    """A ``date,<value_col>`` series: dates valid, unique per period, values numeric.
+    ``optional``: further columns allowed (read by the caller)."""
+    if not _require_columns(raw, ("date", value_col), optional, coll):
         return None
     if raw.table.num_rows == 0:
         coll.error(raw.name, "the file has no rows")
