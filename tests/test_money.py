@@ -193,3 +193,48 @@ def test_bad_money_inputs_exit_2_and_write_nothing(tmp_path, capsys, edit, line)
     assert code == 2, err
     assert line in err
     assert "Traceback" not in err and not out.exists()
+
+
+DEMO_FUND = DEMO.parent / "demo-fund"
+
+
+@pytest.fixture(scope="module")
+def fund_assembled():
+    return assemble(load_settings(DEMO_FUND))
+
+
+def test_mandates_use_their_managers_own_returns(fund_assembled):
+    # the demo fund's first three mandates report their own returns; the fourth is a
+    # back-cast from today's weights
+    parts = fund_assembled.parts
+    assert [p.results.portfolio_source for p in parts] == [
+        "portfolio returns file"] * 3 + ["current weights"]
+    own = pd.read_csv(DEMO_FUND / "manager_domestic.csv")
+    res = parts[0].results
+    window = pd.DatetimeIndex(res.window.dates).strftime("%Y-%m-%d")
+    np.testing.assert_allclose(res.portfolio_series,
+                               own.set_index("date").loc[window, "return"], rtol=0, atol=0)
+    fees = parts[0].context.fees
+    g = own.set_index("date").loc[window, "gross_return"].to_numpy()
+    n = own.set_index("date").loc[window, "return"].to_numpy()
+    # cumulative return prod(1 + r) - 1, annualised geometrically (GIPS convention)
+    assert fees["gross_return"] == pytest.approx(np.prod(1 + g) - 1, rel=1e-12)
+    assert fees["net_return"] == pytest.approx(np.prod(1 + n) - 1, rel=1e-12)
+    assert fees["fee_drag_mean"] == pytest.approx(0.0030 / 12, abs=1e-6)   # the demo's fee
+    assert 0.0025 < fees["fee_drag_ann"] < 0.0035
+    assert parts[3].context.fees is None
+    html = fund_assembled.html()
+    assert "back-cast" in html and "Fee drag" in html
+
+
+def test_a_mandate_returns_file_short_of_the_window_is_refused(tmp_path, capsys):
+    pack = tmp_path / "fund"
+    shutil.copytree(DEMO_FUND, pack)
+    own = pd.read_csv(pack / "manager_overseas.csv")
+    own.iloc[:-2].to_csv(pack / "manager_overseas.csv", index=False)    # ends two months short
+    out = tmp_path / "out"
+    assert main(["build", str(pack), "--out", str(out), "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert ("manager_overseas.csv:date: the portfolio returns series does not cover the "
+            "window: 2 period(s) missing, first 2026-10-31") in err
+    assert not out.exists()
