@@ -106,8 +106,9 @@ def _pack_for_period(tmp: Path, period: str) -> Path:
     toml = dest / "pack.toml"
     text = toml.read_text(encoding="utf-8")
     assert "period_end = 2026-11-30" in text
-    toml.write_text(text.replace("period_end = 2026-11-30", f"period_end = {period}"),
-                    encoding="utf-8")
+    text = text.replace("period_end = 2026-11-30", f"period_end = {period}")
+    # the demo's cash flows are November's: outside an earlier period
+    toml.write_text(text.replace('cash_flows = "cash_flows.csv"\n', ""), encoding="utf-8")
     return dest
 
 

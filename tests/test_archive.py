@@ -22,7 +22,7 @@ from tests.conftest import DEMO, SIGNER, ledger_entries, run_cli
 PERIOD = "2026-11-30"
 FIRST = f"{PERIOD}/tarnbrook-valley-{PERIOD}.pdf"
 SECOND = f"{PERIOD}/tarnbrook-valley-{PERIOD}-r2.pdf"
-INPUT_FILES = ["holdings.csv", "returns.csv", "market.csv", "risk_free.csv"]
+INPUT_FILES = ["holdings.csv", "returns.csv", "market.csv", "risk_free.csv", "cash_flows.csv"]
 
 
 def sha(path: Path) -> str:
