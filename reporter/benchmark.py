@@ -15,10 +15,12 @@ import numpy as np
 
 from reporter.analytics.returns import period_keys
 from reporter.config import Settings
-from reporter.errors import Collector, Problem
+from reporter.errors import Collector, Problem, place
 from reporter.models import DatedSeries
 from reporter.readers import RawTable
 from reporter.validate import validate_series
+
+GROSS = "gross_return"      # optional column of a portfolio returns file: before fees
 
 
 def validate_benchmark(settings: Settings,
@@ -27,15 +29,32 @@ def validate_benchmark(settings: Settings,
     return validate_optional_series(settings, raws, "benchmark", "benchmark series")
 
 
-def validate_portfolio_returns(settings: Settings, raws: dict[str, RawTable]
+def validate_portfolio_returns(settings: Settings, raws: dict[str, RawTable],
+                               role: str = "portfolio_returns"
                                ) -> tuple[DatedSeries | None, list[Problem]]:
-    """The portfolio's own returns and their problems; see :func:`validate_optional_series`."""
-    return validate_optional_series(settings, raws, "portfolio_returns",
-                                    "portfolio returns series")
+    """The portfolio's (or a mandate's) own returns, net of fees, and their problems; see
+    :func:`validate_optional_series`. The file may also carry ``gross_return``."""
+    return validate_optional_series(settings, raws, role, "portfolio returns series",
+                                    optional=(GROSS,))
+
+
+def validate_gross_returns(settings: Settings, raws: dict[str, RawTable],
+                           role: str = "portfolio_returns"
+                           ) -> tuple[DatedSeries | None, list[Problem]]:
+    """The ``gross_return`` column of a portfolio returns file (before fees), checked like
+    the net ``return``; (None, []) when the file has none."""
+    raw = raws.get(role)
+    if raw is None or GROSS not in raw.table.column_names:
+        return None, []
+    gross = dataclasses.replace(raw, table=raw.table.select(["date", GROSS]))
+    return validate_optional_series(settings, {**raws, role: gross}, role,
+                                    "gross returns series", value_col=GROSS)
 
 
 def validate_optional_series(settings: Settings, raws: dict[str, RawTable], role: str,
-                             label: str) -> tuple[DatedSeries | None, list[Problem]]:
+                             label: str, optional: tuple[str, ...] = (),
+                             value_col: str = "return"
+                             ) -> tuple[DatedSeries | None, list[Problem]]:
     """The optional series ``role`` and its problems (errors and warnings), or (None, []) when
     the pack names none or its file could not be read (that problem is already reported).
 
@@ -47,9 +66,10 @@ def validate_optional_series(settings: Settings, raws: dict[str, RawTable], role
         return None, []
     spec = settings.inputs[role]
     # validate_series reads the market's options; hand it the series' own
-    as_market = dataclasses.replace(settings, inputs={**settings.inputs, "market": spec})
+    as_market = dataclasses.replace(settings, inputs={**settings.inputs, "market": spec,
+                                                      "risk_free": spec})
     coll = Collector()
-    series = validate_series(raws[role], "return", as_market, coll)
+    series = validate_series(raws[role], value_col, as_market, coll, optional)
     market = validate_series(raws["market"], "return", settings, Collector()) \
         if "market" in raws else None
     if series is not None and market is not None:
@@ -60,6 +80,7 @@ def validate_optional_series(settings: Settings, raws: dict[str, RawTable], role
         missing = np.setdiff1d(win, period_keys(series.dates, freq))
         if len(missing):
             first = market.dates[np.isin(mkeys, missing)][0]
-            coll.error(spec.display, f"the {label} does not cover the window: "
+            coll.error(place(spec.display, None, "date"), f"the {label} does not cover "
+                       "the window: "
                        f"{len(missing)} period(s) missing, first {first}")
     return series, coll.problems

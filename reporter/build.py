@@ -19,10 +19,17 @@ import pyarrow.csv as pacsv
 
 from reporter import __version__
 from reporter.actions import ActionLog, read_actions
+from reporter.analytics.allocation import allocation
 from reporter.analytics.changes import PackChanges, compare_packs
+from reporter.analytics.fees import fee_figures
+from reporter.analytics.flows import ValueChange, pack_value_change
 from reporter.analytics.pack import ROLLING_COLUMNS, PackResults, analyse
 from reporter.analytics.style import StyleResults, analyse_style
-from reporter.benchmark import validate_benchmark, validate_portfolio_returns
+from reporter.benchmark import (
+    validate_benchmark,
+    validate_gross_returns,
+    validate_portfolio_returns,
+)
 from reporter.changes import read_previous
 from reporter.charts import build_charts
 from reporter.commentary import CommentarySet, read_commentary
@@ -41,6 +48,12 @@ from reporter.render.html import export_charts, print_charts, render_html
 from reporter.render.pdf import render_pdf
 from reporter.style_charts import style_charts
 from reporter.validate import read_inputs, validate_tables
+from reporter.validate.flows import (
+    CashFlows,
+    earlier_end,
+    flow_period_start,
+    validate_cash_flows,
+)
 from reporter.workbook import pack_workbook
 from reporter.writer import OutputSet, check_target, commit, open_staging
 
@@ -190,8 +203,12 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
         benchmark, bench_problems = validate_benchmark(settings, raws)
         own, own_problems = validate_portfolio_returns(settings, raws)
         style_in, style_problems = validate_style_inputs(settings, raws)
-        inputs = validate_tables(settings, raws, [*read_problems, *bench_problems,
-                                                  *own_problems, *style_problems], strict=strict)
+        gross, gross_problems = validate_gross_returns(settings, raws)
+        flows, flow_problems = validate_cash_flows(settings, raws,
+                                                   earlier_end(settings, previous))
+        inputs = validate_tables(settings, raws, list(dict.fromkeys(
+            [*read_problems, *bench_problems, *own_problems, *style_problems,
+             *gross_problems, *flow_problems])), strict=strict)
         del raws                    # the typed inputs hold everything needed from here on
         release_free_memory()
     with progress.stage("analyse"):
@@ -206,17 +223,33 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
             changes = compare_packs(previous, res,
                                     limits.as_json()["limits"] if limits else None,
                                     settings.confidence)
+        money = value_change_of(settings, res, previous, flows)
+        fees = (fee_figures(res.window.dates, own, gross, settings.frequency,
+                            settings.periods_per_year) if own is not None and gross is not None
+                else None)
     with progress.stage("chart"):
         charts = build_charts(res, limits) | style_charts(style)
         ctx = build_context(settings, inputs, res, charts, fingerprint(hashes),
                             at or build_time(), limits=limits, changes=changes,
                             compare_note=compare_note, commentary=commentary.by_section,
-                            style=style, actions=actions)
+                            style=style, actions=actions, value_change=money, fees=fees)
         svgs = export_charts(ctx)
         for_pdf = print_charts(ctx, svgs)
     return Assembled(settings, inputs, res, ctx, svgs, hashes, print_svgs=for_pdf, limits=limits,
                      changes=changes, compare_warnings=compare_warnings, commentary=commentary,
                      style=style)
+
+
+def value_change_of(settings: Settings, res: PackResults, previous,
+                    flows: CashFlows | None) -> ValueChange | None:
+    """The pack's value and its change since the last pack (see :mod:`analytics.flows`)."""
+    prev_end = earlier_end(settings, previous)
+    prev_value = previous.portfolio.get("total_value") if prev_end is not None else None
+    prev_value = float(prev_value) if isinstance(prev_value, int | float) else None
+    return pack_value_change(
+        settings.currency, settings.period_end, res.portfolio_summary()["total_value"],
+        prev_end, prev_value, flow_period_start(settings, prev_end),
+        flows.dates if flows is not None else None, flows.amounts if flows is not None else None)
 
 
 def results_files(a: Assembled, files: OutputSet) -> None:
@@ -249,6 +282,10 @@ def results_files(a: Assembled, files: OutputSet) -> None:
         files.add("results/risk_scenarios.csv", res.stress.csv_text())
     if a.limits is not None:
         files.add("results/limits.json", json_text(a.limits.as_json()))
+    if a.context.value_change is not None:
+        files.add("results/value.json", json_text(a.context.value_change.as_json()))
+    if a.context.allocation:
+        files.add("results/allocation.csv", csv_text(allocation(res.securities)))
     if settings.compare_build is not None or settings.compare_archive is not None:
         doc = a.changes.as_json() if a.changes is not None else {
             "previous": None, "note": ctx.compare_note}

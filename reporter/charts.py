@@ -14,6 +14,7 @@ import altair as alt
 import numpy as np
 import pandas as pd
 
+from reporter.allocation_chart import allocation_charts
 from reporter.analytics.pack import PORTFOLIO_SERIES, PackResults
 from reporter.analytics.sml import WITHIN
 
@@ -287,6 +288,7 @@ def build_charts(res: PackResults, limits=None,
         "diversification": diversification_chart(res),
         "growth": growth_chart(res, market_label),
         "risk_contributions": risk_contribution_chart(res),
+        **allocation_charts(res.securities),
     }
 
 

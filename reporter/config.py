@@ -24,7 +24,7 @@ from reporter.stress_config import Shock, StressSection
 
 PERIODS_PER_YEAR = {"monthly": 12, "weekly": 52, "daily": 252}
 INPUT_ROLES = ("holdings", "returns", "market", "risk_free")
-OPTIONAL_ROLES = ("benchmark", "portfolio_returns",   # read only when pack.toml names them
+OPTIONAL_ROLES = ("benchmark", "portfolio_returns", "cash_flows",   # read only when named
                   "factors", "benchmark_sectors", "weights_history")   # see factor_inputs
 
 
@@ -75,6 +75,7 @@ class InputsSection(_Strict):
     factors: str | InputFile | None = None             # optional: see reporter.factor_inputs
     benchmark_sectors: str | InputFile | None = None
     weights_history: str | InputFile | None = None
+    cash_flows: str | InputFile | None = None   # optional `date, amount` (+ in); see flows.py
     delimiter: Annotated[str, Field(min_length=1, max_length=1)] = ","
     decimal: Literal[".", ","] = "."
     date_format: Annotated[str, Field(min_length=2)] = "%Y-%m-%d"
@@ -129,7 +130,8 @@ class LimitsSection(_Strict):
 
     ``max_sector_weight`` is one maximum for every sector, or a table of per-sector maxima
     in which the key ``"*"`` covers every sector not named. ``watch_margin`` is a fraction
-    of each limit: a value within that distance inside the limit is on watch.
+    of each limit (of the band's width for a two-sided band or range): a value within that
+    distance inside the limit is on watch.
     """
 
     beta_min: float | None = None
@@ -144,6 +146,9 @@ class LimitsSection(_Strict):
     max_stress_loss: Fraction | None = None       # loss from beta x stress_shock
     stress_shock: Shock = -0.20
     watch_margin: Annotated[float, Field(ge=0.0, lt=1.0)] = 0.10
+    # asset class -> [low, high] share of the portfolio (decimals); see limits.py
+    asset_class_ranges: dict[str, Annotated[list[Annotated[float, Field(ge=0.0, le=1.0)]],
+                                            Field(min_length=2, max_length=2)]] | None = None
 
 
 class CompareSection(_Strict):
@@ -172,6 +177,7 @@ class MandateSection(_Strict):
                      Field(min_length=2, max_length=2)] | None = None
     weight: Annotated[float, Field(ge=0.0, le=1.0)] | None = None
     limits: LimitsSection | None = None
+    portfolio_returns: str | InputFile | None = None   # the manager's own returns
 
 
 class FundSection(_Strict):
@@ -501,6 +507,8 @@ def resolve_mandates(model: PackFile, fname: str, add_input, problems: list[Prob
         b_role = f"{key}.benchmark" if m.benchmark is not None else "market"
         if m.benchmark is not None:
             add_input(b_role, m.benchmark, b_role)
+        if m.portfolio_returns is not None:
+            add_input(f"{key}.portfolio_returns", m.portfolio_returns, f"{key}.portfolio_returns")
         slug = re.sub(r"[^a-z0-9]+", "-", name.lower()).strip("-") or "mandate"
         out.append(Mandate(index=i, name=name, slug=f"m{i + 1}-{slug}"[:60],
                            holdings_role=h_role, benchmark_role=b_role,
@@ -523,9 +531,8 @@ def resolve_mandates(model: PackFile, fname: str, add_input, problems: list[Prob
     elif bench is not None:
         kind = "file"
         add_input("fund.benchmark", bench, "fund.benchmark")
-    if model.inputs.benchmark is not None or model.inputs.portfolio_returns is not None:
-        which = "benchmark" if model.inputs.benchmark is not None else "portfolio_returns"
-        problems.append(Problem(f"{fname}:inputs.{which}", "not used in a fund with mandates: "
+    if model.inputs.benchmark is not None:
+        problems.append(Problem(f"{fname}:inputs.benchmark", "not used in a fund with mandates: "
                                 "give the fund's benchmark in [fund] and each mandate's in "
                                 "[[mandates]]"))
     for role in ("factors", "benchmark_sectors", "weights_history"):   # see factor_inputs
@@ -554,6 +561,9 @@ def limits_problems(limits: LimitsSection | None, fname: str,
                            f"beta_min ({limits.beta_min}) is above beta_max ({limits.beta_max})"))
     if isinstance(limits.max_sector_weight, dict) and not limits.max_sector_weight:
         out.append(Problem(f"{fname}:{prefix}.max_sector_weight", "the table names no sector"))
+    out += [Problem(f"{fname}:{prefix}.asset_class_ranges.{k}", f"the range's low ({lo:g}) "
+                    f"is above its high ({hi:g})")
+            for k, (lo, hi) in (limits.asset_class_ranges or {}).items() if lo > hi]
     return out
 
 

@@ -14,7 +14,9 @@ import numpy as np
 
 from reporter import __version__
 from reporter.actions import ActionLog
+from reporter.analytics.allocation import allocation
 from reporter.analytics.changes import PackChanges
+from reporter.analytics.flows import ValueChange
 from reporter.analytics.pack import PackResults
 from reporter.analytics.sml import ABOVE, BELOW
 from reporter.config import Settings
@@ -53,6 +55,7 @@ class Section:
 SECTIONS = (
     Section("summary", "Summary"),
     Section("changes", "Since last pack"),
+    Section("allocation", "Allocation"),
     Section("returns", "Returns and ratios"),
     Section("market-risk", "Market risk"),
     Section("beta", "Beta estimates"),
@@ -127,6 +130,12 @@ class PackContext:
     attribution: dict | None = None  # reporter.style_context.attribution_view
     input_kinds: dict[str, str] = field(default_factory=dict)  # "returns" | "prices"
     actions: ActionLog = field(default_factory=ActionLog)    # actions.csv, overdue first
+    value_change: ValueChange | None = None   # value, change and flows; None: no values
+    allocation: list[dict] = field(default_factory=list)   # analytics.allocation rows
+    stand_ins: list[dict] = field(default_factory=list)    # cash, proxied, excluded holdings
+    has_values: bool = False         # the holdings give market values
+    asset_class_ranges: dict[str, dict] = field(default_factory=dict)  # class -> range status
+    fees: dict | None = None         # analytics.fees.fee_figures: net, gross and fee drag
 
 
 def _records(df) -> list[dict]:
@@ -139,13 +148,17 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
                   build_time: dt.datetime, *, limits: LimitsReport | None = None,
                   changes: PackChanges | None = None, compare_note: str | None = None,
                   commentary: dict | None = None, style=None,
-                  actions: ActionLog | None = None) -> PackContext:
+                  actions: ActionLog | None = None,
+                  value_change: ValueChange | None = None,
+                  fees: dict | None = None) -> PackContext:
     """Assemble the context for the pack templates. The "Since last pack" section is
     listed only when there is a comparison (or a note saying why there is none)."""
     views = {"style": style and factor_view(style, res),
              "attribution": style and attribution_view(style)}
+    alloc = allocation(res.securities)
     shown = tuple(s for s in SECTIONS
                   if (s.anchor != "changes" or changes is not None or compare_note)
+                  and (s.anchor != "allocation" or not alloc.empty)
                   and views.get(s.anchor, True))
     sec = res.securities.copy()
     # the alpha t-statistic from the errors behind the pack's intervals and SML positions
@@ -159,7 +172,8 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
     counts = {p: int((fitted["sml_position"] == p).sum()) for p in (ABOVE, BELOW)}
     counts["within"] = int(len(fitted) - counts[ABOVE] - counts[BELOW])
     notes = [str(w) for w in inputs.warnings]
-    unfitted = sec[sec["status"] != "fitted"]
+    unfitted = sec[sec["status"].str.startswith("not fitted")]
+    stand_ins = sec[(sec["status"] != "fitted") & ~sec["status"].str.startswith("not fitted")]
     return PackContext(
         title=settings.title, organisation=settings.organisation,
         period_end=settings.period_end, frequency=settings.frequency,
@@ -203,4 +217,7 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         stress=res.stress.as_json() if res.stress is not None else {},
         style=views["style"], attribution=views["attribution"],
         actions=actions or ActionLog(),
+        value_change=value_change, allocation=_records(alloc),
+        stand_ins=_records(stand_ins), has_values="market_value" in sec,
+        asset_class_ranges=limits.asset_class_status() if limits else {}, fees=fees,
     )

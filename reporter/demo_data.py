@@ -25,6 +25,12 @@ SECTORS = ["Industrials", "Financials", "Health Care", "Consumer Staples",
 FIRST = ["Ash", "Bram", "Corr", "Dun", "Elm", "Fen", "Gort", "Hal", "Ings", "Kell", "Lang",
          "Mire", "Ness", "Orm", "Pell", "Quarn", "Rook", "Sand", "Thorn", "Ulls", "Vell",
          "Wold", "Yarr", "Brack", "Cald"]
+TOTAL_VALUE = 248_500_000.0     # the scheme's listed equity portfolio, GBP (invented)
+CASH_SHARE = 0.03
+OVERSEAS = {2: ("USD", "United States"), 5: ("EUR", "Germany"), 7: ("EUR", "France")}
+# the month's external flows, GBP: contributions in, benefits and transfers out (invented)
+CASH_FLOWS = [["2026-11-07", "1850000.00"], ["2026-11-19", "-2640000.00"],
+              ["2026-11-26", "415000.00"]]
 SECOND = ["brook", "field", "moor", "wick", "stead", "holt", "dale", "mere", "ford", "combe"]
 KIND = {"Industrials": "Engineering", "Financials": "Mutual", "Health Care": "Therapeutics",
         "Consumer Staples": "Foods", "Consumer Discretionary": "Leisure", "Energy": "Power",
@@ -48,6 +54,7 @@ market = "market.csv"
 risk_free = "risk_free.csv"
 factors = "factors.csv"
 benchmark_sectors = "benchmark_sectors.csv"
+cash_flows = "cash_flows.csv"
 
 [analysis]
 window = 60
@@ -63,6 +70,14 @@ min_effective_n = 25
 min_holdings = 40
 max_tracking_error_ann = 0.05
 max_idiosyncratic_share = 0.10
+asset_class_ranges = { Equity = [0.93, 0.99], Cash = [0.01, 0.05] }
+
+# A named window replayed on today's holdings in "Stress and scenarios" (besides the
+# automatic worst periods); the dates must lie inside the returns history.
+[[stress.scenarios]]
+name = "First quarter 2020"
+start = 2020-01-01
+end = 2020-03-31
 """
 
 # The investment officer's note for the summary page (invented, like everything here).
@@ -89,7 +104,8 @@ not to read the chart as a league table.
 
 
 def generate(out: Path, n_holdings: int = 60) -> None:
-    """Write pack.toml, holdings.csv, returns.csv, market.csv and risk_free.csv into ``out``."""
+    """Write pack.toml, holdings.csv, returns.csv, market.csv, risk_free.csv and
+    cash_flows.csv into ``out``."""
     rng = np.random.default_rng(SEED)
     dates = pd.date_range(end=PERIOD_END, periods=N_MONTHS, freq="ME")
     t = np.arange(N_MONTHS)
@@ -134,13 +150,22 @@ def generate(out: Path, n_holdings: int = 60) -> None:
     mv = np.exp(rng.normal(0, 0.9, n_holdings))
     w = np.round(mv / mv.sum(), 6)
     w[np.argmax(w)] += round(1.0 - w.sum(), 6)
+    # market values in GBP: the equities hold 97% of the value and a cash deposit 3%
+    value = np.round(w * (1 - CASH_SHARE) * TOTAL_VALUE, 2)
+    where = [OVERSEAS.get(i % 9, ("GBP", "United Kingdom")) for i in range(n_holdings)]
 
     out.mkdir(parents=True, exist_ok=True)
     (out / "pack.toml").write_text(PACK_TOML, encoding="utf-8")
     (out / "commentary").mkdir(exist_ok=True)
     (out / "commentary" / "summary.md").write_text(SUMMARY_COMMENTARY, encoding="utf-8")
-    _write(out / "holdings.csv", ["security_id", "name", "sector", "weight"],
-           [[ids[i], names[i], sector_of[i], f"{w[i]:.6f}"] for i in range(n_holdings)])
+    _write(out / "holdings.csv",
+           ["security_id", "name", "sector", "asset_class", "currency", "country",
+            "market_value"],
+           [[ids[i], names[i], sector_of[i], "Equity", *where[i], f"{value[i]:.2f}"]
+            for i in range(n_holdings)]
+           + [["CASH01", "Sterling deposit account", "Cash", "Cash", "GBP", "United Kingdom",
+               f"{CASH_SHARE * TOTAL_VALUE:.2f}"]])
+    _write(out / "cash_flows.csv", ["date", "amount"], CASH_FLOWS)
     iso = [d.strftime("%Y-%m-%d") for d in dates]
     _write(out / "market.csv", ["date", "return"],
            [[iso[k], f"{market[k]:.6f}"] for k in range(N_MONTHS)])

@@ -91,6 +91,7 @@ min_effective_n = 40
 name = "Domestic equity"
 manager = "Harrowmere Asset Managers"
 benchmark = { path = "benchmark_domestic.csv", name = "Domestic equity index" }
+portfolio_returns = "manager_domestic.csv"    # the manager's own returns, net and gross
 strategic_weight = 0.35
 range = [0.30, 0.40]
 [mandates.limits]
@@ -102,6 +103,7 @@ max_tracking_error_ann = 0.04
 name = "Overseas equity"
 manager = "Calloway Brook Investors"
 benchmark = { path = "benchmark_overseas.csv", name = "Overseas equity index" }
+portfolio_returns = "manager_overseas.csv"
 strategic_weight = 0.30
 range = [0.25, 0.35]
 [mandates.limits]
@@ -111,6 +113,7 @@ max_holding_weight = 0.06
 name = "Low-volatility equity"
 manager = "Tennick Lane Partners"
 benchmark = { path = "benchmark_lowvol.csv", name = "Minimum-volatility index" }
+portfolio_returns = "manager_lowvol.csv"
 strategic_weight = 0.20
 range = [0.17, 0.23]
 [mandates.limits]
@@ -150,6 +153,7 @@ def generate(folder: Path, seed: int = SEED) -> None:
     used: set[str] = set()
     holdings, returns = [], {}
     first_ids: list[list[str]] = []
+    backcasts = []
     for plan in PLANS:
         bench = plan.world_loading * world + rng.normal(0.0005, plan.own_vol or 1e-12, N_MONTHS)
         if plan.benchmark is None:
@@ -173,6 +177,7 @@ def generate(folder: Path, seed: int = SEED) -> None:
         holdings += [{"mandate": plan.name, "security_id": ids[j], "name": names[j],
                       "sector": sec[j], "market_value": mv[j]} for j in range(plan.n)]
         first_ids.append(ids)
+        backcasts.append((plan, r, mv))
     for holder, source, count in SHARED:     # a second position in another mandate's names
         plan = PLANS[holder]
         for sid in first_ids[source][:count]:
@@ -182,7 +187,31 @@ def generate(folder: Path, seed: int = SEED) -> None:
     # each mandate's market values now add to a little more than planned: fine for a demo
     pd.DataFrame(holdings).to_csv(folder / "holdings.csv", index=False)
     pd.DataFrame({"date": dates, **returns}).to_csv(folder / "returns.csv", index=False)
+    _manager_returns(folder, dates, backcasts, seed)
     (folder / "pack.toml").write_text(PACK_TOML, encoding="utf-8")
+
+
+# each manager's annual fee (invented), for the mandates that report their own returns
+MANAGER_FEES = {"benchmark_domestic.csv": 0.0030, "benchmark_overseas.csv": 0.0045,
+                "benchmark_lowvol.csv": 0.0035}
+
+
+def _manager_returns(folder: Path, dates, backcasts, seed: int) -> None:
+    """``manager_<x>.csv`` for each mandate with a benchmark file: the manager's reported
+    returns, gross of fees (today's holdings' returns at today's weights plus trading the
+    back-cast cannot see) and net (less a twelfth of the annual fee each month)."""
+    rng = np.random.default_rng(seed + 1)      # its own stream: the other files unchanged
+    for plan, r, mv in backcasts:
+        if plan.benchmark not in MANAGER_FEES:
+            continue
+        present = np.isfinite(r)
+        w = np.where(present, mv[None, :], 0.0)
+        gross = (np.where(present, r, 0.0) @ mv) / w.sum(axis=1)
+        gross = gross + rng.normal(0.0, 0.0025, len(gross))
+        net = gross - MANAGER_FEES[plan.benchmark] / 12
+        pd.DataFrame({"date": dates, "return": np.round(net, 6),
+                      "gross_return": np.round(gross, 6)}).to_csv(
+            folder / plan.benchmark.replace("benchmark_", "manager_"), index=False)
 
 
 if __name__ == "__main__":

@@ -17,6 +17,7 @@ from markupsafe import Markup
 
 from reporter.actions import ActionLog
 from reporter.analytics.changes import PackChanges, compare_packs
+from reporter.analytics.fees import fee_figures
 from reporter.analytics.fund import (
     MandateRisk,
     mandate_risk,
@@ -200,10 +201,11 @@ def analyse_fund(fin: FundInputs, settings: Settings) -> FundAnalysis:
     """Analyse the total fund against its benchmark and each mandate against its own (the
     single-portfolio :func:`analyse` each time), then the mandates' Euler contributions to the
     fund's risk, the mandates table and the overlap between mandates. Pure; no I/O."""
-    total = analyse(fin.total, settings)
+    total = analyse(fin.total, settings, portfolio=fin.own)
     own = tuple(dataclasses.replace(settings, limits=m.mandate.limits) for m in fin.mandates)
     # a handful of mandates; each analysis is vectorised over its holdings
-    results = tuple(analyse(m.inputs, s) for m, s in zip(fin.mandates, own, strict=True))
+    results = tuple(analyse(m.inputs, s, portfolio=m.own)
+                    for m, s in zip(fin.mandates, own, strict=True))
     names = tuple(m.mandate.name for m in fin.mandates)
     weights = np.array([m.weight for m in fin.mandates])
     u = mandate_weight_matrix(fin.total.holdings.ids, fin.positions, list(names))
@@ -228,11 +230,14 @@ def _part(name: str, slug: str, settings: Settings, inputs, res: PackResults,
           fingerprint: str, at: dt.datetime, benchmark: str, weight: float,
           commentary: dict | None, limits: LimitsReport | None,
           changes: PackChanges | None = None, compare_note: str | None = None,
-          actions: ActionLog | None = None) -> FundPart:
+          actions: ActionLog | None = None, own=None, gross=None) -> FundPart:
     charts = build_charts(res, limits, "Benchmark")
+    fees = (fee_figures(res.window.dates, own, gross, settings.frequency,
+                        settings.periods_per_year) if own is not None and gross is not None
+            else None)
     ctx = build_context(settings, inputs, res, charts, fingerprint, at, limits=limits,
                         commentary=commentary, changes=changes, compare_note=compare_note,
-                        actions=actions)
+                        actions=actions, fees=fees)
     svgs = export_charts(ctx)
     return FundPart(name=name, slug=slug, settings=settings, results=res, context=ctx,
                     svgs=svgs, print_svgs=print_charts(ctx, svgs), limits=limits,
@@ -284,11 +289,12 @@ def assemble_fund(settings: Settings, *, strict: bool = False,
                       fin.benchmark_label, 1.0,   # the summary note is on the fund overview
                       {k: c for k, c in commentary.by_section.items() if k != "summary"},
                       total_limits, changes=changes, compare_note=compare_note,
-                      actions=actions)
+                      actions=actions, own=fin.own, gross=fin.gross)
         parts = tuple(
             _part(m.mandate.name, m.mandate.slug, own, m.inputs, res, fp, at,
                   m.benchmark_phrase, m.weight, None, limits[k],
-                  changes=mandate_changes[k], compare_note=mandate_notes[k])
+                  changes=mandate_changes[k], compare_note=mandate_notes[k],
+                  own=m.own, gross=m.gross)
             for k, (m, own, res) in enumerate(zip(fin.mandates, fa.settings,
                                                   fa.mandate_results, strict=True)))
         mandates_only = fa.table[fa.table["mandate"] != TOTAL_FUND]

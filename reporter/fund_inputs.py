@@ -22,6 +22,7 @@ import numpy as np
 import pandas as pd
 
 from reporter.analytics.returns import period_keys
+from reporter.benchmark import validate_gross_returns, validate_portfolio_returns
 from reporter.config import Mandate, Settings
 from reporter.errors import Collector, Problem, place
 from reporter.input_options import against_phrase, series_name
@@ -50,6 +51,8 @@ class MandateInputs:
     weight: float                    # v_m, the mandate's current weight in the fund
     benchmark_name: str              # the benchmark's name (pack.toml's name, or "Benchmark")
     benchmark_phrase: str = "its benchmark"   # the same in a sentence (input_options)
+    own: DatedSeries | None = None   # the manager's own returns, net of fees (if given)
+    gross: DatedSeries | None = None  # and gross of fees (if the file gives them)
 
 
 @dataclass(frozen=True)
@@ -65,6 +68,8 @@ class FundInputs:
     positions: pd.DataFrame          # mandate, security_id, name, weight_in_mandate,
     #                                  weight_in_fund: one row per holding of each mandate
     warnings: list[Problem]
+    own: DatedSeries | None = None   # the total fund's own returns, net ([inputs]) ...
+    gross: DatedSeries | None = None  # ... and gross of fees
 
 
 def _subtable(raw: RawTable, idx: np.ndarray) -> RawTable:
@@ -251,6 +256,9 @@ def validate_fund(settings: Settings, raws: dict[str, RawTable], read_problems=(
             {"fund.benchmark"} if settings.fund_benchmark == "file" else set())
         for role in sorted(roles - {"market"}):
             benches[role] = _series_problems(settings, role, raws, rf, coll)
+    owns = {role: _own_returns(settings, raws, role, coll)
+            for role in [f"mandates.{m.index}.portfolio_returns" for m in ms]
+            + ["portfolio_returns"] if role in settings.inputs}
     # each problem once (the same risk-free gap is found against every benchmark)
     coll.problems = list(dict.fromkeys(coll.problems))
     coll.raise_if_errors(strict=strict)
@@ -282,13 +290,24 @@ def validate_fund(settings: Settings, raws: dict[str, RawTable], read_problems=(
             inputs=ValidInputs(holdings=h, returns=sub, market=benches[m.benchmark_role],
                                risk_free=rf, warnings=[]),
             benchmark_name=series_name(settings, m.benchmark_role),
-            benchmark_phrase=against_phrase(settings, m.benchmark_role)))
+            benchmark_phrase=against_phrase(settings, m.benchmark_role),
+            **owns.get(f"mandates.{m.index}.portfolio_returns", {})))
     total = ValidInputs(holdings=union, returns=panel, market=fund_market, risk_free=rf,
                         warnings=coll.warnings)
     return FundInputs(total=total, mandates=tuple(out), benchmark_label=label,
                       benchmark_name=short,
                       weight_source=weight_source, positions=positions,
-                      warnings=coll.warnings)
+                      warnings=coll.warnings, **owns.get("portfolio_returns", {}))
+
+
+def _own_returns(settings: Settings, raws: dict[str, RawTable], role: str,
+                 coll: Collector) -> dict:
+    """A portfolio returns file (the fund's or a mandate's): ``{"own": net, "gross": gross}``
+    with its problems added to ``coll``; each must cover the window."""
+    net, problems = validate_portfolio_returns(settings, raws, role)
+    gross, gross_problems = validate_gross_returns(settings, raws, role)
+    coll.problems.extend([*problems, *gross_problems])
+    return {"own": net, "gross": gross}
 
 
 def _warn_conflicts(long: pd.DataFrame, where: str, coll: Collector) -> None:

@@ -1,9 +1,12 @@
 """Policy limits: each ``[limits]`` key checked against the pack's figures (pure; no I/O).
 
 Every limit gets a status: ``breach`` when the value is beyond the limit, ``watch`` when it is
-inside the limit but within ``watch_margin x |limit|`` of it (the limit itself counts as
-watch), ``within`` otherwise. Comparing a figure with a policy threshold and flagging an
-early-warning band is common practice, no source.
+inside the limit but within the watch distance of it (the limit itself counts as watch),
+``within`` otherwise. The watch distance is ``watch_margin x |limit|`` for a one-sided limit
+and ``watch_margin x (high - low)`` for either end of a two-sided band (the beta band when
+both ``beta_min`` and ``beta_max`` are given, and each asset-class range): a fraction of a
+narrow band's width, so that the middle of the band is never on watch. Comparing a figure
+with a policy threshold and flagging an early-warning band is common practice, no source.
 
 When portfolio beta is outside its band, :func:`beta_target` gives the mix with the
 risk-free asset that would reach the band's midpoint: a share c in cash gives
@@ -16,6 +19,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
+import pandas as pd
 
 from reporter.analytics.pack import PackResults
 from reporter.config import LimitsSection
@@ -36,6 +40,8 @@ LABELS = {
     "max_idiosyncratic_share": "Specific share of variance, maximum",
     "max_var_95_ann": "Value at risk 95%, one year (historical), maximum",
     "max_stress_loss": "Loss in the stress shock (beta), maximum",
+    "asset_class_min": "Asset class weight, minimum",
+    "asset_class_max": "Asset class weight, maximum",
 }
 # the order in which limits are listed (and compared between packs)
 LIMIT_KEYS = tuple(LABELS)
@@ -138,6 +144,16 @@ class LimitsReport:
         return {s["sector"]: {"status": s["status"], "threshold": s["threshold"]}
                 for s in self.sector_marks}
 
+    def asset_class_status(self) -> dict[str, dict]:
+        """asset class (lower case) -> {low, high, status}: the worse of its two checks."""
+        out: dict[str, dict] = {}
+        for c in self.checks:
+            if c.limit in ("asset_class_min", "asset_class_max"):
+                row = out.setdefault(c.scope.strip().lower(), {"status": WITHIN})
+                row["low" if c.kind == "min" else "high"] = c.threshold
+                row["status"] = _worst([row["status"], c.status])
+        return out
+
     def as_json(self) -> dict:
         """The content of ``results/limits.json``."""
         return {
@@ -150,16 +166,17 @@ class LimitsReport:
 
 
 def classify(values: np.ndarray | float, threshold: float, kind: str,
-             margin: float) -> np.ndarray:
+             margin: float, width: float | None = None) -> np.ndarray:
     """Status of each value against one limit (vectorised).
 
-    ``kind="max"``: breach if value > threshold; watch if threshold - m|threshold| <= value
+    ``kind="max"``: breach if value > threshold; watch if threshold - d <= value
     <= threshold. ``kind="min"``: breach if value < threshold; watch if threshold <= value
-    <= threshold + m|threshold|. NaN values are ``within`` (nothing to test); the caller
-    reports them. Common practice, no source.
+    <= threshold + d. The watch distance d is m x ``width`` for one end of a two-sided band
+    of that width, else m x |threshold|. NaN values are ``within`` (nothing to test); the
+    caller reports them. Common practice, no source.
     """
     v = np.atleast_1d(np.asarray(values, dtype=float))
-    band = margin * abs(threshold)
+    band = _distance(threshold, margin, width)
     with np.errstate(invalid="ignore"):
         if kind == "max":
             breach = v > threshold
@@ -170,17 +187,23 @@ def classify(values: np.ndarray | float, threshold: float, kind: str,
     return np.where(breach, BREACH, np.where(watch, WATCH, WITHIN)).astype(object)
 
 
-def _watch_from(threshold: float, kind: str, margin: float) -> float:
-    band = margin * abs(threshold)
+def _distance(threshold: float, margin: float, width: float | None) -> float:
+    """The watch distance: a fraction of a two-sided band's width, else of the limit."""
+    return margin * (abs(threshold) if width is None else width)
+
+
+def _watch_from(threshold: float, kind: str, margin: float,
+                width: float | None = None) -> float:
+    band = _distance(threshold, margin, width)
     return threshold - band if kind == "max" else threshold + band
 
 
 def _scalar(limit: str, kind: str, value: float, threshold: float,
-            margin: float) -> LimitCheck:
-    status = str(classify(value, threshold, kind, margin)[0])
-    return LimitCheck(limit=limit, scope=None, kind=kind, value=float(value),
+            margin: float, width: float | None = None, scope: str | None = None) -> LimitCheck:
+    status = str(classify(value, threshold, kind, margin, width)[0])
+    return LimitCheck(limit=limit, scope=scope, kind=kind, value=float(value),
                       threshold=float(threshold),
-                      watch_from=_watch_from(threshold, kind, margin), status=status)
+                      watch_from=_watch_from(threshold, kind, margin, width), status=status)
 
 
 def _worst(statuses) -> str:
@@ -224,10 +247,12 @@ def evaluate_limits(cfg: LimitsSection, res: PackResults) -> LimitsReport:
     checks: list[LimitCheck] = []
     notes: list[str] = []
     sector_flags: list[dict] = []
+    band = (cfg.beta_max - cfg.beta_min if cfg.beta_min is not None
+            and cfg.beta_max is not None else None)     # two-sided: watch on its width
     if cfg.beta_min is not None:
-        checks.append(_scalar("beta_min", "min", p["beta_regression"], cfg.beta_min, m))
+        checks.append(_scalar("beta_min", "min", p["beta_regression"], cfg.beta_min, m, band))
     if cfg.beta_max is not None:
-        checks.append(_scalar("beta_max", "max", p["beta_regression"], cfg.beta_max, m))
+        checks.append(_scalar("beta_max", "max", p["beta_regression"], cfg.beta_max, m, band))
     if cfg.max_holding_weight is not None:
         sec = res.securities
         w = np.abs(sec["weight"].to_numpy(dtype=float))
@@ -286,6 +311,8 @@ def evaluate_limits(cfg: LimitsSection, res: PackResults) -> LimitsReport:
     if cfg.max_stress_loss is not None:     # the loss is -beta x shock (positive in a fall)
         checks.append(_scalar("max_stress_loss", "max", -p["beta_regression"] * cfg.stress_shock,
                               cfg.max_stress_loss, m))
+    if cfg.asset_class_ranges:
+        checks += asset_class_checks(cfg.asset_class_ranges, res.securities, m, notes)
     target = None
     beta_out = [c for c in checks if c.limit in ("beta_min", "beta_max") and c.status == BREACH]
     for c in checks:
@@ -319,3 +346,29 @@ def beta_target(beta: float, beta_min: float | None, beta_max: float | None,
                       mean_excess_ann=float(scale * mean_excess * periods_per_year),
                       portfolio_mean_excess_ann=float(mean_excess * periods_per_year),
                       band_midpoint=len(bounds) == 2)
+
+
+def asset_class_checks(ranges: dict[str, list[float]], securities: pd.DataFrame,
+                       margin: float, notes: list[str]) -> list[LimitCheck]:
+    """Each asset class's weight (net sum of its holdings' weights; classes matched without
+    regard to case or surrounding spaces) against its ``[low, high]`` range: a minimum and a
+    maximum check, each watched at ``margin`` x the range's width. A class that no holding
+    has weighs 0 and is noted."""
+    if "asset_class" in securities:
+        classes = securities["asset_class"].fillna("").astype(str).str.strip().str.casefold()
+        weights = securities["weight"].groupby(classes.to_numpy()).sum()
+    else:
+        weights = pd.Series(dtype=float)
+        notes.append("limits.asset_class_ranges is set but the holdings give no asset_class "
+                     "column: every class weighs 0")
+    out = []
+    for name in sorted(ranges):
+        lo, hi = ranges[name]
+        key = name.strip().casefold()
+        if key not in weights.index and "asset_class" in securities:
+            notes.append(f"limits.asset_class_ranges names the asset class {name!r}, which no "
+                         "holding belongs to (weight 0)")
+        value = float(weights.get(key, 0.0))
+        out += [_scalar("asset_class_min", "min", value, lo, margin, hi - lo, name),
+                _scalar("asset_class_max", "max", value, hi, margin, hi - lo, name)]
+    return out

@@ -15,7 +15,7 @@ class Holdings:
     """The holdings, one row each, in file order.
 
     ``frame`` columns: ``security_id, name, sector, weight`` (decimal, sums to 1), plus any of
-    ``market_value, asset_class, currency, country`` that the file gave.
+    ``market_value, asset_class, currency, country, proxy`` that the file gave.
     """
 
     frame: pd.DataFrame
@@ -29,6 +29,21 @@ class Holdings:
     @property
     def weights(self) -> np.ndarray:
         return self.frame["weight"].to_numpy(dtype=float)
+
+    @property
+    def cash(self) -> np.ndarray:
+        """True where ``asset_class`` is ``cash`` (any case): it earns the risk-free rate."""
+        if "asset_class" not in self.frame:
+            return np.zeros(len(self.frame), dtype=bool)
+        return (self.frame["asset_class"].fillna("").astype(str).str.strip().str.casefold()
+                == "cash").to_numpy()
+
+    @property
+    def proxies(self) -> np.ndarray:
+        """Each holding's ``proxy`` (stripped; "" where none)."""
+        if "proxy" not in self.frame:
+            return np.full(len(self.frame), "", dtype=object)
+        return self.frame["proxy"].fillna("").astype(str).str.strip().to_numpy(dtype=object)
 
 
 @dataclass(frozen=True)

@@ -31,6 +31,16 @@ def build_at_fixed_epoch(pack: Path, out: Path) -> int:
             os.environ["SOURCE_DATE_EPOCH"] = old
 
 
+def demo_holdings():
+    """The demo's holdings with a ``weight`` column in place of ``market_value`` (the demo
+    gives market values; weights are their shares of the total)."""
+    import pandas as pd
+
+    h = pd.read_csv(DEMO / "holdings.csv")
+    h["weight"] = h["market_value"] / h["market_value"].sum()
+    return h.drop(columns="market_value")
+
+
 @pytest.fixture(scope="session")
 def demo_build(tmp_path_factory) -> Path:
     """The demo pack built once with a fixed SOURCE_DATE_EPOCH; returns the output folder."""
@@ -93,6 +103,8 @@ def _pack_for_period(tmp: Path, period: str, limits: str | None = None) -> Path:
     text = toml.read_text(encoding="utf-8")
     assert "period_end = 2026-11-30" in text
     text = text.replace("period_end = 2026-11-30", f"period_end = {period}")
+    # the demo's cash flows are November's: outside an earlier period
+    text = text.replace('cash_flows = "cash_flows.csv"\n', "")
     if limits is not None:
         assert text.count("[limits]") == 1
         start = text.index("[limits]")

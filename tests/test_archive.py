@@ -23,7 +23,7 @@ PERIOD = "2026-11-30"
 FIRST = f"{PERIOD}/tarnbrook-valley-{PERIOD}.pdf"
 SECOND = f"{PERIOD}/tarnbrook-valley-{PERIOD}-r2.pdf"
 INPUT_FILES = ["holdings.csv", "returns.csv", "market.csv", "risk_free.csv", "factors.csv",
-               "benchmark_sectors.csv"]
+               "benchmark_sectors.csv", "cash_flows.csv"]
 
 
 def sha(path: Path) -> str:

@@ -71,7 +71,8 @@ CASES: dict[str, tuple[str, list[str]]] = {
         "index does (more than 50% either way); check the data"]),
     "holding_without_returns": (WARNING, [
         "holdings.csv:5:security_id: warning: holding FWX04 has no return history in "
-        "returns.csv"]),
+        "returns.csv; give a proxy column (a security id, market or benchmark) to stand in "
+        "for it, else it is left out of every return figure"]),
     # the run of zeros starts at FWX02's return for period 15 (line 59)
     "stale_prices": (WARNING, [
         "returns.csv:59:return: warning: holding FWX02 has 4 exact-zero returns in a row from "

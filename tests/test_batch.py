@@ -12,7 +12,7 @@ from reporter.build import assemble
 from reporter.cli import main
 from reporter.config import load_settings
 from reporter.csvsafe import csv_text
-from tests.conftest import DEMO, FIXED_EPOCH
+from tests.conftest import DEMO, FIXED_EPOCH, demo_holdings
 
 N_SCHEMES = 12
 BAD = "scheme-07"
@@ -39,7 +39,7 @@ def schemes(tmp_path_factory):
     """Twelve small invented schemes cut from the demo data: 8 holdings each, a different
     choice per scheme, 48 months. Scheme 7 carries a non-numeric return."""
     root = tmp_path_factory.mktemp("schemes")
-    holdings = pd.read_csv(DEMO / "holdings.csv")
+    holdings = demo_holdings()
     returns = pd.read_csv(DEMO / "returns.csv")
     market = pd.read_csv(DEMO / "market.csv").tail(48)
     rf = pd.read_csv(DEMO / "risk_free.csv").tail(48)

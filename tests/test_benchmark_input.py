@@ -11,7 +11,7 @@ import pytest
 from reporter.build import assemble
 from reporter.cli import main
 from reporter.config import load_settings
-from tests.conftest import DEMO
+from tests.conftest import DEMO, demo_holdings
 
 
 def _pack_with_benchmark(tmp_path, bench: pd.DataFrame | None = None, name="benchmark.csv"):
@@ -34,7 +34,11 @@ def _portfolio_returns_by_pandas() -> pd.Series:
     present each period, computed with a pandas pivot (an independent path)."""
     r = pd.read_csv(DEMO / "returns.csv").pivot(index="date", columns="security_id",
                                                  values="return")
-    w = pd.read_csv(DEMO / "holdings.csv").set_index("security_id")["weight"]
+    h = demo_holdings()
+    w = h.set_index("security_id")["weight"]
+    rf = pd.read_csv(DEMO / "risk_free.csv").set_index("date")["rate"]
+    for cash in h.loc[h["asset_class"].str.casefold() == "cash", "security_id"]:
+        r[cash] = rf.reindex(r.index)        # cash earns the risk-free rate
     r = r[w.index]
     present = r.notna()
     return (r.fillna(0.0) @ w) / (present.astype(float) @ w)

@@ -22,7 +22,7 @@ from reporter.build import assemble
 from reporter.changes import latest_signed_pack
 from reporter.config import load_settings
 from reporter.errors import InputError
-from tests.conftest import DEMO, build_at_fixed_epoch
+from tests.conftest import DEMO, build_at_fixed_epoch, demo_holdings
 
 SWAPPED = {"TVX010": "TVX901", "TVX020": "TVX902", "TVX050": "TVX903"}
 RAISED = "TVX012"        # its returns are raised by 2% a month in the new pack
@@ -51,10 +51,10 @@ def make_swapped(folder, previous: str, limits_edit: tuple[str, str] | None = No
 @pytest.fixture(scope="module")
 def swapped_build(demo_build, tmp_path_factory):
     base = tmp_path_factory.mktemp("changes")
-    # a tighter holding limit in the new pack: the largest holding (7.6%) goes from watch
-    # (limit 8%) to breach (limit 7.5%)
+    # a tighter holding limit in the new pack: the largest holding (7.4%, after the 3%
+    # cash line) goes from watch (limit 8%) to breach (limit 7%)
     pack = make_swapped(base / "pack", str(demo_build),
-                        ("max_holding_weight = 0.08", "max_holding_weight = 0.075"))
+                        ("max_holding_weight = 0.08", "max_holding_weight = 0.07"))
     out = base / "out"
     assert build_at_fixed_epoch(pack, out) == 0
     return out
@@ -62,7 +62,7 @@ def swapped_build(demo_build, tmp_path_factory):
 
 def test_new_removed_and_weight_changes(demo_build, swapped_build):
     ch = json.loads((swapped_build / "results/changes.json").read_text())
-    h = pd.read_csv(DEMO / "holdings.csv").set_index("security_id")["weight"]
+    h = demo_holdings().set_index("security_id")["weight"]
     assert ch["previous"]["period_end"] == "2026-11-30"
     assert ch["previous"]["source"] == "build"
     assert [x["security_id"] for x in ch["new_holdings"]] == sorted(SWAPPED.values())

@@ -28,8 +28,8 @@ from tests.conftest import DEMO
 from tests.data.make_bad_cases import base_pack, write_pack
 
 FILES = {"holdings": "holdings.csv", "returns": "returns.csv", "market": "market.csv",
-         "risk_free": "risk_free.csv"}
-NUMERIC = {"weight", "market_value", "return", "rate"}
+         "risk_free": "risk_free.csv", "cash_flows": "cash_flows.csv"}
+NUMERIC = {"weight", "market_value", "return", "rate", "amount"}
 
 
 def read_text_table(path: Path) -> tuple[list[str], list[list[str]]]:
@@ -187,7 +187,7 @@ def test_xlsx_unknown_sheet_is_named(tmp_path, capsys):
     header, rows = read_text_table(DEMO / "holdings.csv")
     wb.active.append(header)
     for r in rows:
-        wb.active.append(r[:3] + [float(r[3])])
+        wb.active.append(r[:-1] + [float(r[-1])])       # market_value, the last column
     wb.save(pack / "holdings.xlsx")
     text = (pack / "pack.toml").read_text(encoding="utf-8").replace(
         'holdings = "holdings.csv"', 'holdings = { path = "holdings.xlsx", sheet = "Positions" }')
@@ -331,4 +331,4 @@ def test_blank_lines_are_skipped(tmp_path):
 
 
 def test_every_role_has_a_file():
-    assert set(FILES) == set(INPUT_ROLES)
+    assert set(FILES) == set(INPUT_ROLES) | {"cash_flows"}     # the demo also has flows

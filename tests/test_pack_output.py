@@ -59,9 +59,12 @@ def test_portfolio_json_keys(demo_build):
                 "mean_market_premium", "mean_risk_free"):
         assert key in p, key
     assert p["window_start"] == "2021-12-31" and p["window_end"] == "2026-11-30"
-    assert p["n_obs"] == 60 and p["n_holdings"] == 60
-    w = pd.read_csv(DEMO / "holdings.csv")["weight"].to_numpy()
+    # 60 equities and the 3% cash line
+    assert p["n_obs"] == 60 and p["n_holdings"] == 61 and p["n_cash"] == 1
+    mv = pd.read_csv(DEMO / "holdings.csv")["market_value"].to_numpy()
+    w = mv / mv.sum()
     np.testing.assert_allclose(p["effective_n"], 1 / np.sum(w**2), rtol=1e-12)
+    assert p["total_value"] == pytest.approx(mv.sum(), rel=1e-12)
     assert p["beta_ci_low"] < p["beta_regression"] < p["beta_ci_high"]
 
 
@@ -123,8 +126,8 @@ def test_html_is_self_contained(html):
     assert not re.search(r"(?i)\b(?:https?:)?//[a-z0-9.-]+\.[a-z]{2,}", html.replace(
         "http://www.w3.org/2000/svg", "").replace("http://www.w3.org/1999/xlink", ""))
     assert "<script" not in html.lower()
-    assert html.count("<svg") == 11    # seven, the stress chapter's two, and the factor
-    #                                    loadings and attribution charts
+    assert html.count("<svg") == 12    # seven, the stress chapter's two, the factor
+    #                                    loadings and attribution charts, and the allocation
     assert "<style>" in html
 
 
@@ -230,7 +233,7 @@ def test_risk_contributions_file(demo_build):
     p = json.loads((demo_build / "results/portfolio.json").read_text())
     h, g = t[t["level"] == "holding"], t[t["level"] == "sector"]
     total = t[t["level"] == "total"].iloc[0]
-    assert len(h) == 60 and len(g) == len(set(h["sector"]))
+    assert len(h) == 61 and len(g) == len(set(h["sector"]))
     # Euler contributions add up to the totals, by holding and by sector (the file keeps
     # 10 significant figures)
     for col in ("vol_contribution", "te_contribution"):

@@ -273,7 +273,7 @@ def test_demo_results_file_keys_and_figures(demo_build):
     m = pd.read_csv(DEMO / "market.csv")
     q1 = m[(m["date"] >= "2020-01-01") & (m["date"] <= "2020-03-31")]["return"]
     assert named["market"] == pytest.approx(np.prod(1 + q1) - 1, rel=1e-12)
-    assert any("not yet modelled" in n for n in data["notes"])
+    assert any("Cash earns the risk-free rate" in n for n in data["notes"])
     # year = period x sqrt(12)
     per = {(v["method"], v["level"], v["horizon"]): v["value"] for v in data["var"]}
     assert per[("normal", 0.99, "year")] == pytest.approx(per[("normal", 0.99, "period")]
@@ -284,7 +284,7 @@ def test_demo_results_file_keys_and_figures(demo_build):
     chapter = html[html.index('id="stress"'):html.index('id="holdings"')]
     assert "understate losses in a crash" in chapter
     assert data["backtest"]["reading"] in re.sub(r"\s+", " ", chapter)
-    assert "First quarter 2020" in chapter and "not yet modelled" in chapter
+    assert "First quarter 2020" in chapter and "Cash earns the risk-free rate" in chapter
 
 
 def test_stress_limit_breach(french_2008):

@@ -21,6 +21,7 @@ if TYPE_CHECKING:
     from reporter.changes import PreviousPack
 
 TOP_WEIGHT_CHANGES = 10
+WEIGHT_ROUNDING = 1e-9     # a smaller weight change is the results file's rounding
 
 
 @dataclass(frozen=True)
@@ -139,7 +140,8 @@ def compare_packs(previous: PreviousPack, res: PackResults, limits: list[dict] |
     new = merged[merged["note"] == "new"][["security_id", "name", "weight_now"]].rename(
         columns={"weight_now": "weight"})
     removed = merged[merged["note"] == "removed"][["security_id", "name", "weight_before"]]
-    moved = merged[merged["change"] != 0].copy()
+    # the earlier weights come from its securities.csv, written to 10 decimal places
+    moved = merged[merged["change"].abs() > WEIGHT_ROUNDING].copy()
     moved["abs"] = moved["change"].abs()
     top = moved.sort_values(["abs", "security_id"], ascending=[False, True],
                             kind="stable").head(TOP_WEIGHT_CHANGES)

@@ -11,6 +11,7 @@ import pandas as pd
 
 from reporter.analytics import summaries
 from reporter.analytics.covariance import CovarianceEstimate, holdings_and_active
+from reporter.analytics.coverage import Coverage, cover_holdings, fit_status, own_fits
 from reporter.analytics.diversification import (
     Concentration,
     EqualWeightCurve,
@@ -49,7 +50,7 @@ from reporter.analytics.regression import (
     vasicek_beta,
     vasicek_summary,
 )
-from reporter.analytics.returns import Window, period_keys, portfolio_returns
+from reporter.analytics.returns import Window, portfolio_returns
 from reporter.analytics.sml import (
     GRSTest,
     LineTest,
@@ -64,8 +65,8 @@ from reporter.analytics.sml import (
     security_market_line,
 )
 from reporter.analytics.stress import StressResults, stress_analysis
+from reporter.analytics.window import _align_optional, _require_varying_market, build_window
 from reporter.config import Settings
-from reporter.errors import InputError, Problem
 from reporter.memory import release_free_memory
 from reporter.models import DatedSeries, ValidInputs
 
@@ -131,6 +132,7 @@ class PackResults:
     tracking_reference: str           # "market proxy" | "benchmark": what risk TE is against
     history_benchmark: np.ndarray | None  # r_b per period over history_dates (NaN if absent)
     portfolio_source: str             # "current weights" | "portfolio returns file"
+    coverage: Coverage                # cash, proxied and excluded holdings
     stress: StressResults | None = None   # shocks, scenarios, VaR/ES, backtest
 
     def line_tests_summary(self) -> dict:
@@ -249,58 +251,6 @@ class PackResults:
         assembled in :mod:`reporter.analytics.summaries`."""
         return summaries.portfolio_summary(self)
 
-def build_window(inputs: ValidInputs, settings: Settings, periods: int | None = None) -> Window:
-    """The last ``periods`` (default ``settings.window``) market periods up to ``period_end``,
-    with aligned data; ``periods=0`` takes every market period up to ``period_end``."""
-    freq = settings.frequency
-    end_key = period_keys(np.array([np.datetime64(settings.period_end, "D")]), freq)[0]
-    mkeys_all = period_keys(inputs.market.dates, freq)
-    n = settings.window if periods is None else periods
-    idx = np.flatnonzero(mkeys_all <= end_key)
-    idx = idx[-n:] if n else idx
-    mkeys = mkeys_all[idx]
-    rf = _align(inputs.risk_free, mkeys, freq)
-    panel = inputs.returns
-    pos = np.searchsorted(panel.period_keys, mkeys)
-    pos_c = np.minimum(pos, max(len(panel.period_keys) - 1, 0))
-    present = (pos < len(panel.period_keys)) & (panel.period_keys[pos_c] == mkeys) if len(
-        panel.period_keys) else np.zeros(len(mkeys), dtype=bool)
-    rets = np.full((len(mkeys), len(panel.security_ids)), np.nan)
-    rets[present] = panel.values[pos_c[present]]
-    return Window(dates=inputs.market.dates[idx], security_ids=panel.security_ids,
-                  returns=rets, market=inputs.market.values[idx], risk_free=rf)
-
-
-def _require_varying_market(market_excess: np.ndarray, settings: Settings) -> None:
-    """Every beta divides by the market premium's variance: a premium that is the same in
-    every period of the window (a constant market return less a constant rate) is bad input,
-    named, not a division by zero."""
-    x = market_excess[np.isfinite(market_excess)]
-    if len(x) and np.ptp(x) > 0:
-        return
-    spec = settings.inputs.get("market")
-    where = spec.display if spec is not None else "market proxy"
-    raise InputError([Problem(where, f"the market proxy's return less the risk-free rate is "
-                              f"the same in all {len(x)} periods of the window, so no beta can "
-                              "be estimated; check the market and risk-free files")])
-
-
-def _align(series: DatedSeries, keys: np.ndarray, freq: str) -> np.ndarray:
-    skeys = period_keys(series.dates, freq)
-    pos = np.searchsorted(skeys, keys)
-    return series.values[pos]
-
-
-def _align_optional(series: DatedSeries | None, dates: np.ndarray,
-                    freq: str) -> np.ndarray | None:
-    """``series`` on the periods of ``dates`` (NaN where it has none), or None."""
-    if series is None:
-        return None
-    keys = period_keys(dates, freq)
-    skeys = period_keys(series.dates, freq)
-    pos = np.minimum(np.searchsorted(skeys, keys), len(skeys) - 1)
-    return np.where(skeys[pos] == keys, series.values[pos], np.nan)
-
 
 def analyse(inputs: ValidInputs, settings: Settings,
             benchmark: DatedSeries | None = None,
@@ -312,13 +262,14 @@ def analyse(inputs: ValidInputs, settings: Settings,
     (regression, ratios, period returns, rolling beta); risk contributions still use the
     weights."""
     P = settings.periods_per_year
+    inputs, coverage = cover_holdings(inputs, settings, benchmark)   # cash, proxies
     win = build_window(inputs, settings)
     weights = inputs.holdings.weights
     x = win.market_excess
     _require_varying_market(x, settings)
     y = win.excess_returns
     prep = Prepared.of(y, x)
-    fits = fit_market_model(y, x, settings.min_obs, prep=prep)
+    fits = own_fits(fit_market_model(y, x, settings.min_obs, prep=prep), coverage)
     alpha_se_hac, beta_se_hac = hac_standard_errors(y, x, fits, settings.hac_lags, prep=prep)
     use_hac = settings.errors == "hac"
     a_se = alpha_se_hac if use_hac else fits.alpha_se
@@ -332,8 +283,9 @@ def analyse(inputs: ValidInputs, settings: Settings,
     pfit = fit_portfolio(port - win.risk_free, x, settings.confidence, settings.errors,
                          settings.hac_lags)
     ok = fits.fitted
-    fitted_weight = float(weights[ok].sum())
-    beta_weighted = float(weights[ok] @ fits.beta[ok] / fitted_weight) if ok.any() else np.nan
+    held = ok | coverage.stand_in        # cash (beta 0) and proxies count at their weights
+    fitted_weight = float(weights[held].sum())
+    beta_weighted = float(weights[held] @ fits.beta[held] / fitted_weight) if held.any() else np.nan
     ratios = performance_ratios(port, win.market, win.risk_free, pfit.beta)
     conc = concentration(weights)
     hold = inputs.holdings.frame
@@ -367,7 +319,7 @@ def analyse(inputs: ValidInputs, settings: Settings,
     sector_ex = np.column_stack([
         portfolio_returns(win.returns[:, sector_of == name], weights[sector_of == name])
         for name in sector_names]) - win.risk_free[:, None]
-    full = np.isfinite(sector_ex).all(axis=0)
+    full = np.isfinite(sector_ex).all(axis=0) & (np.ptp(sector_ex, axis=0) > 1e-12)  # not cash
     grs_s = grs_test(sector_ex[:, full], x, "sector portfolios")
 
     release_free_memory()      # the window's temporaries, before the whole history's
@@ -401,7 +353,7 @@ def analyse(inputs: ValidInputs, settings: Settings,
         "sector": hold["sector"].to_numpy(),
         "weight": weights,
         "n_obs": fits.n_obs,
-        "status": np.where(ok, "fitted", f"not fitted: fewer than {settings.min_obs} periods"),
+        "status": fit_status(ok, coverage, settings.min_obs),
         # se and t under ``errors`` (as the intervals and positions); both kinds named below
         "alpha": fits.alpha, "alpha_se": a_se, "alpha_t": fits.alpha / a_se,
         "alpha_p": alpha_p,
@@ -467,4 +419,4 @@ def analyse(inputs: ValidInputs, settings: Settings,
         history_benchmark=bench_hist,
         portfolio_source="current weights" if portfolio is None else "portfolio returns file",
         stress=stress,
-    )
+        coverage=coverage)

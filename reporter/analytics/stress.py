@@ -35,8 +35,9 @@ UNITS = {"monthly": "months", "weekly": "weeks", "daily": "days"}
 N_WORST = 5
 TOP_HOLDINGS = 10
 FEW_TAIL_PERIODS = 5   # warn when fewer periods than this are expected beyond the VaR
-GAP_NOTE = ("Cash and holdings with a proxy are not yet modelled apart from the other "
-            "holdings: each moves here with its own estimated beta and history.")
+GAP_NOTE = ("Cash earns the risk-free rate in every period (beta 0), and a holding with a "
+            "proxy moves with its proxy's history; holdings excluded for want of any return "
+            "are left out of every figure here, as elsewhere in the pack.")
 CSV_COLUMNS = ["table", "name", "method", "level", "horizon", "start", "end", "value",
                "low", "high", "market", "benchmark", "proxied_weight", "n_periods"]
 

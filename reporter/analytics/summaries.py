@@ -97,7 +97,17 @@ def portfolio_summary(res: PackResults) -> dict:
         **diversification_summary(res),
         **sml_counts(res),
         **res.line_tests_summary(),
+        **res.coverage.summary(),
+        "total_value": total_value(res),
     }
+
+
+def total_value(res: PackResults) -> float | None:
+    """The portfolio's value in the pack's currency: the sum of the holdings' market values,
+    or None when the holdings give none."""
+    if "market_value" not in res.securities:
+        return None
+    return float(res.securities["market_value"].sum())
 
 
 def tracking_figures(res: PackResults) -> dict:

@@ -80,6 +80,15 @@ def plural(n, singular: str, plural_form: str | None = None) -> str:
     return f"{count} {word}"
 
 
+def money(x, currency: str = "", signed: bool = False) -> str:
+    """An amount in whole units of ``currency`` with thousands separators:
+    6931283.2 -> 'GBP 6,931,283'."""
+    if _missing(x):
+        return DASH
+    s = f"{x:+,.0f}" if signed else f"{x:,.0f}"
+    return ((currency + " ") if currency else "") + s.replace("-", "\u2212")
+
+
 def fit(x, width: int, align: str = "<") -> str:
     """Text set in exactly ``width`` characters, for the fixed-width print listing: cut with
     an ellipsis when longer, padded with spaces (``align`` '<' left, '>' right)."""
@@ -265,5 +274,5 @@ def make_environment(user_templates: Path | None = None,
     env.template_class = CheckedTemplate
     env.user_templates = Path(user_templates) if user_templates is not None else None
     env.filters.update(pct=pct, bp=bp, num=num, longdate=longdate, fit=fit,
-                       plural=plural)
+                       plural=plural, money=money)
     return env

@@ -14,7 +14,8 @@ from reporter.validate.common import _Capped, _require_columns
 from reporter.validate.text import case_clash_message, case_clashes
 
 HOLDINGS_REQUIRED = ("security_id", "name", "sector")
-HOLDINGS_OPTIONAL = ("asset_class", "currency", "country")
+HOLDINGS_OPTIONAL = ("asset_class", "currency", "country", "proxy")
+PROXY_SERIES = ("market", "benchmark")   # a proxy may also name another holding's id
 
 
 def validate_holdings(raw: RawTable, settings: Settings, coll: Collector) -> Holdings | None:
@@ -69,9 +70,14 @@ def validate_holdings(raw: RawTable, settings: Settings, coll: Collector) -> Hol
                        f"negative {column} {raw_w[i]:g}: short positions are not allowed "
                        "(set checks.allow_short = true)")
         capped.close()
+    if has_mv:
+        _check_market_values(raw, frame["market_value"].to_numpy(dtype=float),
+                             has_w and not settings.allow_short, coll)
     for opt in HOLDINGS_OPTIONAL:
         if opt in names:
             frame[opt] = as_text(raw, opt, coll, allow_empty=True)
+    if "proxy" in frame:
+        _check_proxies(raw, frame, seen, "benchmark" in settings.inputs, coll)
 
     normalised = False
     if not np.isnan(raw_w).any():
@@ -101,3 +107,35 @@ def validate_holdings(raw: RawTable, settings: Settings, coll: Collector) -> Hol
                                                            "weight")]]
     return Holdings(frame=frame, weight_source=column, normalised=normalised)
 
+
+
+def _check_market_values(raw: RawTable, values: np.ndarray, negatives: bool,
+                         coll: Collector) -> None:
+    """A market value of zero is an error (the holding is not held); so is a negative one
+    when ``negatives`` (when market values give the weights, the weight check reports it)."""
+    bad = np.flatnonzero((values == 0) | ((values < 0) & negatives))
+    capped = _Capped(coll, "market values of zero or less")
+    for i in bad:
+        capped.add(place(raw.name, raw.row_number(int(i)), "market_value"),
+                   f"market value {values[i]:g} is not positive: give the holding's value "
+                   "in the pack's currency, or leave the holding out")
+    capped.close()
+
+
+def _check_proxies(raw: RawTable, frame: pd.DataFrame, seen: dict[str, int],
+                   has_benchmark: bool, coll: Collector) -> None:
+    """Each ``proxy`` is empty, ``market``, ``benchmark`` (when the pack has one) or the id of
+    another holding in this file."""
+    for i, value in enumerate(frame["proxy"]):
+        text = value.strip() if isinstance(value, str) else ""
+        if not text:
+            continue
+        word = text.casefold()
+        where = place(raw.name, raw.row_number(i), "proxy")
+        if word == "benchmark" and not has_benchmark:
+            coll.error(where, "proxy 'benchmark' but the pack has no [inputs] benchmark")
+        elif word not in PROXY_SERIES and text not in seen:
+            coll.error(where, f"proxy {text!r} is not a security id in this file, nor "
+                       "'market' or 'benchmark'")
+        elif text == frame["security_id"].iat[i]:
+            coll.error(where, f"holding {text!r} names itself as its proxy")

@@ -52,11 +52,15 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
         out = np.full((matrix.shape[0], len(holdings.ids)), np.nan)
         out[:, have] = matrix[:, source[have]]
     run, start = longest_constant_run(out)
-    for k in np.flatnonzero(~have):
+    proxies = holdings.proxies
+    for k in np.flatnonzero(~have & ~holdings.cash):     # cash earns the risk-free rate
         # the holdings frame keeps the file's rows in order: holding k is data row k
         row = holdings_raw.row_number(int(k)) if holdings_raw is not None else None
+        stand_in = (f"; its proxy {proxies[k]!r} stands in for it" if proxies[k] else
+                    "; give a proxy column (a security id, market or benchmark) to stand in "
+                    "for it, else it is left out of every return figure")
         coll.warn(place(settings.inputs["holdings"].display, row, "security_id"),
-                  f"holding {holdings.ids[k]} has no return history in {raw.name}")
+                  f"holding {holdings.ids[k]} has no return history in {raw.name}{stand_in}")
     for k in np.flatnonzero(have & (run >= settings.stale_zero_run)):
         sid, value = holdings.ids[k], out[start[k], k]
         what = (f"{run[k]} exact-zero returns in a row" if value == 0.0

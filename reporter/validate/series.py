@@ -17,8 +17,9 @@ from reporter.validate.values import PERCENT_MEDIAN, _check_return_values, looks
 
 
 def validate_series(raw: RawTable, value_col: str, settings: Settings,
-                    coll: Collector) -> DatedSeries | None:
+                    coll: Collector, optional: tuple[str, ...] = ()) -> DatedSeries | None:
     """A ``date,<value_col>`` series: dates valid, unique per period, values numeric.
+    ``optional``: further columns allowed (read by the caller).
 
     A return series given as prices (``values = "prices"``) is a ``date,price`` file, and
     its returns are those of consecutive periods (:mod:`reporter.validate.prices`)."""
@@ -26,7 +27,7 @@ def validate_series(raw: RawTable, value_col: str, settings: Settings,
     prices = value_col == "return" and spec.values == "prices"
     if prices:
         value_col = PRICE_COLUMN
-    if not _require_columns(raw, ("date", value_col), (), coll):
+    if not _require_columns(raw, ("date", value_col), optional, coll):
         return None
     if raw.table.num_rows == 0:
         coll.error(raw.name, "the file has no rows")
