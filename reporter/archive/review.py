@@ -21,7 +21,7 @@ import json
 from dataclasses import dataclass
 from pathlib import Path
 
-from reporter.build import assemble, pack_files, results_files
+from reporter.build import EDITION_FILES, assemble, pack_files, results_files
 from reporter.config import Settings
 from reporter.errors import InputError, Problem
 from reporter.writer import BUILD_MARKER, OutputSet
@@ -108,7 +108,11 @@ def reproduce(build: ReviewedBuild, settings: Settings):
     check_inputs_unchanged(settings, a.hashes, build)
     outputs = OutputSet()                 # in memory: nothing is written here
     results_files(a, outputs)
-    pack_files(a, a.html(for_print=False), build.files.get("pack.pdf", b""), outputs)
+    # the draft PDFs are not rendered again (NOT_REPRODUCED): the build's own bytes stand in
+    # for them, so that the manifest, which lists their sha256, can be compared whole
+    pack_files(a, a.html(for_print=False),
+               {edition: build.files.get(rel, b"") for edition, rel in EDITION_FILES.items()
+                if rel in build.files or edition == "full"}, outputs)
     built, made = set(build.files), set(outputs.paths)
     problems = []
     for rel in sorted(built | made):
