@@ -18,7 +18,7 @@ from reporter.errors import OutputError
 # the header of each input file (see README, "Inputs"); one example row is described in
 # pack.toml's comments, never written as data
 CSV_HEADERS = {
-    "holdings.csv": "security_id,name,sector,weight",
+    "holdings.csv": "security_id,name,sector,asset_class,currency,country,market_value",
     "returns.csv": "date,security_id,return",
     "market.csv": "date,return",
     "risk_free.csv": "date,rate",
@@ -40,8 +40,11 @@ frequency = "monthly"                 # monthly | weekly | daily
 currency = "GBP"                      # ISO 4217 code
 
 [inputs]                              # paths relative to this file, inside this folder
-# holdings.csv: one row per holding at period_end, e.g.  ABC001,Example Holdings plc,Energy,0.025
-#   weight is a decimal share of the portfolio (the weights sum to 1)
+# holdings.csv: one row per holding at period_end, e.g.
+#   ABC001,Example Holdings plc,Energy,Equity,GBP,United Kingdom,1250000.00
+#   market_value is in [pack] currency (the weights are the shares of the total); a cash line
+#   has asset_class "cash" and earns the risk-free rate. A weight column (decimal shares
+#   summing to 1) may replace market_value; asset_class, currency and country are optional
 holdings = "holdings.csv"
 # returns.csv: each holding's return per period, e.g.  2026-10-31,ABC001,0.0123  (1.23%)
 returns = "returns.csv"

@@ -345,7 +345,8 @@ def pack_sheets(a) -> list[Sheet]:
                                                "mandate_weight_source": a.inputs.weight_source}
     else:
         tables = (res.securities, res.risk_table, res.period_table)
-        portfolio = res.portfolio_summary()
+        style = a.style.summary() if getattr(a, "style", None) is not None else {}
+        portfolio = res.portfolio_summary() | style     # as portfolio.json (factor figures)
     sheets = [Sheet("securities", tables[0]),
               key_value("portfolio", json_ready(portfolio)),
               Sheet("risk contributions", tables[1]),

@@ -90,7 +90,7 @@ def test_benchmark_problems_are_reported_with_the_others(tmp_path, capsys):
     assert main(["build", str(folder), "--out", str(out), "--quiet"]) == 2
     err = capsys.readouterr().err
     assert "benchmark.csv:7:return" in err
-    assert "benchmark.csv: the benchmark series does not cover the window: 2 period(s) " \
+    assert "benchmark.csv:date: the benchmark series does not cover the window: 2 period(s) " \
            "missing, first 2026-02-28" in err
     assert not out.exists()
 
@@ -123,4 +123,4 @@ def test_portfolio_returns_file_replaces_the_weighted_series(tmp_path):
     assert t.loc["ytd", "portfolio"] == pytest.approx(
         np.prod(1 + own["return"].to_numpy()[-11:]) - 1, rel=1e-10)
     assert "own.csv" not in a.html() and "portfolio_returns" in a.hashes
-    assert "The portfolio returns are the scheme's own." in a.html()
+    assert "The portfolio returns are the reported ones, net of fees." in a.html()

@@ -22,7 +22,8 @@ BROKEN = ("TVX006", "TVX018", "TVX034", "TVX042")
 
 def _pack(folder, holdings: pd.DataFrame):
     folder.mkdir()
-    for name in ("pack.toml", "returns.csv", "market.csv", "risk_free.csv", "cash_flows.csv"):
+    for name in ("pack.toml", "returns.csv", "market.csv", "risk_free.csv", "cash_flows.csv",
+                 "factors.csv", "benchmark_sectors.csv"):
         shutil.copy(DEMO / name, folder / name)
     holdings.to_csv(folder / "holdings.csv", index=False, float_format="%.17g")
     return folder

@@ -295,4 +295,5 @@ def test_demo_summary_opens_with_exceptions(demo_build):
     chart = html[html.index("Sector weights"):html.index("Systematic and specific risk")]
     for s in sectors:
         mark = {"breach": "\u2716 breach", "watch": "\u25c6 watch"}[s["status"]]
-        assert f"{s['value']:.1%}  {mark}" in chart
+        # the value at the bar's end, the status in words and a symbol beside the limit tick
+        assert f">{s['value']:.1%}</text>" in chart and f">{mark} (max " in chart

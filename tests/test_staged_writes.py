@@ -69,8 +69,9 @@ def test_staged_build_equals_the_in_memory_files(assembled, tmp_path):
     out = tmp_path / "pack"
     files = build.finish_build(a, out, Progress(quiet=True))
     written = tree(out)
-    memory = build.pack_files(a, a.html(for_print=False),
-                              written["pack.pdf"])              # same PDF bytes
+    memory = build.pack_files(a, a.html(for_print=False),      # the same PDF bytes
+                              {edition: written[rel]
+                               for edition, rel in build.EDITION_FILES.items()})
     for rel in memory.paths:
         assert written[rel] == bytes(memory[rel]), rel
     manifest = json.loads(written["results/manifest.json"])

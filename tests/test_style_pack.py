@@ -29,8 +29,14 @@ def data():
     fac = pd.read_csv(DEMO / "factors.csv").set_index("date")
     dates = mkt.index[mkt.index <= "2026-11-30"][-WINDOW:]
     hold = pd.read_csv(DEMO / "holdings.csv").set_index("security_id")
-    return {"r": r.reindex(index=dates, columns=hold.index), "x": (mkt - rf)[dates],
-            "rf": rf[dates], "f": fac.loc[dates], "w": hold["weight"], "dates": dates}
+    # the demo gives market values (weights are their shares) and a cash line, which earns
+    # the risk-free rate in every period (see README, cash)
+    w = hold["market_value"] / hold["market_value"].sum()
+    r = r.reindex(index=dates, columns=hold.index)
+    for sid in hold.index[hold["asset_class"].str.lower() == "cash"]:
+        r[sid] = rf[dates].to_numpy()
+    return {"r": r, "x": (mkt - rf)[dates],
+            "rf": rf[dates], "f": fac.loc[dates], "w": w, "dates": dates}
 
 
 def _fit(y: np.ndarray, d) -> tuple:
