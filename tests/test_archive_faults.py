@@ -54,8 +54,9 @@ def test_two_sign_offs_at_once_exactly_one_succeeds(demo_build, tmp_path, capsys
             or "another sign-off was recorded" in loser[2]), loser[2]
     assert "Traceback" not in loser[2]
     assert entry_count(archive) == 1
-    assert [f for f in archived_files(archive) if f.endswith(".pdf")] == [
-        "2026-11-30/tarnbrook-valley-2026-11-30.pdf"]
+    assert sorted(f for f in archived_files(archive) if f.endswith(".pdf")) == [
+        "2026-11-30/tarnbrook-valley-2026-11-30-trustees.pdf",
+        "2026-11-30/tarnbrook-valley-2026-11-30.pdf"]      # one sign-off: both editions
     assert main(["verify", "--archive", str(archive)]) == 0
     assert "archive intact: 1 entries" in capsys.readouterr().out
 

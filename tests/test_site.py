@@ -73,7 +73,7 @@ def test_index_lists_every_sign_off_newest_period_first(site_dir, site_archive):
     superseded = {e["supersedes"] for e in entries if e["supersedes"]}
     for e, block in zip(expected, articles, strict=True):
         assert html.escape(e["signer"]) in block and e["pdf_sha256"] in block
-        assert f'href="packs/{stem(e)}/{stem(e)}.pdf"' in block
+        assert f'href="packs/{stem(e)}/pack.pdf"' in block
         assert f'href="packs/{stem(e)}/pack.html"' in block
         assert f'datetime="{e["signed_utc"]}"' in block
         # the marker is a word beside a symbol, not a colour alone
@@ -88,7 +88,7 @@ def test_index_lists_every_sign_off_newest_period_first(site_dir, site_archive):
 def test_copies_are_the_archived_bytes_and_the_sha256_shown_is_theirs(site_dir, site_archive):
     for e in ledger_entries(site_archive):
         name = stem(e)
-        pdf = (site_dir / "packs" / name / f"{name}.pdf").read_bytes()
+        pdf = (site_dir / "packs" / name / "pack.pdf").read_bytes()
         assert pdf == (site_archive / e["pdf_path"]).read_bytes()
         assert sha(pdf) == e["pdf_sha256"]
         folder = Path(e["pdf_path"]).parent / name
@@ -245,9 +245,10 @@ def test_limit_trend_has_every_limit_of_each_limits_json_in_the_packs_words(site
     periods = {p: v["limits"] for p, v in _current_results(site_archive,
                                                            "limits.json").items()}
     # 2026-09-30 and 2026-10-31 with the fewer limits of SITE_LIMITS; 2026-11-30 with the
-    # demo's nine, among them two sector maxima (Energy, and the sectors not named)
+    # demo's thirteen, among them two sector maxima (Energy, and the sectors not named) and a
+    # minimum and a maximum for each of its two asset-class ranges
     assert {p: len(v) for p, v in periods.items()} == {
-        p: SITE_LIMITS[p].count(" = ") for p in SITE_LIMITS} | {"2026-11-30": 9}
+        p: SITE_LIMITS[p].count(" = ") for p in SITE_LIMITS} | {"2026-11-30": 13}
     sectors = [i for i in periods["2026-11-30"] if i["limit"] == "max_sector_weight"]
     assert sorted(i["scope"] for i in sectors) == ["*", "Energy"]
     # the tighter holding limit of 2026-10-31 is breached (checked against holdings.csv's
@@ -353,7 +354,7 @@ def test_checking_page_names_each_system_tool(site_dir, site_archive):
         assert cmd in text
     # the example is the newest pack's own fingerprint (recomputed from the copy)
     newest = max(ledger_entries(site_archive), key=lambda e: (e["period_end"], e["seq"]))
-    pdf = site_dir / "packs" / stem(newest) / f"{stem(newest)}.pdf"
+    pdf = site_dir / "packs" / stem(newest) / "pack.pdf"
     assert sha(pdf.read_bytes()) in text
 
 

@@ -7,7 +7,7 @@ Layout of a site::
     index.html                      the signed packs, newest first
     packs/<name>/index.html         one page per sign-off, with interactive charts
     packs/<name>/pack.html          the archived HTML pack, byte for byte
-    packs/<name>/<name>.pdf         the signed PDF, byte for byte
+    packs/<name>/pack.pdf           the signed PDF, byte for byte (and pack-trustees.pdf)
     trends/<measure>.html           portfolio beta, effective holdings, tracking error, limits
     methods.html                    methodology and the pack's cautions
     checking.html                   how to check a PDF's sha256 with the system's own tools
@@ -104,8 +104,18 @@ def entry_page(entry) -> str:
 
 
 def pack_pdf(pack: SignedPack) -> str:
-    """The site path of the copy of the signed PDF (it keeps its archive name)."""
-    return f"packs/{pack.name}/{pack.name}.pdf"
+    """The site path of the copy of the signed PDF: ``pack.pdf`` beside the archived
+    ``pack.html``, whose link to the full edition is ``pack.pdf``."""
+    return f"packs/{pack.name}/pack.pdf"
+
+
+def trustees_pdf(pack: SignedPack) -> tuple[str, str] | None:
+    """(archive path, site path) of the signed trustees' edition, when the entry has one:
+    ``pack-trustees.pdf`` beside ``pack.html``, as its link names it."""
+    rel = str(PurePosixPath(pack.pdf_path).with_name(f"{pack.name}-trustees.pdf"))
+    if rel not in pack.entry.file_hashes:
+        return None
+    return rel, f"packs/{pack.name}/pack-trustees.pdf"
 
 
 def pack_html(pack: SignedPack) -> str:
@@ -238,6 +248,12 @@ def render_site(archive: Path, packs: list[SignedPack], head_hash: str | None) -
             raise ArchiveNotIntact(f"{archive / p.pdf_path}: changed while the site was "
                                    "being built; run 'reporter verify'")
         files.add(pack_pdf(p), pdf)
+        if (edition := trustees_pdf(p)) is not None:
+            data = (archive / edition[0]).read_bytes()
+            if hashlib.sha256(data).hexdigest() != p.entry.file_hashes[edition[0]]:
+                raise ArchiveNotIntact(f"{archive / edition[0]}: changed while the site was "
+                                       "being built; run 'reporter verify'")
+            files.add(edition[1], data)
         files.add(pack_html(p), (archive / p.html_path).read_bytes())
     periods = sorted({p.entry.period_end for p in current_by_period(packs)})
     for t in trend_pages:
