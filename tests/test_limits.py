@@ -297,3 +297,17 @@ def test_demo_summary_opens_with_exceptions(demo_build):
         mark = {"breach": "\u2716 breach", "watch": "\u25c6 watch"}[s["status"]]
         # the value at the bar's end, the status in words and a symbol beside the limit tick
         assert f">{s['value']:.1%}</text>" in chart and f">{mark} (max " in chart
+
+
+def test_a_limit_value_never_prints_like_its_threshold(demo_build):
+    """A value that differs from its threshold gets more decimals until the two print apart:
+    the demo's beta (1.051 against a maximum of 1.05, a breach) must not read "1.05 against
+    at most 1.05"."""
+    data = json.loads((demo_build / "results/limits.json").read_text())
+    beta = next(r for r in data["limits"] if r["limit"] == "beta_max")
+    assert beta["value"] != beta["threshold"]
+    assert f"{beta['value']:.2f}" == f"{beta['threshold']:.2f}"      # the case in question
+    text = re.sub(r"\s+", " ", (demo_build / "pack.html").read_text(encoding="utf-8"))
+    want = f"{beta['value']:.3f} against at most {beta['threshold']:.3f}"
+    assert want in text
+    assert f"{beta['value']:.2f} against at most {beta['threshold']:.2f}" not in text
