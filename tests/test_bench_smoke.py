@@ -30,6 +30,9 @@ def test_small_workload_measures_every_stage_and_floor(small):
     assert (small["n_holdings"], small["n_periods"]) == (50, 60)
     assert small["matrix_bytes"] == 50 * 60 * 8
     assert small["pages"] >= 10 and small["peak_rss"] > 100e6
+    # the RSS sampled in each stage: every stage seen, none above the process's peak
+    assert set(bench_pack.STAGES) <= set(small["stage_rss"])
+    assert all(0 < small["stage_rss"][st] <= small["peak_rss"] for st in bench_pack.STAGES)
 
 
 def test_report_ratios_are_the_measured_ones(small):
@@ -46,3 +49,32 @@ def test_unknown_workload_names_are_refused():
     assert bench_pack.workload_problems("small,large,batch") == ""
     msg = bench_pack.workload_problems("Large,small")
     assert msg.startswith("unknown workload(s) 'Large'") and "choose from small, large" in msg
+
+
+def test_memory_baseline_and_targets_are_reported_as_ratios(small):
+    base = bench_pack.baseline()        # a fresh process: the tool imported, engine started
+    assert 50e6 < base < 2e9
+    r = {**small, "peak_rss": base + 3 * small["matrix_bytes"]}
+    lines = bench_pack.target_lines("small", r, base)
+    memory = next(line for line in lines if line.startswith("peak RSS"))
+    assert "+ 3.0 x the float64 return matrix" in memory
+    assert memory.endswith("target at most 6 (met)")
+    s, f = small["stages"], small["floors"]
+    charts = next(line for line in lines if line.startswith("charts"))
+    assert f"add {(s['charts'] + s['pdf'] - f['pdf']) / f['pdf']:+.0%}" in charts
+    assert "target at most +50%" in charts
+    # Large has a target on the whole build; a missed one says so
+    slow = {**r, "stages": {**s, "analytics": 100 * sum(f.values())}}
+    whole = bench_pack.target_lines("large", slow, base)[0]
+    assert whole.endswith("target at most 2.0 (missed)")
+    # XL: the 4 GB ceiling, as a share of it
+    xl = bench_pack.target_lines("xl", {**r, "peak_rss": 3e9}, base)
+    assert "peak RSS 3.00 GB = 0.75 x the ceiling of 4 GB; target at most 1.00 (met)" in xl
+    text = bench_pack.table({"small": small}, None, (0.5, 0.7), base)
+    assert f"peaks at {base / 1e6:.0f} MB" in text and "0.5 at the start and 0.7" in text
+
+
+def test_quick_mode_skips_xl_only():
+    assert bench_pack.WORKLOADS["xl"][:2] == (10_000, 2_520)
+    assert bench_pack.QUICK_SKIPS == ("xl",)
+    assert bench_pack.workload_problems("small,large,xl,batch") == ""
