@@ -42,6 +42,14 @@ class RawTable:
     rows: np.ndarray | None = None
     # what the reader noticed that the user should hear of (warnings), e.g. hidden sheets
     notes: tuple[Problem, ...] = ()
+    # a long returns CSV read in streamed batches straight into its matrix: the matrix and
+    # what goes with it (see reporter.validate.long_stream), and ``table`` has no rows
+    clean: object | None = None
+
+    @property
+    def n_rows(self) -> int:
+        """Data rows read (a streamed file's, too; blank rows dropped are not counted)."""
+        return self.clean.n_rows if self.clean is not None else self.table.num_rows
 
     def row_numbers(self, indices: np.ndarray) -> np.ndarray:
         """:meth:`row_number` of many data rows at once."""

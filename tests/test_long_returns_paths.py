@@ -1,10 +1,12 @@
-"""A long returns CSV with nothing to report takes a one-pass route to its matrix
-(``validate.long_quick._clean_long_matrix``); anything that might need a message goes through
-the full checks. The quick route is not a second set of rules: on the same file both must give the
-same panel and the same messages, and bad files must still be caught by the full checks.
+"""A long returns CSV with nothing to report is read in streamed batches straight into its
+matrix (``validate.long_stream``); failing that, once read whole, it takes a one-pass route to
+its matrix (``validate.long_quick._clean_long_matrix``); anything that might need a message
+goes through the full checks. Neither route is a second set of rules: on the same file all
+three must give the same panel and the same messages, and bad files must still be caught by
+the full checks.
 
-The reader is set to small blocks here, so that each file arrives in many column chunks,
-each with its own dictionary of dates and ids, as a large file does.
+The readers are set to small blocks here, so that each file arrives in many column chunks
+(and batches), each with its own dictionary of dates and ids, as a large file does.
 """
 
 from __future__ import annotations
@@ -19,6 +21,8 @@ import pytest
 
 import reporter.readers as readers
 import reporter.validate as validate
+import reporter.validate.long_stream as long_stream
+import reporter.validate.pack as pack_route
 import reporter.validate.returns as returns_route
 from reporter.config import load_settings
 from reporter.errors import InputError
@@ -31,6 +35,7 @@ from workloads import write_scheme  # noqa: E402
 @pytest.fixture(autouse=True)
 def small_blocks(monkeypatch):
     monkeypatch.setattr(readers, "CSV_BLOCK_BYTES", 1 << 14)     # 16 KB: dozens of chunks
+    monkeypatch.setattr(long_stream, "STREAM_BLOCK_BYTES", 1 << 14)
 
 
 @pytest.fixture
@@ -41,20 +46,32 @@ def scheme(tmp_path):
 
 
 def both_routes(folder, monkeypatch):
-    """(panel, warnings) by the quick route, then by the full checks alone."""
+    """(panel, warnings) as a build gets them (streamed, else quick, else full checks), then
+    by the full checks alone; and the route taken, first as a build runs, then with the
+    streamed route turned off (whose panel must be the same again)."""
     settings = load_settings(folder)
     taken = []
-    quick = validate._clean_long_matrix
+    stream, quick = pack_route.stream_long_returns, validate._clean_long_matrix
 
-    def spy(*args):
-        out = quick(*args)
-        taken.append(out is not None)
+    def stream_spy(*args):
+        out = stream(*args)
+        taken.append("stream" if out is not None else "whole")
         return out
 
-    monkeypatch.setattr(returns_route, "_clean_long_matrix", spy)
+    def quick_spy(*args):
+        out = quick(*args)
+        taken[-1] = "quick" if out is not None else "full"
+        return out
+
+    monkeypatch.setattr(pack_route, "stream_long_returns", stream_spy)
+    monkeypatch.setattr(returns_route, "_clean_long_matrix", quick_spy)
     a = validate.validate_pack(settings)
+    monkeypatch.setattr(pack_route, "stream_long_returns", lambda *args: None)
+    taken.append("whole")
+    quick_only = validate.validate_pack(settings)
     monkeypatch.setattr(returns_route, "_clean_long_matrix", lambda *args: None)
     b = validate.validate_pack(settings)
+    assert_same(quick_only, b)
     return a, b, taken
 
 
@@ -86,7 +103,7 @@ def test_the_file_arrives_in_many_chunks(scheme):
 
 def test_quick_route_gives_the_full_checks_panel(scheme, monkeypatch):
     a, b, taken = both_routes(scheme, monkeypatch)
-    assert taken == [True]
+    assert taken == ["stream", "quick"]
     assert np.isnan(a.returns.values).any()          # the late listings' gaps
     assert_same(a, b)
     # and the matrix is the file: every row of the CSV at its cell (pandas pivots it)
@@ -103,7 +120,7 @@ def test_rows_in_any_order_and_padded_ids(scheme, monkeypatch):
         t[:] = t.sample(frac=1.0, random_state=3).to_numpy()
     rewrite_returns(scheme, edit)
     a, b, taken = both_routes(scheme, monkeypatch)
-    assert taken == [True]
+    assert taken == ["stream", "quick"]
     assert_same(a, b)
 
 
@@ -113,7 +130,7 @@ def test_a_stale_price_is_placed_at_the_same_row_by_both_routes(scheme, monkeypa
         t.loc[rows, "return"] = "0.0"
     rewrite_returns(scheme, edit)
     a, b, taken = both_routes(scheme, monkeypatch)
-    assert taken == [True]
+    assert taken == ["stream", "quick"]
     assert_same(a, b)
     stale = [str(w) for w in a.warnings if "exact-zero" in str(w)]
     assert len(stale) == 1
@@ -157,6 +174,8 @@ def test_anything_to_report_goes_to_the_full_checks(scheme, monkeypatch, case, e
     settings = load_settings(scheme)
     raws, _ = validate.read_inputs(settings)
     spec = settings.inputs["returns"]
+    assert raws["returns"].clean is None            # not streamed: read whole
+    assert long_stream.stream_long_returns(spec, "daily") is None
     assert validate._clean_long_matrix(raws["returns"], spec.date_format, "daily") is None
     with pytest.raises(InputError) as err:
         validate.validate_pack(settings)
@@ -173,7 +192,7 @@ def test_a_period_no_row_uses_is_not_a_row_of_the_matrix(tmp_path, monkeypatch):
     keep[::5] = False                           # gaps scattered over every holding
     pacsv.write_csv(table.filter(pa.array(keep)), folder / "returns.csv")
     a, b, taken = both_routes(folder, monkeypatch)
-    assert taken == [True]
+    assert taken == ["stream", "quick"]
     assert_same(a, b)
 
 
@@ -191,7 +210,7 @@ def test_an_id_in_another_unicode_form_takes_the_full_checks(scheme, monkeypatch
     holdings["security_id"] = holdings["security_id"].str.replace("QX", "QÉ")
     holdings.to_csv(scheme / "holdings.csv", index=False)
     a, b, taken = both_routes(scheme, monkeypatch)
-    assert taken == [False]
+    assert taken == ["full", "full"]
     assert_same(a, b)
     assert len(a.returns.security_ids) == 120 and a.returns.security_ids[0].startswith("QÉ")
     frame = pd.read_csv(scheme / "returns.csv")

@@ -12,6 +12,7 @@ from reporter.models import DatedSeries, ReturnPanel, ValidInputs
 from reporter.readers import RawTable, read_input
 from reporter.validate.common import MAX_PER_CHECK, _Capped, _period_word
 from reporter.validate.holdings import validate_holdings
+from reporter.validate.long_stream import stream_long_returns
 from reporter.validate.returns import validate_returns
 from reporter.validate.series import validate_series
 from reporter.validate.text import check_invisible
@@ -25,7 +26,11 @@ def read_inputs(settings: Settings) -> tuple[dict[str, RawTable], list]:
     problems = []
     for role, spec in settings.inputs.items():
         try:
-            raws[role] = read_input(spec)
+            # a clean long returns CSV straight into its matrix, in streamed batches; any
+            # other file, or one in which a row needs a message, is read whole
+            streamed = stream_long_returns(spec, settings.frequency) if role == "returns" \
+                else None
+            raws[role] = streamed if streamed is not None else read_input(spec)
         except InputError as exc:
             problems.extend(exc.problems)
             continue

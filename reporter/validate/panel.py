@@ -68,7 +68,7 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
         coll.warn(where_cell(int(start[k]), col_of[sid]),
                   f"holding {sid} has {what} from here: its prices may be stale")
     return ReturnPanel(period_keys=np.asarray(keys), security_ids=holdings.ids, values=out,
-                       shape=shape, n_rows=raw.table.num_rows)
+                       shape=shape, n_rows=raw.n_rows)
 
 
 def longest_constant_run(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -33,6 +33,8 @@ def validate_returns(raw: RawTable, holdings: Holdings | None, settings: Setting
     (long: ``date,security_id,price``), turned into returns by
     :func:`reporter.validate.prices.price_returns`.
     """
+    if raw.clean is not None:            # read in streamed batches, and found clean
+        return _finish_clean(raw, raw.clean.as_clean(), holdings, settings, coll, holdings_raw)
     names = raw.table.column_names
     value_col = PRICE_COLUMN if settings.inputs["returns"].values == "prices" else "return"
     if raw.table.num_rows == 0 and names:
@@ -53,13 +55,7 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw, value_col) -> Ret
     prices = value_col == PRICE_COLUMN
     clean = None if prices else _clean_long_matrix(raw, spec.date_format, settings.frequency)
     if clean is not None:
-        matrix, keys, ids, percent, row_where = clean
-        return _finish_panel(
-            raw, matrix, keys, ids, holdings, settings, coll, "long",
-            lambda j: place(raw.name, raw.row_number(row_where(lambda p, s: s == j)), "return"),
-            lambda t, j: place(raw.name, raw.row_number(row_where(
-                lambda p, s: (p == t) & (s == j))), "return"),
-            holdings_raw, percent)
+        return _finish_clean(raw, clean, holdings, settings, coll, holdings_raw)
     dcodes, days = date_codes(raw, "date", spec.date_format, coll)
     values = as_float(raw, value_col, coll, spec.decimal, allow_empty=False,
                       thousands=spec.thousands)
@@ -160,6 +156,18 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw, value_col) -> Ret
                          lambda j: place(raw.name, raw.row_number(first_row(j)), "return"),
                          lambda t, j: place(raw.name, raw.row_number(row_of(t, j)), "return"),
                          holdings_raw, percent)
+
+
+def _finish_clean(raw, clean, holdings, settings, coll, holdings_raw) -> ReturnPanel | None:
+    """The panel of a long file in which no row needs a message (see
+    :func:`reporter.validate.long_quick._clean_long_matrix`)."""
+    matrix, keys, ids, percent, row_where = clean
+    return _finish_panel(
+        raw, matrix, keys, ids, holdings, settings, coll, "long",
+        lambda j: place(raw.name, raw.row_number(row_where(lambda p, s: s == j)), "return"),
+        lambda t, j: place(raw.name, raw.row_number(row_where(
+            lambda p, s: (p == t) & (s == j))), "return"),
+        holdings_raw, percent)
 
 
 def _returns_wide(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | None:
