@@ -11,6 +11,7 @@ The readers are set to small blocks here, so that each file arrives in many colu
 
 from __future__ import annotations
 
+import dataclasses
 import sys
 
 import numpy as np
@@ -218,3 +219,37 @@ def test_an_id_in_another_unicode_form_takes_the_full_checks(scheme, monkeypatch
     wide = frame.pivot(index="date", columns="security_id", values="return")
     np.testing.assert_array_equal(a.returns.values,
                                   wide[list(a.returns.security_ids)].to_numpy())
+
+
+def test_columns_in_another_order_are_streamed_to_the_same_panel(scheme, monkeypatch):
+    path = scheme / "returns.csv"
+    t = pd.read_csv(path, dtype=str, keep_default_na=False)
+    t[["return", "security_id", "date"]].to_csv(path, index=False)
+    a, b, taken = both_routes(scheme, monkeypatch)
+    assert taken == ["stream", "quick"]
+    assert_same(a, b)
+
+
+@pytest.mark.parametrize("case", ["extra_column", "trailing_delimiter", "blank_line",
+                                  "thousands", "prices"])
+def test_other_long_files_are_read_whole(scheme, case):
+    """Only a CSV of exactly date, security_id and return, of returns, with no blank line, is
+    streamed; anything else is read whole and checked as before."""
+    path = scheme / "returns.csv"
+    text = path.read_text()
+    lines = text.splitlines()
+    if case == "extra_column":
+        lines = [lines[0] + ",note"] + [line + ",x" for line in lines[1:]]
+    elif case == "trailing_delimiter":
+        lines = [line + "," for line in lines]
+    elif case == "blank_line":
+        lines.insert(400, "")
+    path.write_text("\n".join(lines) + "\n")
+    spec = load_settings(scheme).inputs["returns"]
+    if case == "thousands":
+        spec = dataclasses.replace(spec, thousands=" ")
+    elif case == "prices":
+        spec = dataclasses.replace(spec, values="prices")
+    assert long_stream.stream_long_returns(spec, "daily") is None
+    raw = readers.read_input(spec)               # the whole read, as before
+    assert raw.clean is None and raw.n_rows == raw.table.num_rows > 30_000
