@@ -59,6 +59,11 @@ def test_memory_baseline_and_targets_are_reported_as_ratios(small):
     memory = next(line for line in lines if line.startswith("peak RSS"))
     assert "+ 3.0 x the float64 return matrix" in memory
     assert memory.endswith("target at most 6 (met)")
+    # WeasyPrint alone on the chart-free print HTML, in a fresh process, above the baseline
+    assert small["pdf_floor_rss"] > 50e6
+    own = small["pdf_floor_rss"] - base
+    assert f"the baseline + {own / 1e6:.0f} MB" in next(
+        line for line in lines if line.startswith("WeasyPrint alone"))
     s, f = small["stages"], small["floors"]
     charts = next(line for line in lines if line.startswith("charts"))
     assert f"add {(s['charts'] + s['pdf'] - f['pdf']) / f['pdf']:+.0%}" in charts
