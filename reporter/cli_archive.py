@@ -20,6 +20,18 @@ def key_options(fn):
                         help="Signer's PKCS#12 (.p12) key: sign the PDF digitally.")(fn)
 
 
+def signer_options(archive_help: str, by_help: str, role_help: str):
+    """--archive, --by, --role and --minute-ref: who signs, and into which archive."""
+    def add(fn):
+        fn = click.option("--minute-ref",
+                          help="Reference of the minute that records the approval.")(fn)
+        fn = click.option("--role", help=role_help)(fn)
+        fn = click.option("--by", "signer", required=True, help=by_help)(fn)
+        return click.option("--archive", "-a", required=True,
+                            type=click.Path(path_type=Path), help=archive_help)(fn)
+    return add
+
+
 def _print_signatures(file: Path, trust: Path | None, matches, debug: bool) -> bool:
     """Report each digital signature of FILE; False when one fails, or when the ledger
     records one for the file and it has none (a stripped signature)."""
@@ -39,11 +51,8 @@ def _print_signatures(file: Path, trust: Path | None, matches, debug: bool) -> b
 
 @click.command("sign-off")
 @click.argument("build_dir", type=click.Path(path_type=Path))
-@click.option("--archive", "-a", required=True, type=click.Path(path_type=Path),
-              help="Archive folder (created when new).")
-@click.option("--by", "signer", required=True, help="Name of the person signing off.")
-@click.option("--role", help="Their role, e.g. chair of the investment committee.")
-@click.option("--minute-ref", help="Reference of the minute that records the approval.")
+@signer_options("Archive folder (created when new).", "Name of the person signing off.",
+                "Their role, e.g. chair of the investment committee.")
 @click.option("--note", help="A short note kept with the sign-off.")
 @click.option("--supersedes", is_flag=True,
               help="Replace this period's signed pack with this one (both are kept).")
@@ -85,11 +94,8 @@ def sign_off_cmd(build_dir: Path, archive: Path, signer: str, role, minute_ref, 
 
 @click.command()
 @click.argument("pdf", type=click.Path(path_type=Path))
-@click.option("--archive", "-a", required=True, type=click.Path(path_type=Path),
-              help="Archive folder holding PDF.")
-@click.option("--by", "signer", required=True, help="Name of the person countersigning.")
-@click.option("--role", help="Their role, e.g. secretary to the committee.")
-@click.option("--minute-ref", help="Reference of the minute that records the approval.")
+@signer_options("Archive folder holding PDF.", "Name of the person countersigning.",
+                "Their role, e.g. secretary to the committee.")
 @key_options
 @debug_option
 def countersign(pdf: Path, archive: Path, signer: str, role, minute_ref, key, key_pass_env,

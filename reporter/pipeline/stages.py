@@ -6,9 +6,9 @@ from __future__ import annotations
 import datetime as dt
 import hashlib
 import os
-from pathlib import Path
 
 from reporter.actions import ActionLog, read_actions
+from reporter.archive.verify import file_sha256
 from reporter.changes import read_previous
 from reporter.commentary import read_commentary
 from reporter.config import Settings
@@ -26,9 +26,9 @@ def build_time() -> dt.datetime:
 
 def input_hashes(settings: Settings) -> dict[str, str]:
     """sha256 of pack.toml and of each input file, keyed by role."""
-    out = {"pack.toml": _sha256(settings.config_path)}
+    out = {"pack.toml": file_sha256(settings.config_path)}
     for role, spec in settings.inputs.items():      # the mandates' files too, in a fund
-        out[role] = _sha256(spec.path)
+        out[role] = file_sha256(spec.path)
     return out
 
 
@@ -36,14 +36,6 @@ def fingerprint(hashes: dict[str, str]) -> str:
     """One sha256 over the per-file hashes, in a fixed order."""
     text = "".join(f"{k}={hashes[k]}\n" for k in sorted(hashes))
     return hashlib.sha256(text.encode()).hexdigest()
-
-
-def _sha256(path: Path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            h.update(block)
-    return h.hexdigest()
 
 
 def actions_stage(settings: Settings, hashes: dict[str, str]) -> ActionLog:
