@@ -21,7 +21,7 @@ from reporter.analytics.fund import (
     overlap_holdings,
     overlap_pairs,
 )
-from reporter.analytics.pack import PackResults, analyse
+from reporter.analytics.pack import PackResults
 from reporter.charts import mandate_risk_chart, mandate_weights_chart
 from reporter.commentary import CommentarySet
 from reporter.config import TOTAL_FUND, Settings
@@ -30,7 +30,7 @@ from reporter.errors import Problem
 from reporter.fund_inputs import FundInputs
 from reporter.jsonvalues import json_text
 from reporter.limits import LimitsReport
-from reporter.pipeline.part import Part, PartInputs
+from reporter.pipeline.part import Part, PartInputs, analyse_part
 from reporter.render.environment import make_environment
 from reporter.render.html import chart_svg, render_html
 
@@ -222,8 +222,7 @@ def analyse_fund(fin: FundInputs, settings: Settings) -> FundAnalysis:
     """The figures of a fund without its charts: each part analysed as
     :func:`~reporter.pipeline.part.assemble_part` analyses it, then :func:`join_fund`."""
     parts = fund_parts(fin, settings)
-    results = tuple(analyse(p.inputs, p.settings, benchmark=p.tracking, portfolio=p.own)
-                    for p in parts)
+    results = tuple(analyse_part(p) for p in parts)
     return join_fund(fin, results[0], results[1:], tuple(p.settings for p in parts[1:]))
 
 

@@ -83,13 +83,20 @@ def value_change_of(settings: Settings, res: PackResults, previous,
         flows.dates if flows is not None else None, flows.amounts if flows is not None else None)
 
 
+def analyse_part(p: PartInputs) -> PackResults:
+    """Every figure of one part (:func:`~reporter.analytics.pack.analyse`): against
+    ``inputs.market``, tracking error against ``tracking`` when given, and the part's own
+    returns in place of today's weights when given."""
+    return analyse(p.inputs, p.settings, benchmark=p.tracking, portfolio=p.own)
+
+
 def assemble_part(p: PartInputs, fingerprint: str, at: dt.datetime,
                   progress: Progress) -> Part:
     """Analyse, check against the limits, compare, chart and put in context one part
     (stages analyse and chart). Pure but for the time it takes; no file is read or written."""
     settings = p.settings
     with progress.stage("analyse"):
-        res = analyse(p.inputs, settings, benchmark=p.tracking, portfolio=p.own)
+        res = analyse_part(p)
         style = None
         if p.style is not None:
             res, style = analyse_style(res, p.inputs.holdings.frame, settings, p.style)
