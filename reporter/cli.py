@@ -6,51 +6,32 @@ traceback unless ``--debug``).
 
 from __future__ import annotations
 
-import traceback
 from pathlib import Path
 
 import click
 
 from reporter import __version__
-from reporter.errors import EXIT_BAD_INPUT, EXIT_FAILED, EXIT_OK, InputError, ReporterError
-
-MAX_LINES = 50
-
-debug_option = click.option("--debug", is_flag=True, help="Show a traceback on failure.")
-strict_option = click.option("--strict", is_flag=True, help="Treat warnings as errors.")
-quiet_option = click.option("--quiet", "-q", is_flag=True, help="Print no progress.")
-
-
-def key_options(fn):
-    """--key and --key-pass-env: a digital signature with a PKCS#12 key."""
-    fn = click.option("--key-pass-env", metavar="NAME",
-                      help="Environment variable holding the key's passphrase (else a "
-                      "prompt on the terminal).")(fn)
-    return click.option("--key", type=click.Path(path_type=Path),
-                        help="Signer's PKCS#12 (.p12) key: sign the PDF digitally.")(fn)
-
-
-def _print_signatures(file: Path, trust: Path | None, matches, debug: bool) -> bool:
-    """Report each digital signature of FILE; False when one fails, or when the ledger
-    records one for the file and it has none (a stripped signature)."""
-    from reporter.archive.signature import describe
-
-    if file.suffix.lower() != ".pdf":
-        return True
-    lines, ok = _run(lambda: describe(file, trust), debug)
-    for line in lines:
-        click.echo(line)
-    expected = [m.entry for m in matches if m.entry.cert_sha256]
-    if expected and lines == [f"{file}: carries no digital signature"]:
-        click.echo(f"{file}: the ledger records a digital signature that is missing")
-        return False
-    return ok
+from reporter.cli_archive import countersign, repair, sign_off_cmd, verify
+from reporter.cli_common import (
+    MAX_LINES,
+    Stop,
+    debug_option,
+    guarded,
+    print_warnings,
+    quiet_option,
+    strict_option,
+)
+from reporter.errors import EXIT_BAD_INPUT, EXIT_FAILED, EXIT_OK
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="reporter")
 def cli() -> None:
     """Build investment committee packs (HTML, PDF and results files) from a pack folder."""
+
+
+for _command in (sign_off_cmd, countersign, verify, repair):     # see reporter.cli_archive
+    cli.add_command(_command)
 
 
 @cli.command()
@@ -65,9 +46,9 @@ def build(pack: Path, out: Path, strict: bool, quiet: bool, debug: bool) -> None
     from reporter.build import build_pack
     from reporter.progress import Progress
 
-    report = _run(lambda: build_pack(pack, out, strict=strict, progress=Progress(quiet=quiet)),
-                  debug)
-    _print_warnings(report.warnings)
+    report = guarded(lambda: build_pack(pack, out, strict=strict, progress=Progress(quiet=quiet)),
+                     debug)
+    print_warnings(report.warnings)
     click.echo(f"wrote {report.out}: " + ", ".join(report.files))
 
 
@@ -79,187 +60,11 @@ def check(pack: Path, strict: bool, debug: bool) -> None:
     """Validate PACK only, and summarise what was found."""
     from reporter.summary import check_pack
 
-    summary = _run(lambda: check_pack(pack, strict=strict), debug)
-    _print_warnings(summary.warnings)
+    summary = guarded(lambda: check_pack(pack, strict=strict), debug)
+    print_warnings(summary.warnings)
     click.echo(summary.text)
 
 
-@cli.command("sign-off")
-@click.argument("build_dir", type=click.Path(path_type=Path))
-@click.option("--archive", "-a", required=True, type=click.Path(path_type=Path),
-              help="Archive folder (created when new).")
-@click.option("--by", "signer", required=True, help="Name of the person signing off.")
-@click.option("--role", help="Their role, e.g. chair of the investment committee.")
-@click.option("--minute-ref", help="Reference of the minute that records the approval.")
-@click.option("--note", help="A short note kept with the sign-off.")
-@click.option("--supersedes", is_flag=True,
-              help="Replace this period's signed pack with this one (both are kept).")
-@click.option("--reason", help="Why the earlier sign-off is superseded (with --supersedes).")
-@key_options
-@quiet_option
-@debug_option
-def sign_off_cmd(build_dir: Path, archive: Path, signer: str, role, minute_ref, note,
-                 supersedes: bool, reason, key, key_pass_env, quiet: bool,
-                 debug: bool) -> None:
-    """Sign off the reviewed build in BUILD_DIR and archive it as a tagged PDF/A-3a."""
-    from reporter.archive.signoff import BrokenArchive, SignOffRequest, sign_off
-    from reporter.progress import Progress
-
-    signing_key = _open_key(key, key_pass_env, debug)
-    request = SignOffRequest(signer=signer, role=role, minute_ref=minute_ref, note=note,
-                             supersedes=supersedes, reason=reason, key=signing_key)
-
-    def run():
-        try:
-            return sign_off(build_dir, archive, request, progress=Progress(quiet=quiet))
-        except BrokenArchive as exc:          # each problem on its own line, then the summary
-            for line in exc.findings[:MAX_LINES]:
-                click.echo(f"{exc.archive}: {line}", err=True)
-            if len(exc.findings) > MAX_LINES:
-                click.echo(f"... and {len(exc.findings) - MAX_LINES} more problems", err=True)
-            raise
-
-    report = _run(run, debug)
-    e = report.entry
-    click.echo(f"signed off {report.pdf}")
-    click.echo(f"  ledger entry {e.seq}, revision {e.revision}"
-               + (f", supersedes entry {e.supersedes}" if e.supersedes else ""))
-    click.echo(f"  pdf sha256   {e.pdf_sha256}")
-    click.echo(f"  ledger head  {e.entry_hash}  (note this in the minutes)")
-    click.echo(f"  digital signature: {e.cert_subject}, certificate sha256 {e.cert_sha256}"
-               if e.cert_sha256 else "  the PDF carries no digital signature (--key adds one)")
-
-
-@cli.command()
-@click.argument("pdf", type=click.Path(path_type=Path))
-@click.option("--archive", "-a", required=True, type=click.Path(path_type=Path),
-              help="Archive folder holding PDF.")
-@click.option("--by", "signer", required=True, help="Name of the person countersigning.")
-@click.option("--role", help="Their role, e.g. secretary to the committee.")
-@click.option("--minute-ref", help="Reference of the minute that records the approval.")
-@key_options
-@debug_option
-def countersign(pdf: Path, archive: Path, signer: str, role, minute_ref, key, key_pass_env,
-                debug: bool) -> None:
-    """Add the next signer's digital signature to the archived PDF, as a new revision."""
-    from reporter.archive.countersign import countersign as run
-
-    if key is None:
-        click.echo("reporter countersign: --key is required", err=True)
-        raise _Exit(EXIT_BAD_INPUT)
-    signing_key = _open_key(key, key_pass_env, debug)
-    report = _run(lambda: run(pdf, archive, signing_key, signer=signer, role=role,
-                              minute_ref=minute_ref), debug)
-    e = report.entry
-    click.echo(f"countersigned {report.pdf}")
-    click.echo(f"  ledger entry {e.seq}, revision {e.revision}, supersedes entry "
-               f"{e.supersedes}")
-    click.echo(f"  digital signature: {e.cert_subject}, certificate sha256 {e.cert_sha256}")
-    click.echo(f"  ledger head  {e.entry_hash}  (note this in the minutes)")
-
-
-def _open_key(key: Path | None, pass_env: str | None, debug: bool):
-    """The checked signing key of --key (None without it)."""
-    if key is None:
-        if pass_env is not None:
-            click.echo("reporter: --key-pass-env needs --key", err=True)
-            raise _Exit(EXIT_BAD_INPUT)
-        return None
-    from reporter.archive.keys import open_key
-
-    return _run(lambda: open_key(key, pass_env), debug)
-
-
-@cli.command()
-@click.argument("file", required=False, type=click.Path(path_type=Path))
-@click.option("--archive", "-a", required=True, type=click.Path(path_type=Path),
-              help="Archive folder.")
-@click.option("--head", "heads", multiple=True, metavar="HASH",
-              help="A ledger head from the minutes: check that it is an entry of an intact "
-                   "chain (repeatable).")
-@click.option("--head-file", type=click.Path(path_type=Path),
-              help="A file of minuted heads, one a line ('#' comments, blank lines allowed).")
-@click.option("--trust", type=click.Path(path_type=Path),
-              help="PEM file of trusted root certificates: check each signature's chain.")
-@debug_option
-def verify(file: Path | None, archive: Path, heads: tuple[str, ...], head_file: Path | None,
-           trust: Path | None, debug: bool) -> None:
-    """Check the whole archive, or (with FILE) whether FILE is a signed pack in it.
-
-    With --head or --head-file, also check that each minuted head is an entry of the
-    chain, so that a ledger rewritten after it was minuted is caught.
-
-    Exit 0 when intact (or FILE is archived), 1 when not, 2 when the archive cannot be read
-    or a head is not a sha256.
-    """
-    from reporter.archive.anchor import check_heads, parse_head, read_heads_file
-    from reporter.archive.verify import find_file, verify_archive
-
-    if file is not None:
-        if heads or head_file is not None:
-            click.echo("reporter: --head and --head-file check the whole archive; give them "
-                       "without FILE", err=True)
-            raise _Exit(EXIT_BAD_INPUT)
-        if not file.is_file():
-            click.echo(f"reporter: {file}: no such file", err=True)
-            raise _Exit(EXIT_BAD_INPUT)
-        matches = _run(lambda: find_file(file, archive), debug)
-        signed_ok = _print_signatures(file, trust, matches, debug)
-        if not matches:
-            click.echo(f"{file}: NOT in the archive (its sha256 matches no ledger entry)")
-            raise _Exit(EXIT_FAILED)
-        for m in matches:
-            e = m.entry
-            click.echo(f"{file}: matches {m.path}, ledger entry {e.seq}: {e.title}, period "
-                       f"ending {e.period_end}, signed off by {e.signer} on {e.signed_utc}"
-                       + (f"; superseded by entry {m.superseded_by.seq}"
-                          if m.superseded_by else ""))
-        if not signed_ok:
-            raise _Exit(EXIT_FAILED)
-        return
-    minuted = _run(lambda: [parse_head(h, "--head") for h in heads]
-                   + (read_heads_file(head_file) if head_file is not None else []), debug)
-    report = _run(lambda: verify_archive(archive), debug)
-    for f in report.findings:
-        click.echo(str(f))
-    for n in report.notes:
-        click.echo(f"note: {n}")
-    checks = check_heads(report, minuted)
-    for c in checks:
-        click.echo(str(c))
-    unanchored = sum(not c.anchored for c in checks)
-    if report.intact:
-        n_files = sum(len(e.file_hashes) for e in report.entries)
-        click.echo(f"archive intact: {len(report.entries)} entries, {n_files} files, "
-                   f"ledger head {report.head_hash or '(empty)'}")
-    else:
-        click.echo(f"archive NOT intact: {len(report.findings)} problem(s)")
-    if unanchored:
-        click.echo(f"{unanchored} of {len(checks)} minuted head(s) NOT anchored: the ledger "
-                   "does not hold the chain the minutes recorded")
-    elif checks:
-        click.echo(f"all {len(checks)} minuted head(s) anchored")
-    if unanchored or not report.intact:
-        raise _Exit(EXIT_FAILED)
-
-
-@cli.command()
-@click.option("--archive", "-a", required=True, type=click.Path(path_type=Path),
-              help="Archive folder.")
-@debug_option
-def repair(archive: Path, debug: bool) -> None:
-    """Move files that no ledger entry records into quarantine/ (nothing is deleted)."""
-    from reporter.archive.verify import repair as repair_archive
-
-    report = _run(lambda: repair_archive(archive), debug)
-    for src, dest in report.moved:
-        click.echo(f"moved {src} -> {dest}")
-    for f in report.unresolved:
-        click.echo(f"cannot repair: {f} (restore it from a backup)")
-    if not report.moved and not report.unresolved:
-        click.echo("nothing to repair")
-    if report.unresolved:
-        raise _Exit(EXIT_FAILED)
 
 
 @cli.command("build-all")
@@ -283,12 +88,12 @@ def build_all_cmd(schemes_dir: Path, out: Path, workers, scheduler, strict: bool
     from reporter.progress import BatchProgress
 
     with BatchProgress(quiet=quiet) as progress:
-        results = _run(lambda: build_all(schemes_dir, out, workers=workers,
-                                         scheduler=scheduler, strict=strict,
-                                         on_result=progress.update), debug)
+        results = guarded(lambda: build_all(schemes_dir, out, workers=workers,
+                                            scheduler=scheduler, strict=strict,
+                                            on_result=progress.update), debug)
     click.echo(summary_table(results))
     if any(r.status == FAILED for r in results):
-        raise _Exit(EXIT_FAILED)
+        raise Stop(EXIT_FAILED)
 
 
 @cli.command()
@@ -299,7 +104,7 @@ def init(folder: Path, debug: bool) -> None:
     with the right headers."""
     from reporter.starter import init_pack
 
-    names = _run(lambda: init_pack(folder), debug)
+    names = guarded(lambda: init_pack(folder), debug)
     click.echo(f"wrote {folder}: " + ", ".join(names))
     click.echo(f"next: fill in the CSV files and [pack] in pack.toml, then "
                f"'reporter check {folder}'")
@@ -320,7 +125,7 @@ def site(archive: Path, out: Path, quiet: bool, debug: bool) -> None:
     from reporter.progress import Progress
     from reporter.site import build_site
 
-    report = _run(lambda: build_site(archive, out, progress=Progress(quiet=quiet)), debug)
+    report = guarded(lambda: build_site(archive, out, progress=Progress(quiet=quiet)), debug)
     click.echo(f"wrote {report.out}: {report.n_packs} signed pack(s), {len(report.files)} "
                f"files, {report.n_bytes:,} bytes; ledger head {report.head_hash or '(empty)'}")
 
@@ -352,58 +157,13 @@ def preview(pack: Path, port: int, host: str, debug: bool) -> None:
                        err=True)
 
     click.echo(f"building {pack} ...", err=True)
-    server = _run(lambda: Preview(pack, host, port, on_update=report), debug)
+    server = guarded(lambda: Preview(pack, host, port, on_update=report), debug)
     report(server.state.page, True)
     click.echo(f"previewing {pack} at {server.url} (Ctrl-C stops)")
-    _run(server.serve_forever, debug)
+    guarded(server.serve_forever, debug)
     click.echo("preview stopped")
 
 
-def _print_warnings(warnings) -> None:
-    for w in warnings[:MAX_LINES]:
-        click.echo(str(w), err=True)
-    if len(warnings) > MAX_LINES:
-        click.echo(f"... and {len(warnings) - MAX_LINES} more warnings", err=True)
-
-
-class _Exit(Exception):
-    def __init__(self, code: int) -> None:
-        self.code = code
-
-
-def _run(fn, debug: bool):
-    try:
-        return fn()
-    except InputError as exc:
-        if debug:
-            traceback.print_exc()
-        problems = exc.problems
-        errors = [p for p in problems if p.severity == "error"]
-        for p in problems[:MAX_LINES]:
-            click.echo(str(p), err=True)
-        if len(problems) > MAX_LINES:
-            click.echo(f"... and {len(problems) - MAX_LINES} more problems", err=True)
-        n_warn = len(problems) - len(errors)
-        if errors:
-            summary = f"{len(errors)} error(s) in the inputs"
-        else:
-            summary = f"{n_warn} warning(s) treated as errors (--strict)"
-        click.echo(f"reporter: {summary}; nothing was written", err=True)
-        raise _Exit(exc.exit_code) from None
-    except ReporterError as exc:
-        if debug:
-            traceback.print_exc()
-        click.echo(f"reporter: {exc}", err=True)
-        raise _Exit(exc.exit_code) from None
-    except KeyboardInterrupt:
-        click.echo("reporter: interrupted; nothing was written", err=True)
-        raise _Exit(EXIT_FAILED) from None
-    except Exception as exc:  # an internal fault: say so plainly
-        if debug:
-            traceback.print_exc()
-        click.echo(f"reporter: internal error: {type(exc).__name__}: {exc} "
-                   "(run with --debug for a traceback)", err=True)
-        raise _Exit(EXIT_FAILED) from None
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -414,7 +174,7 @@ def main(argv: list[str] | None = None) -> int:
     """
     try:
         cli.main(args=argv, prog_name="reporter", standalone_mode=False)
-    except _Exit as e:
+    except Stop as e:
         return e.code
     except _NO_ARGS_IS_HELP as e:
         click.echo(e.ctx.get_help() if e.ctx is not None else str(e))

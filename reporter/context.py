@@ -221,3 +221,11 @@ def build_context(settings: Settings, inputs: ValidInputs, res: PackResults,
         stand_ins=_records(stand_ins), has_values="market_value" in sec,
         asset_class_ranges=limits.asset_class_status() if limits else {}, fees=fees,
     )
+
+
+# the fund's caution, added to the pack's in a fund pack (HTML and workbook)
+FUND_CAUTION = (
+    "Each mandate is measured against its own benchmark, and the total fund against the "
+    "fund's: a beta, alpha or tracking error of one mandate is not comparable with another's "
+    "measured against a different benchmark, and the mandates' figures do not add up to the "
+    "fund's, except the contributions to risk, which are allocated to add up.")

@@ -15,7 +15,8 @@ class Progress:
     def __init__(self, quiet: bool = False, stream=None) -> None:
         self.stream = stream or sys.stderr
         self.quiet = quiet
-        self.times: dict[str, float] = {}      # seconds per finished stage, quiet or not
+        self.times: dict[str, float] = {}      # seconds per stage (summed over a
+        #                                         fund's parts), quiet or not
         self.live = (not quiet and hasattr(self.stream, "isatty") and self.stream.isatty()
                      and not os.environ.get("CI"))
         self._console = None
@@ -32,7 +33,8 @@ class Progress:
                 yield
         else:
             yield
-        self.times[name] = seconds = time.perf_counter() - start
+        seconds = time.perf_counter() - start
+        self.times[name] = self.times.get(name, 0.0) + seconds
         if self.quiet:
             return
         if self._console is not None:

@@ -42,6 +42,7 @@ from openpyxl.utils import get_column_letter
 from openpyxl.writer.excel import ExcelWriter
 
 from reporter import __version__
+from reporter.context import FUND_CAUTION
 from reporter.csvsafe import needs_escape
 from reporter.jsonvalues import json_ready
 
@@ -369,8 +370,6 @@ def about_rows(a) -> list[tuple[str, object]]:
     period = PERIOD_WORD.get(ctx.periods_per_year, "period")
     cautions = list(ctx.cautions)
     if a.settings.is_fund:
-        from reporter.fund_build import FUND_CAUTION
-
         cautions.append(FUND_CAUTION)
     rows: list[tuple[str, object]] = [
         ("Pack", ctx.title),

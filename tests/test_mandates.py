@@ -22,8 +22,8 @@ import statsmodels.api as sm
 from reporter.analytics.pack import analyse
 from reporter.cli import main
 from reporter.config import TOTAL_FUND, load_settings
-from reporter.fund_build import FundAnalysis, analyse_fund
 from reporter.fund_inputs import validate_fund
+from reporter.pipeline.fund import FundAnalysis, analyse_fund
 from reporter.validate import read_inputs, validate_pack
 from tests.conftest import REPO, build_at_fixed_epoch
 

@@ -23,7 +23,7 @@ from pathlib import Path
 
 import pytest
 
-import reporter.build as build_module
+import reporter.pipeline.part as part_module
 from reporter.cli import cli
 from reporter.preview.server import Preview, referenced_files, served_page
 from tests.conftest import DEMO, build_at_fixed_epoch
@@ -59,9 +59,9 @@ def env(tmp_path_factory):
     out = root / "out"
     assert build_at_fixed_epoch(pack, out) == 0          # an earlier build of this pack
     before_out, before_pack = _snapshot(out), set(_snapshot(pack))
-    counter = Counter(build_module.analyse)
+    counter = Counter(part_module.analyse)
     with pytest.MonkeyPatch.context() as mp:
-        mp.setattr(build_module, "analyse", counter)
+        mp.setattr(part_module, "analyse", counter)
         preview = Preview(pack, port=0)
         try:
             preview.start()

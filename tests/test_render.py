@@ -88,7 +88,7 @@ def test_every_chart_matches_the_vega_lite_schema():
     import jsonschema
 
     from reporter.charts import mandate_risk_chart, mandate_weights_chart
-    from reporter.fund_build import TOTAL_FUND
+    from reporter.config import TOTAL_FUND
     from tests.conftest import REPO
 
     single = assemble(load_settings(DEMO))

@@ -13,6 +13,7 @@ import shutil
 import pytest
 
 import reporter.build as build
+import reporter.pipeline.results as results_module
 from reporter.config import load_settings
 from reporter.errors import OutputError, WriteFailed
 from reporter.progress import Progress
@@ -91,7 +92,10 @@ def test_a_failure_in_either_thread_leaves_the_earlier_output(assembled, demo_bu
     def boom(*args, **kwargs):
         raise RuntimeError(f"{where} failed")
 
-    monkeypatch.setattr(build, "render_pdf" if where == "pdf" else "write_rolling_csv", boom)
+    if where == "pdf":
+        monkeypatch.setattr(build, "render_pdf", boom)
+    else:
+        monkeypatch.setattr(results_module, "write_rolling_csv", boom)
     with pytest.raises(RuntimeError, match=f"{where} failed"):
         build.finish_build(assembled, out, Progress(quiet=True))
     assert tree(out) == before
@@ -122,7 +126,7 @@ def test_a_failure_stops_the_results_thread_and_nothing_is_left(assembled, demo_
         started.wait(timeout=30)          # the thread is writing when the PDF fails
         raise RuntimeError("pdf failed")
 
-    monkeypatch.setattr(build, "write_rolling_csv", slow_rolling)
+    monkeypatch.setattr(results_module, "write_rolling_csv", slow_rolling)
     monkeypatch.setattr(build, "render_pdf", failing_pdf)
     with pytest.raises(RuntimeError, match="pdf failed"):
         build.finish_build(assembled, out, Progress(quiet=True))

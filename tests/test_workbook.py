@@ -259,7 +259,7 @@ def test_fund_workbook_matches_its_csvs(tmp_path):
     overlap tables, cell by cell against the CSV text the build writes."""
     from reporter.build import assemble
     from reporter.config import load_settings
-    from reporter.fund_build import fund_results_files
+    from reporter.pipeline.results import fund_results_files
     from reporter.workbook import pack_workbook
 
     at = dt.datetime.fromtimestamp(int(FIXED_EPOCH), tz=dt.UTC)

@@ -30,8 +30,8 @@ from reporter.archive.ledger import (
     Entry,
     append,
     canonical_json,
-    connect_for_writing,
     entries_for,
+    ledger_transaction,
 )
 from reporter.archive.signature import sign_pdf, signature_columns
 from reporter.archive.signoff import ArchiveError, archive_name
@@ -90,9 +90,7 @@ def countersign(pdf_file: Path | str, archive: Path | str, key: SigningKey, *,
                 raise ArchiveError(f"{archive / rel}: changed while countersigning; "
                                    "nothing was archived")
             files.add(f"{earlier.period_end}/{name}/{rel.removeprefix(prefix)}", content)
-    con = connect_for_writing(archive)
-    try:
-        con.execute("BEGIN IMMEDIATE")
+    with ledger_transaction(archive) as con:
         now = entries_for(con, earlier.pack_name, earlier.period_end)
         if not now or now[-1].seq != earlier.seq:
             raise ArchiveError(f"{earlier.pack_name} for {earlier.period_end}: another "
@@ -114,13 +112,6 @@ def countersign(pdf_file: Path | str, archive: Path | str, key: SigningKey, *,
                       f"{earlier.seq}'s PDF",
             **signature_columns(key, signed),
         })
-        con.execute("COMMIT")
-    except BaseException:
-        if con.in_transaction:
-            con.execute("ROLLBACK")
-        raise
-    finally:
-        con.close()
     return CountersignReport(entry, archive / entry.pdf_path, earlier)
 
 

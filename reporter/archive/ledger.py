@@ -20,10 +20,12 @@ it anchors the chain outside the archive.
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
 import os
 import sqlite3
+from collections.abc import Iterator
 from dataclasses import asdict, dataclass, fields
 from pathlib import Path
 
@@ -152,6 +154,26 @@ def connect_for_writing(archive: Path) -> sqlite3.Connection:
     con = sqlite3.connect(path, timeout=BUSY_TIMEOUT_S, isolation_level=None)
     con.execute("PRAGMA synchronous=FULL")
     return con
+
+
+@contextlib.contextmanager
+def ledger_transaction(archive: Path, *, commit: bool = True) -> Iterator[sqlite3.Connection]:
+    """The ledger open for writing (:func:`connect_for_writing`) inside one ``BEGIN
+    IMMEDIATE`` transaction, which waits while another sign-off holds the write lock.
+    The transaction is committed when the block ends normally (rolled back instead with
+    ``commit=False``: the lock alone was wanted) and rolled back on any exception, an
+    interrupt included; the connection is closed either way."""
+    con = connect_for_writing(archive)
+    try:
+        con.execute("BEGIN IMMEDIATE")
+        yield con
+        con.execute("COMMIT" if commit else "ROLLBACK")
+    except BaseException:
+        if con.in_transaction:
+            con.execute("ROLLBACK")
+        raise
+    finally:
+        con.close()
 
 
 def _create_ledger(archive: Path) -> None:

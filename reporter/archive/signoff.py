@@ -33,10 +33,10 @@ from reporter.archive.ledger import (
     Entry,
     append,
     canonical_json,
-    connect_for_writing,
     connect_read_only,
     entries_for,
     last_entry,
+    ledger_transaction,
 )
 from reporter.archive.review import input_path, read_build, reproduce, sha256
 from reporter.archive.signature import page_record, sign_pdf, signature_columns
@@ -122,9 +122,7 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
             files.add(f"{period}/{name}/{rel}", outputs[rel])
 
     archive.mkdir(parents=True, exist_ok=True)
-    con = connect_for_writing(archive)
-    try:
-        con.execute("BEGIN IMMEDIATE")   # waits while another sign-off holds the lock
+    with ledger_transaction(archive) as con:   # waits while another sign-off holds the lock
         refuse_broken_archive(archive, locked=True)   # again: nothing else can change it now
         now_existing = entries_for(con, settings.name, period)
         _refuse(now_existing, request, settings.name, period)
@@ -148,13 +146,6 @@ def sign_off(build_dir: Path | str, archive: Path | str, request: SignOffRequest
                 "reason": request.reason,
                 **signature_columns(request.key, pdf if request.key else None),
             })
-            con.execute("COMMIT")
-    except BaseException:
-        if con.in_transaction:
-            con.execute("ROLLBACK")
-        raise
-    finally:
-        con.close()
     return SignOffReport(entry=entry, pdf=archive / entry.pdf_path, superseded=superseded)
 
 
@@ -255,13 +246,8 @@ def refuse_broken_archive(archive: Path, *, locked: bool = False) -> None:
         report = verify_archive(archive)
     else:
         load_entries(archive)             # a file that is no ledger: ArchiveUnreadable
-        con = connect_for_writing(archive)
-        try:
-            con.execute("BEGIN IMMEDIATE")
+        with ledger_transaction(archive, commit=False):   # the lock, for the check only
             report = verify_archive(archive)
-            con.execute("ROLLBACK")
-        finally:
-            con.close()
     if not report.intact:
         raise BrokenArchive(archive, [str(f) for f in report.findings])
 
