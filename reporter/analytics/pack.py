@@ -10,7 +10,7 @@ import numpy as np
 import pandas as pd
 
 from reporter.analytics import summaries
-from reporter.analytics.covariance import CovarianceEstimate, holdings_and_active
+from reporter.analytics.covariance import CovarianceEstimate, _Moments, holdings_and_active
 from reporter.analytics.coverage import Coverage, cover_holdings, fit_status, own_fits
 from reporter.analytics.diversification import (
     Concentration,
@@ -20,12 +20,12 @@ from reporter.analytics.diversification import (
     VarianceSplit,
     concentration,
     equal_weight_curve,
-    pairwise_covariance_and_average_correlation,
     random_subset_band,
     risk_contributions,
     sector_weights,
     variance_split,
 )
+from reporter.analytics.gram import pairwise_covariance_and_average_correlation, residual_gram
 from reporter.analytics.performance import (
     PerformanceRatios,
     growth_of_one,
@@ -291,7 +291,8 @@ def analyse(inputs: ValidInputs, settings: Settings,
     hold = inputs.holdings.frame
     sectors = sector_weights(hold["sector"], weights)
     var = variance_split(weights, fits.beta, fits.residual_vol, x)
-    pair_cov, avg_corr = pairwise_covariance_and_average_correlation(win.returns[:, ok])
+    shared = _Moments.of(win.returns)      # the one centred Gram matrix of the window
+    pair_cov, avg_corr = pairwise_covariance_and_average_correlation(shared, np.flatnonzero(ok))
     curve = equal_weight_curve(pair_cov)
     n_fit = int(ok.sum())
     top = max(min(n_fit, BAND_MAX_SIZE), 1)     # beyond a few hundred the band is a line
@@ -301,8 +302,17 @@ def analyse(inputs: ValidInputs, settings: Settings,
     band = random_subset_band(pair_cov, sizes, settings.random_subsets, settings.seed)
     del pair_cov                # N x N: freed before the risk model's two N x N estimates
     bench_win = _align_optional(benchmark, win.dates, settings.frequency)
+    complete = ok & np.isfinite(y).all(axis=0)
+    if np.isfinite(x).all() and np.isfinite(win.risk_free).all() and complete.any():
+        grs_h = grs_test(y[:, complete], x, "holdings", alpha=fits.alpha[complete],
+                         residual_cross=residual_gram(shared, np.flatnonzero(complete),
+                                                      win.risk_free, x))
+    else:
+        grs_h = grs_test(y[:, complete], x, "holdings")
     cov, cov_active = holdings_and_active(
-        win.returns, win.market if bench_win is None else bench_win, settings.covariance)
+        win.returns, win.market if bench_win is None else bench_win, settings.covariance,
+        moments=shared)
+    del shared
     risk = risk_contributions(weights, cov.matrix, cov_active.matrix)
 
     beta_up, beta_down = up_down_betas(y, x, settings.min_obs, prep=prep)
@@ -312,8 +322,6 @@ def analyse(inputs: ValidInputs, settings: Settings,
     line_cs = cross_sectional_test(fits.mean_excess[ok], fits.beta[ok],
                                    float(np.mean(x)), win.n_periods)
     line_fm, _ = fama_macbeth(y[:, ok], fits.beta[ok], x)
-    complete = ok & np.isfinite(y).all(axis=0)
-    grs_h = grs_test(y[:, complete], x, "holdings")
     sector_names = sorted(set(hold["sector"]))
     sector_of = hold["sector"].to_numpy()
     sector_ex = np.column_stack([
