@@ -50,7 +50,7 @@ from reporter.analytics.regression import (
     vasicek_beta,
     vasicek_summary,
 )
-from reporter.analytics.returns import Window, portfolio_returns
+from reporter.analytics.returns import Window, portfolio_returns, sector_returns
 from reporter.analytics.sml import (
     GRSTest,
     LineTest,
@@ -324,9 +324,8 @@ def analyse(inputs: ValidInputs, settings: Settings,
     line_fm, _ = fama_macbeth(y[:, ok], fits.beta[ok], x)
     sector_names = sorted(set(hold["sector"]))
     sector_of = hold["sector"].to_numpy()
-    sector_ex = np.column_stack([
-        portfolio_returns(win.returns[:, sector_of == name], weights[sector_of == name])
-        for name in sector_names]) - win.risk_free[:, None]
+    sector_ex = sector_returns(win.returns, weights, sector_of, sector_names) - \
+        win.risk_free[:, None]
     full = np.isfinite(sector_ex).all(axis=0) & (np.ptp(sector_ex, axis=0) > 1e-12)  # not cash
     grs_s = grs_test(sector_ex[:, full], x, "sector portfolios")
 

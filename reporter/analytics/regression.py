@@ -459,11 +459,39 @@ def scholes_williams_beta(y: np.ndarray, x: np.ndarray, min_obs: int,
     x = np.asarray(x, float)
     lag, lead = with_before(x, before, 1), shift(x, -1)
     common = np.isfinite(lag) & np.isfinite(lead) & np.isfinite(x)
-    yy = np.where(common[:, None], y, np.nan)
-    b = [fit_market_model(yy, np.where(common, z, np.nan), min_obs).beta for z in (lag, x, lead)]
+    b = _common_row_slopes(np.asarray(y, float), (lag, x, lead), common, min_obs)
     pair = np.isfinite(x[1:]) & np.isfinite(x[:-1])
     rho = float(np.corrcoef(x[1:][pair], x[:-1][pair])[0, 1]) if pair.sum() > 2 else np.nan
     return (b[0] + b[1] + b[2]) / (1.0 + 2.0 * rho)
+
+
+def _common_row_slopes(y: np.ndarray, regressors: tuple[np.ndarray, ...], common: np.ndarray,
+                       min_obs: int) -> list[np.ndarray]:
+    """The slope of each column of ``y`` on each regressor in turn (with an intercept), every
+    fit on the rows in ``common`` where the column has a value: :func:`fit_market_model`'s
+    beta for each regressor, with the mask, the zero-filled returns and their sums formed
+    once and the cross products of all the regressors taken in one matrix product."""
+    mask = np.isfinite(y)
+    mask &= common[:, None]
+    m = mask.astype(float)
+    y0 = np.where(mask, y, 0.0)
+    del mask
+    centred = []
+    for z in regressors:
+        z_mean = float(z[common].mean()) if common.any() else 0.0
+        centred.append(np.where(common, z - z_mean, 0.0))
+    ones = np.ones_like(centred[0])
+    sums_m = np.stack([ones] + [v for zc in centred for v in (zc, zc * zc)]) @ m
+    sums_y = np.stack([ones] + centred) @ y0
+    n, sy = sums_m[0], sums_y[0]
+    fitted = np.where(n >= max(min_obs, 3), 1.0, np.nan)
+    out = []
+    for k in range(len(centred)):
+        sx, sxx, sxy = sums_m[1 + 2 * k], sums_m[2 + 2 * k], sums_y[1 + k]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            xbar, ybar = sx / n, sy / n
+            out.append((sxy - n * xbar * ybar) / (sxx - n * xbar**2) * fitted)
+    return out
 
 
 # --------------------------------------------------------------------------- rolling
