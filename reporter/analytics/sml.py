@@ -11,7 +11,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from reporter.analytics.regression import MarketModelFits, t_critical
+from reporter.analytics.market_model import MarketModelFits, t_critical
 
 ABOVE, BELOW, WITHIN = "above the line", "below the line", "within estimation error"
 
