@@ -106,9 +106,10 @@ def analyse(inputs: ValidInputs, settings: Settings,
     bench_win = _align_optional(benchmark, win.dates, settings.frequency)
     complete = ok & np.isfinite(y).all(axis=0)
     if np.isfinite(x).all() and np.isfinite(win.risk_free).all() and complete.any():
+        cols = np.flatnonzero(complete)
         grs_h = grs_test(y[:, complete], x, "holdings", alpha=fits.alpha[complete],
-                         residual_cross=residual_gram(shared, np.flatnonzero(complete),
-                                                      win.risk_free, x))
+                         residual_cross=residual_gram(shared, cols, win.risk_free, x),
+                         return_variance=np.diagonal(shared.gram)[cols] / win.n_periods)
     else:
         grs_h = grs_test(y[:, complete], x, "holdings")
     cov, cov_active = holdings_and_active(

@@ -243,8 +243,8 @@ class GRSTest:
 
 
 def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdings", *,
-             alpha: np.ndarray | None = None,
-             residual_cross: np.ndarray | None = None) -> GRSTest:
+             alpha: np.ndarray | None = None, residual_cross: np.ndarray | None = None,
+             return_variance: np.ndarray | None = None) -> GRSTest:
     """GRS statistic F = (T - N - 1)/N x a' S^-1 a / (1 + m^2 / s^2) ~ F(N, T - N - 1) under
     normal errors, with a the N market-model alphas, S the residual covariance and m, s^2 the
     market premium's mean and variance, both maximum-likelihood (divisor T) (Gibbons, Ross
@@ -254,7 +254,11 @@ def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdi
     ``alpha`` and ``residual_cross`` (E'E, the residuals' cross products), when given, are
     the market-model alphas and residuals of these same returns already computed from the
     pack's shared Gram matrix (:func:`reporter.analytics.gram.residual_gram`): the T N^2
-    product of the residuals is then not formed again."""
+    product of the residuals is then not formed again. That route's residual variances carry
+    rounding of the order of eps times the variance of the returns before the risk-free rate
+    is taken off (``return_variance``): an asset that is exactly a line in the market (its
+    residual variance at most 1e-12 of its variance) is judged against the larger of the two
+    variances, which is the same test wherever the risk-free rate is constant."""
     from scipy import stats
 
     y = np.asarray(excess, dtype=float)
@@ -286,7 +290,10 @@ def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdi
     # (an R-squared within 1e-12 of one is a line up to rounding)
     resid_var = np.diag(sigma)
     scale = np.sqrt(resid_var)
-    quad = (None if np.any(resid_var <= 1e-12 * y.var(axis=0))
+    y_var = y.var(axis=0)
+    if residual_cross is not None and return_variance is not None:
+        y_var = np.maximum(y_var, return_variance)
+    quad = (None if np.any(resid_var <= 1e-12 * y_var)
             else _quadratic_form(sigma, alpha, scale))
     if quad is None:
         return GRSTest(False, "the residual covariance is singular (an asset's excess return "
