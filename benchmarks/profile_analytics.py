@@ -97,12 +97,12 @@ def line_profile(settings, inputs, top: int) -> str:
     rows = []
     for (fname, _, func), lines in stats.timings.items():
         for lineno, _, t in lines:
-            rows.append((t * stats.unit, Path(fname).name, lineno, func))
+            rows.append((t * stats.unit, fname, lineno, func))
     rows.sort(reverse=True)
     out = [f"{'seconds':>8}  location"]
     for t, fname, lineno, func in rows[:top]:
-        text = _source_line(fname, lineno)
-        out.append(f"{t:8.3f}  {fname}:{lineno} ({func})  {text}")
+        text = Path(fname).read_text().splitlines()[lineno - 1].strip()[:90]
+        out.append(f"{t:8.3f}  {Path(fname).name}:{lineno} ({func})  {text}")
     return "\n".join(out)
 
 
@@ -118,14 +118,6 @@ def _split_modules():
             continue
         mods.append(importlib.import_module(f"reporter.analytics.{info.name}"))
     return mods
-
-
-def _source_line(fname: str, lineno: int) -> str:
-    root = HERE.parent / "reporter" / "analytics"
-    for path in (root / fname, root.parent / fname):
-        if path.exists():
-            return path.read_text().splitlines()[lineno - 1].strip()[:90]
-    return ""
 
 
 def main(argv: list[str] | None = None) -> int:
