@@ -57,38 +57,56 @@ def pairwise_moments(mo: _Moments, cols: np.ndarray
             with np.errstate(invalid="ignore", divide="ignore"):
                 return G[blk] / np.outer(sd[blk], sd)
         return G, complete_rows
+    # Each holding is centred on its own periods, so its deviations sum to zero over them:
+    # pairwise centring (subtracting S_ij S_ji / n_ij, S_ij the sum of d_i over j's periods)
+    # changes a pair only when both sums run over fewer periods than the holding has, which
+    # needs a holding with gaps. Pairs of complete holdings keep G_ij (their correction is
+    # rounding of the order eps^2), so only the g rows and columns of the holdings with gaps
+    # are corrected: O(k g) work beside the copy of G, where the full form took a dozen
+    # k x k passes.
     gcols = idx[gpos]
+    cpos = np.flatnonzero(~mo.gapped[idx])
     x_sub = mo.x[:, idx]
     m_gap = mo.m[:, gcols]
-    n = np.full((k, k), float(T))
-    n_g = mo.n_gap[np.searchsorted(mo.gap_idx, gcols)][:, idx]      # g x k common periods
-    n[gpos, :] = n_g
-    n[:, gpos] = n_g.T
-    del n_g
-    S, Q = np.empty((k, k)), np.empty((k, k))
-    S[:] = x_sub.sum(axis=0)[:, None]                   # sum of d_i over its own periods
-    S[:, gpos] = x_sub.T @ m_gap                        # ... over those of a gapped j
-    Q[:] = np.diagonal(G)[:, None]
-    Q[:, gpos] = (x_sub * x_sub).T @ m_gap
+    n_g = mo.n_gap[np.searchsorted(mo.gap_idx, gcols)][:, idx]      # n[gpos, :], g x k
+    col_sum = x_sub.sum(axis=0)                         # sum of d_i over its own periods
+    s_c = x_sub.T @ m_gap                               # S[:, gpos]: d_i over a gapped j's
+    q_c = (x_sub * x_sub).T @ m_gap                     # Q[:, gpos] before centring
     del x_sub, m_gap
+    diag0 = np.diagonal(G).copy()                       # Q_ij = G_ii for a complete j
+    s_r = np.repeat(col_sum[gpos][:, None], k, axis=1)  # S[gpos, :]
+    s_r[:, gpos] = s_c[gpos]
     with np.errstate(invalid="ignore", divide="ignore"):
-        tmp = np.multiply(S, S.T)
-        tmp /= n
-        G -= tmp                                        # pairwise-centred cross products
-        np.multiply(S, S, out=tmp)
-        tmp /= n
-        Q -= tmp                                        # pairwise-centred sums of squares
-        del S
-        cov = np.subtract(n, 1.0, out=tmp)
-        np.divide(G, cov, out=cov)
-    few = n < 2
-    del n
-    cov[few] = np.nan
+        G[gpos, :] -= s_r * s_c.T / n_g                 # rows of the holdings with gaps
+        G[np.ix_(cpos, gpos)] -= (s_c * s_r.T / n_g.T)[cpos]      # and their columns
+        q_c -= s_c * s_c / n_g.T
+        cov = G / (T - 1.0)
+        cov[gpos, :] = G[gpos, :] / (n_g - 1.0)
+        cov[:, gpos] = G[:, gpos] / (n_g.T - 1.0)
+    few_g = n_g < 2                                     # n_ij < 2 only beside a gapped one
+    cov[gpos] = np.where(few_g, np.nan, cov[gpos])
+    cov[:, gpos] = np.where(few_g.T, np.nan, cov[:, gpos])
+    if T < 2:
+        cov[:] = np.nan
+    g_of = np.full(k, -1)
+    g_of[gpos] = np.arange(gpos.size)
 
     def gapped_rows(blk: slice) -> np.ndarray:
+        # Q_ij = sum of d_i^2 over j's periods, centred: G_ii for a complete j
+        a = np.repeat(diag0[blk, None], k, axis=1)
+        a[:, gpos] = q_c[blk]
+        b = np.repeat(diag0[None, :], blk.stop - blk.start, axis=0)     # Q_ji
+        local = np.flatnonzero(g_of[blk] >= 0)
+        if local.size:
+            b[local] = q_c[:, g_of[blk][local]].T
+        a *= b
         with np.errstate(invalid="ignore", divide="ignore"):
-            c = G[blk] / np.sqrt(Q[blk] * Q[:, blk].T)
-        c[few[blk]] = np.nan
+            c = G[blk] / np.sqrt(a, out=a)
+        c[:, gpos] = np.where(few_g.T[blk], np.nan, c[:, gpos])
+        if local.size:
+            c[local] = np.where(few_g[g_of[blk][local]], np.nan, c[local])
+        if T < 2:
+            c[:] = np.nan
         return c
     return cov, gapped_rows
 
