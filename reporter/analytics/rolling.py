@@ -23,6 +23,17 @@ def trailing_sum(a: np.ndarray, window: int) -> np.ndarray:
     """Sum of the last ``window`` rows at every row (rows before the first full window hold
     partial sums). A running sum, row by row: each step is one vectorised add across all
     columns, which is faster than ``cumsum`` along axis 0 of a C-ordered array."""
+    if a.ndim == 2 and a.shape[1] == 1 and a.shape[0]:
+        # one column: the same additions in order on Python floats (IEEE doubles, so the
+        # same roundings), without a numpy call per row
+        col = a[:, 0].tolist()
+        sums = [col[0]] * len(col)
+        for t in range(1, len(col)):
+            v = sums[t - 1] + col[t]
+            if t >= window:
+                v -= col[t - window]
+            sums[t] = v
+        return np.array(sums, dtype=a.dtype)[:, None]
     out = np.empty_like(a)
     out[0] = a[0]
     for t in range(1, a.shape[0]):
