@@ -330,3 +330,32 @@ def test_random_subset_sums_agree_both_ways_and_with_a_direct_sum():
     # sizes on both sides of the switch (16 n^2 <= N^2: n <= 10 gathers here) give the band
     band = random_subset_band(C, np.array([5, 11, 39]), 50, seed=2)
     assert np.all(np.diff(band.median) < 0)
+
+
+def test_gram_pairwise_moments_with_gaps_match_pandas():
+    # the pack's route: pairwise covariance and correlation from the shared Gram matrix, the
+    # pairwise centring applied in the rows and columns of the holdings with gaps only; against
+    # pandas DataFrame.cov / DataFrame.corr (pairwise complete, ddof 1), including pairs with
+    # fewer than two common periods (NaN in both) and row blocks that start inside the matrix
+    from reporter.analytics.covariance import _Moments
+    from reporter.analytics.gram import pairwise_moments
+
+    rng = np.random.default_rng(21)
+    r = rng.normal(size=(60, 12)) * 0.02 + rng.normal(size=(60, 1)) * 0.01
+    r[:25, 3] = np.nan                       # a late listing
+    r[rng.random(60) < 0.3, 5] = np.nan      # holes
+    r[:59, 8] = np.nan                       # one period: no pair with it has two
+    r[30:, 9] = np.nan                       # delisted: one common period with the next
+    r[:29, 10] = np.nan
+    r[31:, 10] = np.nan
+    cols = np.array([0, 1, 3, 5, 8, 9, 10, 11])
+    cov, corr_rows = pairwise_moments(_Moments.of(r), cols)
+    frame = pd.DataFrame(r[:, cols])
+    ref_cov, ref_corr = frame.cov().to_numpy(), frame.corr().to_numpy()
+    assert np.isnan(ref_cov[5, 6]) and np.isnan(ref_cov[4, 0])   # the n_ij < 2 pairs exist
+    np.testing.assert_array_equal(np.isnan(cov), np.isnan(ref_cov))
+    np.testing.assert_allclose(cov, ref_cov, rtol=1e-10)
+    for blk in (slice(0, 8), slice(2, 5), slice(5, 8)):
+        got = corr_rows(blk)
+        np.testing.assert_array_equal(np.isnan(got), np.isnan(ref_corr[blk]))
+        np.testing.assert_allclose(got, ref_corr[blk], rtol=1e-10)

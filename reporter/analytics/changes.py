@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from reporter.analytics.pack import PackResults
+from reporter.analytics.results import PackResults
 from reporter.jsonvalues import json_ready
 
 if TYPE_CHECKING:

@@ -348,17 +348,18 @@ def estimate_covariance(returns: np.ndarray,
 
 
 def holdings_and_active(returns: np.ndarray, market: np.ndarray,
-                        method: str = DEFAULT_METHOD
+                        method: str = DEFAULT_METHOD, moments: _Moments | None = None
                         ) -> tuple[CovarianceEstimate, CovarianceEstimate]:
     """Covariance of the holdings' returns and of their returns relative to the reference
     (market proxy or benchmark), r_i - r_m, each estimated by ``method`` on its own data with
     its own intensity. A period where the reference has no return is missing for every
-    relative return."""
+    relative return. ``moments`` (``_Moments.of(returns)``), when given, is the Gram matrix
+    the caller already holds; it is consumed (the estimate is built in it)."""
     r = np.asarray(returns, dtype=float)
     ref = np.asarray(market, dtype=float)
     T, N = r.shape
     method = choose_method(method, N, T)
-    held = _Moments.of(r)
+    held = _Moments.of(r) if moments is None else moments
     active = (held.relative_to(r, ref) if np.isfinite(ref).all()
               else _Moments.of(r - ref[:, None]))
     # each estimate is built in its own Gram matrix: two N x N matrices, as the results

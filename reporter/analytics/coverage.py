@@ -22,7 +22,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from reporter.analytics.regression import MarketModelFits
+from reporter.analytics.market_model import MarketModelFits
 from reporter.analytics.returns import period_keys
 from reporter.config import Settings
 from reporter.models import DatedSeries, ReturnPanel, ValidInputs

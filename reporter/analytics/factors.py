@@ -6,7 +6,7 @@ For holding i over the window, on the periods where it has a return (no filling)
 
 with f_k the user's long-short factor returns (size, value, momentum ...), as in Fama and
 French (1993) and Carhart (1997). Coefficients and classical errors come from the batched
-normal equations of :func:`reporter.analytics.regression.masked_ols`; Newey-West (1987) errors
+normal equations of :func:`reporter.analytics.beta_variants.masked_ols`; Newey-West (1987) errors
 follow the market model's rules (Bartlett kernel, lag floor(4 (n/100)^(2/9)) of each holding's
 own n unless fixed, small-sample factor n/(n-k), lags over consecutive observations for a
 holding with a gap inside its history). No Python loop over holdings: loops run over lags
@@ -20,13 +20,9 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from reporter.analytics.regression import (
-    Prepared,
-    interior_gaps,
-    masked_ols,
-    newey_west_lags,
-    t_critical,
-)
+from reporter.analytics.beta_variants import masked_ols
+from reporter.analytics.hac import interior_gaps
+from reporter.analytics.market_model import Prepared, newey_west_lags, t_critical
 from reporter.analytics.sml import ABOVE, BELOW, WITHIN
 
 

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from reporter.analytics.pack import PackResults
+from reporter.analytics.results import PackResults
 from reporter.config import TOTAL_FUND
 
 RANGE_WITHIN, RANGE_OUTSIDE = "within range", "outside range"

@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from reporter.analytics.regression import newey_west_lags
+from reporter.analytics.market_model import newey_west_lags
 from reporter.analytics.returns import period_keys
 
 # trailing periods: (key, label, months back; 0 = year to date, None = whole history)

@@ -83,6 +83,22 @@ def portfolio_returns(returns: np.ndarray, weights: np.ndarray) -> np.ndarray:
     return out
 
 
+def sector_returns(returns: np.ndarray, weights: np.ndarray, sector_of: np.ndarray,
+                   sectors: list[str]) -> np.ndarray:
+    """:func:`portfolio_returns` of each sector's holdings (T x len(sectors)), all from two
+    matrix products with the N x S matrix of the weights by sector."""
+    w = np.asarray(weights, dtype=float)
+    by_sector = np.where(np.asarray(sector_of)[:, None] == np.asarray(sectors)[None, :],
+                         w[:, None], 0.0)
+    present = ~np.isnan(returns)
+    total = present.astype(float) @ by_sector
+    num = np.where(present, returns, 0.0) @ by_sector
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = num / total
+    out[total == 0] = np.nan
+    return out
+
+
 def annualise_mean(mean_per_period: float | np.ndarray, periods_per_year: int):
     """Arithmetic annualisation of a mean per-period return: mean x P."""
     return mean_per_period * periods_per_year

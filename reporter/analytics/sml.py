@@ -11,7 +11,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from reporter.analytics.regression import MarketModelFits, t_critical
+from reporter.analytics.market_model import MarketModelFits, t_critical
 
 ABOVE, BELOW, WITHIN = "above the line", "below the line", "within estimation error"
 
@@ -242,12 +242,23 @@ class GRSTest:
     p_value: float
 
 
-def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdings") -> GRSTest:
+def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdings", *,
+             alpha: np.ndarray | None = None, residual_cross: np.ndarray | None = None,
+             return_variance: np.ndarray | None = None) -> GRSTest:
     """GRS statistic F = (T - N - 1)/N x a' S^-1 a / (1 + m^2 / s^2) ~ F(N, T - N - 1) under
     normal errors, with a the N market-model alphas, S the residual covariance and m, s^2 the
     market premium's mean and variance, both maximum-likelihood (divisor T) (Gibbons, Ross
     and Shanken 1989; the form in Cochrane, *Asset Pricing*, ch. 12). Needs complete
-    T x N returns and T > N + 1; otherwise the result says why it does not apply."""
+    T x N returns and T > N + 1; otherwise the result says why it does not apply.
+
+    ``alpha`` and ``residual_cross`` (E'E, the residuals' cross products), when given, are
+    the market-model alphas and residuals of these same returns already computed from the
+    pack's shared Gram matrix (:func:`reporter.analytics.gram.residual_gram`): the T N^2
+    product of the residuals is then not formed again. That route's residual variances carry
+    rounding of the order of eps times the variance of the returns before the risk-free rate
+    is taken off (``return_variance``): an asset that is exactly a line in the market (its
+    residual variance at most 1e-12 of its variance) is judged against the larger of the two
+    variances, which is the same test wherever the risk-free rate is constant."""
     from scipy import stats
 
     y = np.asarray(excess, dtype=float)
@@ -260,11 +271,15 @@ def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdi
     if not (T > N + 1):
         return GRSTest(False, f"needs more periods than assets plus one (T = {T}, N = {N})",
                        assets, N, T, nan, None, None, nan)
-    X = np.column_stack([np.ones(T), x])
-    coef, *_ = np.linalg.lstsq(X, y, rcond=None)
-    e = y - X @ coef
-    alpha = coef[0]
-    sigma = e.T @ e / T
+    if residual_cross is None or alpha is None:
+        X = np.column_stack([np.ones(T), x])
+        coef, *_ = np.linalg.lstsq(X, y, rcond=None)
+        e = y - X @ coef
+        alpha = coef[0]
+        sigma = e.T @ e / T
+        del e
+    else:
+        sigma = residual_cross / T
     mu = float(x.mean())
     var_m = float(np.mean((x - mu) ** 2))
     if not var_m > 0:
@@ -275,12 +290,48 @@ def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdi
     # (an R-squared within 1e-12 of one is a line up to rounding)
     resid_var = np.diag(sigma)
     scale = np.sqrt(resid_var)
-    if np.any(resid_var <= 1e-12 * y.var(axis=0)) or np.linalg.matrix_rank(
-            sigma / np.outer(scale, scale)) < N:
+    y_var = y.var(axis=0)
+    if residual_cross is not None and return_variance is not None:
+        y_var = np.maximum(y_var, return_variance)
+    quad = (None if np.any(resid_var <= 1e-12 * y_var)
+            else _quadratic_form(sigma, alpha, scale))
+    if quad is None:
         return GRSTest(False, "the residual covariance is singular (an asset's excess return "
                        "is exactly a line in the market's, e.g. a return equal to the risk-free "
                        "rate)", assets, N, T, nan, N, T - N - 1, nan)
-    quad = float(alpha @ np.linalg.solve(sigma, alpha))
     f = (T - N - 1) / N * quad / (1.0 + mu * mu / var_m)
     return GRSTest(True, "", assets, N, T, float(f), N, T - N - 1,
                    float(stats.f.sf(f, N, T - N - 1)))
+
+
+def _quadratic_form(sigma: np.ndarray, alpha: np.ndarray, scale: np.ndarray) -> float | None:
+    """a' S^-1 a, or None where S is singular by numpy's ``matrix_rank`` rule on the
+    correlation form R = S / (s s') (rank < N when the least singular value is at most
+    N eps times the largest).
+
+    R is factored by Cholesky, R = L L'. Its eigenvalues lie between trace(R)/N times
+    trace(R^-1)/N and trace(R) trace(R^-1) for the condition number (each eigenvalue is
+    positive, the largest at least their mean, and 1/least at most trace(R^-1) =
+    ||L^-1||_F^2), so wherever that upper bound is below numpy's threshold 1/(N eps) the
+    matrix has full rank by the same rule without a singular value decomposition (N^3/3 +
+    N^3/3 flops against some 20 N^3); then a' S^-1 a = ||L^-1 (a / s)||^2. Otherwise (no
+    Cholesky factor, or a condition number near the threshold) the exact test decides as
+    before."""
+    from scipy.linalg import solve_triangular
+
+    N = len(alpha)
+    R = sigma / np.outer(scale, scale)
+    threshold = 1.0 / (N * np.finfo(float).eps)
+    try:        # numpy's factor: see reporter.analytics.psd._explained for why not scipy's
+        low = np.linalg.cholesky(R)
+    except np.linalg.LinAlgError:
+        low = None
+    if low is not None and np.all(np.diagonal(low) > 0):
+        inv_low = solve_triangular(low, np.eye(N), lower=True, check_finite=False)
+        trace_inv = float(np.einsum("ij,ij->", inv_low, inv_low))
+        if float(np.trace(R)) * trace_inv < threshold:
+            z = inv_low @ (alpha / scale)
+            return float(z @ z)
+    if np.linalg.matrix_rank(R) < N:
+        return None
+    return float(alpha @ np.linalg.solve(sigma, alpha))

@@ -18,8 +18,8 @@ from reporter.analytics.factors import (
     fit_factor_model,
     grs_factor_test,
 )
-from reporter.analytics.pack import PackResults
-from reporter.analytics.regression import Prepared
+from reporter.analytics.market_model import Prepared
+from reporter.analytics.results import PackResults
 from reporter.analytics.returns import period_keys
 
 SUFFIXES = ("", "_se", "_t", "_ci_low", "_ci_high")

@@ -17,7 +17,7 @@ from reporter.analytics.covariance import model_figures
 from reporter.analytics.sml import ABOVE, BELOW
 
 if TYPE_CHECKING:
-    from reporter.analytics.pack import PackResults
+    from reporter.analytics.results import PackResults
 
 DIVERSIFIABLE_SHARES = (0.90, 0.95)
 

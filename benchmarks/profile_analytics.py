@@ -1,0 +1,174 @@
+"""Profile the analytics stage on a benchmark workload, and time it against its floor.
+
+    python benchmarks/profile_analytics.py                  # Large: time stage and floor
+    python benchmarks/profile_analytics.py --cprofile       # + the top functions (cProfile)
+    python benchmarks/profile_analytics.py --lines          # + the top ten lines (line_profiler)
+    python benchmarks/profile_analytics.py --holdings 200 --periods 500
+
+The stage is what ``reporter build`` runs under "analyse" for a single pack
+(:func:`reporter.analytics.pack.analyse`, then the style figures, the input hashes and the
+limits); its floor is the one the pack benchmark uses (benchmarks/bench_pack.py): one
+``numpy.linalg.lstsq`` of every holding on [1, market] plus one ``numpy.cov``. Both are
+timed ``--repeat`` times in this one process and the minimum of each is reported, so the
+ratio holds on a loaded machine. The line profile needs line_profiler, which the tool does
+not depend on: ``.venv/bin/pip install line_profiler``.
+"""
+
+from __future__ import annotations
+
+import os
+
+os.environ.setdefault("NUMPY_MADVISE_HUGEPAGE", "0")    # as reporter/__init__.py does
+
+import argparse
+import cProfile
+import io
+import pstats
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE))
+
+from workloads import write_scheme  # noqa: E402
+
+
+def analyse_stage(settings, inputs):
+    """What the build's "analyse" stage runs for a pack without optional inputs."""
+    from reporter.analytics.pack import analyse
+    from reporter.analytics.style import StyleInputs, analyse_style
+    from reporter.build import input_hashes
+    from reporter.limits import evaluate_limits
+
+    res = analyse(inputs, settings)
+    res, _ = analyse_style(res, inputs.holdings.frame, settings, StyleInputs())
+    input_hashes(settings)
+    if settings.limits:
+        evaluate_limits(settings.limits, res)
+    return res
+
+
+def floor(settings, inputs):
+    """One lstsq of every holding on [1, market] plus one cov (bench_pack.py's floor)."""
+    y = np.nan_to_num(inputs.returns.values[-settings.window:])
+    m = inputs.market.values[-len(y):]
+    x = np.column_stack([np.ones(len(m)), m])
+    y = y[-len(m):]
+    return np.linalg.lstsq(x, y, rcond=None), np.cov(y.T)
+
+
+def best_of(fn, repeat: int) -> float:
+    times = []
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t0)
+    return min(times)
+
+
+def line_profile(settings, inputs, top: int) -> str:
+    try:
+        from line_profiler import LineProfiler
+    except ImportError:
+        print("line_profiler is not installed: run .venv/bin/pip install line_profiler",
+              file=sys.stderr)
+        raise SystemExit(2) from None
+    import reporter.analytics.pack as pack_mod
+    from reporter.analytics import covariance, diversification, regression, sml
+
+    lp = LineProfiler()
+    funcs = [pack_mod.analyse]
+    for mod in (regression, covariance, diversification, sml):
+        funcs += [f for f in vars(mod).values()
+                  if callable(f) and getattr(f, "__module__", "") == mod.__name__
+                  and hasattr(f, "__code__")]
+    for mod in _split_modules():
+        funcs += [f for f in vars(mod).values()
+                  if callable(f) and getattr(f, "__module__", "") == mod.__name__
+                  and hasattr(f, "__code__")]
+    for f in funcs:
+        lp.add_function(f)
+    lp.runcall(analyse_stage, settings, inputs)
+    stats = lp.get_stats()
+    rows = []
+    for (fname, _, func), lines in stats.timings.items():
+        for lineno, _, t in lines:
+            rows.append((t * stats.unit, fname, lineno, func))
+    rows.sort(reverse=True)
+    out = [f"{'seconds':>8}  location"]
+    for t, fname, lineno, func in rows[:top]:
+        text = Path(fname).read_text().splitlines()[lineno - 1].strip()[:90]
+        out.append(f"{t:8.3f}  {Path(fname).name}:{lineno} ({func})  {text}")
+    return "\n".join(out)
+
+
+def _split_modules():
+    """The analytics modules beside the four above (those split out of them later)."""
+    import importlib
+    import pkgutil
+
+    import reporter.analytics as pkg
+    mods = []
+    for info in pkgutil.iter_modules(pkg.__path__):
+        if info.name in {"pack", "regression", "covariance", "diversification", "sml"}:
+            continue
+        mods.append(importlib.import_module(f"reporter.analytics.{info.name}"))
+    return mods
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--holdings", type=int, default=2000)
+    ap.add_argument("--periods", type=int, default=2520)
+    ap.add_argument("--frequency", default="daily")
+    ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--cprofile", action="store_true")
+    ap.add_argument("--lines", action="store_true")
+    ap.add_argument("--top", type=int, default=10)
+    a = ap.parse_args(argv)
+    if a.lines:
+        try:
+            import line_profiler  # noqa: F401
+        except ImportError:
+            print("line_profiler is not installed: run .venv/bin/pip install line_profiler",
+                  file=sys.stderr)
+            return 2
+
+    from reporter.config import load_settings
+    from reporter.validate import validate_pack
+
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = Path(tmp) / "pack"
+        write_scheme(folder, a.holdings, a.periods, a.frequency, seed=7, label="L",
+                     window=a.periods if a.frequency == "daily" else None)
+        settings = load_settings(folder)
+        inputs = validate_pack(settings)
+        t_stage = t_floor = float("nan")
+        t_analyse = best_of(lambda: __import__("reporter.analytics.pack").analytics.pack
+                            .analyse(inputs, settings), a.repeat)
+        t_stage = best_of(lambda: analyse_stage(settings, inputs), a.repeat)
+        t_floor = best_of(lambda: floor(settings, inputs), a.repeat)
+        print(f"workload: {a.holdings} holdings x {a.periods} {a.frequency} periods; "
+              f"load average {os.getloadavg()[0]:.2f}")
+        print(f"analyse(): {t_analyse:.3f} s; analyse stage: {t_stage:.3f} s; "
+              f"floor (lstsq + cov): {t_floor:.3f} s; stage / floor = {t_stage / t_floor:.2f}x")
+        if a.cprofile:
+            prof = cProfile.Profile()
+            prof.runcall(analyse_stage, settings, inputs)
+            buf = io.StringIO()
+            pstats.Stats(prof, stream=buf).sort_stats("tottime").print_stats(a.top)
+            print("\ncProfile, top functions by own time:")
+            print("\n".join(line for line in buf.getvalue().splitlines()
+                            if line.strip() and not line.startswith(("   Ordered", "  List"))))
+        if a.lines:
+            print(f"\nline_profiler, top {a.top} lines:")
+            print(line_profile(settings, inputs, a.top))
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -1,0 +1,148 @@
+"""Estimators that share the one centred Gram matrix of the holdings' returns.
+
+The pack forms X'X once, X the T x N returns of the window each centred on its own mean over
+its own periods (0 where missing; :class:`reporter.analytics.covariance._Moments`), and every
+N x N figure below is taken from it with O(T N) corrections instead of a product of its own:
+
+- the pairwise covariance and correlation (each pair over its common periods, each holding
+  centred on its mean over those periods, as pandas ``DataFrame.cov()`` / ``corr()``): with
+  d the own-centred returns and C the pair's common periods, sum_C (d_i - dbar_i)(d_j - dbar_j)
+  = (X'X)_ij - S_ij S_ji / n_ij, S_ij = sum_C d_i; for a complete j, S_ij = sum of d_i over i's
+  own periods (0 up to rounding), so only the columns with gaps need a product (N x g);
+- the residual covariance of the GRS test (Gibbons, Ross and Shanken 1989): for holdings with
+  every period, excess returns y = r - r_f centre to Y = X - f 1' (f the centred risk-free
+  rate), Y'Y = X'X - u 1' - 1 u' + f'f with u = X'f, and the market model's residuals give
+  E'E = Y'Y - (Y'z)(Y'z)' / z'z (z the centred market excess return): the identity of the
+  OLS residual maker M = I - Z(Z'Z)^-1 Z' (standard; e.g. Greene, *Econometric Analysis*,
+  ch. 3, recalled from memory).
+
+No input is filled and nothing is approximated: each is the same estimate as the separate
+computation it replaces, up to rounding (tests/test_analytics_frozen.py holds it to 1e-12
+relative on the pack's outputs).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import numpy as np
+
+from reporter.analytics.covariance import _Moments
+
+
+def _row_blocks(n: int):
+    """Slices of about a million elements of an n x n matrix, by rows."""
+    step = max(1, (1 << 20) // max(n, 1))
+    for start in range(0, n, step):
+        yield slice(start, min(start + step, n))
+
+
+def pairwise_moments(mo: _Moments, cols: np.ndarray
+                     ) -> tuple[np.ndarray, Callable[[slice], np.ndarray]]:
+    """The pairwise covariance (divisor n_ij - 1; NaN where n_ij < 2) of the holdings at
+    positions ``cols`` and a function giving rows of their pairwise correlation, from the
+    shared Gram matrix ``mo.gram`` (read, not changed)."""
+    idx = np.asarray(cols, dtype=int)
+    k, T = len(idx), mo.T
+    G = mo.gram[np.ix_(idx, idx)]                       # a copy: the result is built in it
+    gpos = np.flatnonzero(mo.gapped[idx])
+    if not gpos.size:
+        with np.errstate(invalid="ignore", divide="ignore"):
+            G /= T - 1.0
+        if T < 2:
+            G[:] = np.nan
+        sd = np.sqrt(np.diagonal(G))
+
+        def complete_rows(blk: slice) -> np.ndarray:
+            with np.errstate(invalid="ignore", divide="ignore"):
+                return G[blk] / np.outer(sd[blk], sd)
+        return G, complete_rows
+    # Each holding is centred on its own periods, so its deviations sum to zero over them:
+    # pairwise centring (subtracting S_ij S_ji / n_ij, S_ij the sum of d_i over j's periods)
+    # changes a pair only when both sums run over fewer periods than the holding has, which
+    # needs a holding with gaps. Pairs of complete holdings keep G_ij (their correction is
+    # rounding of the order eps^2), so only the g rows and columns of the holdings with gaps
+    # are corrected: O(k g) work beside the copy of G, where the full form took a dozen
+    # k x k passes.
+    gcols = idx[gpos]
+    cpos = np.flatnonzero(~mo.gapped[idx])
+    x_sub = mo.x[:, idx]
+    m_gap = mo.m[:, gcols]
+    n_g = mo.n_gap[np.searchsorted(mo.gap_idx, gcols)][:, idx]      # n[gpos, :], g x k
+    col_sum = x_sub.sum(axis=0)                         # sum of d_i over its own periods
+    s_c = x_sub.T @ m_gap                               # S[:, gpos]: d_i over a gapped j's
+    q_c = (x_sub * x_sub).T @ m_gap                     # Q[:, gpos] before centring
+    del x_sub, m_gap
+    diag0 = np.diagonal(G).copy()                       # Q_ij = G_ii for a complete j
+    s_r = np.repeat(col_sum[gpos][:, None], k, axis=1)  # S[gpos, :]
+    s_r[:, gpos] = s_c[gpos]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        G[gpos, :] -= s_r * s_c.T / n_g                 # rows of the holdings with gaps
+        G[np.ix_(cpos, gpos)] -= (s_c * s_r.T / n_g.T)[cpos]      # and their columns
+        q_c -= s_c * s_c / n_g.T
+        cov = G / (T - 1.0)
+        cov[gpos, :] = G[gpos, :] / (n_g - 1.0)
+        cov[:, gpos] = G[:, gpos] / (n_g.T - 1.0)
+    few_g = n_g < 2                                     # n_ij < 2 only beside a gapped one
+    cov[gpos] = np.where(few_g, np.nan, cov[gpos])
+    cov[:, gpos] = np.where(few_g.T, np.nan, cov[:, gpos])
+    if T < 2:
+        cov[:] = np.nan
+    g_of = np.full(k, -1)
+    g_of[gpos] = np.arange(gpos.size)
+
+    def gapped_rows(blk: slice) -> np.ndarray:
+        # Q_ij = sum of d_i^2 over j's periods, centred: G_ii for a complete j
+        a = np.repeat(diag0[blk, None], k, axis=1)
+        a[:, gpos] = q_c[blk]
+        b = np.repeat(diag0[None, :], blk.stop - blk.start, axis=0)     # Q_ji
+        local = np.flatnonzero(g_of[blk] >= 0)
+        if local.size:
+            b[local] = q_c[:, g_of[blk][local]].T
+        a *= b
+        with np.errstate(invalid="ignore", divide="ignore"):
+            c = G[blk] / np.sqrt(a, out=a)
+        c[:, gpos] = np.where(few_g.T[blk], np.nan, c[:, gpos])
+        if local.size:
+            c[local] = np.where(few_g[g_of[blk][local]], np.nan, c[local])
+        if T < 2:
+            c[:] = np.nan
+        return c
+    return cov, gapped_rows
+
+
+def pairwise_covariance_and_average_correlation(mo: _Moments, cols: np.ndarray
+                                                ) -> tuple[np.ndarray, float]:
+    """The pairwise covariance of the holdings at ``cols`` and the mean of their pairwise
+    correlations over the pairs above the diagonal (formed a block of rows at a time)."""
+    cov, corr_rows = pairwise_moments(mo, cols)
+    N = cov.shape[0]
+    total, count = 0.0, 0
+    for blk in _row_blocks(N):
+        c = corr_rows(blk)
+        upper = np.arange(N)[None, :] > np.arange(blk.start, blk.stop)[:, None]
+        upper &= np.isfinite(c)
+        total += float(c[upper].sum())
+        count += int(upper.sum())
+    return cov, (total / count if count else float("nan"))
+
+
+def residual_gram(mo: _Moments, cols: np.ndarray, risk_free: np.ndarray,
+                  market_excess: np.ndarray) -> np.ndarray:
+    """E'E, the cross products of the market-model residuals of the holdings at ``cols``
+    (each with every period of the window) regressed on [1, market excess return], from the
+    shared Gram matrix (see the module's docstring)."""
+    idx = np.asarray(cols, dtype=int)
+    rf = np.asarray(risk_free, dtype=float)
+    z = np.asarray(market_excess, dtype=float)
+    f = rf - rf.mean()
+    zc = z - z.mean()
+    x_sub = mo.x[:, idx]
+    u = x_sub.T @ f
+    yz = x_sub.T @ zc - float(f @ zc)                   # Y'z
+    yy = mo.gram[np.ix_(idx, idx)]
+    yy -= u[:, None]
+    yy -= u[None, :]
+    yy += float(f @ f)
+    yy -= np.outer(yz, yz / float(zc @ zc))
+    return yy
