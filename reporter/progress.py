@@ -26,10 +26,13 @@ class Progress:
             self._console = Console(file=self.stream)
 
     @contextlib.contextmanager
-    def stage(self, name: str) -> Iterator[None]:
+    def stage(self, name: str, part: str | None = None) -> Iterator[None]:
+        """Time stage ``name``; ``part`` (a fund's total or mandate) is shown beside it, and
+        the time is summed under ``name`` over the parts."""
         start = time.perf_counter()
+        shown = f"{name} ({part})" if part else name
         if self._console is not None:            # only on a terminal, never when quiet
-            with self._console.status(f"{name}..."):
+            with self._console.status(f"{shown}..."):
                 yield
         else:
             yield
@@ -38,9 +41,9 @@ class Progress:
         if self.quiet:
             return
         if self._console is not None:
-            self._console.print(f"[green]\u2713[/green] {name} [dim]{seconds:.2f} s[/dim]")
+            self._console.print(f"[green]\u2713[/green] {shown} [dim]{seconds:.2f} s[/dim]")
         else:
-            print(f"reporter: {name} done ({seconds:.2f} s)", file=self.stream, flush=True)
+            print(f"reporter: {shown} done ({seconds:.2f} s)", file=self.stream, flush=True)
 
 
 class BatchProgress:

@@ -51,6 +51,6 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
     fp = fingerprint(hashes)
     done = [assemble_part(p, fp, at, progress) for p in parts]
     if settings.is_fund:
-        with progress.stage("chart"):
+        with progress.stage("chart", "the fund's own charts"):
             return assembled_fund(fin, done, hashes, commentary, compare_warnings)
     return Assembled.of(done[0], hashes, compare_warnings, commentary)

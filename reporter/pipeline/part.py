@@ -95,7 +95,8 @@ def assemble_part(p: PartInputs, fingerprint: str, at: dt.datetime,
     """Analyse, check against the limits, compare, chart and put in context one part
     (stages analyse and chart). Pure but for the time it takes; no file is read or written."""
     settings = p.settings
-    with progress.stage("analyse"):
+    label = p.name if settings.is_fund else None
+    with progress.stage("analyse", label):
         res = analyse_part(p)
         style = None
         if p.style is not None:
@@ -110,7 +111,7 @@ def assemble_part(p: PartInputs, fingerprint: str, at: dt.datetime,
         fees = (fee_figures(res.window.dates, p.own, p.gross, settings.frequency,
                             settings.periods_per_year)
                 if p.own is not None and p.gross is not None else None)
-    with progress.stage("chart"):
+    with progress.stage("chart", label):
         charts = build_charts(res, limits, p.market_label) | style_charts(style)
         ctx = build_context(settings, p.inputs, res, charts, fingerprint, at, limits=limits,
                             changes=changes, compare_note=p.compare_note,
