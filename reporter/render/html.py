@@ -35,9 +35,12 @@ def export_charts(ctx: PackContext) -> dict[str, Markup]:
 
 # A chart whose SVG has more elements than this is drawn in print as an image: WeasyPrint lays
 # out every SVG element (a security market line of 2,000 holdings with error bars: about 6,000
-# elements, 4 s and 0.9 MB of PDF), while a 300 dpi PNG of it costs about 0.3 s and 0.4 MB.
+# elements, 4 s and 0.9 MB of PDF), while a PNG of it costs about 0.3 s and 0.4 MB.
+# 200 dpi: the figure is set at about three quarters of its SVG size, so about 270 pixels an
+# inch on the page; at 100% and 200% zoom it cannot be told from 300 dpi, which took 1.4 times
+# as long to rasterise (/work/notes/charts_sml_dpi.png, benchmarks/bench_charts.py).
 DENSE_SVG_ELEMENTS = 3000
-PRINT_DPI = 300
+PRINT_DPI = 200
 _SVG_SIZE = re.compile(r'<svg\b[^>]*?\bwidth="([\d.]+)"[^>]*?\bheight="([\d.]+)"')
 
 
