@@ -5,6 +5,10 @@ task, :func:`build_scheme`, which reads its own inputs and writes its own output
 ``OUT/<scheme>/`` through the same atomic writer as a single build. Both runners submit that
 one function once per scheme and collect the results as they finish, so one failing scheme
 never stops the others, and the outputs are those of ``reporter build`` run on each folder.
+
+Each worker is made ready once, before its first scheme (:func:`warm_worker`: the libraries
+imported, the chart engine started, WeasyPrint's fonts loaded), by the process pool's
+initializer or by a Dask worker plugin, and then builds scheme after scheme.
 """
 
 from __future__ import annotations
@@ -55,6 +59,40 @@ def discover(schemes_dir: Path | str) -> list[Path]:
     if not packs:
         raise InputError([Problem(str(root), "holds no pack folder (a folder with pack.toml)")])
     return packs
+
+
+def warm_worker() -> float:
+    """Make this process ready to build packs: import the pipeline, start the chart engine
+    (vl-convert's JavaScript runtime, about 0.4 s on its first call in a process) and lay out
+    one line with WeasyPrint (fonts, Pango). Seconds taken. Run once per worker, never
+    before a fork: the engine's threads do not survive one."""
+    start = time.perf_counter()
+    import altair as alt
+
+    from reporter import build  # noqa: F401  (the whole pipeline's imports)
+    from reporter.render.html import chart_svg
+    from reporter.render.pdf import render_pdf
+
+    chart_svg(alt.Chart(alt.Data(values=[{"x": 1}])).mark_point().encode(x=alt.X("x:Q")))
+    render_pdf("<p>ready</p>")
+    return time.perf_counter() - start
+
+
+class WarmWorker:
+    """A Dask worker plugin that runs :func:`warm_worker` once as each worker starts (a
+    :class:`distributed.WorkerPlugin`; the base class is taken from distributed when used)."""
+
+    name = "reporter-warm-worker"
+    idempotent = True
+
+    def setup(self, worker) -> None:
+        warm_worker()
+
+    def teardown(self, worker) -> None:
+        return None
+
+    def transition(self, key, start, finish, **kwargs) -> None:
+        return None
 
 
 def build_scheme(pack: str, out: str, strict: bool = False,
@@ -126,7 +164,7 @@ def _pool_results(tasks: list[tuple], *, workers: int | None, scheduler=None
     ctx = multiprocessing.get_context("forkserver" if sys.platform != "win32" else "spawn")
     if ctx.get_start_method() == "forkserver":
         ctx.set_forkserver_preload(["reporter.build"])
-    with ProcessPoolExecutor(max_workers=n, mp_context=ctx) as pool:
+    with ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=warm_worker) as pool:
         futures = {pool.submit(build_scheme, *t): t for t in tasks}
         for fut in as_completed(futures):
             yield _result_of(fut, futures[fut])
@@ -145,10 +183,17 @@ def _dask_results(tasks: list[tuple], *, workers=None, scheduler: str
     except (OSError, TimeoutError) as exc:
         raise ClusterError(f"cannot reach the Dask scheduler at {scheduler}: {exc}") from None
     with client:
+        client.register_plugin(_dask_plugin())   # on every worker, and on any that joins
         futures = {client.submit(build_scheme, *t, pure=False, key=f"build-{i}"): t
                    for i, t in enumerate(tasks)}
         for fut in dask_completed(futures):
             yield _result_of(fut, futures[fut])
+
+
+def _dask_plugin():
+    from distributed import WorkerPlugin
+
+    return type("WarmWorkerPlugin", (WarmWorker, WorkerPlugin), {})()
 
 
 def _result_of(fut, task: tuple) -> SchemeResult:

@@ -73,11 +73,28 @@ def beta_band(limits) -> tuple[float | None, float | None]:
     return found.get("beta_min"), found.get("beta_max")
 
 
-def sml_chart(res: PackResults, market_label: str = "Market proxy") -> alt.LayerChart:
+def sml_chart(res: PackResults, market_label: str = "Market proxy",
+              binned: bool = False) -> alt.LayerChart:
     """The security market line chart (:func:`reporter.sml_chart.sml_chart`)."""
     from reporter.sml_chart import sml_chart as draw  # it draws with this module's palette
 
-    return draw(res, market_label)
+    return draw(res, market_label, binned)
+
+
+# A chart named NAME + PRINT_ONLY is drawn in the PDF in the place of NAME, which the HTML
+# keeps (see reporter.render.html.print_charts).
+PRINT_ONLY = "__print"
+
+
+def print_variants(res: PackResults, market_label: str) -> dict[str, alt.TopLevelMixin]:
+    """The charts the PDF draws differently from the HTML: the security market line of
+    :data:`reporter.sml_chart.BIN_FROM` or more fitted holdings with those within estimation
+    error counted in cells."""
+    from reporter.sml_chart import BIN_FROM
+
+    if int(res.fits.fitted.sum()) < BIN_FROM:
+        return {}
+    return {"sml" + PRINT_ONLY: sml_chart(res, market_label, binned=True)}
 
 
 # Altair refuses a chart with more rows than this (its default limit): beyond it a chart
@@ -289,6 +306,7 @@ def build_charts(res: PackResults, limits=None,
         "growth": growth_chart(res, market_label),
         "risk_contributions": risk_contribution_chart(res),
         **allocation_charts(res.securities),
+        **print_variants(res, market_label),
     }
 
 

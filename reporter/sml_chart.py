@@ -28,6 +28,13 @@ POINT_HALF = 6.0            # px, half the box a holding's marker (size 60) is k
 ANCHOR_HALF = 6.5           # px, the same for the anchors' squares (size 90)
 NAME_CHARS = 24             # a longer holding name is cut with an ellipsis
 ERROR_BAR = "#d3d8dc"
+# From this many fitted holdings the PDF draws those within estimation error as counts in
+# cells (the screen pack keeps every point): each point with its two error bars is three SVG
+# elements that WeasyPrint lays out one by one, and at 2,000 holdings the 6,000 elements had
+# to be drawn as a 300 dpi image, 1.2 s to rasterise (benchmarks/bench_charts.py).
+BIN_FROM = 400
+BINS_X, BINS_Y = 40, 24     # cells across and up: 13 x 12.5 px on the 520 x 300 plot
+CELL_RANGE = ["#e9edef", "#6b7780"]   # fewest to most holdings in a cell
 
 
 def _short(name: str) -> str:
@@ -41,10 +48,33 @@ def _y_domain(values: np.ndarray) -> list[float]:
     return [lo - pad, hi + pad]
 
 
-def sml_chart(res: PackResults, market_label: str = "Market proxy") -> alt.LayerChart:
+def cell_counts(beta: np.ndarray, excess: np.ndarray, x_dom: list[float],
+                y_dom: list[float], bins: tuple[int, int] = (BINS_X, BINS_Y)) -> pd.DataFrame:
+    """The holdings per cell of a ``bins`` grid over the plot (``x_dom`` by ``y_dom``), one
+    row per occupied cell: ``beta``, ``beta2``, ``excess``, ``excess2`` (its edges) and
+    ``count``. Points outside the domain are counted in the edge cell (as the SVG clips them
+    to the plot's edge), non-finite ones are left out."""
+    ok = np.isfinite(beta) & np.isfinite(excess)
+    xe = np.linspace(x_dom[0], x_dom[1], bins[0] + 1)
+    ye = np.linspace(y_dom[0], y_dom[1], bins[1] + 1)
+    bx = np.clip(np.searchsorted(xe, beta[ok], side="right") - 1, 0, bins[0] - 1)
+    by = np.clip(np.searchsorted(ye, excess[ok], side="right") - 1, 0, bins[1] - 1)
+    counts = np.bincount(bx * bins[1] + by, minlength=bins[0] * bins[1])
+    cell = np.flatnonzero(counts)
+    ix, iy = np.divmod(cell, bins[1])
+    return pd.DataFrame({"beta": xe[ix], "beta2": xe[ix + 1], "excess": ye[iy],
+                         "excess2": ye[iy + 1], "count": counts[cell]})
+
+
+def sml_chart(res: PackResults, market_label: str = "Market proxy",
+              binned: bool = False) -> alt.LayerChart:
     """Each holding's beta against its annualised mean excess return, with the ex post line
     E[r - r_f] = beta x mean market premium (Sharpe 1964), beta and return error bars at
-    the pack's confidence, the market and cash, and the flagged holdings named."""
+    the pack's confidence, the market and cash, and the flagged holdings named.
+
+    ``binned`` (for print): the holdings within estimation error are counted in the cells of
+    a grid (:func:`cell_counts`) instead of drawn one by one; the flagged holdings, the
+    names, the line and the anchors are drawn as on screen, on top."""
     P = res.periods_per_year
     sec = res.securities[res.fits.fitted]
     n_all = len(sec)
@@ -84,6 +114,13 @@ def sml_chart(res: PackResults, market_label: str = "Market proxy") -> alt.Layer
     shape_scale = alt.Scale(domain=[ABOVE, WITHIN, BELOW],
                             range=["triangle-up", "circle", "triangle-down"])
     colour_scale = alt.Scale(domain=[ABOVE, WITHIN, BELOW], range=[TEAL, GREY, BRICK])
+    if binned:
+        within = df[df["position"] == WITHIN]
+        cells = cell_counts(within["beta"].to_numpy(dtype=float),
+                            within["excess"].to_numpy(dtype=float), [lo, hi], y_dom)
+        df = df[df["position"] != WITHIN]
+        shape_scale = alt.Scale(domain=[ABOVE, BELOW], range=["triangle-up", "triangle-down"])
+        colour_scale = alt.Scale(domain=[ABOVE, BELOW], range=[TEAL, BRICK])
     base = alt.Chart(df)
     bars = base.mark_rule(color=ERROR_BAR, strokeWidth=0.8).encode(
         x=alt.X("beta_lo:Q"), x2=alt.X2("beta_hi:Q"), y=alt.Y("excess:Q"))
@@ -101,6 +138,16 @@ def sml_chart(res: PackResults, market_label: str = "Market proxy") -> alt.Layer
     anc = alt.Chart(anchors).mark_point(shape="square", size=90, filled=True,
                                         color=OCHRE).encode(x=alt.X("beta:Q"), y=alt.Y("excess:Q"))
     layers = [bars, vbars, sml, pts, anc]
+    if binned:
+        grid = alt.Chart(cells).mark_rect(stroke=None).encode(
+            x=alt.X("beta:Q"), x2=alt.X2("beta2:Q"), y=alt.Y("excess:Q"),
+            y2=alt.Y2("excess2:Q"),
+            # fill, not color: a scale of its own, apart from the holdings' position
+            fill=alt.Fill("count:Q", title="Holdings within error, per cell",
+                            scale=alt.Scale(range=CELL_RANGE, zero=False),
+                            legend=alt.Legend(orient="right", gradientLength=120,
+                                              tickCount=4, format="d")))
+        layers = [grid, bars, vbars, sml, pts, anc]
     if len(leaders):
         layers.append(alt.Chart(leaders).mark_rule(color=GREY, strokeWidth=0.8).encode(
             x=alt.X("beta:Q"), y=alt.Y("excess:Q"), x2=alt.X2("beta2:Q"),
@@ -116,6 +163,10 @@ def sml_chart(res: PackResults, market_label: str = "Market proxy") -> alt.Layer
     if len(sec) < n_all:
         notes.append(f"{len(sec):,} of {n_all:,} holdings drawn: every one above or below "
                      "the line, then the largest by weight")
+    if binned:
+        notes.append(f"Grey cells: the {len(within):,} holdings within estimation error, "
+                     "counted per cell (each is drawn in the HTML pack and listed in the "
+                     "holdings table)")
     if dropped:
         notes.append(f"{dropped} flagged holding{'s' if dropped != 1 else ''} not named "
                      f"(at most {MAX_NAMED} are, where there is clear space); the holdings "

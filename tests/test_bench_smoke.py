@@ -36,12 +36,17 @@ def test_small_workload_measures_every_stage_and_floor(small):
 
 
 def test_report_ratios_are_the_measured_ones(small):
-    text = bench_pack.table({"small": small}, {"n_schemes": 2, "per_scheme": {1: 3.0, 2: 1.6}})
+    batch = {"n_schemes": 2, "small_whole": 2.0,
+             "per_scheme": {"pool 1": 3.0, "pool 2": 1.6, "dask 1": 3.2, "dask 2": 3.3}}
+    text = bench_pack.table({"small": small}, batch)
     s, f = small["stages"], small["floors"]
     assert f"| pdf | {s['pdf']:.2f} | {f['pdf']:.2f} s | {s['pdf'] / f['pdf']:.2f} |" in text
     total = sum(s.values())
     assert f"whole build {total:.2f} s = {total / sum(f.values()):.2f} x" in text
-    assert "| 2 | 1.60 |" in text and "Machine:" in text
+    assert "| pool | 2 | 1.60 | 0.80 |" in text and "Machine:" in text
+    assert "pool: one worker 3.00 s a scheme = 1.50 x the Small" in text
+    assert "falls with workers up to 2" in text and "dask: one worker 3.20 s" in text
+    assert "does not fall with workers" in text
 
 
 def test_unknown_workload_names_are_refused():

@@ -19,7 +19,7 @@ import pytest
 from reporter.build import build_pack
 from reporter.context import LISTING_ROWS
 from reporter.render.environment import fit
-from reporter.render.html import DENSE_SVG_ELEMENTS, chart_svg, print_charts
+from reporter.render.html import DENSE_SVG_ELEMENTS, PRINT_DPI, chart_svg, print_charts
 from tests.conftest import REPO
 
 sys.path.insert(0, str(REPO / "benchmarks"))
@@ -109,9 +109,9 @@ def test_a_dense_chart_is_an_image_in_print_and_a_small_one_stays_vector():
     assert f"width:{width}px;height:{height}px" in out["dense"]
     png = base64.b64decode(out["dense"].split("base64,")[1].split('"')[0])
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
-    # drawn at 300 dpi: 300/72 pixels per CSS point of the SVG's size
+    # drawn at PRINT_DPI: PRINT_DPI/72 pixels per CSS point of the SVG's size
     w_px = int.from_bytes(png[16:20], "big")
-    assert abs(w_px - float(width) * 300 / 72) <= 2
+    assert PRINT_DPI == 200 and abs(w_px - float(width) * 200 / 72) <= 2
 
 
 def test_fit_cuts_with_an_ellipsis_and_pads():

@@ -9,7 +9,7 @@ from dataclasses import fields
 import vl_convert as vlc
 from markupsafe import Markup
 
-from reporter.charts import THEME_CONFIG
+from reporter.charts import PRINT_ONLY, THEME_CONFIG
 from reporter.context import PackContext
 from reporter.render.environment import make_environment
 
@@ -28,20 +28,26 @@ def chart_svg(chart) -> str:
 
 
 def export_charts(ctx: PackContext) -> dict[str, Markup]:
-    """Every chart of the context as inline SVG markup (vl-convert escapes text in SVG)."""
+    """Every chart of the context as inline SVG markup (vl-convert escapes text in SVG),
+    the print-only variants (named ``NAME`` + :data:`reporter.charts.PRINT_ONLY`) with them."""
     return {name: Markup(chart_svg(chart)) for name, chart in sorted(ctx.charts.items())}
 
 
 # A chart whose SVG has more elements than this is drawn in print as an image: WeasyPrint lays
 # out every SVG element (a security market line of 2,000 holdings with error bars: about 6,000
-# elements, 4 s and 0.9 MB of PDF), while a 300 dpi PNG of it costs about 0.3 s and 0.4 MB.
+# elements, 4 s and 0.9 MB of PDF), while a PNG of it costs about 0.3 s and 0.4 MB.
+# 200 dpi: the figure is set at about three quarters of its SVG size, so about 270 pixels an
+# inch on the page; at 100% and 200% zoom it cannot be told from 300 dpi, which took 1.4 times
+# as long to rasterise (/work/notes/charts_sml_dpi.png, benchmarks/bench_charts.py).
 DENSE_SVG_ELEMENTS = 3000
-PRINT_DPI = 300
+PRINT_DPI = 200
 _SVG_SIZE = re.compile(r'<svg\b[^>]*?\bwidth="([\d.]+)"[^>]*?\bheight="([\d.]+)"')
 
 
-def print_charts(ctx: PackContext, svgs: dict[str, Markup]) -> dict[str, Markup]:
-    """The charts as the PDF shows them, each an image of the chart's own size: its SVG
+def print_charts(ctx: PackContext, svgs: dict[str, Markup], dpi: float = PRINT_DPI
+                 ) -> dict[str, Markup]:
+    """The charts as the PDF shows them (a chart's print variant in its place, where it has
+    one), each an image of the chart's own size: its SVG
     (vector), or for a dense one (more than :data:`DENSE_SVG_ELEMENTS` elements) a PNG at
     :data:`PRINT_DPI` dpi.
 
@@ -53,6 +59,9 @@ def print_charts(ctx: PackContext, svgs: dict[str, Markup]) -> dict[str, Markup]
     anti-aliasing, as the embedded font subsets differ by a few bytes."""
     out = {}
     for name, svg in svgs.items():
+        if name.endswith(PRINT_ONLY):
+            continue
+        svg = svgs.get(name + PRINT_ONLY, svg)      # the print variant, where there is one
         size = _SVG_SIZE.search(svg)
         if size is None:
             out[name] = svg
@@ -62,7 +71,7 @@ def print_charts(ctx: PackContext, svgs: dict[str, Markup]) -> dict[str, Markup]
                                f' src="data:image/svg+xml;base64,{data}">')
         else:
             # rasterised from the SVG already exported (not a second run of Vega)
-            png = vlc.svg_to_png(str(svg), scale=PRINT_DPI / 72)
+            png = vlc.svg_to_png(str(svg), scale=dpi / 72)
             data = base64.b64encode(png).decode("ascii")
             out[name] = Markup(
                 '<img class="chart-image" alt="Chart drawn as an image for print; see its'
