@@ -87,10 +87,10 @@ def stage_memory(progress, every: float = 0.005):
     plain_stage = progress.stage
 
     @contextlib.contextmanager
-    def stage(name):
+    def stage(name, part=None):
         current[0] = PROGRESS_STAGE.get(name, name)
         try:
-            with plain_stage(name):
+            with plain_stage(name, part):
                 yield
         finally:
             current[0] = "between"
