@@ -16,23 +16,25 @@ import pandas as pd
 
 from reporter.allocation_chart import allocation_charts
 from reporter.analytics.pack import PORTFOLIO_SERIES, PackResults
-from reporter.analytics.sml import WITHIN
-
-INK, TEAL, OCHRE, BRICK, GREY = "#1d2b36", "#2a6f6f", "#b8741a", "#9c3b2e", "#6b7780"
-FONT = "DejaVu Sans"
-WIDTH, HEIGHT = 520, 300
-
-THEME_CONFIG = {
-    "font": FONT,
-    "background": "white",
-    "view": {"stroke": None},
-    "axis": {"labelFontSize": 11, "titleFontSize": 11, "titleFontWeight": "normal",
-             "labelColor": INK, "titleColor": INK, "gridColor": "#e3e6e8", "domainColor": GREY,
-             "tickColor": GREY},
-    "legend": {"labelFontSize": 11, "titleFontSize": 11, "titleFontWeight": "normal",
-               "labelColor": INK, "titleColor": INK, "orient": "bottom"},
-    "title": {"fontSize": 13, "fontWeight": "normal", "color": INK, "anchor": "start"},
-}
+from reporter.chart_style import (  # noqa: F401  (re-exported: the palette's old home)
+    BRICK,
+    FONT,
+    GREY,
+    HEIGHT,
+    INK,
+    MAX_CHART_ROWS,
+    MAX_LINE_POINTS,
+    OCHRE,
+    TEAL,
+    THEME_CONFIG,
+    WIDTH,
+    share_axis,
+    thin_holdings,
+)
+from reporter.sector_chart import sector_chart as _draw_sectors
+from reporter.sml_chart import BIN_FROM
+from reporter.sml_chart import sml_chart as _draw_sml
+from reporter.stress_charts import stress_charts
 
 
 def time_axis(dates, max_ticks: int = 8, **kw) -> alt.Axis:
@@ -47,13 +49,6 @@ def time_axis(dates, max_ticks: int = 8, **kw) -> alt.Axis:
     step = max(1, int(np.ceil(days / 30.44 / max_ticks)))
     return alt.Axis(format="%b %Y", tickCount={"interval": "month", "step": step},
                     labelOverlap=True, **kw)
-
-
-def share_axis(top: float, **kw) -> alt.Axis:
-    """A percentage axis of at most five ticks whose labels do not run together: whole
-    percentages unless the range is under 4%."""
-    return alt.Axis(format=".0%" if top >= 0.04 else ".1%", tickCount=5, labelOverlap=True,
-                    labelFlush=False, **kw)
 
 
 def share_ticks(top: float, most: int = 4) -> list[float]:
@@ -76,9 +71,7 @@ def beta_band(limits) -> tuple[float | None, float | None]:
 def sml_chart(res: PackResults, market_label: str = "Market proxy",
               binned: bool = False) -> alt.LayerChart:
     """The security market line chart (:func:`reporter.sml_chart.sml_chart`)."""
-    from reporter.sml_chart import sml_chart as draw  # it draws with this module's palette
-
-    return draw(res, market_label, binned)
+    return _draw_sml(res, market_label, binned)
 
 
 # A chart named NAME + PRINT_ONLY is drawn in the PDF in the place of NAME, which the HTML
@@ -90,37 +83,14 @@ def print_variants(res: PackResults, market_label: str) -> dict[str, alt.TopLeve
     """The charts the PDF draws differently from the HTML: the security market line of
     :data:`reporter.sml_chart.BIN_FROM` or more fitted holdings with those within estimation
     error counted in cells."""
-    from reporter.sml_chart import BIN_FROM
-
     if int(res.fits.fitted.sum()) < BIN_FROM:
         return {}
     return {"sml" + PRINT_ONLY: sml_chart(res, market_label, binned=True)}
 
 
-# Altair refuses a chart with more rows than this (its default limit): beyond it a chart
-# of holdings draws every flagged holding and then the largest by weight.
-MAX_CHART_ROWS = 5000
-
-
-def thin_holdings(sec: pd.DataFrame, max_rows: int = MAX_CHART_ROWS) -> pd.DataFrame:
-    """At most ``max_rows`` holdings of ``sec`` (a securities table), in their own order:
-    every one whose SML position is flagged above or below the line, then the largest by
-    weight (ties by position in the table)."""
-    if len(sec) <= max_rows:
-        return sec
-    flagged = (sec["sml_position"] != WITHIN).to_numpy()
-    weight = sec["weight"].to_numpy(dtype=float)
-    # flagged first, then by weight, largest first; a stable sort keeps table order in ties
-    order = np.lexsort((-np.nan_to_num(weight, nan=-np.inf), ~flagged))
-    keep = np.sort(order[:max_rows])
-    return sec.iloc[keep]
-
-
 def sector_chart(res: PackResults, sector_limits: dict[str, dict] | None = None) -> alt.Chart:
     """Weight by sector (:func:`reporter.sector_chart.sector_chart`)."""
-    from reporter.sector_chart import sector_chart as draw  # it draws with this palette
-
-    return draw(res, sector_limits)
+    return _draw_sectors(res, sector_limits)
 
 
 def diversification_chart(res: PackResults) -> alt.LayerChart:
@@ -188,9 +158,6 @@ def risk_contribution_chart(res: PackResults, top: int = 12) -> alt.HConcatChart
             y=alt.Y("name:N", sort=order), x=alt.X("weight:Q"))
         panels.append(alt.layer(bars, ticks).properties(width=150, height=16 * len(h)))
     return alt.hconcat(*panels, spacing=12)
-
-
-MAX_LINE_POINTS = 300   # a print chart is about 500 px wide: more points add bytes, not detail
 
 
 def thin_series(df: pd.DataFrame, by: str = "series",
@@ -295,8 +262,6 @@ def build_charts(res: PackResults, limits=None,
     """Every chart of the pack, keyed by the name the templates use. ``limits`` (a
     :class:`reporter.limits.LimitsReport`, optional) marks sector limits on the sector chart;
     ``market_label`` names the series the regressions are against (a mandate's benchmark)."""
-    from reporter.stress_charts import stress_charts  # it draws with this module's palette
-
     return stress_charts(res.stress, market_label) | {
         "rolling_portfolio": rolling_portfolio_chart(res, beta_band(limits)),
         "rolling_holdings": rolling_holdings_chart(res),

@@ -14,7 +14,7 @@ import pandas as pd
 
 from reporter.analytics.pack import PackResults
 from reporter.chart_labels import Linear, text_width
-from reporter.charts import BRICK, GREY, INK, OCHRE, TEAL, WIDTH, share_axis
+from reporter.chart_style import BRICK, GREY, INK, OCHRE, TEAL, WIDTH, share_axis
 
 STATUS_MARK = {"breach": "\u2716 breach", "watch": "\u25c6 watch"}
 

@@ -18,7 +18,7 @@ from reporter.analytics.pack import PackResults
 from reporter.analytics.regression import t_critical
 from reporter.analytics.sml import ABOVE, BELOW, WITHIN
 from reporter.chart_labels import Linear, place_labels, point_box
-from reporter.charts import BRICK, GREY, HEIGHT, INK, OCHRE, TEAL, WIDTH, thin_holdings
+from reporter.chart_style import BRICK, GREY, HEIGHT, INK, OCHRE, TEAL, WIDTH, thin_holdings
 
 MAX_NAMED = 8               # holdings named on the chart, at most
 MAX_TRIED = 60              # flagged holdings tried, largest weight first, to name those 8

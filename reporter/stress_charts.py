@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 
 from reporter.analytics.stress import StressResults
-from reporter.charts import BRICK, GREY, INK, MAX_LINE_POINTS, TEAL, WIDTH
+from reporter.chart_style import BRICK, GREY, INK, MAX_LINE_POINTS, TEAL, WIDTH
 
 
 def scenario_chart(stress: StressResults, market_label: str = "Market proxy") -> alt.Chart:

@@ -8,7 +8,7 @@ import numpy as np
 import pandas as pd
 
 from reporter.analytics.style import StyleResults
-from reporter.charts import BRICK, GREY, INK, OCHRE, TEAL, WIDTH
+from reporter.chart_style import BRICK, GREY, INK, OCHRE, TEAL, WIDTH
 
 EFFECTS = ("Allocation", "Selection", "Interaction")
 
