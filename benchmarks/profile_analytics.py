@@ -26,7 +26,6 @@ import io
 import pstats
 import sys
 import tempfile
-import time
 from pathlib import Path
 
 import numpy as np
@@ -34,6 +33,7 @@ import numpy as np
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
 
+from timing import best_of  # noqa: E402
 from workloads import write_scheme  # noqa: E402
 
 
@@ -59,15 +59,6 @@ def floor(settings, inputs):
     x = np.column_stack([np.ones(len(m)), m])
     y = y[-len(m):]
     return np.linalg.lstsq(x, y, rcond=None), np.cov(y.T)
-
-
-def best_of(fn, repeat: int) -> float:
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return min(times)
 
 
 def line_profile(settings, inputs, top: int) -> str:

@@ -160,6 +160,26 @@ def _refuse_duplicate_columns(display: str, names: list[str]) -> None:
                           for c in dupes])
 
 
+def csv_options(spec: InputSpec, header: list[str], bad: list, column_types: dict, *,
+                block_size: int, use_threads: bool = True) -> dict:
+    """pyarrow's read, parse and convert options for a data file's lines under ``header``
+    (the header line skipped): the pack's delimiter and decimal point, blank lines kept, only
+    an empty field null, and each malformed line appended to ``bad`` and skipped."""
+    def on_bad_row(row) -> str:
+        bad.append(row)
+        return "skip"
+
+    return {
+        "read_options": pacsv.ReadOptions(use_threads=use_threads, block_size=block_size,
+                                          column_names=header, skip_rows=1),
+        "parse_options": pacsv.ParseOptions(delimiter=spec.delimiter, ignore_empty_lines=False,
+                                            invalid_row_handler=on_bad_row),
+        "convert_options": pacsv.ConvertOptions(column_types=column_types,
+                                                decimal_point=spec.decimal,
+                                                strings_can_be_null=True, null_values=[""]),
+    }
+
+
 def _read_csv_body(spec: InputSpec, header: list[str], *, use_threads: bool):
     """Read the data lines under ``header``; returns the table and the malformed lines.
 
@@ -170,24 +190,9 @@ def _read_csv_body(spec: InputSpec, header: list[str], *, use_threads: bool):
     column it is reported as not a number.
     """
     bad: list = []
-
-    def on_bad_row(row) -> str:
-        bad.append(row)
-        return "skip"
-
-    table = pacsv.read_csv(
-        spec.path,
-        read_options=pacsv.ReadOptions(use_threads=use_threads, block_size=CSV_BLOCK_BYTES,
-                                       column_names=header, skip_rows=1),
-        parse_options=pacsv.ParseOptions(delimiter=spec.delimiter, ignore_empty_lines=False,
-                                         invalid_row_handler=on_bad_row),
-        convert_options=pacsv.ConvertOptions(
-            column_types={c: _text_type(c) for c in header if c in TEXT_COLUMNS},
-            decimal_point=spec.decimal,
-            strings_can_be_null=True,
-            null_values=[""],
-        ),
-    )
+    table = pacsv.read_csv(spec.path, **csv_options(
+        spec, header, bad, {c: _text_type(c) for c in header if c in TEXT_COLUMNS},
+        block_size=CSV_BLOCK_BYTES, use_threads=use_threads))
     return table, bad
 
 

@@ -175,15 +175,20 @@ def pairwise_covariance_and_average_correlation(returns: np.ndarray
     N x N correlation matrix: the correlations are formed a block of rows at a time and only
     their mean over the pairs above the diagonal is kept."""
     cov, corr_rows = _pairwise_moments(returns)
-    N = cov.shape[0]
+    return cov, mean_above_diagonal(corr_rows, cov.shape[0])
+
+
+def mean_above_diagonal(rows, n: int) -> float:
+    """The mean of the finite entries above the diagonal of an n x n matrix given a block of
+    rows at a time by ``rows(slice)`` (NaN when there are none), never holding it whole."""
     total, count = 0.0, 0
-    for blk in _row_blocks(N):
-        c = corr_rows(blk)
-        upper = np.arange(N)[None, :] > np.arange(blk.start, blk.stop)[:, None]
+    for blk in _row_blocks(n):
+        c = rows(blk)
+        upper = np.arange(n)[None, :] > np.arange(blk.start, blk.stop)[:, None]
         upper &= np.isfinite(c)
         total += float(c[upper].sum())
         count += int(upper.sum())
-    return cov, (total / count if count else float("nan"))
+    return total / count if count else float("nan")
 
 
 def _pairwise_moments(returns: np.ndarray):

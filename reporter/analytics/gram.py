@@ -28,6 +28,7 @@ from collections.abc import Callable
 import numpy as np
 
 from reporter.analytics.covariance import _Moments
+from reporter.analytics.diversification import mean_above_diagonal
 
 
 def _row_blocks(n: int):
@@ -116,15 +117,7 @@ def pairwise_covariance_and_average_correlation(mo: _Moments, cols: np.ndarray
     """The pairwise covariance of the holdings at ``cols`` and the mean of their pairwise
     correlations over the pairs above the diagonal (formed a block of rows at a time)."""
     cov, corr_rows = pairwise_moments(mo, cols)
-    N = cov.shape[0]
-    total, count = 0.0, 0
-    for blk in _row_blocks(N):
-        c = corr_rows(blk)
-        upper = np.arange(N)[None, :] > np.arange(blk.start, blk.stop)[:, None]
-        upper &= np.isfinite(c)
-        total += float(c[upper].sum())
-        count += int(upper.sum())
-    return cov, (total / count if count else float("nan"))
+    return cov, mean_above_diagonal(corr_rows, cov.shape[0])
 
 
 def residual_gram(mo: _Moments, cols: np.ndarray, risk_free: np.ndarray,

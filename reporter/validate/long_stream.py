@@ -22,7 +22,7 @@ import pyarrow.csv as pacsv
 
 from reporter.analytics.returns import period_keys
 from reporter.config import InputSpec
-from reporter.readers import RawTable, _csv_header, _text_type
+from reporter.readers import RawTable, _csv_header, _text_type, csv_options
 from reporter.validate.cells import _parse_date_texts
 from reporter.validate.text import case_clashes, normalise_id, normalised_ids
 from reporter.validate.values import _percent_columns
@@ -99,22 +99,9 @@ def _batches(spec: InputSpec, header: list[str]):
     :func:`reporter.readers._read_csv_body`) and the return column as a float; and the list
     into which malformed lines are gathered."""
     bad: list = []
-
-    def on_bad_row(row) -> str:
-        bad.append(row)
-        return "skip"
-
-    reader = pacsv.open_csv(
-        spec.path,
-        read_options=pacsv.ReadOptions(use_threads=True, block_size=STREAM_BLOCK_BYTES,
-                                       column_names=header, skip_rows=1),
-        parse_options=pacsv.ParseOptions(delimiter=spec.delimiter, ignore_empty_lines=False,
-                                         invalid_row_handler=on_bad_row),
-        convert_options=pacsv.ConvertOptions(
-            column_types={"date": _text_type("date"),
-                          "security_id": _text_type("security_id"), "return": pa.float64()},
-            decimal_point=spec.decimal, strings_can_be_null=True, null_values=[""]),
-    )
+    reader = pacsv.open_csv(spec.path, **csv_options(
+        spec, header, bad, {"date": _text_type("date"), "security_id": _text_type("security_id"),
+                            "return": pa.float64()}, block_size=STREAM_BLOCK_BYTES))
     return reader, bad
 
 
