@@ -67,7 +67,7 @@ def pairwise_moments(mo: _Moments, cols: np.ndarray
     gcols = idx[gpos]
     cpos = np.flatnonzero(~mo.gapped[idx])
     x_sub = mo.x[:, idx]
-    m_gap = mo.m[:, gcols]
+    m_gap = mo.m_gap[:, np.searchsorted(mo.gap_idx, gcols)]
     n_g = mo.n_gap[np.searchsorted(mo.gap_idx, gcols)][:, idx]      # n[gpos, :], g x k
     col_sum = x_sub.sum(axis=0)                         # sum of d_i over its own periods
     s_c = x_sub.T @ m_gap                               # S[:, gpos]: d_i over a gapped j's
