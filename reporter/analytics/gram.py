@@ -144,5 +144,7 @@ def residual_gram(mo: _Moments, cols: np.ndarray, risk_free: np.ndarray,
     yy -= u[:, None]
     yy -= u[None, :]
     yy += float(f @ f)
-    yy -= np.outer(yz, yz / float(zc @ zc))
+    v = yz / float(zc @ zc)
+    for start in range(0, len(idx), 256):       # - yz yz' / z'z, a block of rows at a time
+        yy[start:start + 256] -= np.outer(yz[start:start + 256], v)
     return yy
