@@ -83,8 +83,8 @@ def test_staged_build_equals_the_in_memory_files(assembled, tmp_path):
 
 
 @pytest.mark.parametrize("where", ["pdf", "results"])
-def test_a_failure_in_either_thread_leaves_the_earlier_output(assembled, demo_build, tmp_path,
-                                                              monkeypatch, where):
+def test_a_failure_in_the_pdf_or_the_results_leaves_the_earlier_output(
+        assembled, demo_build, tmp_path, monkeypatch, where):
     out = tmp_path / "pack"
     shutil.copytree(demo_build, out)
     before = tree(out)
