@@ -9,9 +9,10 @@ names other code uses (``assemble``, ``results_files``, ``pack_files``, ``Assemb
 from __future__ import annotations
 
 import datetime as dt
-from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
+
+import numpy as np
 
 from reporter.analytics.pack import PackResults
 from reporter.config import load_settings
@@ -43,6 +44,9 @@ __all__ = [
 
 @dataclass(frozen=True)
 class BuildReport:
+    """What a build wrote. ``results`` are the pack's results as the build left them: the
+    large arrays only the files needed are released (:func:`release_arrays`)."""
+
     out: Path
     files: list[str]
     warnings: list[Problem]
@@ -61,38 +65,61 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     refuse_overlap(settings.pack_dir, out, "pack folder")
     check_target(out)
     a = assemble(settings, strict=strict, progress=progress, at=at)
-    files = finish_build(a, out, progress)
+    files = finish_build(a, out, progress, release=True)
     return BuildReport(out=out, files=files.paths,
                        warnings=a.inputs.warnings + a.compare_warnings, results=a.results)
 
 
-def finish_build(a: Assembled | FundAssembled, out: Path, progress: Progress) -> OutputSet:
+def finish_build(a: Assembled | FundAssembled, out: Path, progress: Progress, *,
+                 release: bool = False) -> OutputSet:
     """Render the HTML and PDF of an assembled pack and write every file into ``out``
-    (stages html, pdf and write). The results files are written into the staging folder
-    beside ``out`` by a second thread while WeasyPrint renders the PDF: the largest, the
-    rolling betas, is formatted by pyarrow outside Python's lock, and goes to disk as it is
-    made rather than being held in memory. A failure anywhere (an interrupt included) removes
-    the staging folder at once; the results thread stops at its next write."""
+    (stages html, results, pdf and write). Once the HTML is made, the results files are
+    written into the staging folder beside ``out`` (the largest, the rolling betas, goes to
+    disk as pyarrow formats it, never whole in memory), before the PDF. With ``release``
+    (a build, which has no further use for ``a``), ``a`` is consumed: the arrays nothing
+    renders from (the window's returns, the covariance estimates) are released first and
+    the rolling betas once their file is written, so that WeasyPrint does not render beside
+    them (see :func:`release_arrays`). A failure anywhere (an interrupt included) removes
+    the staging folder at once."""
     settings = a.settings
+    if release:
+        release_arrays(a, rolling=False)
     with progress.stage("html"):
         html = a.html(for_print=False)
         print_html = {e: a.html(for_print=True, edition=e) for e in EDITIONS}
-        release_free_memory()       # the analysis' and charts' temporaries, before the PDF
     files = OutputSet(open_staging(out))
-    pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="results")
     try:
-        results = pool.submit(results_files, a, files)
+        with progress.stage("results"):
+            results_files(a, files)
+        if release:
+            release_arrays(a, rolling=True)
+        release_free_memory()       # the analysis' and charts' temporaries, before the PDF
         with progress.stage("pdf"):
             pdf = {e: render_pdf(text, base_dir=settings.pack_dir,
                                  allowed=(settings.pack_dir,))
                    for e, text in print_html.items()}
         with progress.stage("write"):
-            results.result()            # the results files, written meanwhile
             pack_files(a, html, pdf, files)
             commit(files, out)
     except BaseException:
-        files.discard()                 # before waiting for the thread, which it stops
+        files.discard()
         raise
-    finally:
-        pool.shutdown(wait=True)
     return files
+
+
+def release_arrays(a: Assembled | FundAssembled, rolling: bool = True) -> None:
+    """Drop from ``a``'s results (every part of a fund) the arrays nothing needs once its
+    charts, HTML and (with ``rolling``) results files are made: the window's T x N returns,
+    the two N x N covariance estimates and the T x N rolling betas and their errors. Their
+    places keep empty arrays, and every other figure stays, so ``a`` can still render its
+    HTML and summaries; :attr:`BuildReport.results` is these released results."""
+    parts = (a.total, *a.parts) if isinstance(a, FundAssembled) else (a,)
+    for res in (p.results for p in parts):
+        drop = {"window": replace(res.window, returns=np.empty((res.window.n_periods, 0))),
+                "covariance": replace(res.covariance, matrix=np.empty((0, 0))),
+                "covariance_active": replace(res.covariance_active, matrix=np.empty((0, 0)))}
+        if rolling:
+            drop["rolling"] = replace(res.rolling, beta=np.empty((0, 0)),
+                                      beta_se=np.empty((0, 0)))
+        for name, value in drop.items():       # the results are frozen for every other use
+            object.__setattr__(res, name, value)

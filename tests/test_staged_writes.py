@@ -83,8 +83,8 @@ def test_staged_build_equals_the_in_memory_files(assembled, tmp_path):
 
 
 @pytest.mark.parametrize("where", ["pdf", "results"])
-def test_a_failure_in_either_thread_leaves_the_earlier_output(assembled, demo_build, tmp_path,
-                                                              monkeypatch, where):
+def test_a_failure_in_the_pdf_or_the_results_leaves_the_earlier_output(
+        assembled, demo_build, tmp_path, monkeypatch, where):
     out = tmp_path / "pack"
     shutil.copytree(demo_build, out)
     before = tree(out)
@@ -102,35 +102,24 @@ def test_a_failure_in_either_thread_leaves_the_earlier_output(assembled, demo_bu
     assert hidden(tmp_path) == []                     # the staging folder was removed
 
 
-def test_a_failure_stops_the_results_thread_and_nothing_is_left(assembled, demo_build, tmp_path,
-                                                                monkeypatch):
-    """The PDF fails while the results thread is still writing: the staging folder is removed
-    at once, the thread stops at its next write (it does not write its remaining blocks), and
-    it leaves nothing behind, not even once it has ended."""
-    import time
-
+def test_a_pdf_failure_after_the_results_were_staged_leaves_nothing(assembled, demo_build,
+                                                                    tmp_path, monkeypatch):
+    """The results files are made before the PDF (the rolling betas straight into the staging
+    folder); the PDF then fails: the staging folder is removed with them and the earlier
+    output is untouched."""
     out = tmp_path / "pack"
     shutil.copytree(demo_build, out)
     before = tree(out)
-    blocks = []
-    started = __import__("threading").Event()
-
-    def slow_rolling(res, sink):
-        for _ in range(200):
-            sink.write(b"2026-01-30,X,1.0,0.1,0.8,1.2\n" * 100)
-            blocks.append(1)
-            started.set()
-            time.sleep(0.02)
+    staged = []
 
     def failing_pdf(*args, **kwargs):
-        started.wait(timeout=30)          # the thread is writing when the PDF fails
+        staged.extend(p.name for p in tmp_path.glob(".pack.tmp-*/results/*"))
         raise RuntimeError("pdf failed")
 
-    monkeypatch.setattr(results_module, "write_rolling_csv", slow_rolling)
     monkeypatch.setattr(build, "render_pdf", failing_pdf)
     with pytest.raises(RuntimeError, match="pdf failed"):
         build.finish_build(assembled, out, Progress(quiet=True))
-    assert 1 <= len(blocks) < 200                   # stopped part-way, not run to the end
+    assert staged == ["rolling_beta.csv"]        # on disk already (the others in memory)
     assert tree(out) == before
     assert hidden(tmp_path) == []
     with pytest.raises(OutputError, match="abandoned"):
@@ -218,3 +207,28 @@ def test_staging_folders_are_judged_by_process_id_only_on_their_own_machine(tmp_
 def test_two_stagings_of_one_target_in_one_process_are_separate(tmp_path):
     first, second = open_staging(tmp_path / "pack"), open_staging(tmp_path / "pack")
     assert first != second and first.is_dir() and second.is_dir()
+
+
+def test_a_releasing_build_writes_the_same_files_and_releases_its_arrays(tmp_path):
+    """finish_build(release=True), as a build runs it, drops the window's returns, the two
+    covariance matrices and the rolling betas from the results, and writes byte for byte
+    the files of a build that keeps them."""
+    import datetime as dt
+
+    at = dt.datetime(2026, 11, 30, 12, 0, tzinfo=dt.UTC)
+    trees = {}
+    for release in (False, True):
+        a = build.assemble(load_settings(DEMO), at=at)
+        build.finish_build(a, tmp_path / str(release), Progress(quiet=True), release=release)
+        trees[release] = tree(tmp_path / str(release))
+        res = a.results
+        sizes = (res.window.returns.size, res.covariance.matrix.size,
+                 res.covariance_active.matrix.size, res.rolling.beta.size,
+                 res.rolling.beta_se.size)
+        if release:
+            assert sizes == (0, 0, 0, 0, 0)
+            assert res.window.n_periods == len(res.window.dates) > 0     # the figures stay
+        else:
+            assert all(s > 0 for s in sizes)
+    assert trees[True] == trees[False]
+    assert "results/rolling_beta.csv" in trees[True]

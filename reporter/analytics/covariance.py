@@ -102,7 +102,7 @@ class _Moments:
     rows of n_ij for holdings with gaps are stored: every other pair has n_ij = T."""
 
     x: np.ndarray          # T x N deviations from each column's own mean, 0 where missing
-    m: np.ndarray          # T x N float mask
+    m_gap: np.ndarray      # T x g float mask of the holdings with gaps (others: all ones)
     gram: np.ndarray       # N x N sum over common periods of x_i x_j (the estimate is built in it)
     gapped: np.ndarray     # bool N: columns missing a period of the window
     gap_idx: np.ndarray    # their positions
@@ -120,8 +120,11 @@ class _Moments:
         n_own = m.sum(axis=0)
         gapped = n_own < T
         gap_idx = np.flatnonzero(gapped)
-        return cls(x=x, m=m, gram=x.T @ x, gapped=gapped, gap_idx=gap_idx,
-                   n_gap=m[:, gap_idx].T @ m, n_own=n_own, T=T)
+        m_gap = m[:, gap_idx]
+        n_gap = m_gap.T @ m
+        del m, mask
+        return cls(x=x, m_gap=m_gap, gram=x.T @ x, gapped=gapped, gap_idx=gap_idx,
+                   n_gap=n_gap, n_own=n_own, T=T)
 
     def relative_to(self, returns: np.ndarray, ref: np.ndarray) -> _Moments:
         """The moments of ``returns - ref`` for a reference ``ref`` with every period (so the
@@ -144,7 +147,7 @@ class _Moments:
             g_rows = xa[:, gi].T @ xa
             gram[gi, :] = g_rows
             gram[:, gi] = g_rows.T
-        return _Moments(x=xa, m=self.m, gram=gram, gapped=self.gapped, gap_idx=gi,
+        return _Moments(x=xa, m_gap=self.m_gap, gram=gram, gapped=self.gapped, gap_idx=gi,
                         n_gap=self.n_gap, n_own=self.n_own, T=self.T)
 
     def n_rows(self, block: slice) -> np.ndarray:
@@ -231,7 +234,7 @@ def _estimate(mo: _Moments, method: str) -> CovarianceEstimate:
     x2 = mo.x * mo.x
     if cc:
         q = x2.sum(axis=0)
-        b_gap = x2.T @ mo.m[:, mo.gap_idx]        # B = (x^2)'m against the gapped columns
+        b_gap = x2.T @ mo.m_gap                     # B = (x^2)'m against the gapped columns
     for blk in _row_blocks(N):
         nb = mo.n_rows(blk)
         valid = nb >= 2
@@ -300,6 +303,7 @@ def _estimate(mo: _Moments, method: str) -> CovarianceEstimate:
         pi_diag = np.where(n_own >= 2, (x4 / n_own - s_diag**2) / n_own, 0.0)
         a_diag = np.where(n_own >= 2, x4 / n_own**2, 0.0) * (sd > 0)
     theta_a = mo.pair_sum(x2 * mo.x, mo.x, inv_sd, sd, h_gg, 1.0 / T**2) - float(a_diag.sum())
+    del x2                      # T x N: freed before the estimate and its PSD test
     rho = float(pi_diag.sum()) + r_bar * (theta_a - theta_b)
     shrink = 0.0 if gamma <= 0 else float(np.clip((pi_sum - rho) / gamma, 0.0, 1.0))
     # third pass: shrink F + (1 - shrink) S, in place

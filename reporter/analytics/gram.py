@@ -68,7 +68,7 @@ def pairwise_moments(mo: _Moments, cols: np.ndarray
     gcols = idx[gpos]
     cpos = np.flatnonzero(~mo.gapped[idx])
     x_sub = mo.x[:, idx]
-    m_gap = mo.m[:, gcols]
+    m_gap = mo.m_gap[:, np.searchsorted(mo.gap_idx, gcols)]
     n_g = mo.n_gap[np.searchsorted(mo.gap_idx, gcols)][:, idx]      # n[gpos, :], g x k
     col_sum = x_sub.sum(axis=0)                         # sum of d_i over its own periods
     s_c = x_sub.T @ m_gap                               # S[:, gpos]: d_i over a gapped j's
@@ -137,5 +137,7 @@ def residual_gram(mo: _Moments, cols: np.ndarray, risk_free: np.ndarray,
     yy -= u[:, None]
     yy -= u[None, :]
     yy += float(f @ f)
-    yy -= np.outer(yz, yz / float(zc @ zc))
+    v = yz / float(zc @ zc)
+    for start in range(0, len(idx), 256):       # - yz yz' / z'z, a block of rows at a time
+        yy[start:start + 256] -= np.outer(yz[start:start + 256], v)
     return yy

@@ -84,6 +84,20 @@ def analyse(inputs: ValidInputs, settings: Settings,
         port = _align_optional(portfolio, win.dates, settings.frequency)
     pfit = fit_portfolio(port - win.risk_free, x, settings.confidence, settings.errors,
                          settings.hac_lags)
+    # every figure from the prepared matrices (two T x N) first, so that they are freed
+    # before the shared Gram matrix and the risk model are formed
+    beta_up, beta_down = up_down_betas(y, x, settings.min_obs, prep=prep)
+    port_ex = (port - win.risk_free)[:, None]
+    p_up, p_down = up_down_betas(port_ex, x, settings.min_obs)
+    mkt = build_window(inputs, settings, periods=0, holdings=False)    # the whole history's
+    pre = mkt.market_excess[:len(mkt.dates) - win.n_periods]   # the market before the window
+    dimson = np.concatenate([
+        dimson_beta(port_ex, x, settings.dimson_lags, settings.min_obs, before=pre),
+        dimson_beta(y, x, settings.dimson_lags, settings.min_obs, prep, before=pre)])
+    sw = np.concatenate([scholes_williams_beta(port_ex, x, settings.min_obs, pre),
+                         scholes_williams_beta(y, x, settings.min_obs, pre)])
+    mkt_dates = mkt.dates
+    del prep, mkt
     ok = fits.fitted
     held = ok | coverage.stand_in        # cash (beta 0) and proxies count at their weights
     fitted_weight = float(weights[held].sum())
@@ -118,10 +132,6 @@ def analyse(inputs: ValidInputs, settings: Settings,
     del shared
     risk = risk_contributions(weights, cov.matrix, cov_active.matrix)
 
-    beta_up, beta_down = up_down_betas(y, x, settings.min_obs, prep=prep)
-    port_ex = (port - win.risk_free)[:, None]
-    p_up, p_down = up_down_betas(port_ex, x, settings.min_obs)
-
     line_cs = cross_sectional_test(fits.mean_excess[ok], fits.beta[ok],
                                    float(np.mean(x)), win.n_periods)
     line_fm, _ = fama_macbeth(y[:, ok], fits.beta[ok], x)
@@ -133,13 +143,9 @@ def analyse(inputs: ValidInputs, settings: Settings,
     grs_s = grs_test(sector_ex[:, full], x, "sector portfolios")
 
     release_free_memory()      # the window's temporaries, before the whole history's
-    hist = build_window(inputs, settings, periods=0)
-    pre = hist.market_excess[:len(hist.dates) - win.n_periods]   # the market before the window
-    dimson = np.concatenate([
-        dimson_beta(port_ex, x, settings.dimson_lags, settings.min_obs, before=pre),
-        dimson_beta(y, x, settings.dimson_lags, settings.min_obs, prep, before=pre)])
-    sw = np.concatenate([scholes_williams_beta(port_ex, x, settings.min_obs, pre),
-                         scholes_williams_beta(y, x, settings.min_obs, pre)])
+    # the whole history; the window itself (no second copy of the returns) when it is that
+    hist = (win if len(mkt_dates) == win.n_periods
+            else build_window(inputs, settings, periods=0))
     rolling = rolling_betas(hist.excess_returns, hist.market_excess, settings.rolling_window)
     hist_raw = portfolio_returns(hist.returns, weights)
     if portfolio is not None:

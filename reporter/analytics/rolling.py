@@ -49,19 +49,35 @@ def rolling_betas(y: np.ndarray, x: np.ndarray, window: int,
     window of ``window`` periods, from running sums (no refit per window). A window is
     used only if the holding has a return in every one of its periods, so the market's sums
     over a complete window are the same for every holding and come from one 1-D pass."""
-    p = prep or Prepared.of(y, x)
     W = window
+    if prep is not None:
+        y0, m, xc, x_ok = prep.y0, prep.m, prep.xc, prep.x_ok
+        holed = np.flatnonzero(prep.n_obs < m.shape[0])
+        m = m[:, holed]
+    else:       # as Prepared.of, without its T x N float mask: only the holed columns' count
+        y = np.asarray(y, dtype=float)
+        x = np.asarray(x, dtype=float)
+        x_ok = np.isfinite(x)
+        mask = np.isfinite(y)
+        mask &= x_ok[:, None]
+        x_mean = float(x[x_ok].mean()) if x_ok.any() else 0.0
+        y0 = np.where(mask, y, 0.0)
+        xc = np.where(x_ok, x - x_mean, 0.0)
+        holed = np.flatnonzero(~mask.all(axis=0))
+        m = mask[:, holed].astype(float)
+        del mask
     # window completeness: only holdings with a missing period anywhere need counting
-    holed = np.flatnonzero(p.n_obs < p.m.shape[0])
-    incomplete = np.zeros(p.m.shape, dtype=bool)
+    incomplete = np.zeros(y0.shape, dtype=bool)
     if len(holed):
-        incomplete[:, holed] = np.abs(trailing_sum(p.m[:, holed], W) - W) > 0.5
-    sy = trailing_sum(p.y0, W)
-    tmp = np.multiply(p.y0, p.xc[:, None])
+        incomplete[:, holed] = np.abs(trailing_sum(m, W) - W) > 0.5
+    del m
+    sy = trailing_sum(y0, W)
+    tmp = np.multiply(y0, xc[:, None])
     sxy = trailing_sum(tmp, W)
-    np.multiply(p.y0, p.y0, out=tmp)
+    np.multiply(y0, y0, out=tmp)
+    del y0, prep                # (the caller's prepared matrices, if given, stay the caller's)
     syy = trailing_sum(tmp, W)
-    xw = np.where(p.x_ok, p.xc, 0.0)
+    xw = np.where(x_ok, xc, 0.0)
     sx = trailing_sum(xw[:, None], W)[:, 0]
     sxx = trailing_sum((xw * xw)[:, None], W)[:, 0]
     with np.errstate(invalid="ignore", divide="ignore"):

@@ -258,7 +258,8 @@ def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdi
     rounding of the order of eps times the variance of the returns before the risk-free rate
     is taken off (``return_variance``): an asset that is exactly a line in the market (its
     residual variance at most 1e-12 of its variance) is judged against the larger of the two
-    variances, which is the same test wherever the risk-free rate is constant."""
+    variances, which is the same test wherever the risk-free rate is constant.
+    ``residual_cross`` is consumed (the residual covariance is formed in it)."""
     from scipy import stats
 
     y = np.asarray(excess, dtype=float)
@@ -279,7 +280,8 @@ def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdi
         sigma = e.T @ e / T
         del e
     else:
-        sigma = residual_cross / T
+        sigma = residual_cross              # consumed: divided in place
+        sigma /= T
     mu = float(x.mean())
     var_m = float(np.mean((x - mu) ** 2))
     if not var_m > 0:
@@ -320,7 +322,10 @@ def _quadratic_form(sigma: np.ndarray, alpha: np.ndarray, scale: np.ndarray) -> 
     from scipy.linalg import solve_triangular
 
     N = len(alpha)
-    R = sigma / np.outer(scale, scale)
+    R = np.empty_like(sigma)
+    for start in range(0, N, 256):      # S / (s s'), a block of rows at a time
+        blk = slice(start, min(start + 256, N))
+        np.divide(sigma[blk], np.outer(scale[blk], scale), out=R[blk])
     threshold = 1.0 / (N * np.finfo(float).eps)
     try:        # numpy's factor: see reporter.analytics.psd._explained for why not scipy's
         low = np.linalg.cholesky(R)

@@ -11,9 +11,12 @@ from reporter.errors import InputError, Problem
 from reporter.models import DatedSeries, ValidInputs
 
 
-def build_window(inputs: ValidInputs, settings: Settings, periods: int | None = None) -> Window:
+def build_window(inputs: ValidInputs, settings: Settings, periods: int | None = None,
+                 holdings: bool = True) -> Window:
     """The last ``periods`` (default ``settings.window``) market periods up to ``period_end``,
-    with aligned data; ``periods=0`` takes every market period up to ``period_end``."""
+    with aligned data; ``periods=0`` takes every market period up to ``period_end``.
+    ``holdings=False`` leaves out the holdings' returns (a T x 0 matrix): the market and the
+    risk-free rate alone, without a copy of the returns."""
     freq = settings.frequency
     end_key = period_keys(np.array([np.datetime64(settings.period_end, "D")]), freq)[0]
     mkeys_all = period_keys(inputs.market.dates, freq)
@@ -27,8 +30,9 @@ def build_window(inputs: ValidInputs, settings: Settings, periods: int | None = 
     pos_c = np.minimum(pos, max(len(panel.period_keys) - 1, 0))
     present = (pos < len(panel.period_keys)) & (panel.period_keys[pos_c] == mkeys) if len(
         panel.period_keys) else np.zeros(len(mkeys), dtype=bool)
-    rets = np.full((len(mkeys), len(panel.security_ids)), np.nan)
-    rets[present] = panel.values[pos_c[present]]
+    rets = np.full((len(mkeys), len(panel.security_ids) if holdings else 0), np.nan)
+    if holdings:
+        rets[present] = panel.values[pos_c[present]]
     return Window(dates=inputs.market.dates[idx], security_ids=panel.security_ids,
                   returns=rets, market=inputs.market.values[idx], risk_free=rf)
 
