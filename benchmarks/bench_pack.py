@@ -139,8 +139,8 @@ def run_stages(folder: Path) -> dict:
         pdf = (Path(out) / "pack" / "pack.pdf").read_bytes()
     peak_build = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
     times = progress.times
-    # "results": the results files (written into the staging folder before the PDF) and
-    # what the write stage adds once the PDF is done
+    # "results": what the write stage adds once the PDF is done (the results files are
+    # written into the staging folder by a second thread while the PDF renders)
     t = {"read": times["read"], "validate": times["validate"], "analytics": times["analyse"],
          "charts": times["chart"], "html": times["html"], "pdf": times["pdf"],
          "results": times.get("results", 0.0) + times["write"]}

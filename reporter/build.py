@@ -9,6 +9,7 @@ names other code uses (``assemble``, ``results_files``, ``pack_files``, ``Assemb
 from __future__ import annotations
 
 import datetime as dt
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
 from pathlib import Path
 
@@ -73,37 +74,45 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
 def finish_build(a: Assembled | FundAssembled, out: Path, progress: Progress, *,
                  release: bool = False) -> OutputSet:
     """Render the HTML and PDF of an assembled pack and write every file into ``out``
-    (stages html, results, pdf and write). Once the HTML is made, the results files are
-    written into the staging folder beside ``out`` (the largest, the rolling betas, goes to
-    disk as pyarrow formats it, never whole in memory), before the PDF. With ``release``
-    (a build, which has no further use for ``a``), ``a`` is consumed: the arrays nothing
-    renders from (the window's returns, the covariance estimates) are released first and
-    the rolling betas once their file is written, so that WeasyPrint does not render beside
-    them (see :func:`release_arrays`). A failure anywhere (an interrupt included) removes
-    the staging folder at once."""
+    (stages html, pdf and write). The results files are written into the staging folder
+    beside ``out`` by a second thread while WeasyPrint renders the PDF: the largest, the
+    rolling betas, is formatted by pyarrow outside Python's lock and goes to disk as it is
+    made, never whole in memory. With ``release`` (a build, which has no further use for
+    ``a``), ``a`` is consumed: the arrays nothing renders from (the window's returns, the
+    covariance estimates) are released before the HTML, and the rolling betas as soon as
+    their file is written (see :func:`release_arrays`). A failure anywhere (an interrupt
+    included) removes the staging folder at once; the results thread stops at its next
+    write."""
     settings = a.settings
     if release:
         release_arrays(a, rolling=False)
     with progress.stage("html"):
         html = a.html(for_print=False)
         print_html = {e: a.html(for_print=True, edition=e) for e in EDITIONS}
-    files = OutputSet(open_staging(out))
-    try:
-        with progress.stage("results"):
-            results_files(a, files)
+        release_free_memory()       # the analysis' and charts' temporaries, before the PDF
+
+    def write_results() -> None:
+        results_files(a, files)
         if release:
             release_arrays(a, rolling=True)
-        release_free_memory()       # the analysis' and charts' temporaries, before the PDF
+
+    files = OutputSet(open_staging(out))
+    pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="results")
+    try:
+        results = pool.submit(write_results)
         with progress.stage("pdf"):
             pdf = {e: render_pdf(text, base_dir=settings.pack_dir,
                                  allowed=(settings.pack_dir,))
                    for e, text in print_html.items()}
         with progress.stage("write"):
+            results.result()            # the results files, written meanwhile
             pack_files(a, html, pdf, files)
             commit(files, out)
     except BaseException:
-        files.discard()
+        files.discard()                 # before waiting for the thread, which it stops
         raise
+    finally:
+        pool.shutdown(wait=True)
     return files
 
 

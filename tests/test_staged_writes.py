@@ -102,24 +102,36 @@ def test_a_failure_in_the_pdf_or_the_results_leaves_the_earlier_output(
     assert hidden(tmp_path) == []                     # the staging folder was removed
 
 
-def test_a_pdf_failure_after_the_results_were_staged_leaves_nothing(assembled, demo_build,
-                                                                    tmp_path, monkeypatch):
-    """The results files are made before the PDF (the rolling betas straight into the staging
-    folder); the PDF then fails: the staging folder is removed with them and the earlier
-    output is untouched."""
+def test_a_failure_stops_the_results_thread_and_nothing_is_left(assembled, demo_build, tmp_path,
+                                                                monkeypatch):
+    """The PDF fails while the results thread is still writing: the staging folder is removed
+    at once, the thread stops at its next write (it does not write its remaining blocks), and
+    it leaves nothing behind, not even once it has ended."""
+    import threading
+    import time
+
     out = tmp_path / "pack"
     shutil.copytree(demo_build, out)
     before = tree(out)
-    staged = []
+    blocks = []
+    started = threading.Event()
+
+    def slow_rolling(res, sink):
+        for _ in range(200):
+            sink.write(b"2026-01-30,X,1.0,0.1,0.8,1.2\n" * 100)
+            blocks.append(1)
+            started.set()
+            time.sleep(0.02)
 
     def failing_pdf(*args, **kwargs):
-        staged.extend(p.name for p in tmp_path.glob(".pack.tmp-*/results/*"))
+        started.wait(timeout=30)          # the thread is writing when the PDF fails
         raise RuntimeError("pdf failed")
 
+    monkeypatch.setattr(results_module, "write_rolling_csv", slow_rolling)
     monkeypatch.setattr(build, "render_pdf", failing_pdf)
     with pytest.raises(RuntimeError, match="pdf failed"):
         build.finish_build(assembled, out, Progress(quiet=True))
-    assert staged == ["rolling_beta.csv"]        # on disk already (the others in memory)
+    assert 1 <= len(blocks) < 200                   # stopped part-way, not run to the end
     assert tree(out) == before
     assert hidden(tmp_path) == []
     with pytest.raises(OutputError, match="abandoned"):
