@@ -34,7 +34,9 @@ ERROR_BAR = "#d3d8dc"
 # to be drawn as a 300 dpi image, 1.2 s to rasterise (benchmarks/bench_charts.py).
 BIN_FROM = 400
 BINS_X, BINS_Y = 40, 24     # cells across and up: 13 x 12.5 px on the 520 x 300 plot
-CELL_RANGE = ["#e9edef", "#6b7780"]   # fewest to most holdings in a cell
+# fewest to most holdings in a cell, in four steps: a stepped legend of square swatches
+# (a gradient legend's ramp is not drawn by the PDF renderer's SVG support)
+CELL_RANGE = ["#e9edef", "#c5ccd1", "#98a2aa", "#6b7780"]
 
 
 def _short(name: str) -> str:
@@ -144,9 +146,10 @@ def sml_chart(res: PackResults, market_label: str = "Market proxy",
             y2=alt.Y2("excess2:Q"),
             # fill, not color: a scale of its own, apart from the holdings' position
             fill=alt.Fill("count:Q", title="Holdings within error, per cell",
-                            scale=alt.Scale(range=CELL_RANGE, zero=False),
-                            legend=alt.Legend(orient="right", gradientLength=120,
-                                              tickCount=4, format="d")))
+                            scale=alt.Scale(type="quantize", range=CELL_RANGE, zero=False,
+                                            nice=True),
+                            legend=alt.Legend(orient="bottom", symbolType="square",
+                                              symbolSize=120, format="d")))
         layers = [grid, bars, vbars, sml, pts, anc]
     if len(leaders):
         layers.append(alt.Chart(leaders).mark_rule(color=GREY, strokeWidth=0.8).encode(

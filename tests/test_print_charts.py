@@ -115,3 +115,30 @@ def test_a_pack_under_the_threshold_has_no_print_variant():
     res = analyse(validate_pack(settings), settings)
     assert res.fits.fitted.sum() < BIN_FROM
     assert not any(k.endswith(PRINT_ONLY) for k in build_charts(res))
+
+
+def test_the_cell_legend_is_stepped_not_a_gradient(many):
+    """WeasyPrint's SVG support does not draw a gradient legend's ramp (seen on a rendered
+    page: the ticks without their colours), so the cells' counts use a stepped scale with a
+    legend of swatches below the plot."""
+    from reporter.charts import PRINT_ONLY
+
+    _, charts = many
+    layers = charts["sml" + PRINT_ONLY].to_dict(validate=False)["layer"]
+    (enc,) = [la["encoding"]["fill"] for la in layers
+              if la.get("encoding", {}).get("fill", {}).get("field") == "count"]
+    assert enc["scale"]["type"] == "quantize" and len(enc["scale"]["range"]) == 4
+    assert enc["legend"]["orient"] == "bottom" and enc["legend"]["symbolType"] == "square"
+
+
+def test_the_print_caption_says_cells_only_where_the_pdf_draws_them(tmp_path):
+    from reporter.build import assemble
+    from reporter.config import load_settings
+
+    folder = write_scheme(tmp_path / "pack", 420, 36, "monthly", seed=5, label="C")
+    a = assemble(load_settings(folder))
+    cells = "grey cells: the holdings within estimation error, counted per cell"
+    assert cells in a.html(for_print=True)
+    assert cells in a.html(for_print=True, edition="trustees")
+    screen = a.html(for_print=False)
+    assert cells not in screen and "circles: within estimation error" in screen

@@ -95,7 +95,9 @@ def render_html(ctx: PackContext, svgs: dict[str, Markup], *, for_print: bool,
     """
     env = make_environment(user_templates, bytecode_cache)
     values = {f.name: getattr(ctx, f.name) for f in fields(ctx)}
-    values.pop("charts")
+    # the PDF draws the security market line of a long pack with the holdings within
+    # estimation error counted in cells (see reporter.charts.print_variants): say so
+    values["sml_binned"] = for_print and ("sml" + PRINT_ONLY) in values.pop("charts")
     values.update({"part": False, "anchor_prefix": "", "part_title": None,
                    "market_word": "market proxy", "proxy_word": "proxy",
                    "edition": "full"} | (extra or {}))
