@@ -273,6 +273,36 @@ def test_unrecorded_file_is_quarantined_by_repair_never_deleted(archive_copy, ca
     assert code == 0 and "archive intact" in out
 
 
+def test_repair_holds_the_ledger_write_lock_and_changes_no_entry(archive_copy, monkeypatch):
+    """While repair looks for what to move, no sign-off can begin a write (the ledger's
+    BEGIN IMMEDIATE is refused at once here, with no wait); afterwards the lock is free and
+    the entries are as they were."""
+    from reporter.archive import verify as verify_module
+
+    before = ledger_entries(archive_copy)
+    seen = []
+    real = verify_module.verify_archive
+
+    def verify_while_locked(archive):
+        other = sqlite3.connect(archive / "ledger.sqlite", timeout=0, isolation_level=None)
+        try:
+            with pytest.raises(sqlite3.OperationalError, match="locked"):
+                other.execute("BEGIN IMMEDIATE")
+            seen.append("locked")
+        finally:
+            other.close()
+        return real(archive)
+
+    monkeypatch.setattr(verify_module, "verify_archive", verify_while_locked)
+    verify_module.repair(archive_copy)
+    assert seen == ["locked"]
+    free = sqlite3.connect(archive_copy / "ledger.sqlite", timeout=0, isolation_level=None)
+    free.execute("BEGIN IMMEDIATE")
+    free.execute("ROLLBACK")
+    free.close()
+    assert ledger_entries(archive_copy) == before
+
+
 # --- refusals before anything is signed -----------------------------------------------------
 
 def _build_copy(demo_build: Path, tmp_path: Path) -> Path:

@@ -38,8 +38,8 @@ from reporter.archive.ledger import (
     GENESIS,
     LEDGER_NAME,
     Entry,
-    connect_for_writing,
     connect_read_only,
+    ledger_transaction,
     read_entries,
 )
 from reporter.errors import EXIT_BAD_INPUT, ReporterError
@@ -278,9 +278,7 @@ def repair(archive: Path | str) -> RepairReport:
     """
     archive = Path(archive)
     load_entries(archive)                      # unreadable -> ArchiveUnreadable
-    con = connect_for_writing(archive)
-    try:
-        con.execute("BEGIN IMMEDIATE")
+    with ledger_transaction(archive, commit=False):     # the write lock alone is wanted
         report = verify_archive(archive)
         stamp = dt.datetime.now(dt.UTC).strftime("%Y%m%dT%H%M%SZ")
         orphans = [f.where for f in report.findings if f.kind == "unrecorded"]
@@ -288,9 +286,6 @@ def repair(archive: Path | str) -> RepairReport:
         orphans += [s for s in staging if not _staging_alive(s)]
         moved = list(zip(orphans, quarantine(archive, orphans, stamp), strict=True))
         _remove_empty_folders(archive, [m[0] for m in moved])
-        con.execute("ROLLBACK")
-    finally:
-        con.close()
     unresolved = [f for f in report.findings if f.kind != "unrecorded"]
     return RepairReport(moved, unresolved)
 
