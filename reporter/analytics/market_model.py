@@ -67,15 +67,23 @@ class Prepared:
 
     @classmethod
     def of(cls, y: np.ndarray, x: np.ndarray) -> Prepared:
-        y = np.asarray(y, dtype=float)
-        x = np.asarray(x, dtype=float)
-        x_ok = np.isfinite(x)
-        mask = np.isfinite(y)
-        mask &= x_ok[:, None]
-        x_mean = float(x[x_ok].mean()) if x_ok.any() else 0.0
+        y0, xc, x_ok, mask, x_mean = centred_inputs(y, x)
         m = mask.astype(float)
-        return cls(y0=np.where(mask, y, 0.0), m=m, xc=np.where(x_ok, x - x_mean, 0.0),
-                   x_mean=x_mean, x_ok=x_ok, n_obs=np.ones(m.shape[0]) @ m)
+        return cls(y0=y0, m=m, xc=xc, x_mean=x_mean, x_ok=x_ok, n_obs=np.ones(m.shape[0]) @ m)
+
+
+def centred_inputs(y: np.ndarray, x: np.ndarray
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, float]:
+    """For returns ``y`` (T x N) on one regressor ``x`` (T): ``y`` with 0 where it or ``x`` is
+    missing, ``x`` centred on its mean over its own periods (0 where missing), where ``x`` is
+    finite, where both are (T x N), and that mean."""
+    y = np.asarray(y, dtype=float)
+    x = np.asarray(x, dtype=float)
+    x_ok = np.isfinite(x)
+    mask = np.isfinite(y)
+    mask &= x_ok[:, None]
+    x_mean = float(x[x_ok].mean()) if x_ok.any() else 0.0
+    return np.where(mask, y, 0.0), np.where(x_ok, x - x_mean, 0.0), x_ok, mask, x_mean
 
 
 def fit_market_model(y: np.ndarray, x: np.ndarray, min_obs: int,

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from reporter.analytics.market_model import Prepared
+from reporter.analytics.market_model import Prepared, centred_inputs
 
 
 @dataclass(frozen=True)
@@ -55,14 +55,7 @@ def rolling_betas(y: np.ndarray, x: np.ndarray, window: int,
         holed = np.flatnonzero(prep.n_obs < m.shape[0])
         m = m[:, holed]
     else:       # as Prepared.of, without its T x N float mask: only the holed columns' count
-        y = np.asarray(y, dtype=float)
-        x = np.asarray(x, dtype=float)
-        x_ok = np.isfinite(x)
-        mask = np.isfinite(y)
-        mask &= x_ok[:, None]
-        x_mean = float(x[x_ok].mean()) if x_ok.any() else 0.0
-        y0 = np.where(mask, y, 0.0)
-        xc = np.where(x_ok, x - x_mean, 0.0)
+        y0, xc, x_ok, mask, _ = centred_inputs(y, x)
         holed = np.flatnonzero(~mask.all(axis=0))
         m = mask[:, holed].astype(float)
         del mask
