@@ -32,7 +32,7 @@ from reporter.jsonvalues import json_text
 from reporter.limits import LimitsReport
 from reporter.pipeline.part import Part, PartInputs, analyse_part
 from reporter.render.environment import make_environment
-from reporter.render.html import chart_svg, render_html
+from reporter.render.html import chart_svg, render_html, template_values
 
 TOTAL_SLUG = "total-fund"
 
@@ -120,17 +120,14 @@ class FundAssembled:
                                        if s.anchor not in ("methodology", "cautions")],
                           "benchmark": part.benchmark, "weight": part.weight})
         ctx = self.total.context
-        values = {f.name: getattr(ctx, f.name) for f in dataclasses.fields(ctx)}
-        values.pop("charts")
-        values["commentary"] = dict(self.commentary.by_section)   # every note, for the fund
-        values["cautions"] = (*values["cautions"], FUND_CAUTION)
+        values = template_values(ctx, for_print, {
+            "commentary": dict(self.commentary.by_section),      # every note, for the fund
+            "cautions": (*ctx.cautions, FUND_CAUTION), "edition": edition, "parts": parts,
+            "fund_svg": self.svgs, "fund": self.fund_context()})
         env = make_environment(user)
         return env.get_template("fund-trustees.html.j2" if trustees else "fund.html.j2").render(
             **values, svg=self.total.print_svgs if for_print else self.total.svgs,
-            for_print=for_print, signoff=signoff,
-            part=False, anchor_prefix="", part_title=None, parts=parts, fund_svg=self.svgs,
-            market_word="market proxy", proxy_word="proxy", edition=edition,
-            fund=self.fund_context())
+            for_print=for_print, signoff=signoff)
 
     def mandate_portfolio_json(self) -> str:
         """``results/mandate_portfolio.json``: each mandate's ``portfolio.json`` figures (the

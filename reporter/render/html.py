@@ -94,16 +94,22 @@ def render_html(ctx: PackContext, svgs: dict[str, Markup], *, for_print: bool,
     ``bytecode_cache``: compiled templates kept between calls (see :func:`make_environment`).
     """
     env = make_environment(user_templates, bytecode_cache)
+    html = env.get_template(template).render(**template_values(ctx, for_print, extra),
+                                              svg=svgs, for_print=for_print, signoff=signoff)
+    return chart_alt_text(html) if for_print else html
+
+
+def template_values(ctx: PackContext, for_print: bool, extra: dict | None = None) -> dict:
+    """The names a pack template sees from ``ctx`` (its charts aside: the template gets their
+    markup as ``svg``), with the defaults of :func:`render_html`'s ``extra`` overridden by
+    ``extra``. A fund's own pages use it too, so a template sees the same names either way."""
     values = {f.name: getattr(ctx, f.name) for f in fields(ctx)}
     # the PDF draws the security market line of a long pack with the holdings within
     # estimation error counted in cells (see reporter.charts.print_variants): say so
     values["sml_binned"] = for_print and ("sml" + PRINT_ONLY) in values.pop("charts")
-    values.update({"part": False, "anchor_prefix": "", "part_title": None,
-                   "market_word": "market proxy", "proxy_word": "proxy",
-                   "edition": "full"} | (extra or {}))
-    html = env.get_template(template).render(**values, svg=svgs, for_print=for_print,
-                                              signoff=signoff)
-    return chart_alt_text(html) if for_print else html
+    return values | {"part": False, "anchor_prefix": "", "part_title": None,
+                     "market_word": "market proxy", "proxy_word": "proxy",
+                     "edition": "full"} | (extra or {})
 
 
 _FIGURE_CHART = re.compile(r'(<figure\b[^>]*?\baria-label="([^"]*)"[^>]*>\s*'
