@@ -30,7 +30,6 @@ import contextlib
 import json
 import platform
 import re
-import resource
 import subprocess
 import sys
 import tempfile
@@ -75,6 +74,19 @@ def current_rss() -> int:
             return int(fh.read().split()[1]) * os.sysconf("SC_PAGE_SIZE")
     except OSError:
         return 0
+
+
+def peak_rss() -> int:
+    """This process's peak resident set so far, in bytes: ``VmHWM`` of /proc/self/status,
+    the high-water mark of this process's own memory map. Not ``getrusage``'s ``ru_maxrss``:
+    Linux carries that across ``exec`` from the process that started this one, so a
+    subprocess started by a large process (here, the build measuring WeasyPrint alone in a
+    fresh process) reported its parent's peak as its own."""
+    with open("/proc/self/status", encoding="ascii") as fh:
+        for line in fh:
+            if line.startswith("VmHWM:"):
+                return int(line.split()[1]) * 1024
+    raise OSError("no VmHWM in /proc/self/status")
 
 
 @contextlib.contextmanager
@@ -137,7 +149,7 @@ def run_stages(folder: Path) -> dict:
         a = assemble(settings, progress=progress)
         finish_build(a, Path(out) / "pack", progress, release=True)     # as a build does
         pdf = (Path(out) / "pack" / "pack.pdf").read_bytes()
-    peak_build = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    peak_build = peak_rss()
     times = progress.times
     # "results": what the write stage adds once the PDF is done (the results files are
     # written into the staging folder by a second thread while the PDF renders)
@@ -253,7 +265,7 @@ def baseline_rss() -> int:
 
     vlc.vegalite_to_svg({"data": {"values": [{"a": 1}]}, "mark": "point",
                          "encoding": {"x": {"field": "a", "type": "quantitative"}}})
-    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    return peak_rss()
 
 
 def baseline(html: Path | None = None) -> int:
@@ -454,7 +466,7 @@ def main() -> None:
             from reporter.render.pdf import render_pdf
 
             render_pdf(Path(args.baseline_html).read_text(encoding="utf-8"))
-            peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+            peak = peak_rss()
         print(peak)
         return
     if args.child:

@@ -88,3 +88,26 @@ def test_quick_mode_skips_xl_only():
     assert bench_pack.WORKLOADS["xl"][:2] == (10_000, 2_520)
     assert bench_pack.QUICK_SKIPS == ("xl",)
     assert bench_pack.workload_problems("small,large,xl,batch") == ""
+
+
+def test_peak_rss_is_this_process_own_not_its_parents():
+    # Linux carries getrusage's ru_maxrss across exec from the process that started this
+    # one: a fresh process started by the build (to measure WeasyPrint alone) reported the
+    # build's peak as its own. peak_rss() reads VmHWM, this process's own high-water mark.
+    code = f"""
+import resource, subprocess, sys
+big = bytearray(400 * 2**20)
+big[::4096] = b"x" * len(big[::4096])            # touched: resident
+child = ("import resource, sys; sys.path.insert(0, {str(REPO / 'benchmarks')!r}); "
+         "import bench_pack; print(bench_pack.peak_rss(), "
+         "resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024)")
+print(subprocess.run([sys.executable, "-c", child], capture_output=True, text=True,
+                     check=True).stdout)
+"""
+    import subprocess
+
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True).stdout.split()
+    own, inherited = int(out[0]), int(out[1])
+    assert inherited > 400 * 2**20          # the trap: the parent's 400 MB
+    assert own < 200 * 2**20                 # a bare interpreter with the benchmark imported
