@@ -30,9 +30,16 @@ def build_window(inputs: ValidInputs, settings: Settings, periods: int | None = 
     pos_c = np.minimum(pos, max(len(panel.period_keys) - 1, 0))
     present = (pos < len(panel.period_keys)) & (panel.period_keys[pos_c] == mkeys) if len(
         panel.period_keys) else np.zeros(len(mkeys), dtype=bool)
-    rets = np.full((len(mkeys), len(panel.security_ids) if holdings else 0), np.nan)
-    if holdings:
-        rets[present] = panel.values[pos_c[present]]
+    if holdings and len(pos) and present.all() and np.array_equal(
+            pos, np.arange(pos[0], pos[0] + len(pos))):
+        # the window is a run of the panel's own rows: a read-only view, not a second copy
+        # of the T x N returns (40 MB at 2,000 daily holdings over ten years)
+        rets = panel.values[pos[0]:pos[0] + len(pos)].view()
+        rets.flags.writeable = False
+    else:
+        rets = np.full((len(mkeys), len(panel.security_ids) if holdings else 0), np.nan)
+        if holdings:
+            rets[present] = panel.values[pos_c[present]]
     return Window(dates=inputs.market.dates[idx], security_ids=panel.security_ids,
                   returns=rets, market=inputs.market.values[idx], risk_free=rf)
 
