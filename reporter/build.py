@@ -128,7 +128,6 @@ def release_arrays(a: Assembled | FundAssembled, rolling: bool = True) -> None:
                 "covariance": replace(res.covariance, matrix=np.empty((0, 0))),
                 "covariance_active": replace(res.covariance_active, matrix=np.empty((0, 0)))}
         if rolling:
-            drop["rolling"] = replace(res.rolling, beta=np.empty((0, 0)),
-                                      beta_se=np.empty((0, 0)))
+            drop["rolling"] = res.rolling.released()
         for name, value in drop.items():       # the results are frozen for every other use
             object.__setattr__(res, name, value)

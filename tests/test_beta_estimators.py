@@ -216,6 +216,23 @@ def test_rolling_matches_statsmodels_refit(french):
     assert np.isnan(rb.beta[:, 1]).all()
 
 
+def test_holdings_rolling_blocks_are_the_whole_matrix_bitwise(french):
+    # the build makes the holdings' rolling betas a block of columns at a time, from the
+    # returns and the risk-free rate; every block must be exactly the whole matrix' columns
+    from reporter.analytics.rolling import HoldingsRolling
+
+    y, x = panel(french, None)
+    rf = np.linspace(0.001, 0.004, len(x))        # any rate: the returns are y + rf
+    lazy = HoldingsRolling(36, y + rf[:, None], rf, x)
+    whole = rolling_betas((y + rf[:, None]) - rf[:, None], x, 36)
+    for cols in ([0], [1, 3], [4, 2, 0], list(range(y.shape[1]))):
+        part = lazy.block(np.array(cols))
+        np.testing.assert_array_equal(part.beta, whole.beta[:, cols])
+        np.testing.assert_array_equal(part.beta_se, whole.beta_se[:, cols])
+    assert np.isfinite(whole.beta).sum() > 100          # windows that are complete
+    assert lazy.released().returns.size == 0 and lazy.released().n_series == 0
+
+
 def test_prepared_is_shared_without_changing_results(french):
     y, x = panel(french, 120)
     prep = Prepared.of(y, x)

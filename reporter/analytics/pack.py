@@ -35,7 +35,7 @@ from reporter.analytics.results import (  # noqa: F401  (re-exported: the build 
     PackResults,
 )
 from reporter.analytics.returns import portfolio_returns, sector_returns
-from reporter.analytics.rolling import rolling_betas
+from reporter.analytics.rolling import HoldingsRolling, rolling_betas
 from reporter.analytics.sml import (
     alpha_p_values,
     cross_sectional_test,
@@ -146,7 +146,10 @@ def analyse(inputs: ValidInputs, settings: Settings,
     # the whole history; the window itself (no second copy of the returns) when it is that
     hist = (win if len(mkt_dates) == win.n_periods
             else build_window(inputs, settings, periods=0))
-    rolling = rolling_betas(hist.excess_returns, hist.market_excess, settings.rolling_window)
+    # the holdings' rolling betas are made when asked for, a block at a time (charts, the
+    # results file), from the returns held anyway; see HoldingsRolling
+    rolling = HoldingsRolling(settings.rolling_window, hist.returns, hist.risk_free,
+                              hist.market_excess)
     hist_raw = portfolio_returns(hist.returns, weights)
     if portfolio is not None:
         hist_raw = _align_optional(portfolio, hist.dates, settings.frequency)

@@ -24,7 +24,7 @@ from reporter.analytics.diversification import (
 from reporter.analytics.market_model import MarketModelFits, PortfolioFit, t_critical
 from reporter.analytics.performance import PerformanceRatios, growth_of_one
 from reporter.analytics.returns import Window
-from reporter.analytics.rolling import RollingBetas
+from reporter.analytics.rolling import HoldingsRolling, RollingBetas
 from reporter.analytics.sml import GRSTest, LineTest, Ratios, SecurityMarketLine
 from reporter.analytics.stress import StressResults
 
@@ -69,7 +69,7 @@ class PackResults:
     periods_per_year: int
     errors: str                       # "hac" | "ols": errors behind intervals and tests
     history_dates: np.ndarray         # every market period up to period_end
-    rolling: RollingBetas             # holdings, over history_dates
+    rolling: HoldingsRolling          # holdings, over history_dates, made when asked for
     rolling_portfolio: RollingBetas   # the portfolio (one column), over history_dates
     portfolio_extra: dict             # up/down and thin-trading betas of the portfolio
     confidence: float
@@ -186,18 +186,18 @@ class PackResults:
     def rolling_arrays(self, cols: np.ndarray) -> tuple[np.ndarray, ...]:
         """The rows of :attr:`rolling_table` for the series at positions ``cols`` of
         :meth:`rolling_ids` (ascending), as flat arrays: date index, position within
-        ``cols``, beta, its standard error and the interval's ends. Only those columns are
-        read, so that writing the table in blocks of series does not copy every holding's
-        history for each block."""
+        ``cols``, beta, its standard error and the interval's ends. Only those holdings'
+        betas are made (see :class:`~reporter.analytics.rolling.HoldingsRolling`), so that
+        writing the table in blocks of series never holds every holding's history."""
         tcrit = float(t_critical(self.confidence, self.rolling.window - 2))
         with_port = bool(len(cols)) and cols[0] == 0
-        held = cols[1:] - 1 if with_port else cols - 1
+        held = self.rolling.block(cols[1:] - 1 if with_port else cols - 1)
 
         def take(port: np.ndarray, holdings: np.ndarray) -> np.ndarray:
-            return np.hstack([port, holdings[:, held]]) if with_port else holdings[:, held]
+            return np.hstack([port, holdings]) if with_port else holdings
 
-        beta = take(self.rolling_portfolio.beta, self.rolling.beta)
-        se = take(self.rolling_portfolio.beta_se, self.rolling.beta_se)
+        beta = take(self.rolling_portfolio.beta, held.beta)
+        se = take(self.rolling_portfolio.beta_se, held.beta_se)
         # series by series, each in date order (the transpose's non-zero order)
         j_idx, t_idx = np.nonzero(np.isfinite(beta.T))
         b, e = beta[t_idx, j_idx], se[t_idx, j_idx]

@@ -30,10 +30,11 @@ def build_window(inputs: ValidInputs, settings: Settings, periods: int | None = 
     pos_c = np.minimum(pos, max(len(panel.period_keys) - 1, 0))
     present = (pos < len(panel.period_keys)) & (panel.period_keys[pos_c] == mkeys) if len(
         panel.period_keys) else np.zeros(len(mkeys), dtype=bool)
-    if holdings and len(pos) and present.all() and np.array_equal(
-            pos, np.arange(pos[0], pos[0] + len(pos))):
+    if holdings and len(pos) and present.all() and panel.values.flags.c_contiguous and \
+            np.array_equal(pos, np.arange(pos[0], pos[0] + len(pos))):
         # the window is a run of the panel's own rows: a read-only view, not a second copy
-        # of the T x N returns (40 MB at 2,000 daily holdings over ten years)
+        # of the T x N returns (40 MB at 2,000 daily holdings over ten years). Only of a
+        # C-ordered panel, as the copy is: the products' roundings follow the layout
         rets = panel.values[pos[0]:pos[0] + len(pos)].view()
         rets.flags.writeable = False
     else:
