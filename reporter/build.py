@@ -9,6 +9,7 @@ names other code uses (``assemble``, ``results_files``, ``pack_files``, ``Assemb
 from __future__ import annotations
 
 import datetime as dt
+import threading
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
 from pathlib import Path
@@ -91,8 +92,10 @@ def finish_build(a: Assembled | FundAssembled, out: Path, progress: Progress, *,
         print_html = {e: a.html(for_print=True, edition=e) for e in EDITIONS}
         release_free_memory()       # the analysis' and charts' temporaries, before the PDF
 
+    pdf_done = threading.Event()        # then the results thread may format on two threads
+
     def write_results() -> None:
-        results_files(a, files)
+        results_files(a, files, widen=pdf_done)
         if release:
             release_arrays(a, rolling=True)
 
@@ -104,6 +107,7 @@ def finish_build(a: Assembled | FundAssembled, out: Path, progress: Progress, *,
             pdf = {e: render_pdf(text, base_dir=settings.pack_dir,
                                  allowed=(settings.pack_dir,))
                    for e, text in print_html.items()}
+        pdf_done.set()
         with progress.stage("write"):
             results.result()            # the results files, written meanwhile
             pack_files(a, html, pdf, files)
@@ -112,6 +116,7 @@ def finish_build(a: Assembled | FundAssembled, out: Path, progress: Progress, *,
         files.discard()                 # before waiting for the thread, which it stops
         raise
     finally:
+        pdf_done.set()
         pool.shutdown(wait=True)
     return files
 

@@ -8,6 +8,7 @@ import dataclasses
 import io
 import re
 import sys
+import threading
 from types import SimpleNamespace
 
 import altair as alt
@@ -143,6 +144,17 @@ def test_the_rolling_file_is_the_rolling_table_whatever_the_block_size():
         sink = io.BytesIO()
         write_rolling_csv(res, sink, block=block)
         outs.append(sink.getvalue())
+    # as a build writes it: one formatting thread until the PDF is done, then two
+    late = threading.Event()
+    timer = threading.Timer(0.05, late.set)
+    timer.start()
+    for widen in (threading.Event(), late):
+        sink = io.BytesIO()
+        if widen is not late:
+            widen.set()
+        write_rolling_csv(res, sink, block=3, widen=widen)
+        outs.append(sink.getvalue())
+    timer.join()
     assert outs[1:] == outs[:-1]
     text = outs[0].decode()
     assert '"Odd, ""quoted"" id"' in text
@@ -154,6 +166,29 @@ def test_the_rolling_file_is_the_rolling_table_whatever_the_block_size():
     assert [r[0] for r in rows[1:]] == list(table["date"].dt.strftime("%Y-%m-%d"))
     got = np.array([[float(v) for v in r[2:]] for r in rows[1:]])
     np.testing.assert_allclose(got, table.iloc[:, 2:].to_numpy(), rtol=0, atol=5.1e-11)
+
+
+def test_a_failing_sink_stops_the_rolling_file_with_its_error():
+    """A write that fails (a full disk, or the build discarded) ends the file's writing with
+    that error; the formatting threads stop, and nothing hangs."""
+    from reporter.analytics.pack import analyse
+    from reporter.build import write_rolling_csv
+    from reporter.config import load_settings
+    from reporter.validate import validate_pack
+
+    settings = load_settings(REPO / "inputs" / "demo")
+    res = analyse(validate_pack(settings), settings)
+
+    class Full(io.BytesIO):
+        def write(self, data):
+            if self.tell() > 2000:
+                raise OSError(28, "No space left on device")
+            return super().write(data)
+
+    before = threading.active_count()
+    with pytest.raises(OSError, match="No space left"):
+        write_rolling_csv(res, Full(), block=2)
+    assert threading.active_count() == before
 
 
 def test_a_chart_drawn_as_an_svg_image_prints_as_the_inline_svg_did(tmp_path):

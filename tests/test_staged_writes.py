@@ -116,7 +116,7 @@ def test_a_failure_stops_the_results_thread_and_nothing_is_left(assembled, demo_
     blocks = []
     started = threading.Event()
 
-    def slow_rolling(res, sink):
+    def slow_rolling(res, sink, widen=None):
         for _ in range(200):
             sink.write(b"2026-01-30,X,1.0,0.1,0.8,1.2\n" * 100)
             blocks.append(1)

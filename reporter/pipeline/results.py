@@ -4,6 +4,9 @@ Nothing here touches the disk but through the :class:`~reporter.writer.OutputSet
 
 from __future__ import annotations
 
+import threading
+from concurrent.futures import Future, ThreadPoolExecutor
+
 import numpy as np
 import pyarrow as pa
 import pyarrow.csv as pacsv
@@ -19,36 +22,61 @@ from reporter.workbook import pack_workbook
 from reporter.writer import OutputSet
 
 
-def write_rolling_csv(res: PackResults, sink, block: int = 200) -> None:
+def write_rolling_csv(res: PackResults, sink, block: int = 200,
+                      widen: threading.Event | None = None) -> None:
     """Write ``results/rolling_beta.csv`` into the binary file ``sink`` with pyarrow's CSV
     writer, ``block`` series at a time: the rolling betas of 2,000 daily holdings are 4.5
     million rows (300 MB of CSV), which pandas' writer took some 25 s and a whole-table copy
     some 1 GB over. Floats are rounded to 10 decimal places (and printed in their shortest
     form), dates are ISO dates, and text is quoted only when it holds a comma, quote or line
     break. Each block goes from numpy arrays to pyarrow without a Python object per row (the
-    series column is dictionary-encoded). pyarrow formats outside Python's lock, so this can
-    run beside the PDF. The holdings' betas themselves are made here, a block at a time
-    (:class:`~reporter.analytics.rolling.HoldingsRolling`): 200 series of 2,520 daily periods
-    are half a million rows, some 25 MB of table and as much again of their sums while the
-    block is written (blocks of 50 took 1.3 times the CPU time, of 400 no less than 200)."""
+    series column is dictionary-encoded). The holdings' betas themselves are made here, a
+    block at a time (:class:`~reporter.analytics.rolling.HoldingsRolling`): 200 series of
+    2,520 daily periods are half a million rows, some 25 MB of table and as much again of
+    their sums while the block is written (blocks of 50 took 1.3 times the CPU time, of 400
+    no less than 200).
+
+    pyarrow formats outside Python's lock, so blocks are formatted on two threads and written
+    in order. With ``widen`` (a build, where this runs beside the PDF), one thread formats
+    until ``widen`` is set (the PDF done) and the second joins then: beside the PDF it would
+    only take the PDF's core. At 10,000 daily holdings the file is 25 million rows, and this
+    is what the build waits for once the PDF is done."""
     ids = escape_array(res.rolling_ids())          # no id can start a spreadsheet formula
     quote = any(any(ch in sid for ch in ',"\r\n') for sid in ids)
-    options = pacsv.WriteOptions(quoting_header="none", batch_size=1 << 16,
-                                 quoting_style="needed" if quote else "none")
     dates = pa.array(np.asarray(res.history_dates, dtype="datetime64[D]"), pa.date32())
-    writer = None
-    for start in range(0, len(ids), block):
-        cols = np.arange(start, min(start + block, len(ids)))
-        t_idx, j_idx, *values = res.rolling_arrays(cols)
-        table = pa.table({
-            "date": dates.take(pa.array(t_idx)),
-            "series": pa.DictionaryArray.from_arrays(pa.array(j_idx.astype(np.int32)),
-                                                     pa.array(ids[cols], pa.string())),
-            **{c: pa.array(np.round(v, 10))
-               for c, v in zip(ROLLING_COLUMNS[2:], values, strict=True)}})
-        writer = writer or pacsv.CSVWriter(sink, table.schema, write_options=options)
-        writer.write_table(table)
-    writer.close()
+    permits = threading.Semaphore(1 if widen is not None else 2)
+
+    def formatted(start: int) -> pa.Buffer:
+        with permits:
+            cols = np.arange(start, min(start + block, len(ids)))
+            t_idx, j_idx, *values = res.rolling_arrays(cols)
+            table = pa.table({
+                "date": dates.take(pa.array(t_idx)),
+                "series": pa.DictionaryArray.from_arrays(pa.array(j_idx.astype(np.int32)),
+                                                         pa.array(ids[cols], pa.string())),
+                **{c: pa.array(np.round(v, 10))
+                   for c, v in zip(ROLLING_COLUMNS[2:], values, strict=True)}})
+            del t_idx, j_idx, values
+            out = pa.BufferOutputStream()
+            pacsv.write_csv(table, out, write_options=pacsv.WriteOptions(
+                include_header=start == 0, quoting_header="none", batch_size=1 << 16,
+                quoting_style="needed" if quote else "none"))
+            return out.getvalue()
+
+    starts = list(range(0, len(ids), block))
+    pending: list[Future] = []
+    with ThreadPoolExecutor(max_workers=2, thread_name_prefix="rolling") as pool:
+        try:
+            for k in range(len(starts)):
+                while len(pending) < 3 and k + len(pending) < len(starts):  # bounded ahead
+                    pending.append(pool.submit(formatted, starts[k + len(pending)]))
+                if widen is not None and widen.is_set():
+                    permits.release()           # the PDF is done: a second thread formats
+                    widen = None
+                sink.write(pending.pop(0).result())
+        finally:
+            for f in pending:
+                f.cancel()
 
 
 def fund_results_files(a: FundAssembled) -> dict[str, str]:
@@ -69,15 +97,18 @@ def fund_results_files(a: FundAssembled) -> dict[str, str]:
          else {})
 
 
-def _portfolio_results(a: Assembled, files: OutputSet) -> None:
-    """The results files of a single portfolio's one part."""
+def _portfolio_results(a: Assembled, files: OutputSet,
+                       widen: threading.Event | None = None) -> None:
+    """The results files of a single portfolio's one part (``widen``: see
+    :func:`write_rolling_csv`)."""
     res = a.results
     files.add("results/securities.csv", csv_text(res.securities))
     style = a.style.summary() if a.style is not None else {}
     files.add("results/portfolio.json", json_text(res.portfolio_summary() | style))
     if a.style is not None and a.style.attribution is not None:
         files.add("results/attribution.csv", csv_text(a.style.attribution.table()))
-    files.add_written("results/rolling_beta.csv", lambda sink: write_rolling_csv(res, sink))
+    files.add_written("results/rolling_beta.csv",
+                      lambda sink: write_rolling_csv(res, sink, widen=widen))
     for rel, table in (("results/period_returns.csv", res.period_table),
                        ("results/risk_contributions.csv", res.risk_table)):
         files.add(rel, csv_text(table))
@@ -95,14 +126,16 @@ def _fund_results(a: FundAssembled, files: OutputSet) -> None:
         files.add("results/mandate_limits.json", json_text(mandate_limits))
 
 
-def results_files(a: Assembled | FundAssembled, files: OutputSet) -> None:
-    """Add the results files of a build (all but the manifest) to ``files``."""
+def results_files(a: Assembled | FundAssembled, files: OutputSet,
+                  widen: threading.Event | None = None) -> None:
+    """Add the results files of a build (all but the manifest) to ``files``. ``widen``: set
+    when the rolling-beta file may take a second thread (see :func:`write_rolling_csv`)."""
     settings = a.settings
     res, ctx = a.results, a.context
     if isinstance(a, FundAssembled):
         _fund_results(a, files)
     else:
-        _portfolio_results(a, files)
+        _portfolio_results(a, files, widen)
     if res.stress is not None:
         files.add("results/risk_scenarios.json", json_text(res.stress.as_json()))
         files.add("results/risk_scenarios.csv", res.stress.csv_text())
