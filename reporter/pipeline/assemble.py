@@ -8,7 +8,7 @@ import datetime as dt
 
 from reporter.config import Settings
 from reporter.fund_inputs import validate_fund
-from reporter.memory import release_free_memory
+from reporter.memory import release_free_memory, return_large_blocks
 from reporter.pipeline.fund import FundAssembled, assembled_fund, fund_parts
 from reporter.pipeline.part import assemble_part
 from reporter.pipeline.single import Assembled, single_parts
@@ -32,6 +32,7 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
     """
     progress = progress or Progress(quiet=True)
     at = at or build_time()
+    return_large_blocks()           # what the analysis frees goes back before the PDF
     with progress.stage("read"):
         (raws, read_problems, previous, compare_warnings, commentary,
          compare_note) = read_stage(settings, strict)

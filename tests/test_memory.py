@@ -1,0 +1,41 @@
+"""Memory a build has finished with goes back to the system (reporter.memory)."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+
+import pytest
+
+CODE = """
+import sys
+import numpy as np
+from reporter.memory import return_large_blocks
+
+def rss():
+    with open("/proc/self/statm") as fh:
+        return int(fh.read().split()[1]) * 4096
+
+if sys.argv[1] == "fixed":
+    return_large_blocks()
+big = np.ones(30 * 2**20 // 8)       # a mapped block of 30 MiB: freeing it raises
+del big                              # glibc's threshold to 30 MiB, as an analysis does
+base = rss()
+blocks = [np.ones(20 * 2**20 // 8) for _ in range(5)]     # 5 x 20 MiB, each touched
+kept = blocks.pop()                  # the last stays; the four below it are freed
+del blocks
+print((rss() - base) / 2**20)
+"""
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="glibc's malloc")
+def test_freed_blocks_are_handed_back_with_a_fixed_threshold():
+    def held(mode):
+        out = subprocess.run([sys.executable, "-c", CODE, mode], capture_output=True,
+                             text=True, check=True)
+        return float(out.stdout.split()[-1])
+
+    # glibc's default: the four freed 20 MiB blocks stay in the heap below the kept one
+    assert held("default") > 70
+    # with return_large_blocks each was mapped on its own and went back when freed
+    assert held("fixed") < 30
