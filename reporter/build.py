@@ -33,6 +33,7 @@ from reporter.pipeline.stages import (
     read_stage,
 )
 from reporter.progress import Progress
+from reporter.render.html import MemoryBytecodeCache
 from reporter.render.pdf import render_pdf
 from reporter.writer import OutputSet, check_target, commit, open_staging
 
@@ -87,8 +88,10 @@ def finish_build(a: Assembled | FundAssembled, out: Path, progress: Progress, *,
     if release:
         release_arrays(a, rolling=False)
     with progress.stage("html"):
-        html = a.html(for_print=False)
-        print_html = {e: a.html(for_print=True, edition=e) for e in EDITIONS}
+        compiled = MemoryBytecodeCache()        # each template compiled once for all pages
+        html = a.html(for_print=False, bytecode_cache=compiled)
+        print_html = {e: a.html(for_print=True, edition=e, bytecode_cache=compiled)
+                      for e in EDITIONS}
         release_free_memory()       # the analysis' and charts' temporaries, before the PDF
 
     def write_results() -> None:

