@@ -34,6 +34,7 @@ from reporter.pipeline.stages import (
     read_stage,
 )
 from reporter.progress import Progress
+from reporter.render.html import MemoryBytecodeCache, start_chart_engine
 from reporter.render.pdf import render_pdf
 from reporter.writer import OutputSet, check_target, commit, open_staging
 
@@ -66,6 +67,7 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     settings = load_settings(pack)
     refuse_overlap(settings.pack_dir, out, "pack folder")
     check_target(out)
+    start_chart_engine()            # ready by the chart stage (see its doc)
     a = assemble(settings, strict=strict, progress=progress, at=at)
     files = finish_build(a, out, progress, release=True)
     return BuildReport(out=out, files=files.paths,
@@ -88,8 +90,10 @@ def finish_build(a: Assembled | FundAssembled, out: Path, progress: Progress, *,
     if release:
         release_arrays(a, rolling=False)
     with progress.stage("html"):
-        html = a.html(for_print=False)
-        print_html = {e: a.html(for_print=True, edition=e) for e in EDITIONS}
+        compiled = MemoryBytecodeCache()        # each template compiled once for all pages
+        html = a.html(for_print=False, bytecode_cache=compiled)
+        print_html = {e: a.html(for_print=True, edition=e, bytecode_cache=compiled)
+                      for e in EDITIONS}
         release_free_memory()       # the analysis' and charts' temporaries, before the PDF
 
     pdf_done = threading.Event()        # then the results thread may format on two threads

@@ -108,3 +108,28 @@ def test_every_chart_matches_the_vega_lite_schema():
     bad.encoding.x.type = "no-such-type"
     with pytest.raises(jsonschema.ValidationError):
         bad.to_dict(validate=True)
+
+
+def test_held_objects_frozen_keeps_held_objects_from_the_collector_and_restores():
+    """While WeasyPrint renders, the objects held on entry are frozen (the collector skips
+    them); on exit none is, and an outer freeze of the caller's is left as it was."""
+    import gc
+
+    from reporter.render.pdf import held_objects_frozen
+
+    held = [[i] for i in range(1000)]          # tracked objects that exist on entry
+    assert gc.get_freeze_count() == 0
+    with held_objects_frozen():
+        frozen = gc.get_freeze_count()
+        assert frozen >= len(held)
+        made = [[i] for i in range(10)]
+        assert gc.get_freeze_count() == frozen       # objects made inside are not frozen
+    assert gc.get_freeze_count() == 0 and len(made) == 10
+    gc.freeze()                                      # the caller's own freeze
+    try:
+        outer = gc.get_freeze_count()
+        with held_objects_frozen():
+            assert gc.get_freeze_count() == outer
+        assert gc.get_freeze_count() == outer
+    finally:
+        gc.unfreeze()

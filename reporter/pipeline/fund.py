@@ -99,11 +99,13 @@ class FundAssembled:
         return self.total.limits
 
     def html(self, for_print: bool = False, signoff: dict | None = None,
-             edition: str = "full") -> str:
+             edition: str = "full", bytecode_cache=None) -> str:
         """The fund pack as one HTML document: cover, contents, the fund's own pages, then
         the total fund and each mandate in the single-portfolio layout, methodology and
         cautions once. ``edition`` "trustees": the fund's pages and each part's headline
-        pages only (``fund-trustees.html.j2``, ``trustees-mandate.html.j2``)."""
+        pages only (``fund-trustees.html.j2``, ``trustees-mandate.html.j2``).
+        ``bytecode_cache``: compiled templates kept between calls (every part's page and the
+        fund's use the same templates)."""
         user = self.settings.templates_dir
         trustees = edition == "trustees"
         parts = []
@@ -114,7 +116,8 @@ class FundAssembled:
                                else "pack.html.j2", extra={
                                    "part": True, "anchor_prefix": part.slug + "-",
                                    "part_title": part.name, "market_word": "benchmark",
-                                   "proxy_word": "benchmark", "edition": edition})
+                                   "proxy_word": "benchmark", "edition": edition},
+                               bytecode_cache=bytecode_cache)
             parts.append({"name": part.name, "slug": part.slug, "html": Markup(body),
                           "sections": [s for s in part.context.sections
                                        if s.anchor not in ("methodology", "cautions")],
@@ -124,7 +127,7 @@ class FundAssembled:
             "commentary": dict(self.commentary.by_section),      # every note, for the fund
             "cautions": (*ctx.cautions, FUND_CAUTION), "edition": edition, "parts": parts,
             "fund_svg": self.svgs, "fund": self.fund_context()})
-        env = make_environment(user)
+        env = make_environment(user, bytecode_cache)
         return env.get_template("fund-trustees.html.j2" if trustees else "fund.html.j2").render(
             **values, svg=self.total.print_svgs if for_print else self.total.svgs,
             for_print=for_print, signoff=signoff)

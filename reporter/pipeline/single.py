@@ -56,13 +56,15 @@ class Assembled:
                    compare_warnings=compare_warnings, commentary=commentary, style=part.style)
 
     def html(self, for_print: bool = False, signoff: dict | None = None,
-             edition: str = "full") -> str:
+             edition: str = "full", bytecode_cache=None) -> str:
         """The pack's HTML; ``edition`` "trustees" gives the trustees' edition (the same
-        context through ``trustees.html.j2``)."""
+        context through ``trustees.html.j2``). ``bytecode_cache``: compiled templates kept
+        between calls (:class:`~reporter.render.html.MemoryBytecodeCache`)."""
         charts = (self.print_svgs or self.svgs) if for_print else self.svgs
         return render_html(self.context, charts, for_print=for_print,
                            user_templates=self.settings.templates_dir, signoff=signoff,
-                           template=EDITIONS[edition], extra={"edition": edition})
+                           template=EDITIONS[edition], extra={"edition": edition},
+                           bytecode_cache=bytecode_cache)
 
 
 def single_parts(settings: Settings, raws: dict, read_problems: list[Problem], previous,

@@ -28,13 +28,11 @@ from dataclasses import dataclass
 from html import escape
 from pathlib import Path
 
-from jinja2.bccache import Bucket, BytecodeCache
-
 from reporter.build import Assembled, assemble, build_time, fingerprint, input_hashes
 from reporter.commentary import read_commentary
 from reporter.config import load_settings
 from reporter.errors import InputError
-from reporter.render.html import render_html
+from reporter.render.html import MemoryBytecodeCache, render_html
 
 MAX_LINES = 200
 
@@ -108,22 +106,6 @@ class StagedPack:
                                     commentary=commentary)
         return render_html(fresh.context, fresh.svgs, for_print=False,
                            user_templates=settings.templates_dir, bytecode_cache=self._compiled)
-
-
-class MemoryBytecodeCache(BytecodeCache):
-    """Jinja's compiled templates, kept in memory (the preview writes no file). Jinja checks
-    each template's source checksum, so an edited template is compiled again."""
-
-    def __init__(self) -> None:
-        self._store: dict[str, bytes] = {}
-
-    def load_bytecode(self, bucket: Bucket) -> None:
-        data = self._store.get(bucket.key)
-        if data is not None:
-            bucket.bytecode_from_string(data)
-
-    def dump_bytecode(self, bucket: Bucket) -> None:
-        self._store[bucket.key] = bucket.bytecode_to_string()
 
 
 def error_page(pack_dir: Path, lines: list[str]) -> Page:

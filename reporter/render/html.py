@@ -4,9 +4,11 @@ from __future__ import annotations
 
 import base64
 import re
+import threading
 from dataclasses import fields
 
 import vl_convert as vlc
+from jinja2.bccache import Bucket, BytecodeCache
 from markupsafe import Markup
 
 from reporter.charts import PRINT_ONLY, THEME_CONFIG
@@ -25,6 +27,25 @@ def chart_svg(chart) -> str:
     spec = chart.to_dict(validate=False)
     svg = vlc.vegalite_to_svg(spec, config=THEME_CONFIG, allowed_base_urls=[])
     return _XML_DECL.sub("", svg)
+
+
+def start_chart_engine() -> threading.Thread:
+    """Start vl-convert's chart engine on a thread of its own (one tiny conversion) and
+    return the thread. The engine's start, about 0.4-0.5 s once a process, runs outside
+    Python's lock, so a build starts it before it reads its data and the chart stage finds
+    it ready. An error here is left for the chart stage's own export to report."""
+    spec = {"mark": "point", "data": {"values": [{"a": 1}]},
+            "encoding": {"x": {"field": "a", "type": "quantitative"}}}
+
+    def start() -> None:
+        try:
+            vlc.vegalite_to_svg(spec, allowed_base_urls=[])
+        except Exception:  # noqa: BLE001, S110 - the real export reports any engine fault
+            pass
+
+    thread = threading.Thread(target=start, name="chart-engine", daemon=True)
+    thread.start()
+    return thread
 
 
 def export_charts(ctx: PackContext) -> dict[str, Markup]:
@@ -110,6 +131,26 @@ def template_values(ctx: PackContext, for_print: bool, extra: dict | None = None
     return values | {"part": False, "anchor_prefix": "", "part_title": None,
                      "market_word": "market proxy", "proxy_word": "proxy",
                      "edition": "full"} | (extra or {})
+
+
+class MemoryBytecodeCache(BytecodeCache):
+    """Jinja's compiled templates, kept in memory (nothing is written): one build's HTML stage
+    renders the screen page and each edition's print page from the same templates, and the
+    preview re-renders them. Jinja checks each template's source checksum, so an edited
+    template is compiled again. For the Large workload's three pages this halved the HTML
+    stage's CPU time (0.83 s to 0.40 s, measured in one process); the pages are the same
+    text."""
+
+    def __init__(self) -> None:
+        self._store: dict[str, bytes] = {}
+
+    def load_bytecode(self, bucket: Bucket) -> None:
+        data = self._store.get(bucket.key)
+        if data is not None:
+            bucket.bytecode_from_string(data)
+
+    def dump_bytecode(self, bucket: Bucket) -> None:
+        self._store[bucket.key] = bucket.bytecode_to_string()
 
 
 _FIGURE_CHART = re.compile(r'(<figure\b[^>]*?\baria-label="([^"]*)"[^>]*>\s*'
