@@ -34,7 +34,7 @@ from reporter.pipeline.stages import (
     read_stage,
 )
 from reporter.progress import Progress
-from reporter.render.html import MemoryBytecodeCache, start_chart_engine
+from reporter.render.html import MemoryBytecodeCache
 from reporter.render.pdf import render_pdf
 from reporter.writer import OutputSet, check_target, commit, open_staging
 
@@ -67,7 +67,6 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     settings = load_settings(pack)
     refuse_overlap(settings.pack_dir, out, "pack folder")
     check_target(out)
-    start_chart_engine()            # ready by the chart stage (see its doc)
     a = assemble(settings, strict=strict, progress=progress, at=at)
     files = finish_build(a, out, progress, release=True)
     return BuildReport(out=out, files=files.paths,

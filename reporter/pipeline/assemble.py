@@ -20,6 +20,7 @@ from reporter.pipeline.stages import (
     read_stage,
 )
 from reporter.progress import Progress
+from reporter.render.html import start_chart_engine
 
 
 def assemble(settings: Settings, *, strict: bool = False, progress: Progress | None = None,
@@ -33,6 +34,7 @@ def assemble(settings: Settings, *, strict: bool = False, progress: Progress | N
     progress = progress or Progress(quiet=True)
     at = at or build_time()
     return_large_blocks()           # what the analysis frees goes back before the PDF
+    start_chart_engine()            # ready by the chart stage (see its doc)
     with progress.stage("read"):
         (raws, read_problems, previous, compare_warnings, commentary,
          compare_note) = read_stage(settings, strict)
