@@ -43,12 +43,18 @@ def stationary_bootstrap_indices(n: int, draws: int, block_length: float,
     starts = rng.integers(n, size=(draws, n), dtype=np.int64)
     u = rng.random((draws, n))
     new = u <= 1.0 / block_length
+    del u
     new[:, 0] = True
     steps = np.arange(n)
     # position of the latest block start at or before each step
-    last = np.maximum.accumulate(np.where(new, steps, 0), axis=1)
-    first = np.take_along_axis(starts, last, axis=1)
-    return (first + steps - last) % n
+    last = np.where(new, steps, 0)
+    np.maximum.accumulate(last, axis=1, out=last)
+    pos = np.take_along_axis(starts, last, axis=1)
+    del starts
+    pos += steps
+    pos -= last                     # in [0, 2n - 1): wrap once past the end
+    pos[pos >= n] -= n
+    return pos
 
 
 def default_block_length(n: int) -> float:
@@ -117,18 +123,21 @@ def _historical(sorted_rows: np.ndarray, a: float) -> tuple[np.ndarray, np.ndarr
     return -q, -es
 
 
-def risk_measures(r: np.ndarray, level: float, model_sd: float | None = None
+def risk_measures(r: np.ndarray, level: float, model_sd: float | None = None, *,
+                  summary: tuple[np.ndarray, Moments] | None = None
                   ) -> dict[str, tuple[np.ndarray, np.ndarray]]:
     """VaR and ES by method for each row of ``r`` (draws x periods, or one series).
 
     ``model_sd``: the normal method's sigma for the unresampled series (the pack's model
     volatility); each row's sigma is then ``model_sd`` x its sample sd / the series' own sample
     sd, so a resampled row moves the model figure as it moves the sample one (for a sample
-    covariance, w' Sigma_b w is the resampled portfolio's variance)."""
+    covariance, w' Sigma_b w is the resampled portfolio's variance). ``summary``: the rows
+    sorted and their :class:`Moments`, when the caller has them (they do not depend on the
+    level)."""
     r = np.atleast_2d(r)
     a = 1.0 - level
-    mom = Moments.of(r)
-    var_h, es_h = _historical(np.sort(r, axis=1), a)
+    sorted_rows, mom = summary if summary is not None else (np.sort(r, axis=1), Moments.of(r))
+    var_h, es_h = _historical(sorted_rows, a)
     z = stats.norm.ppf(a)
     sd_n = mom.sd if model_sd is None else model_sd * mom.sd / model_scale(r)
     var_n = -(mom.mean + z * sd_n)
@@ -179,11 +188,15 @@ def value_at_risk(r: np.ndarray, levels: tuple[float, ...], periods_per_year: in
     if n < 3:
         return out
     idx = stationary_bootstrap_indices(n, draws, block_length, np.random.default_rng(seed))
-    rows = np.vstack([r, r[idx]])          # the series itself first, then every resample
+    rows = np.empty((draws + 1, n))        # the series itself first, then every resample
+    rows[0] = r
+    np.take(r, idx, out=rows[1:])
+    del idx
+    summary = (np.sort(rows, axis=1), Moments.of(rows))   # shared by every level
     tails = ((1 - confidence) / 2, (1 + confidence) / 2)
     root = np.sqrt(periods_per_year)
     for level in levels:
-        by_method = risk_measures(rows, level, model_sd)
+        by_method = risk_measures(rows, level, model_sd, summary=summary)
         for method in METHODS:
             for measure, values in zip(("var", "es"), by_method[method], strict=True):
                 lo, hi = np.nanquantile(values[1:], tails)
