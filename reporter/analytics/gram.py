@@ -1,7 +1,7 @@
 """Estimators that share the one centred Gram matrix of the holdings' returns.
 
 The pack forms X'X once, X the T x N returns of the window each centred on its own mean over
-its own periods (0 where missing; :class:`reporter.analytics.covariance._Moments`), and every
+its own periods (0 where missing; :class:`reporter.analytics.moments._Moments`), and every
 N x N figure below is taken from it with O(T N) corrections instead of a product of its own:
 
 - the pairwise covariance and correlation (each pair over its common periods, each holding
@@ -27,8 +27,8 @@ from collections.abc import Callable
 
 import numpy as np
 
-from reporter.analytics.covariance import _Moments
 from reporter.analytics.diversification import mean_above_diagonal
+from reporter.analytics.moments import _Moments
 
 
 def _row_blocks(n: int):

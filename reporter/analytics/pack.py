@@ -13,7 +13,7 @@ from reporter.analytics.beta_variants import (
     vasicek_beta,
     vasicek_summary,
 )
-from reporter.analytics.covariance import _Moments, holdings_and_active
+from reporter.analytics.covariance import holdings_and_active
 from reporter.analytics.coverage import cover_holdings, fit_status, own_fits
 from reporter.analytics.diversification import (
     concentration,
@@ -26,6 +26,7 @@ from reporter.analytics.diversification import (
 from reporter.analytics.gram import pairwise_covariance_and_average_correlation, residual_gram
 from reporter.analytics.hac import hac_standard_errors
 from reporter.analytics.market_model import Prepared, fit_market_model, fit_portfolio, t_critical
+from reporter.analytics.moments import _Moments
 from reporter.analytics.performance import holding_ratios, performance, period_returns
 from reporter.analytics.results import (  # noqa: F401  (re-exported: the build imports them here)
     PORTFOLIO_SERIES,
