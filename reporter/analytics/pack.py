@@ -135,7 +135,7 @@ def analyse(inputs: ValidInputs, settings: Settings,
 
     line_cs = cross_sectional_test(fits.mean_excess[ok], fits.beta[ok],
                                    float(np.mean(x)), win.n_periods)
-    line_fm, _ = fama_macbeth(y[:, ok], fits.beta[ok], x)
+    line_fm, _ = fama_macbeth(y, np.where(ok, fits.beta, np.nan), x)   # fitted holdings
     sector_names = sorted(set(hold["sector"]))
     sector_of = hold["sector"].to_numpy()
     sector_ex = sector_returns(win.returns, weights, sector_of, sector_names) - \
