@@ -127,7 +127,7 @@ def _estimate(mo: _Moments, method: str) -> CovarianceEstimate:
     x2 = mo.x * mo.x
     if cc:
         q = x2.sum(axis=0)
-        b_gap = x2.T @ mo.m_gap                     # B = (x^2)'m against the gapped columns
+        b_gap = mo.squares_over_gaps(x2)            # B = (x^2)'m against the gapped columns
     for blk in _row_blocks(N):
         nb = mo.n_rows(blk)
         valid = nb >= 2

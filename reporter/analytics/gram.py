@@ -45,7 +45,9 @@ def pairwise_moments(mo: _Moments, cols: np.ndarray
     shared Gram matrix ``mo.gram`` (read, not changed)."""
     idx = np.asarray(cols, dtype=int)
     k, T = len(idx), mo.T
-    G = mo.gram[np.ix_(idx, idx)]                       # a copy: the result is built in it
+    every = k == mo.gram.shape[0] and bool(np.array_equal(idx, np.arange(k)))
+    # a copy: the result is built in it
+    G = mo.gram.copy() if every else mo.gram[np.ix_(idx, idx)]
     gpos = np.flatnonzero(mo.gapped[idx])
     if not gpos.size:
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -67,12 +69,13 @@ def pairwise_moments(mo: _Moments, cols: np.ndarray
     # k x k passes.
     gcols = idx[gpos]
     cpos = np.flatnonzero(~mo.gapped[idx])
-    x_sub = mo.x[:, idx]
-    m_gap = mo.m_gap[:, np.searchsorted(mo.gap_idx, gcols)]
-    n_g = mo.n_gap[np.searchsorted(mo.gap_idx, gcols)][:, idx]      # n[gpos, :], g x k
+    gsel = np.searchsorted(mo.gap_idx, gcols)
+    x_sub = mo.x if every else mo.x[:, idx]
+    m_gap = mo.m_gap[:, gsel]
+    n_g = mo.n_gap[gsel][:, idx]                        # n[gpos, :], g x k
     col_sum = x_sub.sum(axis=0)                         # sum of d_i over its own periods
     s_c = x_sub.T @ m_gap                               # S[:, gpos]: d_i over a gapped j's
-    q_c = (x_sub * x_sub).T @ m_gap                     # Q[:, gpos] before centring
+    q_c = mo.squares_over_gaps()[idx][:, gsel]          # Q[:, gpos] before centring (a copy)
     del x_sub, m_gap
     diag0 = np.diagonal(G).copy()                       # Q_ij = G_ii for a complete j
     s_r = np.repeat(col_sum[gpos][:, None], k, axis=1)  # S[gpos, :]

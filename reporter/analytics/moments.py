@@ -11,7 +11,7 @@ T x N masks, which tests/test_covariance_scale.py checks against the direct prod
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -75,6 +75,17 @@ class _Moments:
     n_gap: np.ndarray      # g x N: common periods of each gapped holding with every holding
     n_own: np.ndarray      # N: periods each holding has
     T: int
+    _products: dict = field(default_factory=dict, compare=False, repr=False)
+
+    def squares_over_gaps(self, x2: np.ndarray | None = None) -> np.ndarray:
+        """(x^2)'M_g, N x g: each holding's sum of squared deviations over each gapped
+        holding's periods; formed once (from ``x2`` = x * x when the caller has it) and
+        kept for the pairwise moments and the estimate of these same moments."""
+        if "x2_gap" not in self._products:
+            if x2 is None:
+                x2 = self.x * self.x
+            self._products["x2_gap"] = x2.T @ self.m_gap
+        return self._products["x2_gap"]
 
     @classmethod
     def of(cls, returns: np.ndarray) -> _Moments:

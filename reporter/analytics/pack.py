@@ -147,7 +147,8 @@ def analyse(inputs: ValidInputs, settings: Settings,
     # the whole history; the window itself (no second copy of the returns) when it is that
     hist = (win if len(mkt_dates) == win.n_periods
             else build_window(inputs, settings, periods=0))
-    rolling = rolling_betas(hist.excess_returns, hist.market_excess, settings.rolling_window)
+    rolling = rolling_betas(y if hist is win else hist.excess_returns, hist.market_excess,
+                            settings.rolling_window)
     hist_raw = portfolio_returns(hist.returns, weights)
     if portfolio is not None:
         hist_raw = _align_optional(portfolio, hist.dates, settings.frequency)
