@@ -195,8 +195,10 @@ def _estimate(mo: _Moments, method: str) -> CovarianceEstimate:
     with np.errstate(invalid="ignore", divide="ignore"):
         pi_diag = np.where(n_own >= 2, (x4 / n_own - s_diag**2) / n_own, 0.0)
         a_diag = np.where(n_own >= 2, x4 / n_own**2, 0.0) * (sd > 0)
-    theta_a = mo.pair_sum(x2 * mo.x, mo.x, inv_sd, sd, h_gg, 1.0 / T**2) - float(a_diag.sum())
-    del x2                      # T x N: freed before the estimate and its PSD test
+    x3 = np.multiply(x2, mo.x, out=x2)            # x^3 in place of x^2 (no longer needed)
+    del x2
+    theta_a = mo.pair_sum(x3, mo.x, inv_sd, sd, h_gg, 1.0 / T**2) - float(a_diag.sum())
+    del x3                      # T x N: freed before the estimate and its PSD test
     rho = float(pi_diag.sum()) + r_bar * (theta_a - theta_b)
     shrink = 0.0 if gamma <= 0 else float(np.clip((pi_sum - rho) / gamma, 0.0, 1.0))
     # third pass: shrink F + (1 - shrink) S, in place

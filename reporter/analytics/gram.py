@@ -133,10 +133,9 @@ def residual_gram(mo: _Moments, cols: np.ndarray, risk_free: np.ndarray,
     z = np.asarray(market_excess, dtype=float)
     f = rf - rf.mean()
     zc = z - z.mean()
-    x_sub = mo.x[:, idx]
-    u = x_sub.T @ f
-    yz = x_sub.T @ zc - float(f @ zc)                   # Y'z
-    yy = mo.gram[np.ix_(idx, idx)]
+    u = (mo.x.T @ f)[idx]                               # (no copy of the columns)
+    yz = (mo.x.T @ zc)[idx] - float(f @ zc)             # Y'z
+    yy = mo.gram.take(idx, axis=0).take(idx, axis=1)
     yy -= u[:, None]
     yy -= u[None, :]
     yy += float(f @ f)
