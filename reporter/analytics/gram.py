@@ -143,3 +143,13 @@ def residual_gram(mo: _Moments, cols: np.ndarray, risk_free: np.ndarray,
     for start in range(0, len(idx), 256):       # - yz yz' / z'z, a block of rows at a time
         yy[start:start + 256] -= np.outer(yz[start:start + 256], v)
     return yy
+
+
+def excess_variance(mo: _Moments, cols: np.ndarray, risk_free: np.ndarray) -> np.ndarray:
+    """The variance (divisor T) of the excess returns r - r_f of the holdings at ``cols``
+    (each with every period of the window), from the diagonal of the shared Gram matrix:
+    diag(Y'Y) / T, Y'Y as in :func:`residual_gram` (for the GRS test's singularity check)."""
+    idx = np.asarray(cols, dtype=int)
+    rf = np.asarray(risk_free, dtype=float)
+    f = rf - rf.mean()
+    return (np.diagonal(mo.gram)[idx] - 2.0 * (mo.x.T @ f)[idx] + float(f @ f)) / mo.T

@@ -100,11 +100,15 @@ class Moments:
         r = np.atleast_2d(r)
         n = r.shape[1]
         mean = r.mean(axis=1)
-        d = r - mean[:, None]
-        m2 = np.einsum("ij,ij->i", d, d) / n
-        d2 = d * d
-        m3 = np.einsum("ij,ij->i", d2, d) / n
-        m4 = np.einsum("ij,ij->i", d2, d2) / n
+        m2, m3, m4 = np.empty((3, r.shape[0]))
+        step = max(1, (1 << 16) // max(n, 1))         # a block of rows: no draws x n temporaries
+        for start in range(0, r.shape[0], step):
+            rows = slice(start, start + step)
+            d = r[rows] - mean[rows, None]
+            m2[rows] = np.einsum("ij,ij->i", d, d) / n
+            d2 = d * d
+            m3[rows] = np.einsum("ij,ij->i", d2, d) / n
+            m4[rows] = np.einsum("ij,ij->i", d2, d2) / n
         with np.errstate(invalid="ignore", divide="ignore"):
             skew = m3 / m2 ** 1.5
             kurt = m4 / m2 ** 2 - 3.0
@@ -133,7 +137,7 @@ def risk_measures(r: np.ndarray, level: float, model_sd: float | None = None, *,
     sd, so a resampled row moves the model figure as it moves the sample one (for a sample
     covariance, w' Sigma_b w is the resampled portfolio's variance). ``summary``: the rows
     sorted and their :class:`Moments`, when the caller has them (they do not depend on the
-    level)."""
+    level); ``r`` then need hold only the first row, the unresampled series."""
     r = np.atleast_2d(r)
     a = 1.0 - level
     sorted_rows, mom = summary if summary is not None else (np.sort(r, axis=1), Moments.of(r))
@@ -192,11 +196,14 @@ def value_at_risk(r: np.ndarray, levels: tuple[float, ...], periods_per_year: in
     rows[0] = r
     np.take(r, idx, out=rows[1:])
     del idx
-    summary = (np.sort(rows, axis=1), Moments.of(rows))   # shared by every level
+    mom = Moments.of(rows)
+    rows.sort(axis=1)                       # in place: sorted, shared by every level
+    summary = (rows, mom)
     tails = ((1 - confidence) / 2, (1 + confidence) / 2)
     root = np.sqrt(periods_per_year)
     for level in levels:
-        by_method = risk_measures(rows, level, model_sd, summary=summary)
+        # (the series itself, unsorted, as the first row: the model scale is its sd)
+        by_method = risk_measures(r[None, :], level, model_sd, summary=summary)
         for method in METHODS:
             for measure, values in zip(("var", "es"), by_method[method], strict=True):
                 lo, hi = np.nanquantile(values[1:], tails)
