@@ -253,16 +253,23 @@ def holdings_and_active(returns: np.ndarray, market: np.ndarray,
     (market proxy or benchmark), r_i - r_m, each estimated by ``method`` on its own data with
     its own intensity. A period where the reference has no return is missing for every
     relative return. ``moments`` (``_Moments.of(returns)``), when given, is the Gram matrix
-    the caller already holds; it is consumed (the estimate is built in it)."""
+    the caller already holds; it is consumed (the estimate is built in it, and its T x N
+    deviations are released once that estimate is made)."""
     r = np.asarray(returns, dtype=float)
     ref = np.asarray(market, dtype=float)
     T, N = r.shape
     method = choose_method(method, N, T)
     held = _Moments.of(r) if moments is None else moments
-    active = (held.relative_to(r, ref) if np.isfinite(ref).all()
+    every = bool(np.isfinite(ref).all())
+    gram_active = held.relative_gram(ref) if every else None
+    # each estimate is built in its own Gram matrix: two N x N matrices, as the results; the
+    # held estimate first, so that its deviations are freed before the active ones are formed
+    cov_held = _estimate(held, method)
+    held.release_deviations()
+    active = (held.relative_to(r, ref, gram_active) if every
               else _Moments.of(r - ref[:, None]))
-    # each estimate is built in its own Gram matrix: two N x N matrices, as the results
-    return _estimate(held, method), _estimate(active, method)
+    del held, gram_active
+    return cov_held, _estimate(active, method)
 
 
 def model_figures(held: CovarianceEstimate, active: CovarianceEstimate, model_vol: float,

@@ -106,16 +106,30 @@ class _Moments:
         return cls(x=x, m_gap=m_gap, gram=x.T @ x, gapped=gapped, gap_idx=gap_idx,
                    n_gap=n_gap, n_own=n_own, T=T)
 
-    def relative_to(self, returns: np.ndarray, ref: np.ndarray) -> _Moments:
+    def relative_to(self, returns: np.ndarray, ref: np.ndarray,
+                    gram: np.ndarray | None = None) -> _Moments:
         """The moments of ``returns - ref`` for a reference ``ref`` with every period (so the
         mask is this one), its Gram matrix taken from this one's instead of a new T N^2
         product: with e = ref - mean(ref), a complete holding's deviation is x_i - e, so
-        among complete holdings X_a'X_a = X'X - u 1' - 1 u' + e'e, u = X'e. The rows and
-        columns of the holdings with gaps (whose means run over their own periods) are
-        their own products x_a,g' X_a."""
+        among complete holdings X_a'X_a = X'X - u 1' - 1 u' + e'e, u = X'e (``gram``, from
+        :meth:`relative_gram`, when the caller has taken it already). The rows and columns
+        of the holdings with gaps (whose means run over their own periods) are their own
+        products x_a,g' X_a."""
+        if gram is None:
+            gram = self.relative_gram(ref)
         xa = np.subtract(np.asarray(returns, dtype=float), ref[:, None])
         gi = self.gap_idx
         _centre_in_place(xa, gi, self.m_gap > 0)
+        if gi.size:
+            g_rows = xa[:, gi].T @ xa
+            gram[gi, :] = g_rows
+            gram[:, gi] = g_rows.T
+        return _Moments(x=xa, m_gap=self.m_gap, gram=gram, gapped=self.gapped, gap_idx=gi,
+                        n_gap=self.n_gap, n_own=self.n_own, T=self.T)
+
+    def relative_gram(self, ref: np.ndarray) -> np.ndarray:
+        """X'X - u 1' - 1 u' + e'e (see :meth:`relative_to`): a new N x N matrix, right for
+        the pairs of complete holdings (the rows of the holdings with gaps are replaced)."""
         e = ref - ref.mean()
         u, ee = self.x.T @ e, float(e @ e)
         gram = self.gram.copy()
@@ -124,12 +138,13 @@ class _Moments:
             rows -= u[blk, None]
             rows -= u[None, :]
             rows += ee
-        if gi.size:
-            g_rows = xa[:, gi].T @ xa
-            gram[gi, :] = g_rows
-            gram[:, gi] = g_rows.T
-        return _Moments(x=xa, m_gap=self.m_gap, gram=gram, gapped=self.gapped, gap_idx=gi,
-                        n_gap=self.n_gap, n_own=self.n_own, T=self.T)
+        return gram
+
+    def release_deviations(self) -> None:
+        """Drop the T x N deviations ``x`` once these moments are spent (their Gram matrix
+        consumed by an estimate), so that they are freed before the next T x N work."""
+        object.__setattr__(self, "x", None)
+        self._products.clear()
 
     def n_rows(self, block: slice) -> np.ndarray:
         """Rows ``block`` of the N x N common periods n_ij."""

@@ -113,6 +113,9 @@ def analyse(inputs: ValidInputs, settings: Settings,
     hold = inputs.holdings.frame
     sectors = sector_weights(hold["sector"], weights)
     var = variance_split(weights, fits.beta, fits.residual_vol, x)
+    complete = ok & np.isfinite(y).all(axis=0)
+    line_fm, _ = fama_macbeth(y, np.where(ok, fits.beta, np.nan), x)   # fitted holdings
+    del y       # the window's excess returns (T x N): no use below; freed before the Gram matrix
     shared = _Moments.of(win.returns)      # the one centred Gram matrix of the window
     pair_cov, avg_corr = pairwise_covariance_and_average_correlation(shared, np.flatnonzero(ok))
     curve = equal_weight_curve(pair_cov)
@@ -124,7 +127,6 @@ def analyse(inputs: ValidInputs, settings: Settings,
     band = random_subset_band(pair_cov, sizes, settings.random_subsets, settings.seed)
     del pair_cov                # N x N: freed before the risk model's two N x N estimates
     bench_win = _align_optional(benchmark, win.dates, settings.frequency)
-    complete = ok & np.isfinite(y).all(axis=0)
     if np.isfinite(x).all() and np.isfinite(win.risk_free).all() and complete.any():
         cols = np.flatnonzero(complete)
         grs_h = grs_test(None, x, "holdings", alpha=fits.alpha[complete],     # (no copy)
@@ -132,9 +134,7 @@ def analyse(inputs: ValidInputs, settings: Settings,
                          return_variance=np.diagonal(shared.gram)[cols] / win.n_periods,
                          excess_variance=excess_variance(shared, cols, win.risk_free))
     else:
-        grs_h = grs_test(y[:, complete], x, "holdings")
-    line_fm, _ = fama_macbeth(y, np.where(ok, fits.beta, np.nan), x)   # fitted holdings
-    del y       # the window's excess returns (T x N): no use below; freed before the risk model
+        grs_h = grs_test(win.excess_returns[:, complete], x, "holdings")
     cov, cov_active = holdings_and_active(
         win.returns, win.market if bench_win is None else bench_win, settings.covariance,
         moments=shared)
