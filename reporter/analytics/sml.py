@@ -194,23 +194,14 @@ def fama_macbeth(excess: np.ndarray, beta: np.ndarray, market_excess: np.ndarray
     ch. 12)."""
     b = np.asarray(beta, dtype=float)
     use = np.isfinite(b)
-    every = bool(use.all())
+    y = excess[:, use]
     b = b[use]
-    bb = b * b
-    T_all = excess.shape[0]
-    n, sb, sbb, sy, sby = np.empty((5, T_all))
-    # a block of rows at a time (a multiple of 64 rows: the same roundings as one call on
-    # all rows, see reporter.analytics.returns.portfolio_returns), no T x N copy
-    step = 64 * max(1, (1 << 18) // (64 * max(len(b), 1)))
-    for start in range(0, T_all, step):
-        rows = slice(start, start + step)
-        y = excess[rows] if every else excess[rows][:, use]
-        mask = np.isfinite(y)
-        m = mask.astype(float)
-        y0 = np.where(mask, y, 0.0)
-        n[rows] = m.sum(axis=1)
-        sb[rows], sbb[rows] = m @ b, m @ bb
-        sy[rows], sby[rows] = y0.sum(axis=1), y0 @ b
+    mask = np.isfinite(y)
+    m = mask.astype(float)
+    y0 = np.where(mask, y, 0.0)
+    n = m.sum(axis=1)
+    sb, sbb = m @ b, m @ (b * b)
+    sy, sby = y0.sum(axis=1), y0 @ b
     del y, mask, m, y0
     with np.errstate(invalid="ignore", divide="ignore"):
         g1 = (sby - sb * sy / n) / (sbb - sb * sb / n)
