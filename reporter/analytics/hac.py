@@ -23,7 +23,7 @@ def _compact(y: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.n
     return yc, xc, m
 
 
-HAC_COLUMNS = 128      # columns a block: every lag's product of a block stays in cache
+HAC_COLUMNS = 256      # columns a block: every lag's product of a block stays in cache
 
 
 def _residual_scores_sums(p: Prepared, xr: np.ndarray, alpha: np.ndarray, beta: np.ndarray,
