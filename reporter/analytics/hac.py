@@ -23,27 +23,6 @@ def _compact(y: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.n
     return yc, xc, m
 
 
-HAC_COLUMNS = 256      # columns a block: every lag's product of a block stays in cache
-
-
-def _residual_scores_sums(p: Prepared, xr: np.ndarray, alpha: np.ndarray, beta: np.ndarray,
-                          L: np.ndarray) -> np.ndarray:
-    """:func:`_hac_scores_sums` of the market-model residuals y - alpha - beta x (zero where
-    missing), formed and summed a block of HAC_COLUMNS columns at a time, so that no T x N
-    residual matrix is held and every lag's product of a block stays in cache (each
-    column's sums are its own: the blocks change no figure). Returns 3 x N."""
-    N = p.m.shape[1]
-    out = np.empty((3, N))
-    for start in range(0, N, HAC_COLUMNS):
-        blk = slice(start, min(start + HAC_COLUMNS, N))
-        e = np.multiply.outer(xr, beta[blk])     # fitted values, built in place
-        e += alpha[blk]
-        e *= p.m[:, blk]
-        np.subtract(p.y0[:, blk], e, out=e)      # residuals, zero where missing
-        out[:, blk] = _hac_scores_sums(e, xr, L[blk])
-    return out
-
-
 def _hac_scores_sums(e: np.ndarray, xr: np.ndarray, L: np.ndarray) -> tuple[np.ndarray, ...]:
     """Bartlett-weighted long-run sums of the OLS scores (e, e x) for columns that share the
     regressor ``xr`` row by row (no interior gaps): S_aa, S_ab, S_bb. One elementwise product
@@ -114,7 +93,11 @@ def hac_standard_errors(y: np.ndarray, x: np.ndarray, fits: MarketModelFits,
     L = np.full(N, lags) if lags is not None else newey_west_lags(n)
     alpha = np.nan_to_num(fits.alpha)
     beta = np.nan_to_num(fits.beta)
-    s_aa, s_ab, s_bb = _residual_scores_sums(p, xr, alpha, beta, L)
+    e = np.multiply.outer(xr, beta)          # fitted values, built in place
+    e += alpha
+    e *= p.m
+    np.subtract(p.y0, e, out=e)              # residuals, zero where missing
+    s_aa, s_ab, s_bb = _hac_scores_sums(e, xr, L)
     sx, sxx = np.stack([xr, xr * xr]) @ p.m
     gapped = np.flatnonzero(interior_gaps(p.m > 0, p.n_obs))
     if len(gapped):
