@@ -97,15 +97,9 @@ def sector_returns(returns: np.ndarray, weights: np.ndarray, sector_of: np.ndarr
     w = np.asarray(weights, dtype=float)
     by_sector = np.where(np.asarray(sector_of)[:, None] == np.asarray(sectors)[None, :],
                          w[:, None], 0.0)
-    r = np.asarray(returns, dtype=float)
-    total = np.empty((r.shape[0], len(sectors)))
-    num = np.empty((r.shape[0], len(sectors)))
-    step = 64 * max(1, (1 << 18) // (64 * max(r.shape[1], 1)))     # as portfolio_returns
-    for start in range(0, r.shape[0], step):
-        rows = r[start:start + step]
-        present = ~np.isnan(rows)
-        total[start:start + step] = present.astype(float) @ by_sector
-        num[start:start + step] = np.where(present, rows, 0.0) @ by_sector
+    present = ~np.isnan(returns)
+    total = present.astype(float) @ by_sector
+    num = np.where(present, returns, 0.0) @ by_sector
     with np.errstate(invalid="ignore", divide="ignore"):
         out = num / total
     out[total == 0] = np.nan
