@@ -7,7 +7,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from reporter.analytics import covariance
+from reporter.analytics import covariance, moments
 from reporter.analytics.covariance import _Moments, estimate_covariance, holdings_and_active
 from reporter.analytics.psd import _explained
 from tests.covariance_before import estimate_before
@@ -83,7 +83,7 @@ def test_row_blocks_of_any_size_give_the_same_estimate(monkeypatch):
     # gapped rows fall inside, across and at the edges of blocks of 7 rows
     r = _panel(30, 90, 7, late_share=0.2)
     whole = {m: estimate_covariance(r, m) for m in METHODS}
-    monkeypatch.setattr(covariance, "BLOCK_ELEMENTS", 7 * 90)
+    monkeypatch.setattr(moments, "BLOCK_ELEMENTS", 7 * 90)     # _row_blocks lives there
     for m in METHODS:
         _same(estimate_covariance(r, m), whole[m], rtol=1e-10, atol=1e-16)
 
@@ -124,6 +124,35 @@ def test_common_periods_by_rows_equal_the_full_matrix():
     full = m.T @ m
     for blk in (slice(0, 50), slice(0, 7), slice(3, 4), slice(40, 50)):
         np.testing.assert_array_equal(mo.n_rows(blk), full[blk])
+
+
+def test_moments_with_gaps_match_the_full_masks():
+    # the gap-columns-only masks and counts against the full T x N masks, and the moments
+    # relative to a reference against a direct centring and product (numpy's own operations)
+    r = _panel(30, 40, 11, late_share=0.3)
+    r[10:13, 5] = np.nan                             # an interior gap
+    ref = np.random.default_rng(12).normal(0.004, 0.04, 30)
+    mask = np.isfinite(r)
+    m = mask.astype(float)
+
+    def direct(a):
+        n = mask.sum(axis=0)
+        x = np.where(mask, a, 0.0)
+        x -= x.sum(axis=0) / n
+        x[~mask] = 0.0
+        return x
+
+    mo = _Moments.of(r)
+    np.testing.assert_array_equal(mo.n_own, m.sum(axis=0))
+    np.testing.assert_array_equal(mo.n_gap, (m.T @ m)[mo.gap_idx])
+    np.testing.assert_array_equal(mo.m_gap, m[:, mo.gap_idx])
+    np.testing.assert_array_equal(mo.x, direct(r))
+    np.testing.assert_array_equal(covariance.centred(r), direct(r))
+    act = mo.relative_to(r, ref)
+    xa = direct(r - ref[:, None])
+    np.testing.assert_array_equal(act.x, xa)
+    np.testing.assert_allclose(act.gram, xa.T @ xa, rtol=1e-12, atol=1e-15)
+    assert 0 < mo.gap_idx.size < 40
 
 
 def test_average_correlation_by_blocks_matches_the_full_matrix(monkeypatch):

@@ -330,6 +330,18 @@ def test_random_subset_sums_agree_both_ways_and_with_a_direct_sum():
     # sizes on both sides of the switch (16 n^2 <= N^2: n <= 10 gathers here) give the band
     band = random_subset_band(C, np.array([5, 11, 39]), 50, seed=2)
     assert np.all(np.diff(band.median) < 0)
+    # the gather in chunks of draws is the one fancy-indexed gather, value for value
+    whole = C[pick[:, :, None], pick[:, None, :]].sum(axis=(1, 2))
+    np.testing.assert_array_equal(_block_sums(C, pick, chunk=7), whole)
+
+
+def test_random_picks_by_partition_are_numpys_argsort():
+    # the n smallest of each row, in order of value: numpy's argsort, cut to n
+    from reporter.analytics.diversification import _first_in_order
+
+    u = np.random.default_rng(4).random((200, 60))
+    for n in (1, 2, 17, 59, 60):
+        np.testing.assert_array_equal(_first_in_order(u, n), np.argsort(u, axis=1)[:, :n])
 
 
 def test_gram_pairwise_moments_with_gaps_match_pandas():

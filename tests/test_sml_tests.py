@@ -134,3 +134,29 @@ def test_grs_says_why_it_does_not_apply(french):
     assert not empty.applies and empty.df_num is None and empty.df_den is None
     ok = grs_test(y[:, :10], x)
     assert ok.applies and ok.df_den == 11
+
+
+def test_grs_from_the_shared_gram_matches_grs_from_the_returns(french):
+    # the pack's route (alphas, residual cross products and variances from the one centred
+    # Gram matrix of the raw returns; no T x N excess returns) against the direct route on
+    # the same Ken French portfolios, whose risk-free rate varies month to month
+    from reporter.analytics.gram import excess_variance, residual_gram
+    from reporter.analytics.moments import _Moments
+
+    d = french.iloc[:240]
+    raw = d[ASSETS].to_numpy()
+    rf = d["RF"].to_numpy()
+    y, x = raw - rf[:, None], d["MktRF"].to_numpy()
+    direct = grs_test(y, x)
+    mo = _Moments.of(raw)
+    cols = np.arange(len(ASSETS))
+    alpha = np.array([stats.linregress(x, y[:, j]).intercept for j in cols])   # scipy
+    ev = excess_variance(mo, cols, rf)
+    np.testing.assert_allclose(ev, y.var(axis=0), rtol=1e-12)                   # numpy
+    shared = grs_test(None, x, alpha=alpha, residual_cross=residual_gram(mo, cols, rf, x),
+                      return_variance=np.diagonal(mo.gram) / len(x), excess_variance=ev)
+    assert shared.applies and direct.applies
+    assert shared.f_stat == pytest.approx(direct.f_stat, rel=1e-10)
+    assert shared.p_value == pytest.approx(direct.p_value, rel=1e-8)
+    with pytest.raises(ValueError):
+        grs_test(None, x)

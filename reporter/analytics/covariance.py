@@ -40,6 +40,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from reporter.analytics.moments import (  # noqa: F401  (centred: re-exported)
+    _diagonal_of,
+    _Moments,
+    _row_blocks,
+    centred,
+)
 from reporter.analytics.psd import to_psd
 
 METHODS = ("constant_correlation", "ledoit_wolf", "sample")
@@ -60,125 +66,12 @@ class CovarianceEstimate:
     average_correlation: float = float("nan")   # r_bar of the constant-correlation target
 
 
-def centred(returns: np.ndarray) -> np.ndarray:
-    """Deviations of each column from its own mean over the periods it has; 0 where missing."""
-    r = np.asarray(returns, dtype=float)
-    mask = np.isfinite(r)
-    x = np.where(mask, r, 0.0)
-    n = mask.sum(axis=0)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        mean = np.where(n > 0, x.sum(axis=0) / np.maximum(n, 1), 0.0)
-    x -= mean
-    x[~mask] = 0.0
-    return x
-
-
 def choose_method(method: str, n_assets: int, n_periods: int) -> str:
     """Resolve ``"auto"`` (the older rule, kept for packs that name it): Ledoit-Wolf toward the
     identity when n_assets / n_periods >= AUTO_RATIO, else sample. Other names pass through."""
     if method != "auto":
         return method
     return "ledoit_wolf" if n_assets >= AUTO_RATIO * n_periods else "sample"
-
-
-BLOCK_ELEMENTS = 1 << 20   # N x N work runs over row blocks of about this many elements
-
-
-def _row_blocks(N: int):
-    step = max(1, BLOCK_ELEMENTS // max(N, 1))
-    for start in range(0, N, step):
-        yield slice(start, min(start + step, N))
-
-
-def _diagonal_of(block: slice) -> tuple[np.ndarray, np.ndarray]:
-    """(row, column) positions of the main diagonal inside the row block ``block``."""
-    rows = np.arange(block.stop - block.start)
-    return rows, rows + block.start
-
-
-@dataclass(frozen=True)
-class _Moments:
-    """The pieces every estimator shares, from one pass over the centred returns. Only the
-    rows of n_ij for holdings with gaps are stored: every other pair has n_ij = T."""
-
-    x: np.ndarray          # T x N deviations from each column's own mean, 0 where missing
-    m_gap: np.ndarray      # T x g float mask of the holdings with gaps (others: all ones)
-    gram: np.ndarray       # N x N sum over common periods of x_i x_j (the estimate is built in it)
-    gapped: np.ndarray     # bool N: columns missing a period of the window
-    gap_idx: np.ndarray    # their positions
-    n_gap: np.ndarray      # g x N: common periods of each gapped holding with every holding
-    n_own: np.ndarray      # N: periods each holding has
-    T: int
-
-    @classmethod
-    def of(cls, returns: np.ndarray) -> _Moments:
-        r = np.asarray(returns, dtype=float)
-        mask = np.isfinite(r)
-        x = centred(r)
-        T = x.shape[0]
-        m = mask.astype(float)
-        n_own = m.sum(axis=0)
-        gapped = n_own < T
-        gap_idx = np.flatnonzero(gapped)
-        m_gap = m[:, gap_idx]
-        n_gap = m_gap.T @ m
-        del m, mask
-        return cls(x=x, m_gap=m_gap, gram=x.T @ x, gapped=gapped, gap_idx=gap_idx,
-                   n_gap=n_gap, n_own=n_own, T=T)
-
-    def relative_to(self, returns: np.ndarray, ref: np.ndarray) -> _Moments:
-        """The moments of ``returns - ref`` for a reference ``ref`` with every period (so the
-        mask is this one), its Gram matrix taken from this one's instead of a new T N^2
-        product: with e = ref - mean(ref), a complete holding's deviation is x_i - e, so
-        among complete holdings X_a'X_a = X'X - u 1' - 1 u' + e'e, u = X'e. The rows and
-        columns of the holdings with gaps (whose means run over their own periods) are
-        their own products x_a,g' X_a."""
-        xa = centred(np.asarray(returns, dtype=float) - ref[:, None])
-        e = ref - ref.mean()
-        u, ee = self.x.T @ e, float(e @ e)
-        gram = self.gram.copy()
-        for blk in _row_blocks(gram.shape[0]):
-            rows = gram[blk]
-            rows -= u[blk, None]
-            rows -= u[None, :]
-            rows += ee
-        gi = self.gap_idx
-        if gi.size:
-            g_rows = xa[:, gi].T @ xa
-            gram[gi, :] = g_rows
-            gram[:, gi] = g_rows.T
-        return _Moments(x=xa, m_gap=self.m_gap, gram=gram, gapped=self.gapped, gap_idx=gi,
-                        n_gap=self.n_gap, n_own=self.n_own, T=self.T)
-
-    def n_rows(self, block: slice) -> np.ndarray:
-        """Rows ``block`` of the N x N common periods n_ij."""
-        nb = np.full((block.stop - block.start, self.gram.shape[0]), float(self.T))
-        if self.gap_idx.size:
-            nb[:, self.gap_idx] = self.n_gap[:, block].T
-            local = np.flatnonzero(self.gapped[block])
-            if local.size:
-                nb[local] = self.n_gap[np.searchsorted(self.gap_idx, local + block.start)]
-        return nb
-
-    def pair_sum(self, a: np.ndarray, b: np.ndarray, p: np.ndarray, q: np.ndarray,
-                 h_gg: np.ndarray, h_full: float) -> float:
-        """sum_ij p_i q_j h_ij (a'b)_ij for T x N ``a``, ``b`` without forming a'b, where h_ij
-        depends on the pair only through n_ij (0 if n_ij < 2): ``h_full`` wherever both columns
-        are complete, ``h_gg`` among the gapped holdings. Against a complete holding j, n_ij
-        is i's own count, so each block but the gapped x gapped one is a product of
-        T-vectors."""
-        c, g = ~self.gapped, self.gapped
-        a_p, b_q = a @ np.where(c, p, 0.0), b @ np.where(c, q, 0.0)
-        total = h_full * float(a_p @ b_q)
-        if g.any():
-            gi = self.gap_idx
-            with np.errstate(divide="ignore"):
-                h_own = np.where(self.n_own[gi] >= 2, 1.0 / self.n_own[gi] ** 2, 0.0)
-            total += float((p[gi] * h_own) @ (a[:, gi].T @ b_q))
-            total += float((q[gi] * h_own) @ (b[:, gi].T @ a_p))
-            total += float(np.sum(p[gi, None] * q[None, gi] * h_gg
-                                  * (a[:, gi].T @ b[:, gi])))
-        return total
 
 
 def _complete_block_form(mo: _Moments, diag: np.ndarray, scale: float, rank_one: np.ndarray,
@@ -234,7 +127,7 @@ def _estimate(mo: _Moments, method: str) -> CovarianceEstimate:
     x2 = mo.x * mo.x
     if cc:
         q = x2.sum(axis=0)
-        b_gap = x2.T @ mo.m_gap                     # B = (x^2)'m against the gapped columns
+        b_gap = mo.squares_over_gaps(x2)            # B = (x^2)'m against the gapped columns
     for blk in _row_blocks(N):
         nb = mo.n_rows(blk)
         valid = nb >= 2
@@ -302,8 +195,10 @@ def _estimate(mo: _Moments, method: str) -> CovarianceEstimate:
     with np.errstate(invalid="ignore", divide="ignore"):
         pi_diag = np.where(n_own >= 2, (x4 / n_own - s_diag**2) / n_own, 0.0)
         a_diag = np.where(n_own >= 2, x4 / n_own**2, 0.0) * (sd > 0)
-    theta_a = mo.pair_sum(x2 * mo.x, mo.x, inv_sd, sd, h_gg, 1.0 / T**2) - float(a_diag.sum())
-    del x2                      # T x N: freed before the estimate and its PSD test
+    x3 = np.multiply(x2, mo.x, out=x2)            # x^3 in place of x^2 (no longer needed)
+    del x2
+    theta_a = mo.pair_sum(x3, mo.x, inv_sd, sd, h_gg, 1.0 / T**2) - float(a_diag.sum())
+    del x3                      # T x N: freed before the estimate and its PSD test
     rho = float(pi_diag.sum()) + r_bar * (theta_a - theta_b)
     shrink = 0.0 if gamma <= 0 else float(np.clip((pi_sum - rho) / gamma, 0.0, 1.0))
     # third pass: shrink F + (1 - shrink) S, in place
@@ -358,16 +253,23 @@ def holdings_and_active(returns: np.ndarray, market: np.ndarray,
     (market proxy or benchmark), r_i - r_m, each estimated by ``method`` on its own data with
     its own intensity. A period where the reference has no return is missing for every
     relative return. ``moments`` (``_Moments.of(returns)``), when given, is the Gram matrix
-    the caller already holds; it is consumed (the estimate is built in it)."""
+    the caller already holds; it is consumed (the estimate is built in it, and its T x N
+    deviations are released once that estimate is made)."""
     r = np.asarray(returns, dtype=float)
     ref = np.asarray(market, dtype=float)
     T, N = r.shape
     method = choose_method(method, N, T)
     held = _Moments.of(r) if moments is None else moments
-    active = (held.relative_to(r, ref) if np.isfinite(ref).all()
+    every = bool(np.isfinite(ref).all())
+    gram_active = held.relative_gram(ref) if every else None
+    # each estimate is built in its own Gram matrix: two N x N matrices, as the results; the
+    # held estimate first, so that its deviations are freed before the active ones are formed
+    cov_held = _estimate(held, method)
+    held.release_deviations()
+    active = (held.relative_to(r, ref, gram_active) if every
               else _Moments.of(r - ref[:, None]))
-    # each estimate is built in its own Gram matrix: two N x N matrices, as the results
-    return _estimate(held, method), _estimate(active, method)
+    del held, gram_active
+    return cov_held, _estimate(active, method)
 
 
 def model_figures(held: CovarianceEstimate, active: CovarianceEstimate, model_vol: float,

@@ -1,7 +1,7 @@
 """Estimators that share the one centred Gram matrix of the holdings' returns.
 
 The pack forms X'X once, X the T x N returns of the window each centred on its own mean over
-its own periods (0 where missing; :class:`reporter.analytics.covariance._Moments`), and every
+its own periods (0 where missing; :class:`reporter.analytics.moments._Moments`), and every
 N x N figure below is taken from it with O(T N) corrections instead of a product of its own:
 
 - the pairwise covariance and correlation (each pair over its common periods, each holding
@@ -27,8 +27,8 @@ from collections.abc import Callable
 
 import numpy as np
 
-from reporter.analytics.covariance import _Moments
 from reporter.analytics.diversification import mean_above_diagonal
+from reporter.analytics.moments import _Moments
 
 
 def _row_blocks(n: int):
@@ -45,7 +45,9 @@ def pairwise_moments(mo: _Moments, cols: np.ndarray
     shared Gram matrix ``mo.gram`` (read, not changed)."""
     idx = np.asarray(cols, dtype=int)
     k, T = len(idx), mo.T
-    G = mo.gram[np.ix_(idx, idx)]                       # a copy: the result is built in it
+    every = k == mo.gram.shape[0] and bool(np.array_equal(idx, np.arange(k)))
+    # a copy: the result is built in it
+    G = mo.gram.copy() if every else mo.gram[np.ix_(idx, idx)]
     gpos = np.flatnonzero(mo.gapped[idx])
     if not gpos.size:
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -67,12 +69,13 @@ def pairwise_moments(mo: _Moments, cols: np.ndarray
     # k x k passes.
     gcols = idx[gpos]
     cpos = np.flatnonzero(~mo.gapped[idx])
-    x_sub = mo.x[:, idx]
-    m_gap = mo.m_gap[:, np.searchsorted(mo.gap_idx, gcols)]
-    n_g = mo.n_gap[np.searchsorted(mo.gap_idx, gcols)][:, idx]      # n[gpos, :], g x k
+    gsel = np.searchsorted(mo.gap_idx, gcols)
+    x_sub = mo.x if every else mo.x[:, idx]
+    m_gap = mo.m_gap[:, gsel]
+    n_g = mo.n_gap[gsel][:, idx]                        # n[gpos, :], g x k
     col_sum = x_sub.sum(axis=0)                         # sum of d_i over its own periods
     s_c = x_sub.T @ m_gap                               # S[:, gpos]: d_i over a gapped j's
-    q_c = (x_sub * x_sub).T @ m_gap                     # Q[:, gpos] before centring
+    q_c = mo.squares_over_gaps()[idx][:, gsel]          # Q[:, gpos] before centring (a copy)
     del x_sub, m_gap
     diag0 = np.diagonal(G).copy()                       # Q_ij = G_ii for a complete j
     s_r = np.repeat(col_sum[gpos][:, None], k, axis=1)  # S[gpos, :]
@@ -130,10 +133,9 @@ def residual_gram(mo: _Moments, cols: np.ndarray, risk_free: np.ndarray,
     z = np.asarray(market_excess, dtype=float)
     f = rf - rf.mean()
     zc = z - z.mean()
-    x_sub = mo.x[:, idx]
-    u = x_sub.T @ f
-    yz = x_sub.T @ zc - float(f @ zc)                   # Y'z
-    yy = mo.gram[np.ix_(idx, idx)]
+    u = (mo.x.T @ f)[idx]                               # (no copy of the columns)
+    yz = (mo.x.T @ zc)[idx] - float(f @ zc)             # Y'z
+    yy = mo.gram.take(idx, axis=0).take(idx, axis=1)
     yy -= u[:, None]
     yy -= u[None, :]
     yy += float(f @ f)
@@ -141,3 +143,13 @@ def residual_gram(mo: _Moments, cols: np.ndarray, risk_free: np.ndarray,
     for start in range(0, len(idx), 256):       # - yz yz' / z'z, a block of rows at a time
         yy[start:start + 256] -= np.outer(yz[start:start + 256], v)
     return yy
+
+
+def excess_variance(mo: _Moments, cols: np.ndarray, risk_free: np.ndarray) -> np.ndarray:
+    """The variance (divisor T) of the excess returns r - r_f of the holdings at ``cols``
+    (each with every period of the window), from the diagonal of the shared Gram matrix:
+    diag(Y'Y) / T, Y'Y as in :func:`residual_gram` (for the GRS test's singularity check)."""
+    idx = np.asarray(cols, dtype=int)
+    rf = np.asarray(risk_free, dtype=float)
+    f = rf - rf.mean()
+    return (np.diagonal(mo.gram)[idx] - 2.0 * (mo.x.T @ f)[idx] + float(f @ f)) / mo.T

@@ -13,7 +13,7 @@ from reporter.analytics.beta_variants import (
     vasicek_beta,
     vasicek_summary,
 )
-from reporter.analytics.covariance import _Moments, holdings_and_active
+from reporter.analytics.covariance import holdings_and_active
 from reporter.analytics.coverage import cover_holdings, fit_status, own_fits
 from reporter.analytics.diversification import (
     concentration,
@@ -23,9 +23,14 @@ from reporter.analytics.diversification import (
     sector_weights,
     variance_split,
 )
-from reporter.analytics.gram import pairwise_covariance_and_average_correlation, residual_gram
+from reporter.analytics.gram import (
+    excess_variance,
+    pairwise_covariance_and_average_correlation,
+    residual_gram,
+)
 from reporter.analytics.hac import hac_standard_errors
 from reporter.analytics.market_model import Prepared, fit_market_model, fit_portfolio, t_critical
+from reporter.analytics.moments import _Moments
 from reporter.analytics.performance import holding_ratios, performance, period_returns
 from reporter.analytics.results import (  # noqa: F401  (re-exported: the build imports them here)
     PORTFOLIO_SERIES,
@@ -74,6 +79,7 @@ def analyse(inputs: ValidInputs, settings: Settings,
     fits = own_fits(fit_market_model(y, x, settings.min_obs, prep=prep), coverage)
     alpha_se_hac, beta_se_hac = hac_standard_errors(y, x, fits, settings.hac_lags, prep=prep)
     use_hac = settings.errors == "hac"
+    per_holding = holding_ratios(y, fits.alpha, fits.residual_vol)
     a_se = alpha_se_hac if use_hac else fits.alpha_se
     b_se = beta_se_hac if use_hac else fits.beta_se
     sml = security_market_line(fits, x, win.risk_free, settings.confidence, alpha_se=a_se)
@@ -107,6 +113,9 @@ def analyse(inputs: ValidInputs, settings: Settings,
     hold = inputs.holdings.frame
     sectors = sector_weights(hold["sector"], weights)
     var = variance_split(weights, fits.beta, fits.residual_vol, x)
+    complete = ok & np.isfinite(y).all(axis=0)
+    line_fm, _ = fama_macbeth(y, np.where(ok, fits.beta, np.nan), x)   # fitted holdings
+    del y       # the window's excess returns (T x N): no use below; freed before the Gram matrix
     shared = _Moments.of(win.returns)      # the one centred Gram matrix of the window
     pair_cov, avg_corr = pairwise_covariance_and_average_correlation(shared, np.flatnonzero(ok))
     curve = equal_weight_curve(pair_cov)
@@ -118,14 +127,14 @@ def analyse(inputs: ValidInputs, settings: Settings,
     band = random_subset_band(pair_cov, sizes, settings.random_subsets, settings.seed)
     del pair_cov                # N x N: freed before the risk model's two N x N estimates
     bench_win = _align_optional(benchmark, win.dates, settings.frequency)
-    complete = ok & np.isfinite(y).all(axis=0)
     if np.isfinite(x).all() and np.isfinite(win.risk_free).all() and complete.any():
         cols = np.flatnonzero(complete)
-        grs_h = grs_test(y[:, complete], x, "holdings", alpha=fits.alpha[complete],
+        grs_h = grs_test(None, x, "holdings", alpha=fits.alpha[complete],     # (no copy)
                          residual_cross=residual_gram(shared, cols, win.risk_free, x),
-                         return_variance=np.diagonal(shared.gram)[cols] / win.n_periods)
+                         return_variance=np.diagonal(shared.gram)[cols] / win.n_periods,
+                         excess_variance=excess_variance(shared, cols, win.risk_free))
     else:
-        grs_h = grs_test(y[:, complete], x, "holdings")
+        grs_h = grs_test(win.excess_returns[:, complete], x, "holdings")
     cov, cov_active = holdings_and_active(
         win.returns, win.market if bench_win is None else bench_win, settings.covariance,
         moments=shared)
@@ -134,7 +143,6 @@ def analyse(inputs: ValidInputs, settings: Settings,
 
     line_cs = cross_sectional_test(fits.mean_excess[ok], fits.beta[ok],
                                    float(np.mean(x)), win.n_periods)
-    line_fm, _ = fama_macbeth(y[:, ok], fits.beta[ok], x)
     sector_names = sorted(set(hold["sector"]))
     sector_of = hold["sector"].to_numpy()
     sector_ex = sector_returns(win.returns, weights, sector_of, sector_names) - \
@@ -201,7 +209,6 @@ def analyse(inputs: ValidInputs, settings: Settings,
     sec["beta_down"] = np.where(ok, beta_down, np.nan)
     sec["beta_dimson"] = np.where(ok, dimson[1:], np.nan)
     sec["beta_scholes_williams"] = np.where(ok, sw[1:], np.nan)
-    per_holding = holding_ratios(y, fits.alpha, fits.residual_vol)
     sec["mean_excess_return_se"] = np.where(ok, per_holding["mean_excess_se"], np.nan)
     sec["sharpe"] = np.where(ok, per_holding["sharpe"], np.nan)
     sec["sharpe_ann"] = sec["sharpe"] * np.sqrt(P)

@@ -338,10 +338,21 @@ def holding_ratios(excess: np.ndarray, alpha: np.ndarray,
     ratio alpha / sigma_e; vectorised over the columns of ``excess`` (T x N, NaN = missing)."""
     mask = np.isfinite(excess)
     n = mask.sum(axis=0).astype(float)
-    x = np.where(mask, excess, 0.0)
+    holed = np.flatnonzero(n < excess.shape[0])
+    missing = ~mask[:, holed]
+    del mask
+    x = np.array(excess, dtype=float)          # one T x N buffer; zeros where missing
+    sub = x[:, holed]
+    sub[missing] = 0.0
+    x[:, holed] = sub
     with np.errstate(invalid="ignore", divide="ignore"):
         mean = x.sum(axis=0) / n
-        var = (np.where(mask, excess - mean, 0.0) ** 2).sum(axis=0) / (n - 1)
+        np.subtract(excess, mean, out=x)
+        sub = x[:, holed]
+        sub[missing] = 0.0
+        x[:, holed] = sub
+        np.multiply(x, x, out=x)
+        var = x.sum(axis=0) / (n - 1)
         sd = np.sqrt(var)
         return {"sharpe": mean / sd, "mean_excess_se": sd / np.sqrt(n),
                 "appraisal_ratio": alpha / residual_vol}

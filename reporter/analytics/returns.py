@@ -73,10 +73,17 @@ def portfolio_returns(returns: np.ndarray, weights: np.ndarray) -> np.ndarray:
     Where a holding has no return in a period its weight is spread over the holdings
     that do (re-weighting over the available holdings); a period with none is NaN.
     """
-    present = ~np.isnan(returns)
-    w = np.where(present, weights[None, :], 0.0)
-    total = w.sum(axis=1)
-    num = np.where(present, returns, 0.0) @ weights
+    r = np.asarray(returns, dtype=float)
+    w = np.asarray(weights, dtype=float)
+    total, num = np.empty(r.shape[0]), np.empty(r.shape[0])
+    # a block of rows at a time: no T x N copy. (Blocks of a multiple of 64 rows keep the
+    # matrix-vector product's roundings those of one call on all rows, with this BLAS.)
+    step = 64 * max(1, (1 << 18) // (64 * max(r.shape[1], 1)))
+    for start in range(0, r.shape[0], step):
+        rows = r[start:start + step]
+        present = ~np.isnan(rows)
+        total[start:start + step] = np.where(present, w, 0.0).sum(axis=1)
+        num[start:start + step] = np.where(present, rows, 0.0) @ w
     with np.errstate(invalid="ignore", divide="ignore"):
         out = num / total
     out[total == 0] = np.nan

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from reporter.analytics.market_model import Prepared, centred_inputs
+from reporter.analytics.market_model import Prepared
 
 
 @dataclass(frozen=True)
@@ -41,7 +41,7 @@ class HoldingsRolling:
     def block(self, cols: np.ndarray) -> RollingBetas:
         """The rolling betas of the holdings at positions ``cols``."""
         y = self.returns[:, cols] - self.risk_free[:, None]
-        return rolling_betas(y, self.market_excess, self.window)
+        return rolling_betas(y, self.market_excess, self.window, consume=True)  # y is new
 
     def released(self) -> HoldingsRolling:
         """The same with no returns held (a build once the rolling file is written)."""
@@ -73,46 +73,85 @@ def trailing_sum(a: np.ndarray, window: int) -> np.ndarray:
     return out
 
 
+def _trailing_sum_in_place(a: np.ndarray, window: int) -> np.ndarray:
+    """:func:`trailing_sum` built in ``a`` itself (the same additions in the same order, so
+    the same roundings): the last ``window`` + 1 original rows are kept in a ring of rows."""
+    if a.shape[1] == 1 or a.shape[0] < 2:
+        a[:] = trailing_sum(a, window)
+        return a
+    ring = np.empty((window + 1, a.shape[1]))
+    ring[0] = a[0]
+    for t in range(1, a.shape[0]):
+        ring[t % (window + 1)] = a[t]
+        np.add(a[t - 1], a[t], out=a[t])
+        if t >= window:
+            np.subtract(a[t], ring[(t - window) % (window + 1)], out=a[t])
+    return a
+
+
+def _rows(n_rows: int, n_cols: int):
+    step = max(1, (1 << 18) // max(n_cols, 1))
+    for start in range(0, n_rows, step):
+        yield slice(start, start + step)
+
+
 def rolling_betas(y: np.ndarray, x: np.ndarray, window: int,
-                  prep: Prepared | None = None) -> RollingBetas:
+                  prep: Prepared | None = None, consume: bool = False) -> RollingBetas:
     """OLS beta (and its OLS standard error) of each column of y on x over every trailing
     window of ``window`` periods, from running sums (no refit per window). A window is
     used only if the holding has a return in every one of its periods, so the market's sums
-    over a complete window are the same for every holding and come from one 1-D pass."""
+    over a complete window are the same for every holding and come from one 1-D pass.
+
+    ``consume``: ``y`` (a float T x N array the caller gives up) is zero-filled and summed in
+    place. The running sums are built in place of their inputs, so that at most three T x N
+    matrices are alive at once (two of them the results)."""
     W = window
     if prep is not None:
-        y0, m, xc, x_ok = prep.y0, prep.m, prep.xc, prep.x_ok
-        holed = np.flatnonzero(prep.n_obs < m.shape[0])
-        m = m[:, holed]
+        y0 = prep.y0.copy()     # the caller's prepared matrices stay the caller's
+        xc, x_ok, n_obs = prep.xc, prep.x_ok, prep.n_obs
+        holed = np.flatnonzero(n_obs < prep.m.shape[0])
+        m = prep.m[:, holed]
     else:       # as Prepared.of, without its T x N float mask: only the holed columns' count
-        y0, xc, x_ok, mask, _ = centred_inputs(y, x)
+        y = np.asarray(y, dtype=float)
+        x = np.asarray(x, dtype=float)
+        x_ok = np.isfinite(x)
+        x_mean = float(x[x_ok].mean()) if x_ok.any() else 0.0
+        xc = np.where(x_ok, x - x_mean, 0.0)
+        mask = np.isfinite(y)
+        mask &= x_ok[:, None]
         holed = np.flatnonzero(~mask.all(axis=0))
-        m = mask[:, holed].astype(float)
+        m_bool = mask[:, holed]
         del mask
+        y0 = y if consume and y.flags.c_contiguous and y.flags.writeable else y.copy()
+        sub = y0[:, holed]                   # zeros where y or x is missing: where(mask, y, 0)
+        sub[~m_bool] = 0.0
+        y0[:, holed] = sub
+        m = m_bool.astype(float)
+        del m_bool, sub
     # window completeness: only holdings with a missing period anywhere need counting
     incomplete = np.zeros(y0.shape, dtype=bool)
     if len(holed):
         incomplete[:, holed] = np.abs(trailing_sum(m, W) - W) > 0.5
     del m
-    sy = trailing_sum(y0, W)
-    tmp = np.multiply(y0, xc[:, None])
-    sxy = trailing_sum(tmp, W)
-    np.multiply(y0, y0, out=tmp)
-    del y0, prep                # (the caller's prepared matrices, if given, stay the caller's)
-    syy = trailing_sum(tmp, W)
+    sxy = _trailing_sum_in_place(np.multiply(y0, xc[:, None]), W)
+    syy = _trailing_sum_in_place(np.multiply(y0, y0), W)
+    sy = _trailing_sum_in_place(y0, W)
+    del y0
     xw = np.where(x_ok, xc, 0.0)
     sx = trailing_sum(xw[:, None], W)[:, 0]
     sxx = trailing_sum((xw * xw)[:, None], W)[:, 0]
     with np.errstate(invalid="ignore", divide="ignore"):
         cxx = (sxx - sx * sx / W)[:, None]
-        np.multiply(sy, sy, out=tmp)
-        tmp /= W
-        syy -= tmp                                   # syy now holds the centred cyy
+        for r in _rows(*sy.shape):
+            t = np.multiply(sy[r], sy[r])
+            t /= W
+            syy[r] -= t                              # syy now holds the centred cyy
         sy *= (sx / W)[:, None]
         sxy -= sy                                    # sxy now holds the centred cxy
         beta = np.divide(sxy, cxx, out=sy)
-        np.multiply(beta, sxy, out=tmp)
-        syy -= tmp                                   # residual sum of squares
+        for r in _rows(*sy.shape):
+            syy[r] -= beta[r] * sxy[r]               # residual sum of squares
+        del sxy
         np.maximum(syy, 0.0, out=syy)
         syy /= (W - 2)
         syy /= cxx

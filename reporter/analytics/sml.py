@@ -202,6 +202,7 @@ def fama_macbeth(excess: np.ndarray, beta: np.ndarray, market_excess: np.ndarray
     n = m.sum(axis=1)
     sb, sbb = m @ b, m @ (b * b)
     sy, sby = y0.sum(axis=1), y0 @ b
+    del y, mask, m, y0
     with np.errstate(invalid="ignore", divide="ignore"):
         g1 = (sby - sb * sy / n) / (sbb - sb * sb / n)
         g0 = (sy - g1 * sb) / n
@@ -242,9 +243,10 @@ class GRSTest:
     p_value: float
 
 
-def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdings", *,
-             alpha: np.ndarray | None = None, residual_cross: np.ndarray | None = None,
-             return_variance: np.ndarray | None = None) -> GRSTest:
+def grs_test(excess: np.ndarray | None, market_excess: np.ndarray, assets: str = "holdings",
+             *, alpha: np.ndarray | None = None, residual_cross: np.ndarray | None = None,
+             return_variance: np.ndarray | None = None,
+             excess_variance: np.ndarray | None = None) -> GRSTest:
     """GRS statistic F = (T - N - 1)/N x a' S^-1 a / (1 + m^2 / s^2) ~ F(N, T - N - 1) under
     normal errors, with a the N market-model alphas, S the residual covariance and m, s^2 the
     market premium's mean and variance, both maximum-likelihood (divisor T) (Gibbons, Ross
@@ -259,12 +261,18 @@ def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdi
     is taken off (``return_variance``): an asset that is exactly a line in the market (its
     residual variance at most 1e-12 of its variance) is judged against the larger of the two
     variances, which is the same test wherever the risk-free rate is constant.
-    ``residual_cross`` is consumed (the residual covariance is formed in it)."""
+    ``residual_cross`` is consumed (the residual covariance is formed in it).
+    ``excess_variance`` (the returns' variances, divisor T), when given with the other two,
+    stands for ``excess``, which may then be None (T is the market's length)."""
     from scipy import stats
 
-    y = np.asarray(excess, dtype=float)
     x = np.asarray(market_excess, dtype=float)
-    T, N = y.shape
+    from_moments = residual_cross is not None and alpha is not None
+    if excess is None and not (from_moments and excess_variance is not None):
+        raise ValueError("grs_test needs the returns, or alpha, residual_cross and "
+                         "excess_variance")
+    y = None if excess is None else np.asarray(excess, dtype=float)
+    T, N = (len(x), len(alpha)) if y is None else y.shape
     nan = float("nan")
     if N == 0:
         return GRSTest(False, "no assets with a complete history", assets, 0, T, nan, None,
@@ -272,7 +280,7 @@ def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdi
     if not (T > N + 1):
         return GRSTest(False, f"needs more periods than assets plus one (T = {T}, N = {N})",
                        assets, N, T, nan, None, None, nan)
-    if residual_cross is None or alpha is None:
+    if not from_moments:
         X = np.column_stack([np.ones(T), x])
         coef, *_ = np.linalg.lstsq(X, y, rcond=None)
         e = y - X @ coef
@@ -292,8 +300,9 @@ def grs_test(excess: np.ndarray, market_excess: np.ndarray, assets: str = "holdi
     # (an R-squared within 1e-12 of one is a line up to rounding)
     resid_var = np.diag(sigma)
     scale = np.sqrt(resid_var)
-    y_var = y.var(axis=0)
-    if residual_cross is not None and return_variance is not None:
+    y_var = (excess_variance if from_moments and excess_variance is not None
+             else y.var(axis=0))
+    if from_moments and return_variance is not None:
         y_var = np.maximum(y_var, return_variance)
     quad = (None if np.any(resid_var <= 1e-12 * y_var)
             else _quadratic_form(sigma, alpha, scale))
@@ -318,25 +327,29 @@ def _quadratic_form(sigma: np.ndarray, alpha: np.ndarray, scale: np.ndarray) -> 
     matrix has full rank by the same rule without a singular value decomposition (N^3/3 +
     N^3/3 flops against some 20 N^3); then a' S^-1 a = ||L^-1 (a / s)||^2. Otherwise (no
     Cholesky factor, or a condition number near the threshold) the exact test decides as
-    before."""
-    from scipy.linalg import solve_triangular
+    before. ``sigma`` is consumed (R is formed in it)."""
+    from scipy.linalg.lapack import dtrtri
 
     N = len(alpha)
-    R = np.empty_like(sigma)
-    for start in range(0, N, 256):      # S / (s s'), a block of rows at a time
+    R = sigma                           # S / (s s') in place, a block of rows at a time
+    for start in range(0, N, 256):
         blk = slice(start, min(start + 256, N))
-        np.divide(sigma[blk], np.outer(scale[blk], scale), out=R[blk])
+        R[blk] /= np.outer(scale[blk], scale)
+    a = alpha / scale                   # a' S^-1 a = (a / s)' R^-1 (a / s)
     threshold = 1.0 / (N * np.finfo(float).eps)
     try:        # numpy's factor: see reporter.analytics.psd._explained for why not scipy's
         low = np.linalg.cholesky(R)
     except np.linalg.LinAlgError:
         low = None
     if low is not None and np.all(np.diagonal(low) > 0):
-        inv_low = solve_triangular(low, np.eye(N), lower=True, check_finite=False)
-        trace_inv = float(np.einsum("ij,ij->", inv_low, inv_low))
-        if float(np.trace(R)) * trace_inv < threshold:
-            z = inv_low @ (alpha / scale)
-            return float(z @ z)
+        # L^-1 by LAPACK's triangular inverse, N^3/3 flops (a solve against the identity
+        # costs N^3), in place on L' (numpy's C-ordered L read as Fortran-ordered L')
+        inv_up, info = dtrtri(low.T, lower=0, overwrite_c=1)       # (L^-1)'
+        if info == 0:
+            trace_inv = float(np.einsum("ij,ij->", inv_up, inv_up))
+            if float(np.trace(R)) * trace_inv < threshold:
+                z = inv_up.T @ a
+                return float(z @ z)
     if np.linalg.matrix_rank(R) < N:
         return None
-    return float(alpha @ np.linalg.solve(sigma, alpha))
+    return float(a @ np.linalg.solve(R, a))

@@ -43,12 +43,18 @@ def stationary_bootstrap_indices(n: int, draws: int, block_length: float,
     starts = rng.integers(n, size=(draws, n), dtype=np.int64)
     u = rng.random((draws, n))
     new = u <= 1.0 / block_length
+    del u
     new[:, 0] = True
     steps = np.arange(n)
     # position of the latest block start at or before each step
-    last = np.maximum.accumulate(np.where(new, steps, 0), axis=1)
-    first = np.take_along_axis(starts, last, axis=1)
-    return (first + steps - last) % n
+    last = np.where(new, steps, 0)
+    np.maximum.accumulate(last, axis=1, out=last)
+    pos = np.take_along_axis(starts, last, axis=1)
+    del starts
+    pos += steps
+    pos -= last                     # in [0, 2n - 1): wrap once past the end
+    pos[pos >= n] -= n
+    return pos
 
 
 def default_block_length(n: int) -> float:
@@ -94,11 +100,15 @@ class Moments:
         r = np.atleast_2d(r)
         n = r.shape[1]
         mean = r.mean(axis=1)
-        d = r - mean[:, None]
-        m2 = np.einsum("ij,ij->i", d, d) / n
-        d2 = d * d
-        m3 = np.einsum("ij,ij->i", d2, d) / n
-        m4 = np.einsum("ij,ij->i", d2, d2) / n
+        m2, m3, m4 = np.empty((3, r.shape[0]))
+        step = max(1, (1 << 16) // max(n, 1))         # a block of rows: no draws x n temporaries
+        for start in range(0, r.shape[0], step):
+            rows = slice(start, start + step)
+            d = r[rows] - mean[rows, None]
+            m2[rows] = np.einsum("ij,ij->i", d, d) / n
+            d2 = d * d
+            m3[rows] = np.einsum("ij,ij->i", d2, d) / n
+            m4[rows] = np.einsum("ij,ij->i", d2, d2) / n
         with np.errstate(invalid="ignore", divide="ignore"):
             skew = m3 / m2 ** 1.5
             kurt = m4 / m2 ** 2 - 3.0
@@ -117,18 +127,21 @@ def _historical(sorted_rows: np.ndarray, a: float) -> tuple[np.ndarray, np.ndarr
     return -q, -es
 
 
-def risk_measures(r: np.ndarray, level: float, model_sd: float | None = None
+def risk_measures(r: np.ndarray, level: float, model_sd: float | None = None, *,
+                  summary: tuple[np.ndarray, Moments] | None = None
                   ) -> dict[str, tuple[np.ndarray, np.ndarray]]:
     """VaR and ES by method for each row of ``r`` (draws x periods, or one series).
 
     ``model_sd``: the normal method's sigma for the unresampled series (the pack's model
     volatility); each row's sigma is then ``model_sd`` x its sample sd / the series' own sample
     sd, so a resampled row moves the model figure as it moves the sample one (for a sample
-    covariance, w' Sigma_b w is the resampled portfolio's variance)."""
+    covariance, w' Sigma_b w is the resampled portfolio's variance). ``summary``: the rows
+    sorted and their :class:`Moments`, when the caller has them (they do not depend on the
+    level); ``r`` then need hold only the first row, the unresampled series."""
     r = np.atleast_2d(r)
     a = 1.0 - level
-    mom = Moments.of(r)
-    var_h, es_h = _historical(np.sort(r, axis=1), a)
+    sorted_rows, mom = summary if summary is not None else (np.sort(r, axis=1), Moments.of(r))
+    var_h, es_h = _historical(sorted_rows, a)
     z = stats.norm.ppf(a)
     sd_n = mom.sd if model_sd is None else model_sd * mom.sd / model_scale(r)
     var_n = -(mom.mean + z * sd_n)
@@ -179,11 +192,18 @@ def value_at_risk(r: np.ndarray, levels: tuple[float, ...], periods_per_year: in
     if n < 3:
         return out
     idx = stationary_bootstrap_indices(n, draws, block_length, np.random.default_rng(seed))
-    rows = np.vstack([r, r[idx]])          # the series itself first, then every resample
+    rows = np.empty((draws + 1, n))        # the series itself first, then every resample
+    rows[0] = r
+    np.take(r, idx, out=rows[1:])
+    del idx
+    mom = Moments.of(rows)
+    rows.sort(axis=1)                       # in place: sorted, shared by every level
+    summary = (rows, mom)
     tails = ((1 - confidence) / 2, (1 + confidence) / 2)
     root = np.sqrt(periods_per_year)
     for level in levels:
-        by_method = risk_measures(rows, level, model_sd)
+        # (the series itself, unsorted, as the first row: the model scale is its sd)
+        by_method = risk_measures(r[None, :], level, model_sd, summary=summary)
         for method in METHODS:
             for measure, values in zip(("var", "es"), by_method[method], strict=True):
                 lo, hi = np.nanquantile(values[1:], tails)
