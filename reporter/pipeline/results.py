@@ -97,18 +97,28 @@ def fund_results_files(a: FundAssembled) -> dict[str, str]:
          else {})
 
 
-def _portfolio_results(a: Assembled, files: OutputSet,
-                       widen: threading.Event | None = None) -> None:
-    """The results files of a single portfolio's one part (``widen``: see
-    :func:`write_rolling_csv`)."""
+def rolling_file(a: Assembled | FundAssembled, files: OutputSet,
+                 widen: threading.Event | None = None) -> None:
+    """Add a single portfolio's rolling-beta file to ``files``, written straight to the
+    staging folder (``widen``: see :func:`write_rolling_csv`); a fund's is one of its
+    :func:`fund_results_files`, and this adds nothing for it."""
+    if not isinstance(a, FundAssembled):
+        res = a.results
+        files.add_written("results/rolling_beta.csv",
+                          lambda sink: write_rolling_csv(res, sink, widen=widen))
+
+
+def _portfolio_results(a: Assembled, files: OutputSet, rolling: bool = True) -> None:
+    """The results files of a single portfolio's one part (with ``rolling``, the rolling
+    betas' file too: see :func:`rolling_file`)."""
     res = a.results
     files.add("results/securities.csv", csv_text(res.securities))
     style = a.style.summary() if a.style is not None else {}
     files.add("results/portfolio.json", json_text(res.portfolio_summary() | style))
     if a.style is not None and a.style.attribution is not None:
         files.add("results/attribution.csv", csv_text(a.style.attribution.table()))
-    files.add_written("results/rolling_beta.csv",
-                      lambda sink: write_rolling_csv(res, sink, widen=widen))
+    if rolling:
+        rolling_file(a, files)
     for rel, table in (("results/period_returns.csv", res.period_table),
                        ("results/risk_contributions.csv", res.risk_table)):
         files.add(rel, csv_text(table))
@@ -127,15 +137,16 @@ def _fund_results(a: FundAssembled, files: OutputSet) -> None:
 
 
 def results_files(a: Assembled | FundAssembled, files: OutputSet,
-                  widen: threading.Event | None = None) -> None:
-    """Add the results files of a build (all but the manifest) to ``files``. ``widen``: set
-    when the rolling-beta file may take a second thread (see :func:`write_rolling_csv`)."""
+                  rolling: bool = True) -> None:
+    """Add the results files of a build (all but the manifest) to ``files``; without
+    ``rolling``, all but a single portfolio's rolling-beta file (which a build writes beside
+    the PDF: see :func:`rolling_file`)."""
     settings = a.settings
     res, ctx = a.results, a.context
     if isinstance(a, FundAssembled):
         _fund_results(a, files)
     else:
-        _portfolio_results(a, files, widen)
+        _portfolio_results(a, files, rolling)
     if res.stress is not None:
         files.add("results/risk_scenarios.json", json_text(res.stress.as_json()))
         files.add("results/risk_scenarios.csv", res.stress.csv_text())
