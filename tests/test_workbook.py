@@ -243,6 +243,11 @@ def test_hostile_text_stays_text(tmp_path):
     assert ws.cell(row=6, column=4).value == 0.0 and ws.cell(row=7, column=4).value == 0.25
     assert wb["About"]["B1"].value == "=cmd|' /C calc'!A0"
     assert wb["About"]["B1"].data_type == "s"
+    # styled cells keep the quote prefix exactly where the text needs it
+    assert wb["About"]["B1"].quotePrefix and not wb["About"]["A1"].quotePrefix
+    assert wb["About"]["A1"].font.b and wb["About"]["A1"].alignment.wrap_text
+    assert wb["About"]["B2"].number_format == "yyyy-mm-dd"
+    assert ws["B2"].font.b and not ws["B2"].quotePrefix and ws["B1"].font.i
     with zipfile.ZipFile(io.BytesIO(data)) as z:
         xml = b"".join(z.read(n) for n in z.namelist() if n.startswith("xl/"))
     assert b"<f>" not in xml and b"<f " not in xml              # no formula anywhere
