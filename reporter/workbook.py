@@ -34,6 +34,7 @@ from __future__ import annotations
 import datetime as dt
 import io
 import math
+import tempfile
 import zipfile
 
 import numpy as np
@@ -194,17 +195,21 @@ def workbook_bytes(about: list[tuple[str, object]], sheets: list[Sheet], built: 
     modified time and every zip entry's time, so equal inputs give equal bytes."""
     when = built.astimezone(dt.UTC).replace(tzinfo=None) if built.tzinfo else built
     buf = io.BytesIO()
-    wb = xlsxwriter.Workbook(buf, {"constant_memory": True, "strings_to_formulas": False,
-                                   "strings_to_numbers": False, "strings_to_urls": False})
-    fmt = _Formats(wb)
-    _write_about(wb.add_worksheet("About"), fmt, about)
-    for sheet in sheets:
-        _write_table(wb.add_worksheet(sheet.name), fmt, sheet, period)
-    props = {"author": f"reporter {__version__}", "created": when}
-    if title:
-        props["title"] = sheet_text(title)
-    wb.set_properties(props)
-    wb.close()
+    # constant_memory spools each sheet's rows to a file: in a folder of its own, removed
+    # whatever happens (XlsxWriter removes its files only when it closes the workbook)
+    with tempfile.TemporaryDirectory(prefix="reporter-xlsx-") as tmp:
+        wb = xlsxwriter.Workbook(buf, {"constant_memory": True, "tmpdir": tmp,
+                                       "strings_to_formulas": False, "strings_to_numbers": False,
+                                       "strings_to_urls": False})
+        fmt = _Formats(wb)
+        _write_about(wb.add_worksheet("About"), fmt, about)
+        for sheet in sheets:
+            _write_table(wb.add_worksheet(sheet.name), fmt, sheet, period)
+        props = {"author": f"reporter {__version__}", "created": when}
+        if title:
+            props["title"] = sheet_text(title)
+        wb.set_properties(props)
+        wb.close()
     return fixed_zip(buf.getvalue(), when)
 
 
