@@ -61,6 +61,9 @@ from reporter.workbook_format import (
 
 # --- cells ---------------------------------------------------------------------------------
 
+CELL_MAX = 32767                           # characters a worksheet cell holds (Excel's limit)
+CUT_NOTE = " [cut here: a cell holds 32,767 characters; the full text is in the CSV or JSON]"
+
 class _Formats:
     """The workbook's cell formats, one object per combination (XlsxWriter shares them)."""
 
@@ -112,6 +115,8 @@ def _text(ws, fmt: _Formats, r: int, c: int, text: str, **style) -> None:
         if style:
             ws.write_blank(r, c, None, fmt(**style))
         return
+    if len(text) > CELL_MAX:               # XlsxWriter would cut it without a word
+        text = text[:CELL_MAX - len(CUT_NOTE)] + CUT_NOTE
     quote = needs_escape(text)
     ws.write_string(r, c, text, fmt(quote=quote, **style) if quote or style else None)
 

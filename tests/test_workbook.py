@@ -281,3 +281,17 @@ def test_fund_workbook_matches_its_csvs(tmp_path):
     about = {r[0].value: r[1].value for r in wb["About"].iter_rows()}
     assert any("own benchmark" in v for k, v in about.items() if k.startswith("Caution"))
     assert math.isfinite(port["beta_regression"])
+
+
+def test_text_past_a_cells_limit_is_cut_openly():
+    """A text longer than a cell holds (32,767 characters, Excel's specification) is cut
+    with a note saying so, never silently; a text at the limit is kept whole."""
+    from reporter.workbook import CUT_NOTE, Sheet, workbook_bytes
+
+    df = pd.DataFrame({"name": ["y" * 32767, "=" + "x" * 40000]})
+    data = workbook_bytes([], [Sheet("securities", df)], dt.datetime(2026, 11, 30))
+    ws = load_workbook(io.BytesIO(data))["securities"]
+    assert ws["A3"].value == "y" * 32767
+    cut = ws["A4"].value
+    assert len(cut) == 32767 and cut.endswith(CUT_NOTE) and cut.startswith("=xxx")
+    assert ws["A4"].data_type == "s" and ws["A4"].quotePrefix
