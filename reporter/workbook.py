@@ -16,9 +16,13 @@ Text is written as text, never as a formula (OWASP guidance on CSV and formula i
 every text cell is a string cell (``t="s"``), and one that begins with ``=``, ``+``, ``-``,
 ``@``, a tab, a carriage return or an apostrophe also carries the "quote prefix" style, so
 that editing it in a spreadsheet keeps it text. The text is the original (the CSVs' escape
-apostrophe is not added). Characters that XML 1.0 cannot hold (C0 controls other than tab,
-line feed and carriage return) are written as ECMA-376's ``_xHHHH_`` escape, which Excel
-shows as the character; openpyxl reads the escape back as written.
+apostrophe is not added). Characters that XML 1.0 cannot hold (C0 controls other than tab
+and line feed; carriage return too, which XML would read as a line feed) are written as
+ECMA-376's ``_xHHHH_`` escape, which Excel shows as the character; openpyxl reads the escape
+back as written (in the inline strings written here).
+
+XlsxWriter writes the file (``constant_memory``: row by row, strings inline, a fraction of
+openpyxl's time on a large pack; see BENCHMARKS.md).
 
 The file is byte-identical for the same inputs and build time: the document's created and
 modified times are the build time, and the zip is rewritten with every entry stamped with
@@ -30,165 +34,102 @@ from __future__ import annotations
 import datetime as dt
 import io
 import math
-import re
+import tempfile
 import zipfile
-from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from openpyxl import Workbook
-from openpyxl.styles import Alignment, Font
-from openpyxl.utils import get_column_letter
-from openpyxl.writer.excel import ExcelWriter
+import xlsxwriter
 
 from reporter import __version__
 from reporter.context import FUND_CAUTION
 from reporter.csvsafe import needs_escape
 from reporter.jsonvalues import json_ready
-
-PERCENT = "0.00%"
-DECIMAL2 = "0.00"
-INTEGER = "0"
-DATE = "yyyy-mm-dd"
-PERIOD_WORD = {12: "month", 52: "week", 252: "day", 4: "quarter", 1: "year"}
-_XML_ILLEGAL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
-_XML_ESCAPE_LIKE = re.compile(r"_(x[0-9A-Fa-f]{4}_)")
-_ANN = re.compile(r"_ann(?![a-z])")
-MIN_WIDTH, MAX_WIDTH = 8, 60
-# results/period_returns.csv: each row's return over its own period (cumulative or annualised,
-# as its ``basis`` says)
-PERIOD_RETURNS = ("portfolio", "market", "difference", "benchmark", "benchmark_difference")
-
-
-@dataclass(frozen=True)
-class Sheet:
-    """One worksheet: ``table``'s columns and rows. ``key`` names a column whose text decides
-    the number format of the columns in ``keyed`` row by row (the portfolio's ``value`` by its
-    key, a limit's ``value`` and ``threshold`` by the limit)."""
-
-    name: str
-    table: pd.DataFrame
-    key: str | None = None
-    keyed: tuple[str, ...] = ()
-    returns: tuple[str, ...] = ()       # return columns whose period is the row's (see basis)
-
-
-# --- formats and units, from column names ---------------------------------------------------
-
-def _base(name: str) -> str:
-    """The name without its ``_ann`` mark; of a dotted key its last part, except that every
-    figure under ``beta.`` (the beta change in changes.json) is a beta."""
-    b = _ANN.sub("", name.lower())
-    return "beta" if b.startswith("beta.") else b.rsplit(".", 1)[-1]
-
-
-def is_ratio(name: str) -> bool:
-    """Betas, t-statistics, z, F, correlations, shrinkage and ratios: ``0.00``."""
-    b = _base(name)
-    return (b.endswith(("_t", "_z", "_f")) or b in ("z", "critical", "target", "lo_scale")
-            or any(w in b for w in ("beta", "ratio", "sharpe", "sortino", "r_squared",
-                                    "effective_n", "correlation", "shrinkage")))
-
-
-def is_weight(name: str) -> bool:
-    """Weights, shares and margins (decimals of a whole, not per period)."""
-    b = _base(name)
-    return any(w in b for w in ("weight", "share", "range_low", "range_high", "margin"))
-
-
-def is_return(name: str) -> bool:
-    """Per-period decimal returns, alphas, volatilities and their kin (annualised with _ann)."""
-    b = _base(name)
-    return b in ("m2", "m2_excess", "mar", "change") or any(w in b for w in (
-        "return", "_ret", "ret_", "alpha", "vol", "tracking_error", "te_contribution",
-        "sml_residual", "sml_expected", "mean_excess", "risk_free", "premium", "treynor",
-        "residual_before", "residual_now", "residual_change", "deviation", "drawdown",
-        "intercept", "slope"))
-
-
-def is_count(name: str) -> bool:
-    b = _base(name)
-    return b.startswith("n_") or b in ("hac_lags", "periods_per_year", "rolling_window")
-
-
-def number_format(name: str) -> str | None:
-    """The display format of a number in column (or under key) ``name``; None: General.
-    Ratios are tested first (``alpha_t`` is a t-statistic, ``beta_ci_low`` a beta)."""
-    b = _base(name)
-    if b.endswith("p_value"):
-        return "0.0000"
-    if is_ratio(name):
-        return DECIMAL2
-    if is_weight(name) or is_return(name):
-        return PERCENT
-    if is_count(name):
-        return INTEGER
-    return None
-
-
-def unit_note(name: str, period: str) -> str:
-    """``annualised``, ``per period (<period>)`` or empty, from the column name: returns,
-    alphas, volatilities and the Sharpe, information and appraisal ratios are per period
-    unless ``_ann``; weights, betas and t-statistics have no period."""
-    b = _base(name)
-    periodic = any(w in b for w in ("sharpe", "sortino", "information_ratio",
-                                    "appraisal_ratio")) or (
-        is_return(name) and not is_weight(name) and not is_ratio(name) and "differs" not in b)
-    if not periodic:
-        return ""
-    return "annualised" if _ANN.search(name.lower()) else f"per period ({period})"
-
+from reporter.workbook_format import (
+    DATE,
+    INTEGER,
+    MAX_WIDTH,
+    MIN_WIDTH,
+    PERCENT,
+    PERIOD_RETURNS,
+    PERIOD_WORD,
+    Sheet,
+    number_format,
+    sheet_text,
+    unit_note,
+)
 
 # --- cells ---------------------------------------------------------------------------------
 
-def sheet_text(text: str) -> str:
-    """``text`` as a worksheet can hold it: characters XML 1.0 forbids as ``_xHHHH_``, and a
-    literal ``_xHHHH_`` protected as ``_x005F_xHHHH_`` (ECMA-376 Part 1, ST_Xstring)."""
-    text = _XML_ESCAPE_LIKE.sub(r"_x005F_\1", text)
-    return _XML_ILLEGAL.sub(lambda m: f"_x{ord(m.group()):04X}_", text)
+CELL_MAX = 32767                           # characters a worksheet cell holds (Excel's limit)
+CUT_NOTE = " [cut here: a cell holds 32,767 characters; the full text is in the CSV or JSON]"
+
+class _Formats:
+    """The workbook's cell formats, one object per combination (XlsxWriter shares them)."""
+
+    def __init__(self, wb) -> None:
+        self.wb, self.made = wb, {}
+
+    def __call__(self, num: str | None = None, *, quote: bool = False, bold: bool = False,
+                 italic: bool = False, wrap: bool = False):
+        key = (num, quote, bold, italic, wrap)
+        if key not in self.made:
+            spec = {"num_format": num, "quote_prefix": quote, "bold": bold, "italic": italic,
+                    "text_wrap": wrap, "valign": "top" if wrap else None}
+            self.made[key] = self.wb.add_format({k: v for k, v in spec.items() if v})
+        return self.made[key]
 
 
-def _put(cell, value, fmt: str | None) -> None:
-    """Write ``value`` into ``cell``: NaN and None as an empty cell, text as text."""
-    if value is None or value is pd.NaT:
+def _put(ws, fmt: _Formats, r: int, c: int, value, num: str | None, **style) -> None:
+    """Write ``value`` at (``r``, ``c``), zero-based: NaN and None as an empty cell (blank
+    with its style when it has one), text as text."""
+    if value is None or value is pd.NaT or (isinstance(value, float | np.floating)
+                                            and math.isnan(value)):
+        if style:
+            ws.write_blank(r, c, None, fmt(**style))
         return
     if isinstance(value, bool | np.bool_):
-        cell.value = bool(value)
+        ws.write_boolean(r, c, bool(value), fmt(**style) if style else None)
     elif isinstance(value, int | np.integer):
-        cell.value = int(value)
-        cell.number_format = fmt or INTEGER
+        ws.write_number(r, c, int(value), fmt(num or INTEGER, **style))
     elif isinstance(value, float | np.floating):
         v = float(value)
-        if math.isnan(v):
-            return
         if math.isinf(v):                  # no number a worksheet holds; as the CSV writes it
-            _text(cell, "inf" if v > 0 else "-inf")
-            return
-        cell.value = v
-        if fmt:
-            cell.number_format = fmt
+            _text(ws, fmt, r, c, "inf" if v > 0 else "-inf", **style)
+        else:
+            ws.write_number(r, c, v, fmt(num, **style) if num or style else None)
     elif isinstance(value, pd.Timestamp | np.datetime64 | dt.datetime):
-        cell.value = pd.Timestamp(value).to_pydatetime()
-        cell.number_format = DATE
+        ws.write_datetime(r, c, pd.Timestamp(value).to_pydatetime(), fmt(DATE, **style))
     elif isinstance(value, dt.date):
-        cell.value = value
-        cell.number_format = DATE
+        ws.write_datetime(r, c, value, fmt(DATE, **style))
     elif isinstance(value, list | tuple):
-        _text(cell, "; ".join(str(v) for v in value))
+        _text(ws, fmt, r, c, "; ".join(str(v) for v in value), **style)
     else:
-        _text(cell, str(value))
+        _text(ws, fmt, r, c, str(value), **style)
 
 
-def _text(cell, text: str) -> None:
-    cell.value = sheet_text(text)
-    cell.data_type = "s"                   # never a formula, whatever its first character
-    if needs_escape(text):
-        cell.quotePrefix = True
+def _text(ws, fmt: _Formats, r: int, c: int, text: str, **style) -> None:
+    """A string cell (``t="s"``), never a formula whatever its first character; XlsxWriter
+    writes the ``_xHHHH_`` escapes of :func:`sheet_text` itself (and CR as ``_x000D_``)."""
+    if not text:                           # as openpyxl wrote it: no string, an empty cell
+        if style:
+            ws.write_blank(r, c, None, fmt(**style))
+        return
+    if len(text) > CELL_MAX:               # XlsxWriter would cut it without a word
+        text = text[:CELL_MAX - len(CUT_NOTE)] + CUT_NOTE
+    quote = needs_escape(text)
+    ws.write_string(r, c, text, fmt(quote=quote, **style) if quote or style else None)
 
 
 def _width(values: list[str]) -> float:
     longest = max((len(v) for v in values), default=0)
     return float(min(MAX_WIDTH, max(MIN_WIDTH, longest + 2)))
+
+
+def _set_width(ws, c: int, width: float) -> None:
+    """Column ``c``'s width as ``width`` characters in the file: XlsxWriter adds 5/7 of a
+    character of padding to what it is given (its docs, "set_column"), taken off here."""
+    ws.set_column(c, c, width - 5 / 7)
 
 
 def _shown(value) -> str:
@@ -197,46 +138,59 @@ def _shown(value) -> str:
     return "" if value is None else str(value)
 
 
-def _write_table(ws, sheet: Sheet, period: str) -> None:
+def _float_writer(ws, fmt: _Formats, c: int, num: str | None):
+    """The writer of a float column's cells (the common case, kept out of :func:`_put`'s
+    type tests)."""
+    f = fmt(num) if num else None
+    write = ws.write_number
+
+    def put(r: int, v: float) -> None:
+        if v != v:
+            return
+        if v in (math.inf, -math.inf):
+            _text(ws, fmt, r, c, "inf" if v > 0 else "-inf")
+        else:
+            write(r, c, v, f)
+    return put
+
+
+def _write_table(ws, fmt: _Formats, sheet: Sheet, period: str) -> None:
+    """Row by row (the workbook keeps one row in memory, ``constant_memory``)."""
     df = sheet.table
     cols = [str(c) for c in df.columns]
-    bold = Font(bold=True)
-    for j, name in enumerate(cols, start=1):
+    for j, name in enumerate(cols):
         note = "over the row's period, on its basis" if name in sheet.returns else unit_note(
             name, period)
-        _text(ws.cell(row=1, column=j), note)
-        ws.cell(row=1, column=j).font = Font(italic=True)
-        head = ws.cell(row=2, column=j)
-        _text(head, name)
-        head.font = bold
+        _text(ws, fmt, 0, j, note, italic=True)
+    for j, name in enumerate(cols):
+        _text(ws, fmt, 1, j, name, bold=True)
     formats = [PERCENT if c in sheet.returns else number_format(c) for c in cols]
     keyed = {cols.index(c) for c in sheet.keyed if c in cols}
-    keys = df[sheet.key].tolist() if sheet.key in df.columns else None
-    for i, row in enumerate(df.itertuples(index=False, name=None), start=3):
-        row_fmt = number_format(str(keys[i - 3])) if keys is not None else None
-        for j, value in enumerate(row):
-            _put(ws.cell(row=i, column=j + 1), value, row_fmt if j in keyed else formats[j])
-    last = get_column_letter(max(len(cols), 1))
-    ws.freeze_panes = "A3"
-    ws.auto_filter.ref = f"A2:{last}{max(len(df) + 2, 2)}"
+    keys = df[sheet.key].tolist() if sheet.key in df.columns else [None] * len(df)
+    writers = [_float_writer(ws, fmt, j, formats[j])
+               if df.dtypes.iloc[j] == np.float64 and j not in keyed else None
+               for j in range(len(cols))]
+    columns = [df.iloc[:, j].tolist() for j in range(len(cols))]
+    for r, (key, row) in enumerate(zip(keys, zip(*columns, strict=True), strict=True), start=2):
+        row_fmt = number_format(str(key)) if sheet.key in df.columns else None
+        for j, (put, value) in enumerate(zip(writers, row, strict=True)):
+            if put is not None:
+                put(r, value)
+            else:
+                _put(ws, fmt, r, j, value, row_fmt if j in keyed else formats[j])
+    ws.freeze_panes(2, 0)                                   # rows 1 and 2: A3
+    ws.autofilter(1, 0, max(len(df) + 1, 1), max(len(cols), 1) - 1)
     sample = df.head(500)
-    for j, name in enumerate(cols, start=1):
-        shown = [name, *(_shown(v) for v in sample.iloc[:, j - 1].tolist())]
-        ws.column_dimensions[get_column_letter(j)].width = _width(shown)
+    for j, name in enumerate(cols):
+        _set_width(ws, j, _width([name, *(_shown(v) for v in sample.iloc[:, j].tolist())]))
 
 
-def _write_about(ws, about: list[tuple[str, object]]) -> None:
-    ws.column_dimensions["A"].width = 30
-    ws.column_dimensions["B"].width = 110
-    wrap = Alignment(wrap_text=True, vertical="top")
-    for i, (label, value) in enumerate(about, start=1):
-        a = ws.cell(row=i, column=1)
-        _text(a, label)
-        a.font = Font(bold=True)
-        a.alignment = wrap
-        b = ws.cell(row=i, column=2)
-        _put(b, value, None)
-        b.alignment = wrap
+def _write_about(ws, fmt: _Formats, about: list[tuple[str, object]]) -> None:
+    _set_width(ws, 0, 30)
+    _set_width(ws, 1, 110)
+    for r, (label, value) in enumerate(about):
+        _text(ws, fmt, r, 0, label, bold=True, wrap=True)
+        _put(ws, fmt, r, 1, value, None, wrap=True)
 
 
 def workbook_bytes(about: list[tuple[str, object]], sheets: list[Sheet], built: dt.datetime,
@@ -244,20 +198,23 @@ def workbook_bytes(about: list[tuple[str, object]], sheets: list[Sheet], built: 
     """The workbook as XLSX bytes: an "About" sheet of ``about`` (label, value) rows, then
     each of ``sheets``. ``built`` (the build time, UTC) is the document's created and
     modified time and every zip entry's time, so equal inputs give equal bytes."""
-    wb = Workbook()
-    ws = wb.active
-    ws.title = "About"
-    _write_about(ws, about)
-    for sheet in sheets:
-        _write_table(wb.create_sheet(sheet.name), sheet, period)
     when = built.astimezone(dt.UTC).replace(tzinfo=None) if built.tzinfo else built
-    props = wb.properties
-    props.creator = f"reporter {__version__}"
-    props.lastModifiedBy = None
-    props.title = sheet_text(title) if title else None
-    props.created = props.modified = when
     buf = io.BytesIO()
-    ExcelWriter(wb, zipfile.ZipFile(buf, "w", zipfile.ZIP_DEFLATED)).save()
+    # constant_memory spools each sheet's rows to a file: in a folder of its own, removed
+    # whatever happens (XlsxWriter removes its files only when it closes the workbook)
+    with tempfile.TemporaryDirectory(prefix="reporter-xlsx-") as tmp:
+        wb = xlsxwriter.Workbook(buf, {"constant_memory": True, "tmpdir": tmp,
+                                       "strings_to_formulas": False, "strings_to_numbers": False,
+                                       "strings_to_urls": False})
+        fmt = _Formats(wb)
+        _write_about(wb.add_worksheet("About"), fmt, about)
+        for sheet in sheets:
+            _write_table(wb.add_worksheet(sheet.name), fmt, sheet, period)
+        props = {"author": f"reporter {__version__}", "created": when}
+        if title:
+            props["title"] = sheet_text(title)
+        wb.set_properties(props)
+        wb.close()
     return fixed_zip(buf.getvalue(), when)
 
 

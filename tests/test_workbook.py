@@ -243,6 +243,11 @@ def test_hostile_text_stays_text(tmp_path):
     assert ws.cell(row=6, column=4).value == 0.0 and ws.cell(row=7, column=4).value == 0.25
     assert wb["About"]["B1"].value == "=cmd|' /C calc'!A0"
     assert wb["About"]["B1"].data_type == "s"
+    # styled cells keep the quote prefix exactly where the text needs it
+    assert wb["About"]["B1"].quotePrefix and not wb["About"]["A1"].quotePrefix
+    assert wb["About"]["A1"].font.b and wb["About"]["A1"].alignment.wrap_text
+    assert wb["About"]["B2"].number_format == "yyyy-mm-dd"
+    assert ws["B2"].font.b and not ws["B2"].quotePrefix and ws["B1"].font.i
     with zipfile.ZipFile(io.BytesIO(data)) as z:
         xml = b"".join(z.read(n) for n in z.namelist() if n.startswith("xl/"))
     assert b"<f>" not in xml and b"<f " not in xml              # no formula anywhere
@@ -276,3 +281,17 @@ def test_fund_workbook_matches_its_csvs(tmp_path):
     about = {r[0].value: r[1].value for r in wb["About"].iter_rows()}
     assert any("own benchmark" in v for k, v in about.items() if k.startswith("Caution"))
     assert math.isfinite(port["beta_regression"])
+
+
+def test_text_past_a_cells_limit_is_cut_openly():
+    """A text longer than a cell holds (32,767 characters, Excel's specification) is cut
+    with a note saying so, never silently; a text at the limit is kept whole."""
+    from reporter.workbook import CUT_NOTE, Sheet, workbook_bytes
+
+    df = pd.DataFrame({"name": ["y" * 32767, "=" + "x" * 40000]})
+    data = workbook_bytes([], [Sheet("securities", df)], dt.datetime(2026, 11, 30))
+    ws = load_workbook(io.BytesIO(data))["securities"]
+    assert ws["A3"].value == "y" * 32767
+    cut = ws["A4"].value
+    assert len(cut) == 32767 and cut.endswith(CUT_NOTE) and cut.startswith("=xxx")
+    assert ws["A4"].data_type == "s" and ws["A4"].quotePrefix
