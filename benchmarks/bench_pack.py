@@ -175,8 +175,8 @@ def run_stages(folder: Path) -> dict:
     # the same editions with their charts, rendered alone as the floor is: what the charts
     # add to the PDF, without the results thread that shares the build's PDF stage
     charted = {}
-    _timed(charted, "pdf", lambda: [render_pdf(a.html(for_print=True, edition=e))
-                                    for e in EDITIONS])
+    with_charts = [a.html(for_print=True, edition=e) for e in EDITIONS]   # (not timed)
+    _timed(charted, "pdf", lambda: [render_pdf(h) for h in with_charts])
     pdf_rss = pdf_floor_rss(bare)
     return {"stages": t, "floors": floors, "peak_rss": peak_build,
             "stage_rss": progress.rss, "pdf_floor_rss": pdf_rss,

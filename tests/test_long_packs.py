@@ -121,7 +121,7 @@ def test_fit_cuts_with_an_ellipsis_and_pads():
     assert fit(None, 3) == "   " and fit(42, 4, ">") == "  42"
 
 
-def test_the_rolling_file_is_the_rolling_table_whatever_the_block_size():
+def test_the_rolling_file_is_the_rolling_table_whatever_the_block_size(monkeypatch):
     """The rolling-beta file is written from numpy arrays in blocks of series (the series
     column dictionary-encoded); any block size gives the same bytes, and they read back as
     the results' rolling table (reference: the csv module's reader), with ids that need
@@ -155,6 +155,14 @@ def test_the_rolling_file_is_the_rolling_table_whatever_the_block_size():
         write_rolling_csv(res, sink, block=3, widen=widen)
         outs.append(sink.getvalue())
     timer.join()
+    # betas made a few series at a time (500 in a build), blocks within and across chunks
+    import reporter.pipeline.results as results_module
+
+    monkeypatch.setattr(results_module, "MAKE", 4)
+    for block, widen in ((1, None), (3, None), (4, threading.Event()), (7, None)):
+        sink = io.BytesIO()
+        write_rolling_csv(res, sink, block=block, widen=widen)
+        outs.append(sink.getvalue())
     assert outs[1:] == outs[:-1]
     text = outs[0].decode()
     assert '"Odd, ""quoted"" id"' in text

@@ -183,15 +183,18 @@ class PackResults:
         """The rolling table's series ids, in order: ``PORTFOLIO``, then each holding."""
         return np.asarray((PORTFOLIO_SERIES,) + tuple(self.window.security_ids), dtype=object)
 
-    def rolling_arrays(self, cols: np.ndarray) -> tuple[np.ndarray, ...]:
+    def rolling_arrays(self, cols: np.ndarray, made: RollingBetas | None = None
+                       ) -> tuple[np.ndarray, ...]:
         """The rows of :attr:`rolling_table` for the series at positions ``cols`` of
         :meth:`rolling_ids` (ascending), as flat arrays: date index, position within
         ``cols``, beta, its standard error and the interval's ends. Only those holdings'
         betas are made (see :class:`~reporter.analytics.rolling.HoldingsRolling`), so that
-        writing the table in blocks of series never holds every holding's history."""
+        writing the table in blocks of series never holds every holding's history; or
+        ``made`` gives them (the holdings of ``cols``, in order), made for a larger block."""
         tcrit = float(t_critical(self.confidence, self.rolling.window - 2))
         with_port = bool(len(cols)) and cols[0] == 0
-        held = self.rolling.block(cols[1:] - 1 if with_port else cols - 1)
+        held = made if made is not None else self.rolling.block(
+            cols[1:] - 1 if with_port else cols - 1)
 
         def take(port: np.ndarray, holdings: np.ndarray) -> np.ndarray:
             return np.hstack([port, holdings]) if with_port else holdings

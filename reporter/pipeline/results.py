@@ -15,12 +15,15 @@ import pyarrow.csv as pacsv
 from reporter import __version__
 from reporter.analytics.allocation import allocation
 from reporter.analytics.pack import ROLLING_COLUMNS, PackResults
+from reporter.analytics.rolling import RollingBetas
 from reporter.csvsafe import csv_text, escape_array
 from reporter.jsonvalues import json_text
 from reporter.pipeline.fund import FundAssembled
 from reporter.pipeline.single import EDITION_FILES, Assembled
 from reporter.workbook import pack_workbook
 from reporter.writer import OutputSet
+
+MAKE = 500     # series whose rolling betas are made at once for the rolling file
 
 
 def write_rolling_csv(res: PackResults, sink, block: int = 100,
@@ -47,9 +50,29 @@ def write_rolling_csv(res: PackResults, sink, block: int = 100,
     quote = any(any(ch in sid for ch in ',"\r\n') for sid in ids)
     dates = pa.array(np.asarray(res.history_dates, dtype="datetime64[D]"), pa.date32())
 
+    made: dict[int, RollingBetas] = {}        # the betas of the chunks being written
+    making = threading.Lock()
+
+    def betas(cols: np.ndarray) -> RollingBetas:
+        # made MAKE series at a time: each is a loop over the dates in Python, and a loop
+        # over a block of 100 series held Python's lock about as long as one over 500
+        # (Large, beside the PDF: about a second of the PDF's time)
+        chunk = int(cols[0]) // MAKE
+        if int(cols[-1]) // MAKE != chunk:          # a block across chunks: made as it is
+            return res.rolling.block(cols[cols > 0] - 1)
+        with making:
+            if chunk not in made:
+                for old in [k for k in made if k < chunk - 1]:
+                    del made[old]                   # at most this chunk and the one before
+                whole = np.arange(chunk * MAKE, min((chunk + 1) * MAKE, len(ids)))
+                made[chunk] = res.rolling.block(whole[whole > 0] - 1)
+            got = made[chunk]
+        part = cols[cols > 0] - max(chunk * MAKE, 1)
+        return RollingBetas(got.window, got.beta[:, part], got.beta_se[:, part])
+
     def table(start: int) -> pa.Table:
         cols = np.arange(start, min(start + block, len(ids)))
-        t_idx, j_idx, *values = res.rolling_arrays(cols)
+        t_idx, j_idx, *values = res.rolling_arrays(cols, betas(cols))
         return pa.table({
             "date": dates.take(pa.array(t_idx)),
             "series": pa.DictionaryArray.from_arrays(pa.array(j_idx.astype(np.int32)),
