@@ -86,7 +86,7 @@ def finish_build(a: Assembled | FundAssembled, out: Path, progress: Progress, *,
     6.5 s without, at load 2). With ``release`` (a build, which has no further use for
     ``a``), ``a`` is consumed: the arrays nothing renders from (the window's returns, the
     covariance estimates) are released before the HTML, and the returns the rolling betas
-    are made from as soon as their file is written (see :func:`release_arrays`). A failure
+    are made from once every results file is written (see :func:`release_arrays`). A failure
     anywhere (an interrupt included) removes the staging folder at once; the results thread
     stops at its next write."""
     settings = a.settings
@@ -101,17 +101,10 @@ def finish_build(a: Assembled | FundAssembled, out: Path, progress: Progress, *,
 
     pdf_done = threading.Event()        # then the results thread may format on two threads
 
-    fund = isinstance(a, FundAssembled)     # a fund's rolling table is one of its results
-
-    def write_rolling() -> None:
-        rolling_file(a, files, widen=pdf_done)
-        if release and not fund:
-            release_arrays(a, rolling=True)
-
     files = OutputSet(open_staging(out))
     pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="results")
     try:
-        rolling = pool.submit(write_rolling)
+        rolling = pool.submit(rolling_file, a, files, pdf_done)
         with progress.stage("pdf"):
             pdf = {e: render_pdf(text, base_dir=settings.pack_dir,
                                  allowed=(settings.pack_dir,))
@@ -119,9 +112,9 @@ def finish_build(a: Assembled | FundAssembled, out: Path, progress: Progress, *,
         pdf_done.set()
         with progress.stage("write"):
             results_files(a, files, rolling=False)
-            if release and fund:
-                release_arrays(a, rolling=True)
             rolling.result()            # the rolling file, written meanwhile
+            if release:                 # (a fund's rolling table is one of its results)
+                release_arrays(a, rolling=True)
             pack_files(a, html, pdf, files)
             commit(files, out)
     except BaseException:
@@ -136,7 +129,7 @@ def finish_build(a: Assembled | FundAssembled, out: Path, progress: Progress, *,
 def release_arrays(a: Assembled | FundAssembled, rolling: bool = True) -> None:
     """Drop from ``a``'s results (every part of a fund) the arrays nothing needs once its
     charts, HTML and (with ``rolling``) results files are made: the window's T x N returns,
-    the two N x N covariance estimates and the T x N rolling betas and their errors. Their
+    the two N x N covariance estimates and the returns the rolling betas are made from. Their
     places keep empty arrays, and every other figure stays, so ``a`` can still render its
     HTML and summaries; :attr:`BuildReport.results` is these released results."""
     parts = (a.total, *a.parts) if isinstance(a, FundAssembled) else (a,)

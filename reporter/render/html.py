@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import base64
+import functools
 import re
 import threading
 from dataclasses import fields
@@ -29,11 +30,14 @@ def chart_svg(chart) -> str:
     return _XML_DECL.sub("", svg)
 
 
+@functools.cache
 def start_chart_engine() -> threading.Thread:
     """Start vl-convert's chart engine on a thread of its own (one tiny conversion) and
     return the thread. The engine's start, about 0.4-0.5 s once a process, runs outside
     Python's lock, so a build starts it before it reads its data and the chart stage finds
-    it ready. An error here is left for the chart stage's own export to report."""
+    it ready. Once a process: later builds in it (a batch worker, the preview) find the
+    engine running and get the same thread back. An error here is left for the chart
+    stage's own export to report."""
     spec = {"mark": "point", "data": {"values": [{"a": 1}]},
             "encoding": {"x": {"field": "a", "type": "quantitative"}}}
 
