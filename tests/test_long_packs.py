@@ -176,6 +176,48 @@ def test_the_rolling_file_is_the_rolling_table_whatever_the_block_size(monkeypat
     np.testing.assert_allclose(got, table.iloc[:, 2:].to_numpy(), rtol=0, atol=5.1e-11)
 
 
+def test_the_rolling_file_makes_each_chunk_of_betas_once_and_holds_one_beside_the_pdf(
+        monkeypatch):
+    """The rolling file's betas are made a chunk of series at a time and shared by the
+    chunk's blocks: each chunk is made once (in whatever order two formatting threads take
+    its blocks), and beside the PDF (one block at a time) a chunk is dropped before the next
+    is made, so one is held at a time."""
+    import gc
+    import weakref
+
+    import reporter.pipeline.results as results_module
+    from reporter.analytics.pack import analyse
+    from reporter.analytics.rolling import HoldingsRolling
+    from reporter.build import write_rolling_csv
+    from reporter.config import load_settings
+    from reporter.validate import validate_pack
+
+    settings = load_settings(REPO / "inputs" / "demo")
+    res = analyse(validate_pack(settings), settings)
+    n_holdings = res.rolling.n_series
+    monkeypatch.setattr(results_module, "MAKE", 4)
+    made = []                       # (first column, weak reference to its betas)
+    plain = HoldingsRolling.block
+
+    def block(self, cols):
+        out = plain(self, cols)
+        gc.collect()
+        alive = sum(ref() is not None for _, ref, _ in made)
+        made.append((int(cols[0]), weakref.ref(out.beta), alive))
+        return out
+
+    monkeypatch.setattr(HoldingsRolling, "block", block)
+    for widen in (None, threading.Event()):       # two threads; one, as beside the PDF
+        made.clear()
+        write_rolling_csv(res, io.BytesIO(), block=2, widen=widen)
+        firsts = [c for c, _, _ in made]
+        # ids' position 0 is the portfolio: chunk k is positions 4k to 4k + 3
+        assert sorted(firsts) == [0, *range(3, n_holdings, 4)]
+        assert len(set(firsts)) == len(firsts)          # no chunk made twice
+        if widen is not None:
+            assert max(alive for _, _, alive in made) == 0   # the one before already dropped
+
+
 def test_a_failing_sink_stops_the_rolling_file_with_its_error():
     """A write that fails (a full disk, or the build discarded) ends the file's writing with
     that error; the formatting threads stop, and nothing hangs."""

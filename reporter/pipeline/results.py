@@ -5,7 +5,7 @@ Nothing here touches the disk but through the :class:`~reporter.writer.OutputSet
 from __future__ import annotations
 
 import threading
-from collections import deque
+from collections import Counter, deque
 from concurrent.futures import Future, ThreadPoolExecutor
 
 import numpy as np
@@ -50,7 +50,12 @@ def write_rolling_csv(res: PackResults, sink, block: int = 100,
     quote = any(any(ch in sid for ch in ',"\r\n') for sid in ids)
     dates = pa.array(np.asarray(res.history_dates, dtype="datetime64[D]"), pa.date32())
 
+    n = len(ids)
     made: dict[int, RollingBetas] = {}        # the betas of the chunks being written
+    # each chunk is dropped once the last of its blocks has taken its part (blocks may be
+    # made in any order once two threads format them), so beside the PDF only one is held
+    left = Counter(s // MAKE for s in range(0, n, block)
+                   if (min(s + block, n) - 1) // MAKE == s // MAKE)
     making = threading.Lock()
 
     def betas(cols: np.ndarray) -> RollingBetas:
@@ -62,16 +67,17 @@ def write_rolling_csv(res: PackResults, sink, block: int = 100,
             return res.rolling.block(cols[cols > 0] - 1)
         with making:
             if chunk not in made:
-                for old in [k for k in made if k < chunk - 1]:
-                    del made[old]                   # at most this chunk and the one before
-                whole = np.arange(chunk * MAKE, min((chunk + 1) * MAKE, len(ids)))
+                whole = np.arange(chunk * MAKE, min((chunk + 1) * MAKE, n))
                 made[chunk] = res.rolling.block(whole[whole > 0] - 1)
             got = made[chunk]
+            left[chunk] -= 1
+            if not left[chunk]:
+                del made[chunk]
         part = cols[cols > 0] - max(chunk * MAKE, 1)
         return RollingBetas(got.window, got.beta[:, part], got.beta_se[:, part])
 
     def table(start: int) -> pa.Table:
-        cols = np.arange(start, min(start + block, len(ids)))
+        cols = np.arange(start, min(start + block, n))
         t_idx, j_idx, *values = res.rolling_arrays(cols, betas(cols))
         return pa.table({
             "date": dates.take(pa.array(t_idx)),
@@ -90,7 +96,7 @@ def write_rolling_csv(res: PackResults, sink, block: int = 100,
         write(start, out)
         return out.getvalue()
 
-    starts = deque(range(0, len(ids), block))
+    starts = deque(range(0, n, block))
     while widen is not None and starts and not widen.is_set():
         write(starts.popleft(), sink)           # beside the PDF: one block, no copy
     pending: deque[Future] = deque()
