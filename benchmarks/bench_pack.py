@@ -50,6 +50,10 @@ WORKLOADS = {  # name: (holdings, periods, frequency)
     "xl": (10000, 2520, "daily"),
 }
 QUICK_SKIPS = ("xl",)
+# fresh-process runs of each workload: the table shows the median run (by its whole-build
+# ratio), and every run's ratios are listed, each against the floors measured in that run;
+# one machine's speed moves 10-20 % between runs, so one run can meet or miss a target alone
+RUNS = {"small": 3, "large": 3, "xl": 1}
 # the issue's targets (issue 24): whole build against the sum of its floors, analytics
 # against its floor, what the charts add to the chart-free PDF, peak RSS in matrices above
 # the baseline, and an absolute ceiling on peak RSS
@@ -349,8 +353,10 @@ def table(results: dict[str, dict], batch_result: dict | None,
           load: tuple[float, float] | None = None, base_rss: int | None = None) -> str:
     lines = [f"Machine: {platform.machine()}, {os.cpu_count()} cores, Python "
              f"{platform.python_version()}, {platform.system()} {platform.release()}.",
-             f"Run on {time.strftime('%Y-%m-%d', time.gmtime())}; one run of each stage "
-             "(machines are noisy: read the ratios, not the seconds)."
+             f"Run on {time.strftime('%Y-%m-%d', time.gmtime())}. Each workload is built "
+             "in fresh processes (see RUNS; the table shows the median run, and a last line "
+             "every run's ratios), each stage once a run, its floors measured in the same "
+             "process (machines are noisy: read the ratios, not the seconds)."
              + (f" Load average (1 min) {load[0]:.1f} at the start and {load[1]:.1f} at the "
                 "end: other work on the machine slows every figure." if load else ""), ""]
     if base_rss:
@@ -397,9 +403,34 @@ def table(results: dict[str, dict], batch_result: dict | None,
     return "\n".join(lines)
 
 
+def ratios(r: dict, base_rss: int | None) -> dict[str, float]:
+    """One run's figures against its own floors: the whole build, the analytics, what the
+    charts add to the chart-free PDFs (measured alone) and the peak RSS above the baseline
+    in matrices (NaN without a baseline or a charted PDF)."""
+    s, f = r["stages"], r["floors"]
+    nan = float("nan")
+    return {
+        "whole": sum(s.values()) / sum(f.values()),
+        "analytics": s["analytics"] / f["analytics"],
+        "charts": ((s["charts"] + r["pdf_with_charts"] - f["pdf"]) / f["pdf"]
+                   if "pdf_with_charts" in r else nan),
+        "matrices": ((r["peak_rss"] - base_rss) / r["matrix_bytes"] if base_rss else nan)}
+
+
+def median_run(runs: list[dict], base_rss: int | None) -> dict:
+    """The run whose whole-build ratio is the median of ``runs`` (the lower middle one of an
+    even number), with every run's :func:`ratios` under ``"runs"`` when there are several."""
+    order = sorted(range(len(runs)), key=lambda i: ratios(runs[i], base_rss)["whole"])
+    mid = dict(runs[order[(len(runs) - 1) // 2]])
+    if len(runs) > 1:
+        mid["runs"] = [ratios(r, base_rss) for r in runs]
+    return mid
+
+
 def target_lines(name: str, r: dict, base_rss: int | None) -> list[str]:
     """Each of the issue's targets for workload ``name`` as a ratio, with its target beside
-    it (and "met" or "missed"), or the plain figure where the workload has no target."""
+    it (and "met" or "missed"), or the plain figure where the workload has no target; with
+    several runs (``r["runs"]``, see :func:`median_run`), a last line gives each run's."""
     s, f, want = r["stages"], r["floors"], TARGETS.get(name, {})
 
     def verdict(value: float, key: str, fmt: str) -> str:
@@ -409,15 +440,15 @@ def target_lines(name: str, r: dict, base_rss: int | None) -> list[str]:
         return f"; target at most {format(want[key], fmt)} ({ok})"
 
     total, floor_sum = sum(s.values()), sum(f.values())
-    whole = total / floor_sum
-    analytics = s["analytics"] / f["analytics"]
+    got = ratios(r, base_rss)
+    whole, analytics, charts, above = (got[k] for k in ("whole", "analytics", "charts",
+                                                         "matrices"))
     in_build = (s["charts"] + s["pdf"] - f["pdf"]) / f["pdf"]
     out = [f"whole build {total:.2f} s = {whole:.2f} x the sum of the floors "
            f"({floor_sum:.2f} s){verdict(whole, 'whole', '.1f')}",
            f"analytics {s['analytics']:.2f} s = {analytics:.1f} x its floor "
            f"({f['analytics']:.2f} s){verdict(analytics, 'analytics', '.1f')}"]
     if "pdf_with_charts" in r:
-        charts = (s["charts"] + r["pdf_with_charts"] - f["pdf"]) / f["pdf"]
         out.append(f"charts (their export, {s['charts']:.2f} s, + both editions' PDFs with "
                    f"charts, {r['pdf_with_charts']:.2f} s, rendered alone as the floor is) add "
                    f"{charts:+.0%} to the chart-free PDFs of both editions "
@@ -427,7 +458,6 @@ def target_lines(name: str, r: dict, base_rss: int | None) -> list[str]:
                f"chart-free PDFs")
     peak, matrix = r["peak_rss"], r["matrix_bytes"]
     if base_rss:
-        above = (peak - base_rss) / matrix
         out.append(f"peak RSS {peak / 1e6:.0f} MB = the baseline ({base_rss / 1e6:.0f} MB) + "
                    f"{(peak - base_rss) / 1e6:.0f} MB = + {above:.1f} x the float64 return "
                    f"matrix ({matrix / 1e6:.3g} MB){verdict(above, 'matrices', '.0f')}")
@@ -444,6 +474,14 @@ def target_lines(name: str, r: dict, base_rss: int | None) -> list[str]:
         out.append(f"peak RSS {peak / 1e9:.2f} GB = {share:.2f} x the ceiling of "
                    f"{want['peak_bytes'] / 1e9:.0f} GB; target at most 1.00 "
                    f"({'met' if share <= 1 else 'missed'})")
+    if len(r.get("runs", [])) > 1:
+        def each(key: str, fmt: str) -> str:
+            return ", ".join(format(run[key], fmt) for run in r["runs"])
+
+        out.append(f"the {len(r['runs'])} runs (the table shows the median one), each against "
+                   f"its own floors: whole build {each('whole', '.2f')} x; analytics "
+                   f"{each('analytics', '.1f')} x; charts {each('charts', '+.0%')}; peak RSS "
+                   f"above the baseline {each('matrices', '.1f')} x the matrix")
     return out
 
 
@@ -466,6 +504,8 @@ def main() -> None:
     ap.add_argument("--baseline", action="store_true", help=argparse.SUPPRESS)
     ap.add_argument("baseline_html", nargs="?", help=argparse.SUPPRESS)
     ap.add_argument("--batch-schemes", type=int, default=8)
+    ap.add_argument("--runs", type=int, default=0,
+                    help="fresh-process runs of every workload (default: RUNS, 3 or 1)")
     ap.add_argument("--investigate", action="store_true",
                     help="time WeasyPrint on variants of the pack (with --workloads NAME)")
     ap.add_argument("--out", type=Path, default=HERE.parent / "BENCHMARKS.md")
@@ -499,7 +539,8 @@ def main() -> None:
     base = baseline()
     results = {}
     for name in (w for w in wanted if w in WORKLOADS):
-        results[name] = single(name)
+        results[name] = median_run([single(name) for _ in range(args.runs or RUNS[name])],
+                                   base)
         print(f"{name}: done", file=sys.stderr, flush=True)
     batch_result = batch(args.batch_schemes) if "batch" in wanted else None
     text = table(results, batch_result, (load_start, os.getloadavg()[0]), base)

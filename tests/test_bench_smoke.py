@@ -88,6 +88,29 @@ def test_memory_baseline_and_targets_are_reported_as_ratios(small):
     assert f"peaks at {base / 1e6:.0f} MB" in text and "0.5 at the start and 0.7" in text
 
 
+def test_several_runs_show_the_median_one_and_list_every_run(small):
+    """Of three runs, the table shows the one whose whole-build ratio is the median, and a
+    last line gives each run's ratios against its own floors (a noisy run alone can meet
+    or miss a target)."""
+    base = 300e6
+    f = small["floors"]
+    runs = [{**small, "stages": {**small["stages"], "analytics": k * sum(f.values())},
+             "peak_rss": base + m * small["matrix_bytes"]}
+            for k, m in ((5, 4.0), (1, 2.0), (9, 7.0))]
+    shown = bench_pack.median_run(runs, base)
+    assert shown["stages"]["analytics"] == runs[0]["stages"]["analytics"]
+    wholes = sorted(bench_pack.ratios(r, base)["whole"] for r in runs)
+    assert bench_pack.ratios(shown, base)["whole"] == wholes[1]
+    assert wholes[0] < wholes[1] < wholes[2]
+    last = bench_pack.target_lines("small", shown, base)[-1]
+    assert last.startswith("the 3 runs (the table shows the median one)")
+    assert "above the baseline 4.0, 2.0, 7.0 x the matrix" in last
+    each = ", ".join(format(bench_pack.ratios(r, base)["whole"], ".2f") for r in runs)
+    assert f"whole build {each} x" in last
+    assert "runs" not in bench_pack.median_run(runs[:1], base)     # one run: no such line
+    assert bench_pack.RUNS["large"] == 3 and bench_pack.RUNS["xl"] == 1
+
+
 def test_quick_mode_skips_xl_only():
     assert bench_pack.WORKLOADS["xl"][:2] == (10_000, 2_520)
     assert bench_pack.QUICK_SKIPS == ("xl",)
