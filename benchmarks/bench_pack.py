@@ -297,20 +297,30 @@ def pdf_floor_rss(html: str) -> int:
         return baseline(path)
 
 
-def child(name: str, folder: Path, study: bool = False) -> None:
+def make_workload(name: str, folder: Path) -> None:
+    """Write workload ``name``'s invented scheme into ``folder`` (see :mod:`workloads`)."""
     n, periods, freq = WORKLOADS[name]
     write_scheme(folder, n, periods, freq, seed=7, label=name[:1].upper(),
                  window=periods if freq == "daily" else None)
+
+
+def child(name: str, folder: Path, study: bool = False) -> None:
     repeat = 3 if name == "small" else 1
     print(json.dumps(investigate(folder, repeat) if study else run_stages(folder)))
 
 
-def single(name: str, study: bool = False) -> dict:
+def single(name: str, study: bool = False, runs: int = 1) -> list[dict]:
+    """``runs`` measurements of workload ``name``, each in a fresh process. The scheme is
+    written once, in a process of its own: written by the measuring process, its peak (574
+    MB for Large, more than most of the build's stages) and the heap it left behind were
+    counted in the build's peak RSS."""
     with tempfile.TemporaryDirectory() as tmp:
-        out = subprocess.run([sys.executable, __file__, "--child", name, tmp]
-                             + (["--investigate"] if study else []),
-                             capture_output=True, text=True, check=True)
-    return json.loads(out.stdout.strip().splitlines()[-1])
+        subprocess.run([sys.executable, __file__, "--make", name, tmp], check=True)
+        outs = [subprocess.run([sys.executable, __file__, "--child", name, tmp]
+                               + (["--investigate"] if study else []),
+                               capture_output=True, text=True, check=True)
+                for _ in range(runs)]
+    return [json.loads(out.stdout.strip().splitlines()[-1]) for out in outs]
 
 
 def batch(n_schemes: int) -> dict:
@@ -322,7 +332,7 @@ def batch(n_schemes: int) -> dict:
     from reporter.batch import build_all
 
     cores = os.cpu_count() or 1
-    small = single("small")
+    small = single("small")[0]
     out = {"n_schemes": n_schemes, "per_scheme": {}, "small_whole": sum(
         small["stages"].values())}
     with tempfile.TemporaryDirectory() as tmp:
@@ -498,6 +508,7 @@ def workload_problems(workloads: str) -> str:
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--child", nargs=2, metavar=("WORKLOAD", "DIR"))
+    ap.add_argument("--make", nargs=2, metavar=("WORKLOAD", "DIR"), help=argparse.SUPPRESS)
     ap.add_argument("--workloads", default="small,large,xl,batch")
     ap.add_argument("--quick", action="store_true",
                     help=f"skip the long workloads ({', '.join(QUICK_SKIPS)})")
@@ -525,9 +536,12 @@ def main() -> None:
     if args.child:
         child(args.child[0], Path(args.child[1]), args.investigate)
         return
+    if args.make:
+        make_workload(args.make[0], Path(args.make[1]))
+        return
     if args.investigate:
         for name in (w for w in args.workloads.split(",") if w in WORKLOADS):
-            r = single(name, study=True)
+            r = single(name, study=True)[0]
             print(f"### Where WeasyPrint spends its time: {name}\n")
             print("| variant | seconds | PDF bytes |\n| --- | ---: | ---: |")
             for label, sec in r["times"].items():
@@ -539,8 +553,7 @@ def main() -> None:
     base = baseline()
     results = {}
     for name in (w for w in wanted if w in WORKLOADS):
-        results[name] = median_run([single(name) for _ in range(args.runs or RUNS[name])],
-                                   base)
+        results[name] = median_run(single(name, runs=args.runs or RUNS[name]), base)
         print(f"{name}: done", file=sys.stderr, flush=True)
     batch_result = batch(args.batch_schemes) if "batch" in wanted else None
     text = table(results, batch_result, (load_start, os.getloadavg()[0]), base)

@@ -5,6 +5,7 @@ and consistent.)"""
 from __future__ import annotations
 
 import sys
+from pathlib import Path
 
 import pytest
 
@@ -109,6 +110,30 @@ def test_several_runs_show_the_median_one_and_list_every_run(small):
     assert f"whole build {each} x" in last
     assert "runs" not in bench_pack.median_run(runs[:1], base)     # one run: no such line
     assert bench_pack.RUNS["large"] == 3 and bench_pack.RUNS["xl"] == 1
+
+
+def test_the_scheme_is_written_once_by_a_process_that_is_not_measured(monkeypatch, tmp_path):
+    """The workload's data is made by a process of its own (its peak, 574 MB for Large, was
+    counted in the build's peak when the measuring process made it), once for every run;
+    each run is a fresh process reading that folder."""
+    calls = []
+
+    class Done:
+        stdout = '{"run": 1}\n'
+
+    def run(cmd, **kwargs):
+        calls.append(cmd[2:])
+        if cmd[2] == "--make":
+            bench_pack.make_workload(cmd[3], Path(cmd[4]))
+            assert (Path(cmd[4]) / "pack.toml").is_file()
+        return Done()
+
+    monkeypatch.setattr(bench_pack.subprocess, "run", run)
+    got = bench_pack.single("small", runs=3)
+    assert got == [{"run": 1}] * 3
+    assert [c[0] for c in calls] == ["--make", "--child", "--child", "--child"]
+    assert len({c[2] for c in calls}) == 1              # one folder, made once
+    assert not Path(calls[0][2]).exists()               # and removed afterwards
 
 
 def test_quick_mode_skips_xl_only():
