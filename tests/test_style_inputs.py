@@ -78,6 +78,58 @@ def test_constant_factor_column_is_named(tmp_path, capsys):
                      "column"]
 
 
+def test_a_factor_that_repeats_another_is_named(tmp_path, capsys):
+    """A factor that is a combination of the market and the factors before it would leave
+    every factor figure empty (the design is singular for every holding): one line naming
+    the file and the column, exit 2, nothing written."""
+    p = style_pack()
+    for row in p.rows("factors.csv"):
+        row[2] = f"{2 * float(row[1]) - 0.001:.6f}"      # value = 2 size - 0.1%
+    lines = _bad(tmp_path, p, capsys)
+    assert len(lines) == 1
+    assert lines[0].startswith("factors.csv:value: factor 'value' is a linear combination of "
+                               "the market proxy's excess return and the factors before it "
+                               "over the window's 24 periods")
+    assert lines[0].endswith("remove the column or check its values")
+
+
+def test_factor_separability_uses_the_fitting_own_threshold():
+    """The check names the first factor that adds nothing to the market and the factors
+    before it, with the fitting's singularity bound (cond(X'X) >= 1e12, as masked_ols);
+    a design it passes gets every coefficient from masked_ols."""
+    from types import SimpleNamespace
+
+    from reporter.analytics.beta_variants import SINGULAR_COND, masked_ols
+    from reporter.analytics.style import _require_separable_factors
+    from reporter.errors import InputError
+
+    rng = np.random.default_rng(3)
+    x = rng.normal(0.005, 0.04, 60)
+    f1, f2 = rng.normal(0, 0.02, 60), rng.normal(0, 0.02, 60)
+    settings = SimpleNamespace(inputs={})
+    with pytest.raises(InputError) as err:       # the first factor is 1.5 x the market + c
+        _require_separable_factors(x, np.column_stack([1.5 * x + 0.001, f1]), ("a", "b"),
+                                   settings)
+    text = str(err.value.problems[0])
+    assert "factors:a: factor 'a' is a linear combination of the market proxy's excess " \
+        "return over" in text
+    F = np.column_stack([f1, f2])
+    _require_separable_factors(x, F, ("a", "b"), settings)          # independent: passes
+    y = (0.8 * x + 0.3 * f1 - 0.2 * f2)[:, None] + rng.normal(0, 0.01, (60, 4))
+    coef, _, _ = masked_ols(y, np.column_stack([np.ones(60), x, F]), 24)
+    assert np.isfinite(coef).all()
+    # almost collinear, just inside the bound, passes; past it, named
+    assert SINGULAR_COND == 1e12
+    X = np.column_stack([np.ones(60), x, f1])
+    near = f1 + 1e-3 * f2
+    assert np.linalg.cond(np.column_stack([X, near]).T @ np.column_stack([X, near])) < 1e12
+    _require_separable_factors(x, np.column_stack([f1, near]), ("a", "b"), settings)
+    far = f1 + 1e-9 * f2
+    with pytest.raises(InputError, match="factor 'b' is a linear combination of the market "
+                       "proxy's excess return and the factors before it"):
+        _require_separable_factors(x, np.column_stack([f1, far]), ("a", "b"), settings)
+
+
 def test_benchmark_sector_weights_not_summing_to_one(tmp_path, capsys):
     p = style_pack()
     p.rows("benchmark_sectors.csv")[4 * 9 + 3][2] = "0.050000"   # 2024-10-31, Utilities

@@ -63,6 +63,11 @@ def vasicek_beta(beta: np.ndarray, beta_se: np.ndarray, prior: str = "holdings")
 
 # --------------------------------------------------------------------------- multi-regressor
 
+# a design whose cross-product matrix X'X has a condition number at least this is singular:
+# its coefficients are not estimated (cond(X'X) = cond(X)^2, so X's columns are then
+# independent to about six digits at most; common practice for double precision)
+SINGULAR_COND = 1e12
+
 def masked_ols(y: np.ndarray | None, X: np.ndarray, min_obs: int,
                prep: Prepared | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """OLS of every column of ``y`` (T x N, NaN = missing) on the common regressors ``X``
@@ -95,7 +100,7 @@ def masked_ols(y: np.ndarray | None, X: np.ndarray, min_obs: int,
     eye = np.eye(k)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         safe = np.where(ok[:, None, None], xtx, eye)
-        ok &= np.linalg.cond(safe) < 1e12
+        ok &= np.linalg.cond(safe) < SINGULAR_COND
         safe = np.where(ok[:, None, None], xtx, eye)
         inv = np.linalg.inv(safe)
         coef = np.einsum("jkl,jl->jk", inv, np.where(ok[:, None], xty, 0.0))

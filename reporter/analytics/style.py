@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from reporter.analytics.attribution import Attribution, SectorBenchmark, attribute
+from reporter.analytics.beta_variants import SINGULAR_COND
 from reporter.analytics.factors import (
     FactorFits,
     FactorGRS,
@@ -21,6 +22,7 @@ from reporter.analytics.factors import (
 from reporter.analytics.market_model import Prepared
 from reporter.analytics.results import PackResults
 from reporter.analytics.returns import period_keys
+from reporter.errors import InputError, Problem, place
 
 SUFFIXES = ("", "_se", "_t", "_ci_low", "_ci_high")
 
@@ -127,6 +129,31 @@ def _weights_on_window(frame: pd.DataFrame, keys: np.ndarray, ids: tuple[str, ..
     return wide.to_numpy(float)[np.maximum(pos, 0)]
 
 
+def _require_separable_factors(x: np.ndarray, F: np.ndarray, names: tuple[str, ...],
+                               settings) -> None:
+    """Every factor must carry something that the market's excess return ``x`` and the
+    factors before it do not, over the window's periods where all of them have a value.
+    Otherwise the design [1, x, F] is singular for every holding and the portfolio, and
+    the factor model would leave every figure empty: bad input, named here instead. The
+    test is the fitting's own (:data:`SINGULAR_COND` on X'X), applied as each factor is
+    added, so the first factor that adds nothing is the one named."""
+    rows = np.isfinite(x) & np.isfinite(F).all(axis=1)
+    X = np.column_stack([np.ones(int(rows.sum())), x[rows], F[rows]])
+    for j, name in enumerate(names):
+        part = X[:, :j + 3]
+        cond = float(np.linalg.cond(part.T @ part)) if len(part) else np.inf
+        if not cond < SINGULAR_COND:
+            spec = settings.inputs.get("factors")
+            before = " and the factors before it" if j else ""
+            raise InputError([Problem(
+                place(spec.display if spec is not None else "factors", None, name),
+                f"factor {name!r} is a linear combination of the market proxy's excess "
+                f"return{before} over the window's {len(part)} periods (the regression's "
+                f"cross-product matrix has condition number {cond:.1e}), so the factor "
+                "model cannot tell them apart and would leave every factor figure empty; "
+                "remove the column or check its values")])
+
+
 def analyse_style(res: PackResults, holdings: pd.DataFrame, settings, style: StyleInputs
                   ) -> tuple[PackResults, StyleResults | None]:
     """The factor model (every holding and the portfolio, same periods and gap rules as the
@@ -142,6 +169,7 @@ def analyse_style(res: PackResults, holdings: pd.DataFrame, settings, style: Sty
     if style.factors is not None:
         f = style.factors
         F = _on_window(keys, period_keys(f.dates, settings.frequency), f.values)
+        _require_separable_factors(x, F, f.names, settings)
         prep = Prepared.of(y, x)
         args = (f.names, settings.min_obs, settings.errors, settings.hac_lags,
                 settings.confidence)
