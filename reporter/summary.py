@@ -9,9 +9,9 @@ import numpy as np
 
 from reporter.analytics.pack import build_window
 from reporter.config import Settings, load_settings
+from reporter.config.schema import INPUT_ROLES
 from reporter.errors import Problem
-from reporter.fund_inputs import validate_fund
-from reporter.validate import read_inputs, validate_pack
+from reporter.pipeline.assemble import CheckedInputs, checked_inputs
 
 
 @dataclass(frozen=True)
@@ -21,11 +21,14 @@ class CheckSummary:
 
 
 def check_pack(pack: Path | str, strict: bool = False) -> CheckSummary:
-    """Validate ``pack`` and describe holdings, dates, coverage and warnings."""
+    """Check ``pack``'s inputs as a build does (every input, the optional files, the earlier
+    pack, the commentary and the action log: :func:`checked_inputs`) and describe
+    holdings, dates, coverage and warnings. Nothing is computed beyond the window."""
     settings = load_settings(pack)
-    if settings.is_fund:
-        return _check_fund(settings, strict)
-    inputs = validate_pack(settings, strict=strict)
+    checked = checked_inputs(settings, strict=strict)
+    if checked.fund is not None:
+        return _check_fund(settings, checked)
+    inputs = checked.parts[0].inputs
     win = build_window(inputs, settings)
     h = inputs.holdings
     n_obs = np.isfinite(win.returns).sum(axis=0)
@@ -43,15 +46,24 @@ def check_pack(pack: Path | str, strict: bool = False) -> CheckSummary:
         f"window: {win.n_periods} {settings.frequency} periods, {win.dates[0]} to {win.dates[-1]}",
         f"coverage: {full} holding(s) with the full window, {short} below min_obs "
         f"({settings.min_obs}) and not to be fitted",
-        f"warnings: {len(inputs.warnings)}",
+        *_optional_lines(settings),
+        f"warnings: {len(checked.warnings)}",
         "ok: the inputs pass every check",
     ]
-    return CheckSummary(text="\n".join(lines), warnings=inputs.warnings)
+    return CheckSummary(text="\n".join(lines), warnings=checked.warnings)
 
 
-def _check_fund(settings: Settings, strict: bool) -> CheckSummary:
+def _optional_lines(settings: Settings) -> list[str]:
+    """One line naming the input files beyond the four tables that were checked too, if any."""
+    others = [r for r in settings.inputs if r not in INPUT_ROLES]
+    if not others:
+        return []
+    return ["other inputs checked: " + ", ".join(settings.inputs[r].display for r in others)]
+
+
+def _check_fund(settings: Settings, checked: CheckedInputs) -> CheckSummary:
     """``reporter check`` for a fund: the total fund and one line per mandate."""
-    fin = validate_fund(settings, *read_inputs(settings), strict=strict)
+    fin = checked.fund
     win = build_window(fin.total, settings)
     lines = [
         f"pack: {settings.title} ({settings.organisation}), period ending {settings.period_end}",
@@ -62,7 +74,8 @@ def _check_fund(settings: Settings, strict: bool) -> CheckSummary:
           f"{m.weight:.1%} (strategic {m.mandate.strategic_weight:.1%}), benchmark "
           f"{m.benchmark_name}" for m in fin.mandates),
         f"window: {win.n_periods} {settings.frequency} periods, {win.dates[0]} to {win.dates[-1]}",
-        f"warnings: {len(fin.warnings)}",
+        *_optional_lines(settings),
+        f"warnings: {len(checked.warnings)}",
         "ok: the inputs pass every check",
     ]
-    return CheckSummary(text="\n".join(lines), warnings=fin.warnings)
+    return CheckSummary(text="\n".join(lines), warnings=checked.warnings)

@@ -130,6 +130,28 @@ def test_factor_separability_uses_the_fitting_own_threshold():
         _require_separable_factors(x, np.column_stack([f1, far]), ("a", "b"), settings)
 
 
+def test_check_reads_the_optional_files_as_the_build_does(tmp_path, capsys):
+    """``reporter check`` checks the optional files too, with the build's own lines: it had
+    read only the four tables and said "ok: the inputs pass every check" over a factors
+    file the build then refused."""
+    p = style_pack()
+    folder = tmp_path / "pack"
+    write_pack(p, folder)
+    assert main(["check", str(folder)]) == 0
+    out = capsys.readouterr().out
+    assert "other inputs checked: factors.csv, benchmark_sectors.csv" in out
+    assert out.rstrip().endswith("ok: the inputs pass every check")
+    del p.rows("factors.csv")[10]          # as in test_factor_file_missing_a_window_period
+    write_pack(p, folder)
+    assert main(["check", str(folder)]) == 2
+    err = capsys.readouterr().err
+    assert "Traceback" not in err
+    lines = [line for line in err.splitlines()[:-1] if line.strip()]
+    assert lines == ["factors.csv:12:date: the factors file misses the window's period of "
+                     "2024-11-30 (missing before this row)"]
+    assert lines == _bad(tmp_path, p, capsys)        # the build's own line
+
+
 def test_benchmark_sector_weights_not_summing_to_one(tmp_path, capsys):
     p = style_pack()
     p.rows("benchmark_sectors.csv")[4 * 9 + 3][2] = "0.050000"   # 2024-10-31, Utilities
