@@ -8,6 +8,7 @@ from pathlib import Path
 import numpy as np
 
 from reporter.analytics.pack import build_window
+from reporter.analytics.style import factors_on_window
 from reporter.config import Settings, load_settings
 from reporter.config.schema import INPUT_ROLES
 from reporter.errors import Problem
@@ -28,8 +29,12 @@ def check_pack(pack: Path | str, strict: bool = False) -> CheckSummary:
     checked = checked_inputs(settings, strict=strict)
     if checked.fund is not None:
         return _check_fund(settings, checked)
-    inputs = checked.parts[0].inputs
+    part = checked.parts[0]
+    inputs = part.inputs
     win = build_window(inputs, settings)
+    if part.style is not None and part.style.factors is not None:
+        # the one check of the factors that needs the window's market: as the build runs it
+        factors_on_window(win.dates, win.market_excess, part.style.factors, settings)
     h = inputs.holdings
     n_obs = np.isfinite(win.returns).sum(axis=0)
     full = int((n_obs == win.n_periods).sum())

@@ -91,6 +91,10 @@ def test_a_factor_that_repeats_another_is_named(tmp_path, capsys):
                                "the market proxy's excess return and the factors before it "
                                "over the window's 24 periods")
     assert lines[0].endswith("remove the column or check its values")
+    # reporter check runs the same test on the window's market, with the same line
+    assert main(["check", str(tmp_path / "pack")]) == 2
+    err = capsys.readouterr().err
+    assert [line for line in err.splitlines()[:-1] if line.strip()] == lines
 
 
 def test_factor_separability_uses_the_fitting_own_threshold():

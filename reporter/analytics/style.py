@@ -154,6 +154,18 @@ def _require_separable_factors(x: np.ndarray, F: np.ndarray, names: tuple[str, .
                 "remove the column or check its values")])
 
 
+def factors_on_window(dates: np.ndarray, market_excess: np.ndarray, factors: FactorReturns,
+                      settings) -> np.ndarray:
+    """The factors' returns on the window's ``dates`` (T x K, NaN where absent), once
+    :func:`_require_separable_factors` has found each of them separable from the market's
+    excess return and the factors before it (else :class:`InputError`). The factor model's
+    own first step, and what ``reporter check`` runs of it."""
+    F = _on_window(period_keys(dates, settings.frequency),
+                   period_keys(factors.dates, settings.frequency), factors.values)
+    _require_separable_factors(market_excess, F, factors.names, settings)
+    return F
+
+
 def analyse_style(res: PackResults, holdings: pd.DataFrame, settings, style: StyleInputs
                   ) -> tuple[PackResults, StyleResults | None]:
     """The factor model (every holding and the portfolio, same periods and gap rules as the
@@ -168,8 +180,7 @@ def analyse_style(res: PackResults, holdings: pd.DataFrame, settings, style: Sty
     hold = port = grs = means = None
     if style.factors is not None:
         f = style.factors
-        F = _on_window(keys, period_keys(f.dates, settings.frequency), f.values)
-        _require_separable_factors(x, F, f.names, settings)
+        F = factors_on_window(win.dates, x, f, settings)
         prep = Prepared.of(y, x)
         args = (f.names, settings.min_obs, settings.errors, settings.hac_lags,
                 settings.confidence)
