@@ -68,6 +68,7 @@ def vasicek_beta(beta: np.ndarray, beta_se: np.ndarray, prior: str = "holdings")
 # independent to about six digits at most; common practice for double precision)
 SINGULAR_COND = 1e12
 
+
 def masked_ols(y: np.ndarray | None, X: np.ndarray, min_obs: int,
                prep: Prepared | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """OLS of every column of ``y`` (T x N, NaN = missing) on the common regressors ``X``
