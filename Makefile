@@ -44,9 +44,7 @@ demo: $(STAMP)
 	$(BIN)/reporter build inputs/demo-fund --out build/demo-fund
 	rm -rf $(DEMO_RUN) && mkdir -p $(DEMO_RUN)
 	for p in $(DEMO_PERIODS); do \
-	  mkdir -p $(DEMO_RUN)/inputs-$$p && cp inputs/demo/*.csv $(DEMO_RUN)/inputs-$$p/ && \
-	  sed "s/^period_end = .*/period_end = $$p/" inputs/demo/pack.toml \
-	    > $(DEMO_RUN)/inputs-$$p/pack.toml && \
+	  $(BIN)/python -m reporter.demo_redate inputs/demo $(DEMO_RUN)/inputs-$$p $$p && \
 	  $(BIN)/reporter build $(DEMO_RUN)/inputs-$$p --out $(DEMO_RUN)/build-$$p --quiet && \
 	  $(BIN)/reporter sign-off $(DEMO_RUN)/build-$$p --archive $(DEMO_RUN)/archive \
 	    $(SIGNER) --minute-ref IC-$$p --quiet || exit 1; \
