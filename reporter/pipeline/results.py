@@ -58,13 +58,13 @@ def write_rolling_csv(res: PackResults, sink, block: int = 100,
                    if (min(s + block, n) - 1) // MAKE == s // MAKE)
     making = threading.Lock()
 
-    def betas(cols: np.ndarray) -> RollingBetas:
+    def betas(cols: np.ndarray) -> RollingBetas | None:
         # made MAKE series at a time: each is a loop over the dates in Python, and a loop
         # over a block of 100 series held Python's lock about as long as one over 500
         # (Large, beside the PDF: about a second of the PDF's time)
         chunk = int(cols[0]) // MAKE
-        if int(cols[-1]) // MAKE != chunk:          # a block across chunks: made as it is
-            return res.rolling.block(cols[cols > 0] - 1)
+        if int(cols[-1]) // MAKE != chunk:          # a block across chunks: None, so that
+            return None                             # rolling_arrays makes its own betas
         with making:
             if chunk not in made:
                 whole = np.arange(chunk * MAKE, min((chunk + 1) * MAKE, n))
