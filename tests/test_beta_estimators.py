@@ -266,3 +266,25 @@ def test_beta_invariance_properties(x, noise, beta, rf_shift, scale):
     np.testing.assert_allclose(scaled.beta, scale * base.beta, rtol=1e-7, atol=1e-9)
     # a near-perfect fit leaves ~1e-8 of rounding in the closed-form residual sum
     np.testing.assert_allclose(scaled.beta_se, scale * base.beta_se, rtol=1e-6, atol=1e-7)
+
+
+def test_scholes_williams_from_shared_matrices_matches_its_own(french):
+    # with the analysis' prepared matrices (mask of y and the market, zero-filled y) the
+    # rows outside the lag/lead-complete periods are weighted out instead of masked: the
+    # same slopes to rounding, on a panel with every kind of gap, with and without the
+    # period before the window; and each still the statsmodels slopes of the direct formula
+    y, x = panel(french, 240)
+    _, x_long = panel(french, 241)
+    for before in (None, x_long[:1]):
+        own = scholes_williams_beta(y, x, 24, before=before)
+        shared = scholes_williams_beta(y, x, 24, before=before, prep=Prepared.of(y, x))
+        np.testing.assert_allclose(shared, own, rtol=1e-12)
+        assert np.isfinite(shared).all()
+    lag, lead = shift(x, 1), shift(x, -1)
+    rho = np.corrcoef(x[1:], x[:-1])[0, 1]
+    got = scholes_williams_beta(y, x, 24, prep=Prepared.of(y, x))
+    for j in (1, 2, 4):                                   # holed, late start, suspended
+        rows = np.isfinite(y[:, j]) & np.isfinite(lag) & np.isfinite(lead)
+        b = [sm.OLS(y[rows, j], sm.add_constant(z[rows])).fit().params[1]
+             for z in (lag, x, lead)]
+        np.testing.assert_allclose(got[j], sum(b) / (1 + 2 * rho), rtol=1e-9)

@@ -10,6 +10,7 @@ import pytest
 import statsmodels.api as sm
 from scipy import stats
 
+from reporter.analytics.market_model import Prepared
 from reporter.analytics.sml import cross_sectional_test, fama_macbeth, grs_test
 
 ASSETS = ["NoDur", "Durbl", "Manuf", "Enrgy", "Chems", "BusEq", "Telcm", "Utils", "Shops",
@@ -92,6 +93,39 @@ def test_fama_macbeth_with_missing_returns_matches_linearmodels(french):
     ref = FamaMacBeth(panel["y"], panel[["const", "beta"]]).fit()
     assert t.slope == pytest.approx(ref.params["beta"], rel=1e-10)
     assert t.slope_se == pytest.approx(ref.std_errors["beta"], rel=1e-8)
+
+
+def test_fama_macbeth_from_shared_matrices(french):
+    # with the analysis' prepared matrices the sums over the holdings with a beta are
+    # products weighted by 1 (0 for a holding without one): the same test to rounding,
+    # and still linearmodels' figures on an unbalanced panel with one holding unfitted
+    from linearmodels import FamaMacBeth
+
+    y, x = _excess(french, T=96, start=200)
+    b = _betas(y, x)
+    y = y.copy()
+    y[:30, 2] = np.nan
+    y[50:60, 7] = np.nan
+    b[5] = np.nan                                   # not fitted: out of every period's fit
+    own, g_own = fama_macbeth(y, b, x)
+    shared, g = fama_macbeth(y, b, x, prep=Prepared.of(y, x))
+    for field in ("intercept", "intercept_se", "slope", "slope_se", "slope_gap_t",
+                  "slope_se_shanken"):
+        assert getattr(shared, field) == pytest.approx(getattr(own, field), rel=1e-12)
+    np.testing.assert_allclose(g, g_own, rtol=1e-12)
+    assert shared.n_assets == own.n_assets == y.shape[1] - 1
+    keep = np.isfinite(b)
+    panel = _panel(y[:, keep], b[keep]).dropna()
+    ref = FamaMacBeth(panel["y"], panel[["const", "beta"]]).fit()
+    assert shared.slope == pytest.approx(ref.params["beta"], rel=1e-10)
+    assert shared.intercept_se == pytest.approx(ref.std_errors["const"], rel=1e-8)
+    # a market gap: the prepared mask would drop that period's holdings, so the function
+    # forms its own (the same figures as without prep, exactly)
+    x_gap = x.copy()
+    x_gap[40] = np.nan
+    own_gap, _ = fama_macbeth(y, b, x_gap)
+    shared_gap, _ = fama_macbeth(y, b, x_gap, prep=Prepared.of(y, x_gap))
+    assert shared_gap == own_gap
 
 
 def _grs_direct(y, x):

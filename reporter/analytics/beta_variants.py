@@ -158,37 +158,48 @@ def dimson_beta(y: np.ndarray, x: np.ndarray, lags: int, min_obs: int,
 
 
 def scholes_williams_beta(y: np.ndarray, x: np.ndarray, min_obs: int,
-                          before: np.ndarray | None = None) -> np.ndarray:
+                          before: np.ndarray | None = None,
+                          prep: Prepared | None = None) -> np.ndarray:
     """Scholes and Williams (1977) beta: (b_-1 + b_0 + b_+1) / (1 + 2 rho_m), where b_j is the
     simple-regression slope of y_t on x_{t+j}, on the periods where y_t, x_{t-1}, x_t and
     x_{t+1} all exist (x_{t-1} of the first period from ``before`` where given), and rho_m
     the market's first-order autocorrelation over every pair of consecutive periods of the
-    window."""
+    window. ``prep`` (``Prepared.of(y, x)``), when given, supplies the mask and the
+    zero-filled returns, so that no T x N matrix is made here."""
     x = np.asarray(x, float)
     lag, lead = with_before(x, before, 1), shift(x, -1)
     common = np.isfinite(lag) & np.isfinite(lead) & np.isfinite(x)
-    b = _common_row_slopes(np.asarray(y, float), (lag, x, lead), common, min_obs)
+    b = _common_row_slopes(y, (lag, x, lead), common, min_obs, prep)
     pair = np.isfinite(x[1:]) & np.isfinite(x[:-1])
     rho = float(np.corrcoef(x[1:][pair], x[:-1][pair])[0, 1]) if pair.sum() > 2 else np.nan
     return (b[0] + b[1] + b[2]) / (1.0 + 2.0 * rho)
 
 
 def _common_row_slopes(y: np.ndarray, regressors: tuple[np.ndarray, ...], common: np.ndarray,
-                       min_obs: int) -> list[np.ndarray]:
+                       min_obs: int, prep: Prepared | None = None) -> list[np.ndarray]:
     """The slope of each column of ``y`` on each regressor in turn (with an intercept), every
     fit on the rows in ``common`` where the column has a value: :func:`fit_market_model`'s
     beta for each regressor, with the mask, the zero-filled returns and their sums formed
-    once and the cross products of all the regressors taken in one matrix product."""
-    mask = np.isfinite(y)
-    mask &= common[:, None]
-    m = mask.astype(float)
-    y0 = np.where(mask, y, 0.0)
-    del mask
+    once and the cross products of all the regressors taken in one matrix product.
+
+    Every sum is weighted by a row vector that is zero off ``common`` (the count's weight is
+    ``common`` itself, each centred regressor is zero there), so the mask need not exclude
+    those rows: ``prep``'s mask (where y and the market both have a value, the market being
+    finite on every common row) gives the same products, and its matrices are used as they
+    are instead of two new T x N ones."""
+    if prep is None:
+        mask = np.isfinite(np.asarray(y, float))
+        mask &= common[:, None]
+        m = mask.astype(float)
+        y0 = np.where(mask, y, 0.0)
+        del mask
+    else:
+        m, y0 = prep.m, prep.y0
     centred = []
     for z in regressors:
         z_mean = float(z[common].mean()) if common.any() else 0.0
         centred.append(np.where(common, z - z_mean, 0.0))
-    ones = np.ones_like(centred[0])
+    ones = common.astype(float)
     sums_m = np.stack([ones] + [v for zc in centred for v in (zc, zc * zc)]) @ m
     sums_y = np.stack([ones] + centred) @ y0
     n, sy = sums_m[0], sums_y[0]

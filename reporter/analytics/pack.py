@@ -101,10 +101,11 @@ def analyse(inputs: ValidInputs, settings: Settings,
         dimson_beta(port_ex, x, settings.dimson_lags, settings.min_obs, before=pre),
         dimson_beta(y, x, settings.dimson_lags, settings.min_obs, prep, before=pre)])
     sw = np.concatenate([scholes_williams_beta(port_ex, x, settings.min_obs, pre),
-                         scholes_williams_beta(y, x, settings.min_obs, pre)])
+                         scholes_williams_beta(y, x, settings.min_obs, pre, prep)])
+    ok = fits.fitted
+    line_fm, _ = fama_macbeth(y, np.where(ok, fits.beta, np.nan), x, prep=prep)  # fitted
     mkt_dates = mkt.dates
     del prep, mkt
-    ok = fits.fitted
     held = ok | coverage.stand_in        # cash (beta 0) and proxies count at their weights
     fitted_weight = float(weights[held].sum())
     beta_weighted = float(weights[held] @ fits.beta[held] / fitted_weight) if held.any() else np.nan
@@ -114,7 +115,6 @@ def analyse(inputs: ValidInputs, settings: Settings,
     sectors = sector_weights(hold["sector"], weights)
     var = variance_split(weights, fits.beta, fits.residual_vol, x)
     complete = ok & np.isfinite(y).all(axis=0)
-    line_fm, _ = fama_macbeth(y, np.where(ok, fits.beta, np.nan), x)   # fitted holdings
     del y       # the window's excess returns (T x N): no use below; freed before the Gram matrix
     shared = _Moments.of(win.returns)      # the one centred Gram matrix of the window
     pair_cov, avg_corr = pairwise_covariance_and_average_correlation(shared, np.flatnonzero(ok))

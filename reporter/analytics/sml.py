@@ -11,7 +11,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from reporter.analytics.market_model import MarketModelFits, t_critical
+from reporter.analytics.market_model import MarketModelFits, Prepared, t_critical
 
 ABOVE, BELOW, WITHIN = "above the line", "below the line", "within estimation error"
 
@@ -179,7 +179,8 @@ def cross_sectional_test(mean_excess: np.ndarray, beta: np.ndarray,
 
 
 def fama_macbeth(excess: np.ndarray, beta: np.ndarray, market_excess: np.ndarray,
-                 min_assets: int = 3) -> tuple[LineTest, np.ndarray]:
+                 min_assets: int = 3, prep: Prepared | None = None
+                 ) -> tuple[LineTest, np.ndarray]:
     """Fama and MacBeth (1973): each period, OLS across the holdings that have a return of
     r_i,t - r_f,t on [1, beta_i]; the line's estimates are the means of the period slopes and
     intercepts, with standard errors sd(gamma_t)/sqrt(T) (ddof = 1). The slope is compared
@@ -191,18 +192,29 @@ def fama_macbeth(excess: np.ndarray, beta: np.ndarray, market_excess: np.ndarray
     (1992) corrected errors: se(g0)^2 (1 + c) for the intercept and se(g1)^2 (1 + c) + s_m^2/T
     for the slope, with c = g1^2 / s_m^2 and s_m^2 the variance (ddof = 1) of the market's
     excess return over the same periods (Shanken 1992, Theorem 1; Cochrane, *Asset Pricing*,
-    ch. 12)."""
+    ch. 12).
+
+    ``prep`` (``Prepared.of(excess, market_excess)``), when given and the market has every
+    period, supplies the mask and the zero-filled returns: the sums over the holdings with a
+    beta are then products with weights that are zero for the others, and no T x N matrix is
+    made here (with a market gap its mask would also drop that period's holdings)."""
     b = np.asarray(beta, dtype=float)
     use = np.isfinite(b)
-    y = excess[:, use]
-    b = b[use]
-    mask = np.isfinite(y)
-    m = mask.astype(float)
-    y0 = np.where(mask, y, 0.0)
-    n = m.sum(axis=1)
+    if prep is not None and prep.x_ok.all():
+        u, b = use.astype(float), np.where(use, b, 0.0)
+        m, y0 = prep.m, prep.y0
+        n, sy = m @ u, y0 @ u
+    else:
+        y = excess[:, use]
+        b = b[use]
+        mask = np.isfinite(y)
+        m = mask.astype(float)
+        y0 = np.where(mask, y, 0.0)
+        del y, mask
+        n, sy = m.sum(axis=1), y0.sum(axis=1)
     sb, sbb = m @ b, m @ (b * b)
-    sy, sby = y0.sum(axis=1), y0 @ b
-    del y, mask, m, y0
+    sby = y0 @ b
+    del m, y0
     with np.errstate(invalid="ignore", divide="ignore"):
         g1 = (sby - sb * sy / n) / (sbb - sb * sb / n)
         g0 = (sy - g1 * sb) / n
