@@ -39,7 +39,7 @@ from reporter.analytics.results import (  # noqa: F401  (re-exported: the build 
     SECURITY_COLUMNS,
     PackResults,
 )
-from reporter.analytics.returns import portfolio_returns, sector_returns
+from reporter.analytics.returns import portfolio_returns, sector_excess_returns
 from reporter.analytics.rolling import HoldingsRolling, rolling_betas
 from reporter.analytics.sml import (
     alpha_p_values,
@@ -104,6 +104,10 @@ def analyse(inputs: ValidInputs, settings: Settings,
                          scholes_williams_beta(y, x, settings.min_obs, pre, prep)])
     ok = fits.fitted
     line_fm, _ = fama_macbeth(y, np.where(ok, fits.beta, np.nan), x, prep=prep)  # fitted
+    hold = inputs.holdings.frame
+    sector_names = sorted(set(hold["sector"]))
+    sector_ex = sector_excess_returns(win.returns, win.risk_free, weights,
+                                      hold["sector"].to_numpy(), sector_names, prep)
     mkt_dates = mkt.dates
     del prep, mkt
     held = ok | coverage.stand_in        # cash (beta 0) and proxies count at their weights
@@ -111,7 +115,6 @@ def analyse(inputs: ValidInputs, settings: Settings,
     beta_weighted = float(weights[held] @ fits.beta[held] / fitted_weight) if held.any() else np.nan
     ratios = performance_ratios(port, win.market, win.risk_free, pfit.beta)
     conc = concentration(weights)
-    hold = inputs.holdings.frame
     sectors = sector_weights(hold["sector"], weights)
     var = variance_split(weights, fits.beta, fits.residual_vol, x)
     complete = ok & np.isfinite(y).all(axis=0)
@@ -143,10 +146,6 @@ def analyse(inputs: ValidInputs, settings: Settings,
 
     line_cs = cross_sectional_test(fits.mean_excess[ok], fits.beta[ok],
                                    float(np.mean(x)), win.n_periods)
-    sector_names = sorted(set(hold["sector"]))
-    sector_of = hold["sector"].to_numpy()
-    sector_ex = sector_returns(win.returns, weights, sector_of, sector_names) - \
-        win.risk_free[:, None]
     full = np.isfinite(sector_ex).all(axis=0) & (np.ptp(sector_ex, axis=0) > 1e-12)  # not cash
     grs_s = grs_test(sector_ex[:, full], x, "sector portfolios")
 

@@ -13,6 +13,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from reporter.analytics.market_model import Prepared
+
 
 def period_keys(dates: np.ndarray, frequency: str) -> np.ndarray:
     """Integer period key for each ``datetime64[D]`` date: months, ISO weeks or days since 1970."""
@@ -94,9 +96,7 @@ def sector_returns(returns: np.ndarray, weights: np.ndarray, sector_of: np.ndarr
                    sectors: list[str]) -> np.ndarray:
     """:func:`portfolio_returns` of each sector's holdings (T x len(sectors)), all from two
     matrix products with the N x S matrix of the weights by sector."""
-    w = np.asarray(weights, dtype=float)
-    by_sector = np.where(np.asarray(sector_of)[:, None] == np.asarray(sectors)[None, :],
-                         w[:, None], 0.0)
+    by_sector = _by_sector(weights, sector_of, sectors)
     present = ~np.isnan(returns)
     total = present.astype(float) @ by_sector
     num = np.where(present, returns, 0.0) @ by_sector
@@ -104,6 +104,32 @@ def sector_returns(returns: np.ndarray, weights: np.ndarray, sector_of: np.ndarr
         out = num / total
     out[total == 0] = np.nan
     return out
+
+
+def sector_excess_returns(returns: np.ndarray, risk_free: np.ndarray, weights: np.ndarray,
+                          sector_of: np.ndarray, sectors: list[str],
+                          prep: Prepared | None = None) -> np.ndarray:
+    """:func:`sector_returns` less the risk-free rate of each period. ``prep``
+    (``Prepared.of(returns - risk_free, market excess)``), when given and both the market and
+    the risk-free rate have every period, supplies the mask and the zero-filled excess
+    returns, so that no T x N matrix is made here: the weighted mean of the excess returns
+    is the weighted mean of the returns less the rate (the same figures to rounding)."""
+    rf = np.asarray(risk_free, dtype=float)
+    if prep is None or not (prep.x_ok.all() and np.isfinite(rf).all()):
+        return sector_returns(returns, weights, sector_of, sectors) - rf[:, None]
+    by_sector = _by_sector(weights, sector_of, sectors)
+    total = prep.m @ by_sector
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = (prep.y0 @ by_sector) / total
+    out[total == 0] = np.nan
+    return out
+
+
+def _by_sector(weights: np.ndarray, sector_of: np.ndarray, sectors: list[str]) -> np.ndarray:
+    """The N x S matrix of each holding's weight in its sector's column."""
+    w = np.asarray(weights, dtype=float)
+    return np.where(np.asarray(sector_of)[:, None] == np.asarray(sectors)[None, :],
+                    w[:, None], 0.0)
 
 
 def annualise_mean(mean_per_period: float | np.ndarray, periods_per_year: int):
