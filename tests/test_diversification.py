@@ -361,13 +361,23 @@ def test_gram_pairwise_moments_with_gaps_match_pandas():
     r[:29, 10] = np.nan
     r[31:, 10] = np.nan
     cols = np.array([0, 1, 3, 5, 8, 9, 10, 11])
-    cov, corr_rows = pairwise_moments(_Moments.of(r), cols)
+    mo = _Moments.of(r)
+    gram = mo.gram.copy()
+    covariance, corr_rows = pairwise_moments(mo, cols)
     frame = pd.DataFrame(r[:, cols])
     ref_cov, ref_corr = frame.cov().to_numpy(), frame.corr().to_numpy()
     assert np.isnan(ref_cov[5, 6]) and np.isnan(ref_cov[4, 0])   # the n_ij < 2 pairs exist
-    np.testing.assert_array_equal(np.isnan(cov), np.isnan(ref_cov))
-    np.testing.assert_allclose(cov, ref_cov, rtol=1e-10)
     for blk in (slice(0, 8), slice(2, 5), slice(5, 8)):
         got = corr_rows(blk)
         np.testing.assert_array_equal(np.isnan(got), np.isnan(ref_corr[blk]))
         np.testing.assert_allclose(got, ref_corr[blk], rtol=1e-10)
+    # the covariance is built in place of the cross products the rows come from: after it,
+    # rows are refused rather than made from the wrong matrix; asked twice, it is the same
+    cov = covariance()
+    np.testing.assert_array_equal(np.isnan(cov), np.isnan(ref_cov))
+    np.testing.assert_allclose(cov, ref_cov, rtol=1e-10)
+    with pytest.raises(RuntimeError, match="after the covariance"):
+        corr_rows(slice(0, 8))
+    assert covariance() is cov
+    np.testing.assert_allclose(cov, ref_cov, rtol=1e-10)
+    np.testing.assert_array_equal(mo.gram, gram)                 # the shared Gram: read only

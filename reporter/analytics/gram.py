@@ -39,10 +39,14 @@ def _row_blocks(n: int):
 
 
 def pairwise_moments(mo: _Moments, cols: np.ndarray
-                     ) -> tuple[np.ndarray, Callable[[slice], np.ndarray]]:
-    """The pairwise covariance (divisor n_ij - 1; NaN where n_ij < 2) of the holdings at
-    positions ``cols`` and a function giving rows of their pairwise correlation, from the
-    shared Gram matrix ``mo.gram`` (read, not changed)."""
+                     ) -> tuple[Callable[[], np.ndarray], Callable[[slice], np.ndarray]]:
+    """Two functions, from the shared Gram matrix ``mo.gram`` (read, not changed): one giving
+    rows of the pairwise correlation of the holdings at positions ``cols``, and then one
+    returning their pairwise covariance (divisor n_ij - 1; NaN where n_ij < 2). With a
+    holding with gaps, the covariance is built in place of the centred cross products the
+    correlation is made from, so that one k x k matrix is made, not two (10,000 holdings:
+    800 MB): ask for every row wanted first; once the covariance is taken, rows are
+    refused."""
     idx = np.asarray(cols, dtype=int)
     k, T = len(idx), mo.T
     every = k == mo.gram.shape[0] and bool(np.array_equal(idx, np.arange(k)))
@@ -51,7 +55,7 @@ def pairwise_moments(mo: _Moments, cols: np.ndarray
     gpos = np.flatnonzero(mo.gapped[idx])
     if not gpos.size:
         with np.errstate(invalid="ignore", divide="ignore"):
-            G /= T - 1.0
+            np.divide(G, T - 1.0, out=G)
         if T < 2:
             G[:] = np.nan
         sd = np.sqrt(np.diagonal(G))
@@ -59,7 +63,7 @@ def pairwise_moments(mo: _Moments, cols: np.ndarray
         def complete_rows(blk: slice) -> np.ndarray:
             with np.errstate(invalid="ignore", divide="ignore"):
                 return G[blk] / np.outer(sd[blk], sd)
-        return G, complete_rows
+        return (lambda: G), complete_rows
     # Each holding is centred on its own periods, so its deviations sum to zero over them:
     # pairwise centring (subtracting S_ij S_ji / n_ij, S_ij the sum of d_i over j's periods)
     # changes a pair only when both sums run over fewer periods than the holding has, which
@@ -84,18 +88,33 @@ def pairwise_moments(mo: _Moments, cols: np.ndarray
         G[gpos, :] -= s_r * s_c.T / n_g                 # rows of the holdings with gaps
         G[np.ix_(cpos, gpos)] -= (s_c * s_r.T / n_g.T)[cpos]      # and their columns
         q_c -= s_c * s_c / n_g.T
-        cov = G / (T - 1.0)
-        cov[gpos, :] = G[gpos, :] / (n_g - 1.0)
-        cov[:, gpos] = G[:, gpos] / (n_g.T - 1.0)
     few_g = n_g < 2                                     # n_ij < 2 only beside a gapped one
-    cov[gpos] = np.where(few_g, np.nan, cov[gpos])
-    cov[:, gpos] = np.where(few_g.T, np.nan, cov[:, gpos])
-    if T < 2:
-        cov[:] = np.nan
     g_of = np.full(k, -1)
     g_of[gpos] = np.arange(gpos.size)
+    taken = []
+
+    def covariance() -> np.ndarray:
+        # G / (T - 1), with the rows and columns of the holdings with gaps over n_ij - 1:
+        # those are divided out of G before it is divided in place (the same values as a
+        # division into a new matrix)
+        if taken:
+            return G
+        with np.errstate(invalid="ignore", divide="ignore"):
+            rows = G[gpos, :] / (n_g - 1.0)
+            cols_ = G[:, gpos] / (n_g.T - 1.0)
+            np.divide(G, T - 1.0, out=G)
+        G[gpos, :] = rows
+        G[:, gpos] = cols_
+        G[gpos] = np.where(few_g, np.nan, G[gpos])
+        G[:, gpos] = np.where(few_g.T, np.nan, G[:, gpos])
+        if T < 2:
+            G[:] = np.nan
+        taken.append(True)
+        return G
 
     def gapped_rows(blk: slice) -> np.ndarray:
+        if taken:
+            raise RuntimeError("correlation rows asked for after the covariance was taken")
         # Q_ij = sum of d_i^2 over j's periods, centred: G_ii for a complete j
         a = np.repeat(diag0[blk, None], k, axis=1)
         a[:, gpos] = q_c[blk]
@@ -112,15 +131,16 @@ def pairwise_moments(mo: _Moments, cols: np.ndarray
         if T < 2:
             c[:] = np.nan
         return c
-    return cov, gapped_rows
+    return covariance, gapped_rows
 
 
 def pairwise_covariance_and_average_correlation(mo: _Moments, cols: np.ndarray
                                                 ) -> tuple[np.ndarray, float]:
     """The pairwise covariance of the holdings at ``cols`` and the mean of their pairwise
     correlations over the pairs above the diagonal (formed a block of rows at a time)."""
-    cov, corr_rows = pairwise_moments(mo, cols)
-    return cov, mean_above_diagonal(corr_rows, cov.shape[0])
+    covariance, corr_rows = pairwise_moments(mo, cols)
+    average = mean_above_diagonal(corr_rows, len(cols))
+    return covariance(), average
 
 
 def residual_gram(mo: _Moments, cols: np.ndarray, risk_free: np.ndarray,
