@@ -194,3 +194,17 @@ def test_grs_from_the_shared_gram_matches_grs_from_the_returns(french):
     assert shared.p_value == pytest.approx(direct.p_value, rel=1e-8)
     with pytest.raises(ValueError):
         grs_test(None, x)
+    # E'E given as a function: made when the test applies (the same statistic, exactly) and
+    # never when it cannot (T <= N + 1: 10 periods for the 21 portfolios)
+    calls = []
+
+    def made():
+        calls.append(1)
+        return residual_gram(mo, cols, rf, x)
+    lazy = grs_test(None, x, alpha=alpha, residual_cross=made,
+                    return_variance=np.diagonal(mo.gram) / len(x), excess_variance=ev)
+    assert lazy.f_stat == shared.f_stat and calls == [1]
+    short = grs_test(None, x[:10], alpha=alpha, residual_cross=made,
+                     return_variance=np.diagonal(mo.gram) / len(x), excess_variance=ev)
+    assert not short.applies and "more periods than assets" in short.reason
+    assert calls == [1]

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from functools import partial
+
 import numpy as np
 import pandas as pd
 
@@ -133,7 +135,7 @@ def analyse(inputs: ValidInputs, settings: Settings,
     if np.isfinite(x).all() and np.isfinite(win.risk_free).all() and complete.any():
         cols = np.flatnonzero(complete)
         grs_h = grs_test(None, x, "holdings", alpha=fits.alpha[complete],     # (no copy)
-                         residual_cross=residual_gram(shared, cols, win.risk_free, x),
+                         residual_cross=partial(residual_gram, shared, cols, win.risk_free, x),
                          return_variance=np.diagonal(shared.gram)[cols] / win.n_periods,
                          excess_variance=excess_variance(shared, cols, win.risk_free))
     else:
