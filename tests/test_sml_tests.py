@@ -78,16 +78,23 @@ def test_fama_macbeth_matches_linearmodels(french):
     assert t.slope_se_shanken > t.slope_se and t.intercept_se_shanken >= t.intercept_se
 
 
-def test_fama_macbeth_with_missing_returns_matches_linearmodels(french):
-    # an unbalanced panel: each period's cross-section uses the assets that have a return
-    # (linearmodels.FamaMacBeth drops the missing rows)
-    from linearmodels import FamaMacBeth
-
+def _unbalanced(french):
+    """Eight years of monthly excess returns with a late start and a suspension, their betas
+    and the market's excess return."""
     y, x = _excess(french, T=96, start=200)
     b = _betas(y, x)
     y = y.copy()
     y[:30, 2] = np.nan
     y[50:60, 7] = np.nan
+    return y, x, b
+
+
+def test_fama_macbeth_with_missing_returns_matches_linearmodels(french):
+    # an unbalanced panel: each period's cross-section uses the assets that have a return
+    # (linearmodels.FamaMacBeth drops the missing rows)
+    from linearmodels import FamaMacBeth
+
+    y, x, b = _unbalanced(french)
     t, _ = fama_macbeth(y, b, x)
     panel = _panel(y, b).dropna()
     ref = FamaMacBeth(panel["y"], panel[["const", "beta"]]).fit()
@@ -101,11 +108,7 @@ def test_fama_macbeth_from_shared_matrices(french):
     # and still linearmodels' figures on an unbalanced panel with one holding unfitted
     from linearmodels import FamaMacBeth
 
-    y, x = _excess(french, T=96, start=200)
-    b = _betas(y, x)
-    y = y.copy()
-    y[:30, 2] = np.nan
-    y[50:60, 7] = np.nan
+    y, x, b = _unbalanced(french)
     b[5] = np.nan                                   # not fitted: out of every period's fit
     own, g_own = fama_macbeth(y, b, x)
     shared, g = fama_macbeth(y, b, x, prep=Prepared.of(y, x))
