@@ -39,6 +39,7 @@ def _copy_demo(tmp_path):
     return pack
 
 
+@pytest.mark.filterwarnings("error::RuntimeWarning")     # 0/0 t-statistics are NaN, quietly
 def test_a_holding_that_earns_the_risk_free_rate_builds_its_figures(tmp_path):
     from reporter.analytics.pack import analyse
     from reporter.config import load_settings
@@ -57,6 +58,9 @@ def test_a_holding_that_earns_the_risk_free_rate_builds_its_figures(tmp_path):
     assert row["beta"] == pytest.approx(0.0, abs=1e-12)
     assert row["alpha"] == pytest.approx(0.0, abs=1e-12)
     assert not res.grs_holdings.applies and "singular" in res.grs_holdings.reason
+    # its standard errors are zero: every t-statistic is undefined, shown as missing
+    for col in ("alpha_t", "beta_t", "alpha_t_hac", "beta_t_hac", "alpha_t_ols", "beta_t_ols"):
+        assert np.isnan(row[col]), col
 
 
 def test_a_constant_market_premium_is_bad_input_naming_the_file(tmp_path, capsys):

@@ -61,6 +61,13 @@ from reporter.models import DatedSeries, ValidInputs
 BAND_MAX_SIZE = 120   # largest random equal-weight portfolio drawn for the curve's band
 
 
+def _t_stat(estimate: np.ndarray, se: np.ndarray) -> np.ndarray:
+    """estimate / se elementwise: NaN where both are zero (a holding that earns exactly the
+    risk-free rate has no t-statistic), without numpy's warning for it."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return estimate / se
+
+
 def analyse(inputs: ValidInputs, settings: Settings,
             benchmark: DatedSeries | None = None,
             portfolio: DatedSeries | None = None) -> PackResults:
@@ -183,9 +190,9 @@ def analyse(inputs: ValidInputs, settings: Settings,
         "n_obs": fits.n_obs,
         "status": fit_status(ok, coverage, settings.min_obs),
         # se and t under ``errors`` (as the intervals and positions); both kinds named below
-        "alpha": fits.alpha, "alpha_se": a_se, "alpha_t": fits.alpha / a_se,
+        "alpha": fits.alpha, "alpha_se": a_se, "alpha_t": _t_stat(fits.alpha, a_se),
         "alpha_p": alpha_p,
-        "beta": fits.beta, "beta_se": b_se, "beta_t": fits.beta / b_se,
+        "beta": fits.beta, "beta_se": b_se, "beta_t": _t_stat(fits.beta, b_se),
         "r_squared": fits.r_squared, "residual_vol": fits.residual_vol,
         "mean_excess_return": np.where(ok, fits.mean_excess, np.nan),
         "sml_expected_excess": sml.expected_excess, "sml_residual": sml.residual,
@@ -198,8 +205,8 @@ def analyse(inputs: ValidInputs, settings: Settings,
     sec["sml_position_fdr"] = fdr_positions(fits.alpha, alpha_p, ok, 1 - settings.confidence)
     sec["alpha_se_ols"], sec["alpha_t_ols"] = fits.alpha_se, fits.alpha_t
     sec["beta_se_ols"], sec["beta_t_ols"] = fits.beta_se, fits.beta_t
-    sec["alpha_se_hac"], sec["alpha_t_hac"] = alpha_se_hac, fits.alpha / alpha_se_hac
-    sec["beta_se_hac"], sec["beta_t_hac"] = beta_se_hac, fits.beta / beta_se_hac
+    sec["alpha_se_hac"], sec["alpha_t_hac"] = alpha_se_hac, _t_stat(fits.alpha, alpha_se_hac)
+    sec["beta_se_hac"], sec["beta_t_hac"] = beta_se_hac, _t_stat(fits.beta, beta_se_hac)
     sec["beta_ci_low"] = beta_lo
     sec["beta_ci_high"] = beta_hi
     sec["beta_differs_from_1"] = np.where(ok, (beta_lo > 1) | (beta_hi < 1), False)

@@ -315,13 +315,12 @@ def grs_test(excess: np.ndarray | None, market_excess: np.ndarray, assets: str =
     # market's, e.g. a return equal to the risk-free rate) leaves the quadratic form undefined
     # (an R-squared within 1e-12 of one is a line up to rounding)
     resid_var = np.diag(sigma)
-    scale = np.sqrt(resid_var)
     y_var = (excess_variance if from_moments and excess_variance is not None
              else y.var(axis=0))
     if from_moments and return_variance is not None:
         y_var = np.maximum(y_var, return_variance)
     quad = (None if np.any(resid_var <= 1e-12 * y_var)
-            else _quadratic_form(sigma, alpha, scale))
+            else _quadratic_form(sigma, alpha, np.sqrt(resid_var)))
     if quad is None:
         return GRSTest(False, "the residual covariance is singular (an asset's excess return "
                        "is exactly a line in the market's, e.g. a return equal to the risk-free "
