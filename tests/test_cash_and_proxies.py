@@ -109,6 +109,32 @@ def test_a_market_proxy_stands_in_with_beta_one(tmp_path):
     assert res.coverage.summary()["excluded_weight"] == 0.0
 
 
+@pytest.mark.filterwarnings("error::RuntimeWarning")
+def test_a_market_proxy_stand_in_keeps_the_active_risk_model(tmp_path):
+    # a holding with the market proxy's returns has no return relative to it: its active
+    # variance is zero. The active model's Gram matrix comes from the held one by a rank-two
+    # update, whose rounding had left that variance slightly negative, and its square root
+    # made every figure of the active model NaN. Reference: the same estimator on the
+    # relative returns themselves (r - r_m, a direct product: that holding's column is zero)
+    from reporter.analytics.covariance import estimate_covariance
+
+    res = _analysed(_with_extra(tmp_path, {"proxy": "market"}, "proxy"))
+    ids = list(res.window.security_ids)
+    j = ids.index("NEW01")
+    relative = res.window.returns - res.window.market[:, None]
+    assert not relative[:, j].any()                           # the stand-in: exactly zero
+    direct = estimate_covariance(relative, res.covariance_active.method)
+    got = res.covariance_active
+    assert np.isfinite(got.matrix).all() and 0.0 < got.shrinkage < 1.0
+    assert got.shrinkage == pytest.approx(direct.shrinkage, rel=1e-9)
+    np.testing.assert_allclose(got.matrix, direct.matrix, rtol=1e-8, atol=1e-18)
+    assert not got.matrix[j].any() and not got.matrix[:, j].any()
+    s = res.portfolio_summary()
+    assert np.isfinite(s["model_tracking_error"])
+    assert s["model_to_realised_tracking_error"] == pytest.approx(1.0, abs=0.1)
+    assert np.isfinite(res.risk_table[["te_contribution", "te_share"]].to_numpy()).all()
+
+
 def test_a_holding_proxy_copies_its_returns(tmp_path):
     res = _analysed(_with_extra(tmp_path, {"proxy": "TVX002"}, "byid"))
     ids = list(res.window.security_ids)

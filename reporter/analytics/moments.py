@@ -129,7 +129,14 @@ class _Moments:
 
     def relative_gram(self, ref: np.ndarray) -> np.ndarray:
         """X'X - u 1' - 1 u' + e'e (see :meth:`relative_to`): a new N x N matrix, right for
-        the pairs of complete holdings (the rows of the holdings with gaps are replaced)."""
+        the pairs of complete holdings (the rows of the holdings with gaps are replaced).
+
+        A holding whose returns are the reference's (one that stands in with the market
+        proxy's returns) has relative deviations of zero, but the formula leaves rounding of
+        the order of eps (X_ii + e'e) on its diagonal, negative as often as not: a negative
+        variance, whose square root spoilt every figure of the active risk model. A diagonal
+        within 1e-12 of what cancelled in it is zero, and so are that holding's covariances,
+        as the direct product of its zero deviations gives them."""
         e = ref - ref.mean()
         u, ee = self.x.T @ e, float(e @ e)
         gram = self.gram.copy()
@@ -138,6 +145,10 @@ class _Moments:
             rows -= u[blk, None]
             rows -= u[None, :]
             rows += ee
+        zero = np.flatnonzero(np.diagonal(gram) <= 1e-12 * (np.diagonal(self.gram) + ee))
+        if zero.size:
+            gram[zero, :] = 0.0
+            gram[:, zero] = 0.0
         return gram
 
     def release_deviations(self) -> None:
