@@ -50,12 +50,18 @@ def escape_array(values: np.ndarray) -> np.ndarray:
     return out
 
 
+def is_text(s: pd.Series) -> bool:
+    """Whether a column may hold text: object dtype (pandas 2) or a string dtype (pandas 3
+    reads text as ``str``, which is not ``object``)."""
+    return s.dtype == object or pd.api.types.is_string_dtype(s.dtype)
+
+
 def escape_frame(df: pd.DataFrame) -> pd.DataFrame:
     """``df`` with every text cell escaped (the frame itself when nothing needs it)."""
     changed = {}
     for col in df.columns:
         s = df[col]
-        if s.dtype == object or pd.api.types.is_string_dtype(s.dtype):
+        if is_text(s):
             texts = s.to_numpy(dtype=object)
             escaped = escape_array(texts)
             if escaped is not texts:

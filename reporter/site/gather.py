@@ -18,7 +18,7 @@ import pandas as pd
 from reporter.analytics.pack import PORTFOLIO_SERIES
 from reporter.archive.ledger import Entry
 from reporter.config import TOTAL_FUND
-from reporter.csvsafe import unescape_frame
+from reporter.csvsafe import is_text, unescape_frame
 from reporter.errors import InputError, Problem
 from reporter.site.limits_view import limit_key, limit_label
 
@@ -95,7 +95,7 @@ def _csv(archive: Path, rel: str, columns: tuple[str, ...],
     except (ValueError, pd.errors.ParserError) as exc:
         problems.append(Problem(str(archive / rel), f"cannot be read as CSV ({exc})"))
         return None
-    unescape_frame(df, [c for c in df.columns if df[c].dtype == object])    # CSV-injection escape
+    unescape_frame(df, [c for c in df.columns if is_text(df[c])])   # CSV-injection escape
     missing = [c for c in columns if c not in df.columns]
     for c in missing:
         problems.append(Problem(f"{archive / rel}:1:{c}", "column missing"))
