@@ -124,13 +124,18 @@ def date_codes(raw: RawTable, column: str, date_format: str,
     (``datetime64[D]``), and is -1 where the date is empty or bad. Each distinct date text is
     parsed once, with ``date_format`` only: day-first and month-first are never guessed, and
     impossible dates (30 February) are errors. Spreadsheet and Parquet date cells are taken as
-    calendar days. A long returns file repeats each date for every security, so this is one
+    calendar days: a timestamp's day where it was stamped (a time zone's own clock), its
+    time of day dropped. A long returns file repeats each date for every security, so this is one
     pass over the rows (the CSV reader already delivers the column dictionary-encoded).
     """
     arr = raw.table[column]
     if pa.types.is_date(arr.type) or pa.types.is_timestamp(arr.type):
+        if pa.types.is_timestamp(arr.type) and arr.type.tz is not None:
+            # the day on the clock where it was stamped: a month-end at 20:00 in New York is
+            # 1 a.m. the next day in UTC, which shifted every date of a series by one period
+            arr = pc.local_timestamp(arr)
         if not pa.types.is_date32(arr.type):       # date64 or timestamp: to calendar days
-            arr = arr.cast(pa.timestamp("s")).cast(pa.date32())
+            arr = arr.cast(pa.date32())            # (the time of day dropped, not refused)
         enc = pc.dictionary_encode(arr).combine_chunks()
         texts = None
         parsed = np.asarray(enc.dictionary.to_numpy(zero_copy_only=False),
