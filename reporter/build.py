@@ -66,6 +66,8 @@ def build_pack(pack: Path | str, out: Path | str, *, strict: bool = False,
     out = Path(out)
     settings = load_settings(pack)
     refuse_overlap(settings.pack_dir, out, "pack folder")
+    if settings.compare_build is not None:      # the earlier build is an input too
+        refuse_overlap(settings.compare_build, out, "earlier build ([compare] previous)")
     check_target(out)
     a = assemble(settings, strict=strict, progress=progress, at=at)
     files = finish_build(a, out, progress, release=True)

@@ -391,3 +391,25 @@ def _one_file() -> OutputSet:
     fs = OutputSet()
     fs.add("pack.html", "<p>new</p>")
     return fs
+
+
+def test_an_out_onto_the_earlier_build_it_compares_with_is_refused(demo_build, tmp_path,
+                                                                  capsys):
+    """``[compare] previous`` names an earlier build, which the build reads: an --out that
+    is it, or lies inside it, would replace that input with the new pack."""
+    previous = tmp_path / "october"
+    shutil.copytree(demo_build, previous)
+    pack = tmp_path / "scheme"
+    shutil.copytree(DEMO, pack)
+    with open(pack / "pack.toml", "a", encoding="utf-8") as fh:
+        fh.write(f'\n[compare]\nprevious = "{previous}"\n')
+    before = snapshot(previous)
+    code, _, err = run_cli(capsys, "build", pack, "--out", previous, "--quiet")
+    assert code == 2 and "Traceback" not in err
+    assert err.splitlines() == [
+        f"reporter: {previous}: holds the earlier build ([compare] previous) "
+        f"{previous}; the output folder is replaced whole, so choose an --out outside the "
+        "earlier build ([compare] previous)"]
+    code, _, err = run_cli(capsys, "build", pack, "--out", previous / "results", "--quiet")
+    assert code == 2 and "is inside the earlier build ([compare] previous)" in err
+    assert snapshot(previous) == before and beside(previous) == []
