@@ -355,3 +355,41 @@ def test_blank_lines_are_skipped(tmp_path):
 
 def test_every_role_has_a_file():
     assert set(FILES) == set(INPUT_ROLES) | {"cash_flows"}     # the demo also has flows
+
+
+def test_xlsx_that_unpacks_too_far_is_refused_unread(tmp_path, capsys, monkeypatch):
+    """A workbook is a zip archive: one whose part packs 20 MB of zeros into a few kB (far
+    tighter than any sheet of figures) is refused before openpyxl unpacks it, and so is one
+    whose parts unpack past the size limit (lowered here to keep the file small)."""
+    import zipfile
+
+    from reporter import readers
+
+    pack = tmp_path / "pack"
+    shutil.copytree(DEMO, pack)
+    wb = Workbook()
+    wb.active.append(["security_id", "name", "sector", "weight"])
+    wb.active.append(["TVX001", "A plc", "Utilities", 1.0])
+    wb.save(pack / "holdings.xlsx")
+    text = (pack / "pack.toml").read_text(encoding="utf-8").replace(
+        'holdings = "holdings.csv"', 'holdings = "holdings.xlsx"')
+    (pack / "pack.toml").write_text(text, encoding="utf-8")
+    assert main(["check", str(pack)]) == 0            # a small workbook is read
+    capsys.readouterr()
+    monkeypatch.setattr(readers, "XLSX_MAX_UNPACKED", 4096)
+    assert main(["check", str(pack)]) == 2
+    err = capsys.readouterr().err.splitlines()
+    assert err[1:] == ["reporter: 1 error(s) in the inputs; nothing was written"]
+    assert re.fullmatch(
+        r"holdings\.xlsx: refused unread: its parts unpack to [\d.]+ MB \(at most 0\.0 MB\); "
+        r"save the data as CSV or Parquet", err[0]), err
+    monkeypatch.undo()
+    with zipfile.ZipFile(pack / "holdings.xlsx", "a", zipfile.ZIP_DEFLATED) as zf:
+        zf.writestr("xl/media/padding.bin", bytes(20 << 20))
+    assert main(["check", str(pack)]) == 2
+    err = capsys.readouterr().err.splitlines()
+    assert err[1:] == ["reporter: 1 error(s) in the inputs; nothing was written"]
+    assert re.fullmatch(
+        r"holdings\.xlsx: refused unread: its part xl/media/padding\.bin unpacks [\d,]+ to 1, "
+        r"to 20 MB \(a sheet of figures packs at most about 30 to 1; refused above 200\); "
+        r"save the data as CSV or Parquet", err[0]), err
