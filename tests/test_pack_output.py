@@ -277,3 +277,19 @@ def test_line_tests_in_results_and_pack(demo_build, pdf_text):
     assert 0 <= p["grs_sectors_p_value"] <= 1
     text = re.sub(r"\s+", " ", "\n".join(pdf_text))
     assert "Testing the line itself" in text and "Gibbons" in text
+
+
+def test_the_page_declares_it_runs_and_fetches_nothing(html):
+    """pack.html carries a Content-Security-Policy (W3C CSP 3) that a browser enforces when
+    the file is opened: no script, no fetch, no form, no <base>; only its own inline styles
+    and data: images (the charts)."""
+    import re
+
+    policies = re.findall(r'<meta http-equiv="Content-Security-Policy" content="([^"]*)">', html)
+    assert len(policies) == 1
+    directives = {d.split()[0]: d.split()[1:] for d in policies[0].split("; ")}
+    assert directives == {"default-src": ["'none'"], "img-src": ["data:"],
+                          "style-src": ["'unsafe-inline'"], "base-uri": ["'none'"],
+                          "form-action": ["'none'"]}
+    assert "<script" not in html and not re.search(r"\son[a-z]+\s*=", html)
+    assert not re.search(r"""<img[^>]*\ssrc=["'](?!data:)""", html)

@@ -39,6 +39,7 @@ DEFAULT_PORT = 8765
 POLL_MS = 500
 WATCH_TIMEOUT_MS = 400
 _BODY_END = re.compile(r"</body\s*>", re.I)
+_PAGE_CSP = re.compile(r"<meta\s+http-equiv=\"Content-Security-Policy\"[^>]*>\n?", re.I)
 _REFERENCE_ATTRIBUTES = frozenset({"src", "href", "xlink:href", "poster", "data"})
 _CONTENT_TYPES = {".png": "image/png", ".jpg": "image/jpeg", ".jpeg": "image/jpeg",
                   ".svg": "image/svg+xml", ".css": "text/css; charset=utf-8",
@@ -67,6 +68,7 @@ def served_page(html: str, version: int) -> tuple[bytes, str]:
     Content-Security-Policy that allows that script and nothing from another origin."""
     script = reload_script(version)
     tag = f"<script>{script}</script>"
+    html = _PAGE_CSP.sub("", html)      # the page's own policy allows no script: the header's does
     ends = list(_BODY_END.finditer(html))
     page = html[:ends[-1].start()] + tag + html[ends[-1].start():] if ends else html + tag
     digest = base64.b64encode(hashlib.sha256(script.encode()).digest()).decode()
