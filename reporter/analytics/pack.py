@@ -55,8 +55,10 @@ from reporter.analytics.sml import (
 from reporter.analytics.stress import stress_analysis
 from reporter.analytics.window import _align_optional, _require_varying_market, build_window
 from reporter.config import Settings
+from reporter.errors import InputError
 from reporter.memory import release_free_memory
 from reporter.models import DatedSeries, ValidInputs
+from reporter.validate.pack import wipe_out_problem
 
 BAND_MAX_SIZE = 120   # largest random equal-weight portfolio drawn for the curve's band
 
@@ -167,6 +169,12 @@ def analyse(inputs: ValidInputs, settings: Settings,
     rolling = HoldingsRolling(settings.rolling_window, hist.returns, hist.risk_free,
                               hist.market_excess)
     hist_raw = portfolio_returns(hist.returns, weights)
+    if portfolio is None:
+        # validation refuses this from the holdings' own returns; cash and proxies stand in
+        # here too, so say it the same way rather than fail in a fractional power below
+        wiped = wipe_out_problem(settings, inputs.holdings, hist_raw, hist.dates)
+        if wiped is not None:
+            raise InputError([wiped])
     if portfolio is not None:
         hist_raw = _align_optional(portfolio, hist.dates, settings.frequency)
     hist_port = hist_raw - hist.risk_free

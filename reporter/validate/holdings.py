@@ -16,6 +16,11 @@ from reporter.validate.text import case_clash_message, case_clashes
 HOLDINGS_REQUIRED = ("security_id", "name", "sector")
 HOLDINGS_OPTIONAL = ("asset_class", "currency", "country", "proxy")
 PROXY_SERIES = ("market", "benchmark")   # a proxy may also name another holding's id
+# weights whose sum is within this of zero are not rescaled (checks.normalise_weights): the
+# division would blow up rounding error (a sum of -1.4e-16 from +0.6, -0.6, ...) into weights
+# of 1e16. Far above double rounding of a few thousand weights of order 1, far below any
+# sum a real weights file meant to rescale (a truncated file summing to 0.95, say).
+WEIGHT_SUM_FLOOR = 1e-6
 
 
 def validate_holdings(raw: RawTable, settings: Settings, coll: Collector) -> Holdings | None:
@@ -92,7 +97,13 @@ def validate_holdings(raw: RawTable, settings: Settings, coll: Collector) -> Hol
             if abs(total - 1.0) > settings.weight_tolerance:
                 msg = (f"weights sum to {total:.6g}, not 1 (tolerance "
                        f"{settings.weight_tolerance:g})")
-                if settings.normalise_weights:
+                if settings.normalise_weights and abs(total) <= WEIGHT_SUM_FLOOR:
+                    # long and short weights that cancel: dividing by a sum of ~0 would make
+                    # every weight astronomically large (or infinite), not "rescale" them
+                    coll.error(place(raw.name, None, column), f"weights sum to {total:.6g}, "
+                               "which is zero to rounding, so they cannot be rescaled to sum "
+                               "to 1; give weights that sum to 1")
+                elif settings.normalise_weights:
                     coll.warn(place(raw.name, None, column), msg + "; rescaled to sum to 1")
                     weights = raw_w / total
                     normalised = True

@@ -5,10 +5,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from reporter.analytics.returns import frequency_gaps, period_keys
+from reporter.analytics.returns import frequency_gaps, period_keys, portfolio_returns
 from reporter.config import Settings
-from reporter.errors import Collector, InputError, place
-from reporter.models import DatedSeries, ReturnPanel, ValidInputs
+from reporter.errors import Collector, InputError, Problem, place
+from reporter.models import DatedSeries, Holdings, ReturnPanel, ValidInputs
 from reporter.readers import RawTable, read_input
 from reporter.validate.common import MAX_PER_CHECK, _Capped, _period_word
 from reporter.validate.holdings import validate_holdings
@@ -56,6 +56,8 @@ def validate_tables(settings: Settings, raws: dict[str, RawTable], read_problems
         else None
     if market is not None and rf is not None:
         _check_coverage(settings, market, rf, panel, coll)
+    if holdings is not None and panel is not None and not coll.errors:
+        _check_wipe_out(settings, holdings, panel, market, coll)
     coll.raise_if_errors(strict=strict)
     assert holdings is not None and market is not None and rf is not None and panel is not None
     return ValidInputs(holdings=holdings, returns=panel, market=market, risk_free=rf,
@@ -164,3 +166,48 @@ def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
         if len(missing) > MAX_PER_CHECK:
             coll.error(rname, f"... and {len(missing) - MAX_PER_CHECK} more periods of the "
                        "window with no rate")
+
+
+def _check_wipe_out(settings: Settings, holdings: Holdings, panel: ReturnPanel,
+                    market: DatedSeries | None, coll: Collector) -> None:
+    """Today's weights applied to each period's returns (the back-cast the pack reports) must
+    not lose all of the portfolio: with short positions the gross exposure can exceed 100%,
+    and a period return of -100% or worse leaves nothing to compound (and a fractional power
+    of a negative number). One error, naming the first such period up to ``period_end``."""
+    weights = holdings.weights
+    if not settings.allow_short or not len(panel.period_keys) or (weights >= 0).all():
+        return       # long-only weights summing to 1 average returns that are above -100%
+    end_key = period_keys(np.array([np.datetime64(settings.period_end, "D")]),
+                          settings.frequency)[0]
+    upto = panel.period_keys <= end_key
+    with np.errstate(invalid="ignore", over="ignore"):
+        port = portfolio_returns(panel.values[upto], weights)
+    keys = panel.period_keys[upto]
+    dates = None
+    if market is not None:
+        mkeys = period_keys(market.dates, settings.frequency)
+        pos = np.minimum(np.searchsorted(mkeys, keys), len(mkeys) - 1)
+        dates = np.where(mkeys[pos] == keys, market.dates[pos], np.datetime64("NaT"))
+    problem = wipe_out_problem(settings, holdings, port, dates)
+    if problem is not None:
+        coll.problems.append(problem)
+
+
+def wipe_out_problem(settings: Settings, holdings: Holdings, port: np.ndarray,
+                     dates: np.ndarray | None) -> Problem | None:
+    """The error for a portfolio whose return ``port`` (by period, dated ``dates``) is -100%
+    or worse in some period, or None. Shared by validation and the analysis (which sees the
+    proxies' and cash's returns too), so that both say the same."""
+    with np.errstate(invalid="ignore"):
+        lost = np.flatnonzero(port <= -1.0)
+    if not len(lost):
+        return None
+    k = int(lost[0])
+    label = str(dates[k]) if dates is not None and not np.isnat(dates[k]) else f"period {k + 1}"
+    gross = float(np.abs(holdings.weights).sum())
+    more = f" (and in {len(lost) - 1} more period(s))" if len(lost) > 1 else ""
+    spec = settings.inputs.get("holdings")
+    return Problem(place(spec.display if spec else "holdings", None, holdings.weight_source),
+                   f"the gross leverage of {gross:.4g} (sum of |weights|) wipes the portfolio "
+                   f"out: its return in the period of {label} is {port[k]:.0%}{more}, and "
+                   "nothing is left to compound; reduce the long and short weights")

@@ -1,0 +1,107 @@
+"""Hostile inputs: values that are well-formed enough to pass a casual look but break the
+arithmetic (leverage that wipes the portfolio out, weights that cancel, huge returns,
+non-finite settings, an unterminated quote). Each must give one ``file:row:column: message``
+line (or ``pack.toml:key: message``), exit 2 from both ``check`` and ``build``, no traceback,
+and no output folder."""
+
+from __future__ import annotations
+
+import re
+import shutil
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from reporter.cli import main
+from tests.conftest import DEMO
+
+SUMMARY = "reporter: "
+
+
+def _pack(tmp_path: Path) -> Path:
+    pack = tmp_path / "pack"
+    shutil.copytree(DEMO, pack)
+    return pack
+
+
+def _toml(pack: Path, section: str, lines: str) -> None:
+    """Add ``lines`` at the top of ``[section]`` of the pack's pack.toml (made if absent)."""
+    path = pack / "pack.toml"
+    text = path.read_text()
+    if f"[{section}]\n" in text:
+        text = text.replace(f"[{section}]\n", f"[{section}]\n{lines}\n", 1)
+    else:
+        text = text.replace("[analysis]\n", f"[{section}]\n{lines}\n\n[analysis]\n", 1)
+    path.write_text(text)
+
+
+def _refused(pack: Path, tmp_path: Path, capsys) -> list[str]:
+    """Run ``check`` and ``build`` on ``pack``: both exit 2 with the same problem lines, no
+    traceback, and the build writes nothing. Returns the problem lines."""
+    code = main(["check", str(pack)])
+    _, err = capsys.readouterr()
+    assert code == 2, err
+    assert "Traceback" not in err and "internal error" not in err
+    lines = [ln for ln in err.splitlines() if not ln.startswith(SUMMARY)]
+    out = tmp_path / "out"
+    code = main(["build", str(pack), "--out", str(out), "--quiet"])
+    _, err = capsys.readouterr()
+    assert code == 2, err
+    assert "Traceback" not in err and "internal error" not in err
+    assert [ln for ln in err.splitlines() if not ln.startswith(SUMMARY)] == lines
+    assert not out.exists()
+    return lines
+
+
+def _weights(pack: Path, weights: list[float]) -> None:
+    """Give the holdings file a weight column (in place of market values)."""
+    h = pd.read_csv(pack / "holdings.csv", dtype=str)
+    h = h.drop(columns="market_value")
+    h["weight"] = [repr(float(w)) for w in weights]
+    h.to_csv(pack / "holdings.csv", index=False)
+
+
+# -- 1. leverage that wipes the portfolio out; weights that sum to zero ---------------------
+
+def test_leverage_that_wipes_the_portfolio_out_is_one_error(tmp_path, capsys):
+    pack = _pack(tmp_path)
+    h = pd.read_csv(pack / "holdings.csv")
+    mv = h["market_value"].to_numpy(dtype=float)
+    rest = mv[2:] / mv[2:].sum()          # the others sum to 1, so the two legs net to zero
+    _weights(pack, [2.0, -2.0, *rest])
+    _toml(pack, "checks", "allow_short = true")
+    # one month in which the long leg halves and the short leg rises by half: -200% from
+    # the two legs, whatever the others did
+    r = pd.read_csv(pack / "returns.csv", dtype={"return": str})
+    at = r["date"] == "2026-10-31"
+    r.loc[at & (r["security_id"] == "TVX001"), "return"] = "-0.5"
+    r.loc[at & (r["security_id"] == "TVX002"), "return"] = "0.5"
+    r.to_csv(pack / "returns.csv", index=False)
+    # the month's portfolio return as the pack would compute it: the weights of holdings with
+    # a return that month, re-weighted over them
+    month = r[at].set_index("security_id")["return"].astype(float)
+    w = pd.Series([2.0, -2.0, *rest], index=h["security_id"])
+    present = w.index.isin(month.index)
+    expected = float((w[present] * month.reindex(w.index[present])).sum() / w[present].sum())
+    assert expected < -1
+    assert _refused(pack, tmp_path, capsys) == [
+        "holdings.csv:weight: the gross leverage of 5 (sum of |weights|) wipes the portfolio "
+        f"out: its return in the period of 2026-10-31 is {expected:.0%}, and nothing is left "
+        "to compound; reduce the long and short weights"]
+
+
+def test_weights_summing_to_zero_are_not_rescaled(tmp_path, capsys):
+    pack = _pack(tmp_path)
+    n = len(pd.read_csv(pack / "holdings.csv"))
+    # long and short legs that cancel, to rounding (0.1 + 0.2 - 0.3 is not exactly 0)
+    w = np.resize([0.1, 0.2, -0.3], n)
+    w[-1] = 0.0 if n % 3 else w[-1]
+    _weights(pack, list(w))
+    _toml(pack, "checks", "allow_short = true\nnormalise_weights = true")
+    total = float(np.asarray(pd.read_csv(pack / "holdings.csv")["weight"]).sum())
+    assert abs(total) < 1e-12
+    assert _refused(pack, tmp_path, capsys) == [
+        f"holdings.csv:weight: weights sum to {total:.6g}, which is zero to rounding, so they "
+        "cannot be rescaled to sum to 1; give weights that sum to 1"]
