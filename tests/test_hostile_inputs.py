@@ -6,7 +6,6 @@ and no output folder."""
 
 from __future__ import annotations
 
-import re
 import shutil
 from pathlib import Path
 
@@ -105,3 +104,17 @@ def test_weights_summing_to_zero_are_not_rescaled(tmp_path, capsys):
     assert _refused(pack, tmp_path, capsys) == [
         f"holdings.csv:weight: weights sum to {total:.6g}, which is zero to rounding, so they "
         "cannot be rescaled to sum to 1; give weights that sum to 1"]
+
+
+# -- 2. HAC lags beyond what a fit can have ------------------------------------------------
+
+@pytest.mark.parametrize("lags", [24, 1000])
+def test_hac_lags_not_below_min_obs_are_refused(tmp_path, capsys, lags):
+    pack = _pack(tmp_path)
+    text = (pack / "pack.toml").read_text()
+    assert "\nmin_obs = 24\n" in text
+    (pack / "pack.toml").write_text(text.replace("\nmin_obs = 24\n",
+                                                 f"\nmin_obs = 24\nhac_lags = {lags}\n"))
+    assert _refused(pack, tmp_path, capsys) == [
+        f"pack.toml:analysis.hac_lags: hac_lags ({lags}) must be below min_obs (24), the "
+        "fewest observations a holding's fit may have"]

@@ -58,6 +58,14 @@ def load_settings(pack: Path | str) -> Settings:
         problems.append(Problem(f"{fname}:analysis.min_obs",
                                 f"min_obs ({model.analysis.min_obs}) is larger than the window "
                                 f"({model.analysis.window})"))
+    lags = model.analysis.hac_lags
+    if lags is not None and lags >= model.analysis.min_obs:
+        # a fit may have as few as min_obs observations, and a lag reaches back that many
+        # periods: at min_obs or more there is no pair of observations that far apart
+        problems.append(Problem(f"{fname}:analysis.hac_lags",
+                                f"hac_lags ({lags}) must be below min_obs "
+                                f"({model.analysis.min_obs}), the fewest observations a "
+                                "holding's fit may have"))
 
     inputs: dict[str, InputSpec] = {}
     defaults = model.inputs
