@@ -22,7 +22,8 @@ Level = Annotated[float, Field(gt=0.5, lt=1.0)]
 
 
 class _Strict(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
+    # allow_inf_nan=False: nan and inf (which TOML allows) are refused by every float key
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False)
 
 
 class StressScenario(_Strict):

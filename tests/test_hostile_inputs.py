@@ -118,3 +118,49 @@ def test_hac_lags_not_below_min_obs_are_refused(tmp_path, capsys, lags):
     assert _refused(pack, tmp_path, capsys) == [
         f"pack.toml:analysis.hac_lags: hac_lags ({lags}) must be below min_obs (24), the "
         "fewest observations a holding's fit may have"]
+
+
+# -- 3. nan and inf in pack.toml -------------------------------------------------------------
+
+# every float setting of pack.toml: (section, the line with {v} for the value, the key named)
+FLOAT_SETTINGS = [
+    ("analysis", "confidence = {v}", "analysis.confidence"),
+    ("analysis", "blume_intercept = {v}", "analysis.blume_intercept"),
+    ("analysis", "blume_slope = {v}", "analysis.blume_slope"),
+    ("analysis", "mar = {v}", "analysis.mar"),
+    ("checks", "weight_tolerance = {v}", "checks.weight_tolerance"),
+    ("limits", "beta_min = {v}", "limits.beta_min"),
+    ("limits", "beta_max = {v}", "limits.beta_max"),
+    ("limits", "max_holding_weight = {v}", "limits.max_holding_weight"),
+    ("limits", "max_sector_weight = {v}", "limits.max_sector_weight"),
+    ("limits", "max_sector_weight = {{ Energy = {v} }}", "limits.max_sector_weight.Energy"),
+    ("limits", "min_effective_n = {v}", "limits.min_effective_n"),
+    ("limits", "max_tracking_error_ann = {v}", "limits.max_tracking_error_ann"),
+    ("limits", "max_idiosyncratic_share = {v}", "limits.max_idiosyncratic_share"),
+    ("limits", "max_var_95_ann = {v}", "limits.max_var_95_ann"),
+    ("limits", "max_stress_loss = {v}", "limits.max_stress_loss"),
+    ("limits", "stress_shock = {v}", "limits.stress_shock"),
+    ("limits", "watch_margin = {v}", "limits.watch_margin"),
+    ("limits", "asset_class_ranges = {{ Equity = [0.9, {v}] }}",
+     "limits.asset_class_ranges.Equity"),
+    ("stress", "market_shocks = [{v}]", "stress.market_shocks"),
+    ("stress", "levels = [{v}]", "stress.levels"),
+    ("stress", "block_length = {v}", "stress.block_length"),
+    ("stress", "backtest_level = {v}", "stress.backtest_level"),
+]
+
+
+@pytest.mark.parametrize("value", ["nan", "inf", "-inf"])
+@pytest.mark.parametrize(("section", "line", "key"), FLOAT_SETTINGS,
+                         ids=[c[1].split(" =")[0] + ("_table" if "{{" in c[1] else "")
+                              for c in FLOAT_SETTINGS])
+def test_non_finite_float_settings_are_refused(tmp_path, capsys, section, line, key, value):
+    pack = _pack(tmp_path)
+    path = pack / "pack.toml"
+    name = line.split(" =")[0]
+    # the demo's own setting of the key, if any, gives way to the one under test
+    path.write_text("".join(ln for ln in path.read_text().splitlines(keepends=True)
+                            if not ln.startswith(f"{name} =")))
+    _toml(pack, section, line.format(v=value))
+    assert _refused(pack, tmp_path, capsys) == [
+        f"pack.toml:{key}: Input should be a finite number (got {value})"]

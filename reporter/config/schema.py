@@ -17,7 +17,8 @@ OPTIONAL_ROLES = ("benchmark", "portfolio_returns", "cash_flows",   # read only 
 
 
 class _Strict(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
+    # allow_inf_nan=False: nan and inf (which TOML allows) are refused by every float key
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False)
 
 
 class PackSection(_Strict):
