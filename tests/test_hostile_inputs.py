@@ -164,3 +164,47 @@ def test_non_finite_float_settings_are_refused(tmp_path, capsys, section, line, 
     _toml(pack, section, line.format(v=value))
     assert _refused(pack, tmp_path, capsys) == [
         f"pack.toml:{key}: Input should be a finite number (got {value})"]
+
+
+# -- 4. returns too large for any security, and for the arithmetic --------------------------
+
+def _set_field(path: Path, prefix: str, column: str, value: str) -> int:
+    """Set ``column`` on the first line of the CSV ``path`` that starts with ``prefix``;
+    return that line's number (the header is line 1)."""
+    lines = path.read_text().splitlines(keepends=True)
+    j = lines[0].rstrip("\n").split(",").index(column)
+    n = next(k for k, ln in enumerate(lines) if ln.startswith(prefix))
+    fields = lines[n].rstrip("\n").split(",")
+    fields[j] = value
+    lines[n] = ",".join(fields) + "\n"
+    path.write_text("".join(lines))
+    return n + 1
+
+
+@pytest.mark.parametrize("value", ["1e308", "1e150", "1e20", "100.5"])
+@pytest.mark.parametrize(("file", "prefix", "column"), [
+    ("returns.csv", "2026-10-31,TVX001,", "return"),
+    ("market.csv", "2025-02-28,", "return"),
+    ("risk_free.csv", "2025-02-28,", "rate"),
+    ("factors.csv", "2025-02-28,", "value"),
+    ("benchmark_sectors.csv", "2025-02-28,", "return"),
+])
+def test_returns_above_the_plausible_bound_are_refused(tmp_path, capsys, file, prefix, column,
+                                                       value):
+    pack = _pack(tmp_path)
+    row = _set_field(pack / file, prefix, column, value)
+    shown = f"{float(value):g}"
+    assert _refused(pack, tmp_path, capsys) == [
+        f"{file}:{row}:{column}: return {shown} is above 100 (+10,000%) in one period, more "
+        "than any security earns; check the data"]
+
+
+def test_a_return_at_the_bound_is_accepted(tmp_path, capsys):
+    """+10,000% itself is the bound, not beyond it (and below -100% is still refused)."""
+    pack = _pack(tmp_path)
+    _set_field(pack / "returns.csv", "2026-10-31,TVX001,", "return", "100")
+    assert main(["check", str(pack)]) == 0
+    capsys.readouterr()
+    row = _set_field(pack / "returns.csv", "2026-10-31,TVX002,", "return", "-1.5")
+    assert _refused(pack, tmp_path, capsys) == [
+        f"returns.csv:{row}:return: return -1.5 is below -100%"]

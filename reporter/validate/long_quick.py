@@ -11,7 +11,7 @@ import pyarrow.compute as pc
 from reporter.analytics.returns import period_keys
 from reporter.validate.cells import _parse_date_texts
 from reporter.validate.text import case_clashes, normalised_ids
-from reporter.validate.values import _percent_columns
+from reporter.validate.values import MAX_PERIOD_RETURN, _percent_columns
 
 
 def _clean_long_matrix(raw, date_format: str, frequency: str):
@@ -65,7 +65,7 @@ def _clean_long_matrix(raw, date_format: str, frequency: str):
     flat = np.empty(space)
     for b, (pmap, smap) in zip(batches, maps, strict=True):
         v = b.column(2).to_numpy()
-        if not ((v >= -1.0) & (v < np.inf)).all():      # NaN fails the first test
+        if not ((v >= -1.0) & (v <= MAX_PERIOD_RETURN)).all():   # NaN fails the first
             return None
         cell = pmap[b.column(0).indices.to_numpy()]
         cell += smap[b.column(1).indices.to_numpy()]

@@ -25,7 +25,7 @@ from reporter.config import InputSpec
 from reporter.readers import RawTable, _csv_header, _text_type, csv_options
 from reporter.validate.cells import _parse_date_texts
 from reporter.validate.text import case_clashes, normalise_id, normalised_ids
-from reporter.validate.values import _percent_columns
+from reporter.validate.values import MAX_PERIOD_RETURN, _percent_columns
 
 LONG_COLUMNS = ("date", "security_id", "return")
 # The streaming reader reads some 32 blocks ahead of the batch being converted: with 1 MiB
@@ -147,7 +147,7 @@ def _stream(spec: InputSpec, header: list[str], frequency: str) -> StreamedLong 
         if bad or any(c.null_count for c in batch.columns):
             return None
         v = batch.column("return").to_numpy()
-        if not ((v >= -1.0) & (v < np.inf)).all():      # NaN fails the first test
+        if not ((v >= -1.0) & (v <= MAX_PERIOD_RETURN)).all():   # NaN fails the first
             return None
         d, s = batch.column("date"), batch.column("security_id")
         parts.append((dates.positions(d.dictionary)[d.indices.to_numpy()],

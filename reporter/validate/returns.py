@@ -21,7 +21,7 @@ from reporter.validate.text import (
     normalise_id,
     normalised_ids,
 )
-from reporter.validate.values import _percent_columns, _report_below_minus_100
+from reporter.validate.values import _percent_columns, _report_below_minus_100, out_of_range
 
 
 def validate_returns(raw: RawTable, holdings: Holdings | None, settings: Settings,
@@ -147,7 +147,7 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw, value_col) -> Ret
                              holdings_raw, _no_percent(len(ids)))
     # securities that look like percentages are reported once, in _finish_panel
     percent = _percent_columns(matrix, settings.frequency)
-    if (values < -1.0).any():
+    if out_of_range(values).any():
         pct_code = np.append(percent[0], False)
         code_of_row = np.where(id_null, len(ids), codes_all)  # len(ids): the "no id" slot
         _report_below_minus_100(raw, np.where(pct_code[code_of_row], np.nan, values),
@@ -183,7 +183,7 @@ def _returns_wide(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
                                                                           settings.frequency)
     for j in np.flatnonzero((full <= 0).any(axis=0) if prices else []):
         report_non_positive(raw, full[:, j], columns[j], coll)
-    for j in np.flatnonzero(~percent[0] & (full < -1.0).any(axis=0) & (not prices)):
+    for j in np.flatnonzero(~percent[0] & out_of_range(full).any(axis=0) & (not prices)):
         _report_below_minus_100(raw, full[:, j], columns[j],
                                 f"returns below -100% in column {columns[j]}", coll)
     ids_ok = _wide_ids(raw, columns, coll)

@@ -13,7 +13,12 @@ from reporter.readers import RawTable
 from reporter.validate.cells import as_dates, as_float
 from reporter.validate.common import _Capped, _period_word, _require_columns
 from reporter.validate.prices import PRICE_COLUMN, report_non_positive, series_returns
-from reporter.validate.values import PERCENT_MEDIAN, _check_return_values, looks_like_percent
+from reporter.validate.values import (
+    PERCENT_MEDIAN,
+    _check_return_values,
+    implausible,
+    looks_like_percent,
+)
 
 
 def validate_series(raw: RawTable, value_col: str, settings: Settings,
@@ -82,13 +87,15 @@ INDEX_MOVE_LIMIT = {"monthly": 0.5, "weekly": 0.35, "daily": 0.25}
 def _warn_extreme_index_moves(raw: RawTable, values: np.ndarray, settings: Settings,
                               coll: Collector) -> None:
     """A warning per market-proxy return beyond :data:`INDEX_MOVE_LIMIT` (not a percentage
-    column, which is reported as such, and not below -100%, which is an error)."""
+    column, which is reported as such, and not below -100% or above MAX_PERIOD_RETURN, which
+    are errors)."""
     limit = INDEX_MOVE_LIMIT[settings.frequency]
     finite = values[np.isfinite(values)]
     if not len(finite) or looks_like_percent(finite, settings.frequency):
         return
     capped = _Capped(coll, "extreme market moves", warning=True)
-    for i in np.flatnonzero((np.abs(values) > limit) & (values >= -1.0)):
+    for i in np.flatnonzero((np.abs(values) > limit) & (values >= -1.0)
+                            & ~implausible(values)):   # (those are errors)
         capped.add(place(raw.name, raw.row_number(int(i)), "return"),
                    f"return {values[i]:g} in one {_period_word(settings)} is beyond what a broad "
                    f"market index does (more than {limit:.0%} either way); check the data")

@@ -14,14 +14,46 @@ from reporter.validate.common import _Capped
 
 PERCENT_MEDIAN = {"monthly": 0.25, "weekly": 0.15, "daily": 0.10}
 
+# The largest return one period may hold, as a decimal: 100.0 is +10,000%, the value
+# multiplied by 101. No listed security, index or deposit earns that in a month, a week or
+# a day (the wildest meme-stock and hyperinflation months are a few thousand percent at
+# most), so a value above it is a data error: a price given for a return, a lost decimal
+# point, a spreadsheet's overflow. Far below the bound, the arithmetic already fails: a
+# value of 1e150 squared in a variance is 1e300, and at 1e308 the sums overflow to inf, so
+# that the regressions return NaN or fail to converge. The demo's and the tests' data stay
+# below 5 (a few tests give percentages such as 3.4, which are reported as percentages).
+MAX_PERIOD_RETURN = 100.0
+
+
+def implausible(values: np.ndarray) -> np.ndarray:
+    """Where ``values`` (decimal returns for one period) are above :data:`MAX_PERIOD_RETURN`
+    (NaN is never above; +inf is, but is reported as not a finite number when read)."""
+    return values > MAX_PERIOD_RETURN
+
+
+def implausible_message(value: float) -> str:
+    return (f"return {value:g} is above {MAX_PERIOD_RETURN:g} (+{MAX_PERIOD_RETURN:,.0%}) in "
+            "one period, more than any security earns; check the data")
+
+
+def out_of_range(values: np.ndarray) -> np.ndarray:
+    """Returns below -100% or above :data:`MAX_PERIOD_RETURN` (NaN is neither)."""
+    return (values < -1.0) | implausible(values)
+
 
 def _report_below_minus_100(raw: RawTable, values: np.ndarray, label: str, summary: str,
                             coll: Collector) -> None:
-    """One problem per data row whose return is below -100% (NaN is never below)."""
+    """One problem per data row whose return is below -100% (NaN is never below), and one per
+    row whose return is above :data:`MAX_PERIOD_RETURN`."""
     capped = _Capped(coll, summary)
     for i in np.flatnonzero(values < -1.0):
         capped.add(place(raw.name, raw.row_number(int(i)), label),
                    f"return {values[i]:g} is below -100%")
+    capped.close()
+    capped = _Capped(coll, f"returns above {MAX_PERIOD_RETURN:g} in column {label}")
+    for i in np.flatnonzero(implausible(values)):
+        capped.add(place(raw.name, raw.row_number(int(i)), label),
+                   implausible_message(float(values[i])))
     capped.close()
 
 
