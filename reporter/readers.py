@@ -11,6 +11,8 @@ from __future__ import annotations
 import csv
 import datetime as dt
 import functools
+import itertools
+import sys
 import zipfile
 from dataclasses import dataclass
 from pathlib import Path
@@ -109,6 +111,8 @@ def _read_csv(spec: InputSpec) -> RawTable:
         raise InputError(problems)
     table = _drop_trailing_empty_columns(table)
     lines = _record_lines(spec, table.num_rows) if _has_line_breaks(table) else None
+    if lines is None and table.num_rows:
+        _refuse_open_last_line(spec, header, table.num_rows + 1)
     table, rows = _drop_blank_rows(table, first_row=2, lines=lines)
     return RawTable(spec.display, table, 2, "csv", rows)
 
@@ -133,14 +137,69 @@ def _record_lines(spec: InputSpec, n_records: int) -> np.ndarray | None:
     Python's csv reader, which follows quoted values across lines. Only called for a file
     with a line break inside a value (rare, and then the file is read twice)."""
     starts = []
-    with open(spec.path, encoding="utf-8-sig", newline="") as fh:
-        reader = csv.reader(fh, delimiter=spec.delimiter)
-        last = 0
-        for _ in reader:
-            starts.append(last + 1)
-            last = reader.line_num
+    record: list[str] = []
+    limit = csv.field_size_limit()
+    csv.field_size_limit(sys.maxsize)       # an unclosed quote makes one field of the rest
+    try:
+        with open(spec.path, encoding="utf-8-sig", newline="") as fh:
+            reader = csv.reader(fh, delimiter=spec.delimiter)
+            last = 0
+            for fields in reader:
+                record = fields                 # the last record is wanted below
+                starts.append(last + 1)
+                last = reader.line_num
+    finally:
+        csv.field_size_limit(limit)
+    if starts and _ends_inside_quotes(spec, starts[-1]):
+        header = _csv_header(spec.path, spec.delimiter)
+        k = len(record) - 1
+        column = header[k] if 0 <= k < len(header) else None
+        raise InputError([Problem(place(spec.display, starts[-1], column),
+                                  "a quoted field opened on this line is never closed (the "
+                                  "quote runs to the end of the file); close it or remove it")])
     starts = starts[1:]                                # the header record
     return np.array(starts, dtype=np.int64) if len(starts) == n_records else None
+
+
+def _refuse_open_last_line(spec: InputSpec, header: list[str], line: int) -> None:
+    """A quote opened on the last line of a file that does not end in a line break holds no
+    line break, so :func:`_record_lines` does not look: refuse it here (``line``: that last
+    line's number, every record being one line)."""
+    with open(spec.path, "rb") as fh:
+        fh.seek(max(fh.seek(0, 2) - (1 << 16), 0))
+        tail = fh.read()
+    if not tail or tail.endswith((b"\n", b"\r")):
+        return
+    text = tail.rsplit(b"\n", 1)[-1].decode("utf-8", errors="replace")
+    try:
+        fields = next(csv.reader([text], delimiter=spec.delimiter, strict=True), [])
+    except csv.Error as exc:
+        if "unexpected end of data" not in str(exc):
+            return
+        fields = next(csv.reader([text], delimiter=spec.delimiter), [])
+        k = len(fields) - 1
+        raise InputError([Problem(place(spec.display, line,
+                                        header[k] if 0 <= k < len(header) else None),
+                                  "a quoted field opened on this line is never closed (the "
+                                  "quote runs to the end of the file); close it or remove it")]
+                         ) from None
+
+
+def _ends_inside_quotes(spec: InputSpec, line: int) -> bool:
+    """Whether the record starting on ``line`` (the file's last) opens a quoted field that the
+    file never closes: read strictly from that line, it ends inside the quotes."""
+    with open(spec.path, encoding="utf-8-sig", newline="") as fh:
+        rest = itertools.islice(fh, line - 1, None)
+        limit = csv.field_size_limit()
+        csv.field_size_limit(sys.maxsize)
+        try:
+            for _ in csv.reader(rest, delimiter=spec.delimiter, strict=True):
+                pass
+        except csv.Error as exc:
+            return "unexpected end of data" in str(exc)
+        finally:
+            csv.field_size_limit(limit)
+    return False
 
 
 def _drop_trailing_empty_columns(table: pa.Table) -> pa.Table:

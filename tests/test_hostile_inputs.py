@@ -208,3 +208,24 @@ def test_a_return_at_the_bound_is_accepted(tmp_path, capsys):
     row = _set_field(pack / "returns.csv", "2026-10-31,TVX002,", "return", "-1.5")
     assert _refused(pack, tmp_path, capsys) == [
         f"returns.csv:{row}:return: return -1.5 is below -100%"]
+
+
+# -- 5. a quoted field that is never closed ---------------------------------------------------
+
+@pytest.mark.parametrize(("file", "line", "column", "end"), [
+    ("returns.csv", 5, "return", "\n"),   # a long file: the rest of it is one field of 130+ KB
+    ("market.csv", 30, "return", "\n"),   # a small one: the rest is read as one "number"
+    ("market.csv", 121, "return", ""),    # the last line, with no line break after it
+])
+def test_an_unclosed_quote_is_one_line_naming_where_it_opens(tmp_path, capsys, file, line,
+                                                             column, end):
+    pack = _pack(tmp_path)
+    path = pack / file
+    lines = path.read_text().splitlines()
+    assert len(lines) >= line
+    head, _, value = lines[line - 1].rpartition(",")
+    lines[line - 1] = f'{head},"{value}'           # the quote is opened and never closed
+    path.write_text("\n".join(lines) + end)
+    assert _refused(pack, tmp_path, capsys) == [
+        f"{file}:{line}:{column}: a quoted field opened on this line is never closed (the "
+        "quote runs to the end of the file); close it or remove it"]
