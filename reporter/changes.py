@@ -72,11 +72,41 @@ def latest_signed_pack(archive: Path, before: dt.date) -> Path | None:
     return best[1] if best else None
 
 
+MAX_FINDINGS = 10       # archive findings listed before a count of the rest
+
+
+def check_archive(archive: Path) -> None:
+    """Refuse (:class:`InputError`, nothing read) an archive that fails
+    :func:`reporter.archive.verify.verify_archive`: an archived file altered, missing or
+    writable, a file no entry records (a pack folder put in by hand), an edited ledger or a
+    broken chain. The whole archive is checked, not only the entry compared with, because
+    the choice of that entry reads every archived ``manifest.json``. One line per finding,
+    naming its file (or ledger entry) and what is wrong."""
+    from reporter.archive.verify import ArchiveUnreadable, verify_archive
+
+    try:
+        report = verify_archive(archive)
+    except ArchiveUnreadable as exc:
+        raise InputError([Problem(WHERE, f"{exc}; nothing to compare")]) from None
+    if report.intact:
+        return
+    problems = [Problem(str(Path(archive) / f.where),
+                        f"{f.kind}: {f.message}; the archive does not match its ledger, so "
+                        "no pack in it is compared with (see 'reporter verify --archive')")
+                for f in report.findings[:MAX_FINDINGS]]
+    if len(report.findings) > MAX_FINDINGS:
+        problems.append(Problem(str(archive), f"... and {len(report.findings) - MAX_FINDINGS}"
+                                " more problems"))
+    raise InputError(problems)
+
+
 def read_previous(settings: Settings) -> tuple[PreviousPack | None, list[Problem]]:
     """The earlier pack named in ``[compare]``, and warnings (an archive with no earlier
     pack). (None, []) when there is no ``[compare]`` table. Raises :class:`InputError` when
-    the folder is not a pack build or its files cannot be read."""
+    the folder is not a pack build or its files cannot be read, or when the archive named
+    fails verification against its ledger (see :func:`check_archive`)."""
     if settings.compare_archive is not None:
+        check_archive(settings.compare_archive)
         folder = latest_signed_pack(settings.compare_archive, settings.period_end)
         if folder is None:
             return None, [Problem(WHERE, f"no signed pack with a period end before "

@@ -170,29 +170,96 @@ def test_latest_signed_pack(tmp_path):
     assert latest_signed_pack(a, dt.date(2026, 9, 30)) is None
 
 
-def test_archive_form(demo_build, tmp_path):
+def test_archive_form(site_archive, tmp_path):
+    """The latest signed pack before 2026-11-30 in an archive that verifies: 2026-10-31 (the
+    archive also holds 2026-09-30 and 2026-11-30 itself, which is not "before")."""
+    (signed,) = [p for p in (site_archive / "2026-10-31").iterdir() if p.is_dir()]
+    a = assemble(load_settings(make_swapped(tmp_path / "pack", f"archive:{site_archive}")))
+    assert a.changes.previous_source == "archive"
+    assert a.changes.previous_period_end == "2026-10-31"
+    assert a.changes.previous_folder == str(signed)
+
+
+def test_archive_with_nothing_earlier(signed_archive, tmp_path):
+    # the archive holds only 2026-11-30, this pack's own period
+    a = assemble(load_settings(make_swapped(tmp_path / "pack", f"archive:{signed_archive}")))
+    assert a.changes is None
+    assert [p.severity for p in a.compare_warnings] == ["warning"]
+    assert "no signed pack with a period end before 2026-11-30" in a.html()
+    with pytest.raises(InputError):
+        assemble(load_settings(tmp_path / "pack"), strict=True)
+
+
+def test_archive_without_ledger_is_refused(demo_build, tmp_path):
+    """A build copied into a folder laid out like an archive, with no ledger: nothing to
+    check it against, so it is not compared with."""
     archive = tmp_path / "archive"
     signed = archive / "2026-10-31" / "equity"
     shutil.copytree(demo_build, signed)
     m = json.loads((signed / "results/manifest.json").read_text())
     m["period_end"] = "2026-10-31"
     (signed / "results/manifest.json").write_text(json.dumps(m))
-    _signed(archive, "2026-12-31", "equity", "2026-12-31")   # later: ignored
-    a = assemble(load_settings(make_swapped(tmp_path / "pack", f"archive:{archive}")))
-    assert a.changes.previous_source == "archive"
-    assert a.changes.previous_period_end == "2026-10-31"
-    assert a.changes.previous_folder == str(signed)
+    with pytest.raises(InputError) as exc:
+        assemble(load_settings(make_swapped(tmp_path / "pack", f"archive:{archive}")))
+    (problem,) = exc.value.problems
+    assert problem.where == "pack.toml:compare.previous"
+    assert problem.message.startswith(f"{archive / 'ledger.sqlite'}: cannot be read as a "
+                                      "ledger")
 
 
-def test_archive_with_nothing_earlier(tmp_path):
+def _tamper(archive, rel: str, edit) -> None:
+    """Edit an archived (read-only) file the way a tester would: make it writable, change
+    it, make it read-only again."""
+    path = archive / rel
+    path.chmod(0o644)
+    path.write_text(edit(path.read_text()))
+    path.chmod(0o444)
+
+
+def test_tampered_archive_is_refused(site_archive, tmp_path, capsys):
+    """An archived earlier pack's portfolio.json edited after sign-off (a beta of 0.42 that
+    would show as a significant change): check and build refuse the archive as bad input,
+    naming the file, and the build writes nothing."""
+    from reporter.cli import main
+
     archive = tmp_path / "archive"
-    _signed(archive, "2026-12-31", "equity", "2026-12-31")
-    a = assemble(load_settings(make_swapped(tmp_path / "pack", f"archive:{archive}")))
-    assert a.changes is None
-    assert [p.severity for p in a.compare_warnings] == ["warning"]
-    assert "no signed pack with a period end before 2026-11-30" in a.html()
-    with pytest.raises(InputError):
-        assemble(load_settings(tmp_path / "pack"), strict=True)
+    shutil.copytree(site_archive, archive)
+    (signed,) = [p for p in (archive / "2026-10-31").iterdir() if p.is_dir()]
+    rel = f"2026-10-31/{signed.name}/results/portfolio.json"
+
+    def fake_beta(text):
+        doc = json.loads(text)
+        assert doc["beta_regression"] != 0.42
+        doc["beta_regression"] = 0.42
+        return json.dumps(doc)
+
+    _tamper(archive, rel, fake_beta)
+    pack = make_swapped(tmp_path / "pack", f"archive:{archive}")
+    capsys.readouterr()
+    assert main(["check", str(pack)]) == 2
+    err = capsys.readouterr().err
+    assert f"{archive / rel}: changed: sha256 differs from entry 4" in err
+    assert "Traceback" not in err
+    out = tmp_path / "out"
+    assert main(["build", str(pack), "--out", str(out), "--quiet"]) == 2
+    assert f"{archive / rel}: changed:" in capsys.readouterr().err
+    assert not out.exists()
+    with pytest.raises(InputError) as exc:
+        assemble(load_settings(pack))
+    assert [p.where for p in exc.value.problems] == [str(archive / rel)]
+
+
+def test_unrecorded_pack_in_archive_is_refused(site_archive, tmp_path):
+    """A pack folder put into the archive by hand (no ledger entry records it) would be the
+    latest before 2026-11-30; it is refused rather than compared with."""
+    archive = tmp_path / "archive"
+    shutil.copytree(site_archive, archive)
+    (signed,) = [p for p in (archive / "2026-10-31").iterdir() if p.is_dir()]
+    shutil.copytree(signed, archive / "2026-11-15" / signed.name)
+    with pytest.raises(InputError) as exc:
+        assemble(load_settings(make_swapped(tmp_path / "pack", f"archive:{archive}")))
+    assert any(p.message.startswith("unrecorded:") and "2026-11-15" in p.where
+               for p in exc.value.problems)
 
 
 @pytest.mark.parametrize("b0,b1,se0,se1,beyond", [
