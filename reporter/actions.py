@@ -8,9 +8,10 @@ An item is overdue when it is open and its due date is before the pack's period 
 
 Every problem is one :class:`~reporter.errors.Problem` naming ``actions.csv:row:column`` (the
 header is row 1); all are gathered and raised together as an
-:class:`~reporter.errors.InputError`. The file is read with the standard ``csv`` module: it is
-a handful of rows, and text cells are kept exactly as written (escaped in HTML by the
-templates).
+:class:`~reporter.errors.InputError`. An invisible format character (a right-to-left override,
+a zero-width space, ...) in a column name or cell is an error, as in every input file. The
+file is read with the standard ``csv`` module: it is a handful of rows, and text cells are
+kept exactly as written (escaped in HTML by the templates).
 """
 
 from __future__ import annotations
@@ -23,6 +24,8 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from reporter.errors import InputError, Problem, place
+from reporter.invisible import invisible_message
+from reporter.validate.text import visible
 
 FILE = "actions.csv"
 COLUMNS = ("id", "raised", "action", "owner", "due", "status", "note")
@@ -98,6 +101,10 @@ def parse_actions(text: str, period_end: dt.date) -> tuple[Action, ...]:
                                 + ", ".join(COLUMNS) + ")"))
     if len(set(header)) != len(header):
         problems.append(Problem(place(FILE, 1), "a column name appears twice"))
+    for name in rows[0]:
+        if found := invisible_message(name):
+            problems.append(Problem(place(FILE, 1, visible(name.strip())),
+                                    f"column name: {found}"))
     if problems:
         raise InputError(problems)
     index = {h: i for i, h in enumerate(header)}
@@ -112,6 +119,9 @@ def parse_actions(text: str, period_end: dt.date) -> tuple[Action, ...]:
             continue
         cell = {h: cells[i].strip() for h, i in index.items()}
         before = len(problems)
+        for col in header:
+            if found := invisible_message(cell[col]):
+                problems.append(Problem(place(FILE, n, col), found))
         for col in REQUIRED:
             if not cell[col]:
                 problems.append(Problem(place(FILE, n, col), "empty; a value is required"))

@@ -10,6 +10,8 @@ parsed by markdown-it-py (CommonMark, plus tables) and sanitised before it reach
   Markdown file with no ``..`` part; a remote image, a ``file:`` URL, an absolute path or a
   path that leaves the folder is refused. Images are embedded as ``data:`` URLs, so the HTML
   pack stays one self-contained file and the PDF fetches nothing;
+- an invisible format character (a right-to-left override, a zero-width space, ...) anywhere,
+  in the front matter or the body, is refused, as in every input file;
 - links may point only to ``https:``, ``http:`` or ``mailto:`` addresses or to ``#anchors``
   in the pack; ``file:``, ``javascript:``, ``data:``, absolute and relative paths are refused.
 
@@ -36,6 +38,7 @@ from mdit_py_plugins.front_matter import front_matter_plugin
 
 from reporter.context import SECTIONS
 from reporter.errors import InputError, Problem
+from reporter.invisible import invisible_message
 
 FOLDER = "commentary"
 # section anchor -> file name; the cautions are the tool's own and take no commentary
@@ -121,6 +124,13 @@ def render_commentary(section: str, rel: str, text: str, base: Path,
 def _one(section: str, rel: str, text: str, base: Path, pack_dir: Path,
          problems: list[Problem], hashes: dict[str, str]) -> Commentary | None:
     before = len(problems)
+    # 0. invisible format characters, in the front matter (author, title) and the body, each
+    # named by its line (a byte-order mark opening the file is no character of the text)
+    for n, line in enumerate(text.removeprefix("\ufeff").split("\n"), start=1):
+        if found := invisible_message(line):
+            problems.append(Problem(f"{rel}:{n}", found))
+    if len(problems) > before:
+        return None
     # 1. find what is refused, with html on so that raw HTML shows up as tokens
     tokens = _parser(html=True).parse(text)
     meta = _front_matter(tokens, rel, problems)

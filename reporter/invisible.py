@@ -1,7 +1,10 @@
 """Invisible format characters in pack.toml's text (titles, names, mandate and scenario
 names): each is an error naming its key, as in every data file (see
-``reporter.validate.text``). A right-to-left override in a title would make the cover of a
-signed pack read other than its bytes."""
+``reporter.validate.text``), in ``actions.csv``, in commentary files and in the text options
+of sign-off and countersign (``--by``, ``--role``, ...). Every character of Unicode category
+Cf counts, the zero-width joiner and non-joiner included, as in data files' text cells.
+A right-to-left override in a title would make the cover of a signed pack read other than
+its bytes."""
 
 from __future__ import annotations
 
@@ -13,6 +16,15 @@ from reporter.errors import Problem
 def format_characters(text: str) -> list[str]:
     """The distinct Unicode format characters (category Cf) in ``text``, as ``U+XXXX``."""
     return sorted({f"U+{ord(c):04X}" for c in text if unicodedata.category(c) == "Cf"})
+
+
+def invisible_message(text: str) -> str | None:
+    """``invisible control character U+202E`` (the distinct format characters of ``text``),
+    or None when it holds none: the message every text check gives."""
+    found = format_characters(text)
+    if not found:
+        return None
+    return f"invisible control character{'s' if len(found) > 1 else ''} {', '.join(found)}"
 
 
 def toml_problems(raw, fname: str, key: str = "") -> list[Problem]:

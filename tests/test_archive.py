@@ -356,3 +356,26 @@ def test_not_a_build_and_not_an_archive(demo_build, tmp_path, capsys):
     code, _, err = run_cli(capsys, "sign-off", demo_build, "--archive", other, "--by", "A")
     assert code == 2 and "not an archive" in err
     assert sorted(p.name for p in other.iterdir()) == ["minutes.docx"]
+
+
+# --- invisible characters in what is signed --------------------------------------------------
+
+@pytest.mark.parametrize(("option", "args"), [
+    ("--by", ["--by", "Ruth \u202eRELIAM"]),                   # reads "Ruth MAILER"
+    ("--by", ["--by", "Ruth\u200b Okafor"]),
+    ("--by", ["--by", "Ruth\u200dOkafor"]),     # every format character, as in text cells
+    ("--role", ["--by", "A N", "--role", "Chair\u2066"]),
+    ("--minute-ref", ["--by", "A N", "--minute-ref", "IC-2026-11/\u202e10"]),
+    ("--note", ["--by", "A N", "--note", "approved\u200f"]),
+    ("--reason", ["--by", "A N", "--supersedes", "--reason", "corrected\u202e"]),
+])
+def test_invisible_characters_in_sign_off_options_are_refused(demo_build, tmp_path, capsys,
+                                                              option, args):
+    archive = tmp_path / "a"
+    code, _, err = run_cli(capsys, "sign-off", demo_build, "--archive", archive, "--quiet",
+                           *args)
+    assert code == 2
+    lines = err.splitlines()
+    assert lines[0].startswith(f"{option}: contains an invisible control character U+")
+    assert lines[1:] == ["reporter: 1 error(s) in the inputs; nothing was written"]
+    assert not archive.exists()

@@ -187,3 +187,25 @@ def test_symlink_out_of_the_pack_is_refused(tmp_path):
     assert [str(p) for p in exc.value.problems] == [
         "commentary/summary.md:5: image 'img/link.png' is not allowed: it leaves the pack "
         "folder"]
+
+
+def test_invisible_characters_are_refused_with_their_line(tmp_path):
+    text = ("---\nauthor: Ruth \u202eRELIAM\ndate: 2026-12-01\ntitle: Q\u2066\n---\n"
+            "Fine.\nHidden\u200b space.\n")
+    assert problems_of(text, tmp_path) == [
+        "commentary/summary.md:2: invisible control character U+202E",
+        "commentary/summary.md:4: invisible control character U+2066",
+        "commentary/summary.md:7: invisible control character U+200B"]
+
+
+def test_invisible_author_fails_check(tmp_path, capsys):
+    pack = tmp_path / "pack"
+    shutil.copytree(DEMO, pack)
+    path = pack / "commentary" / "summary.md"
+    text = path.read_text()
+    assert text.startswith("---\nauthor: ")
+    path.write_text(text.replace("author: ", "author: \u202e", 1))
+    assert main(["check", str(pack)]) == 2
+    err = capsys.readouterr().err
+    assert "commentary/summary.md:2: invisible control character U+202E" in err
+    assert "Traceback" not in err

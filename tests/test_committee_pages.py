@@ -288,3 +288,29 @@ def test_fund_trustees_edition_is_overview_plus_two_pages_a_part(fund_trustees):
     tail = len(pages) - first_part - sum(per_part.values())   # glossary and cautions
     assert first_part <= 6 and tail <= 3
     assert near_empty_middle_pages(pages) == []
+
+
+def test_invisible_characters_in_the_action_log_are_refused():
+    text = ("id,raised,action,owner,due,status,note\n"
+            "B1,2026-10-01,Review \u202efees,Ann Tregarth,2027-01-15,open,\n"
+            "B2,2026-10-01,Chase,Bryn\u200b Holloway,2027-01-15,open,ok\u200d\n")
+    with pytest.raises(InputError) as exc:
+        parse_actions(text, PERIOD_END)
+    assert [str(p) for p in exc.value.problems] == [
+        "actions.csv:2:action: invisible control character U+202E",
+        "actions.csv:3:owner: invisible control character U+200B",
+        "actions.csv:3:note: invisible control character U+200D"]
+
+
+def test_invisible_character_in_the_action_log_fails_check(tmp_path, capsys):
+    pack = tmp_path / "pack"
+    shutil.copytree(DEMO, pack)
+    lines = (pack / "actions.csv").read_text().splitlines(keepends=True)
+    cells = lines[1].split(",")
+    cells[3] = "\u202e" + cells[3]                  # the owner of the first item
+    lines[1] = ",".join(cells)
+    (pack / "actions.csv").write_text("".join(lines))
+    assert main(["check", str(pack)]) == 2
+    err = capsys.readouterr().err
+    assert "actions.csv:2:owner: invisible control character U+202E" in err
+    assert "Traceback" not in err

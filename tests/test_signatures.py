@@ -292,3 +292,24 @@ def test_a_later_change_that_is_not_a_signature_is_reported(archive):
     assert [c.intact for c in checks] == [True, True]
     assert all("the catalog itself was changed" in c.later_changes for c in checks)
     assert not any(c.ok for c in checks)
+
+
+@pytest.mark.parametrize(("option", "value"), [
+    ("--by", "Tomas \u202eLindqvist"), ("--role", "Secretary\u200b"),
+    ("--minute-ref", "IC-2026-12/\u206601")])
+def test_invisible_characters_in_countersign_options_change_nothing(
+        archive, keys, monkeypatch, capsys, tmp_path, option, value):
+    arch, _ = archive
+    copy = tmp_path / "archive"
+    shutil.copytree(arch, copy)
+    before = _tree(copy)
+    monkeypatch.setenv(PASS_ENV, PASSPHRASE)
+    fields = {"--by": "Tomas Lindqvist", option: value}
+    code, _, err = run_cli(capsys, "countersign", copy / COUNTERSIGNED, "--archive", copy,
+                           *[x for kv in fields.items() for x in kv],
+                           "--key", keys / "chair.p12", "--key-pass-env", PASS_ENV)
+    assert code == 2
+    lines = err.splitlines()
+    assert lines[0].startswith(f"{option}: contains an invisible control character U+")
+    assert lines[1:] == ["reporter: 1 error(s) in the inputs; nothing was written"]
+    assert _tree(copy) == before

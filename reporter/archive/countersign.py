@@ -37,6 +37,7 @@ from reporter.archive.signature import sign_pdf, signature_columns
 from reporter.archive.signoff import ArchiveError, archive_name
 from reporter.archive.verify import find_file, verify_archive
 from reporter.errors import InputError, Problem
+from reporter.invisible import invisible_message
 from reporter.writer import OutputSet, place_in_archive
 
 
@@ -57,6 +58,8 @@ def countersign(pdf_file: Path | str, archive: Path | str, key: SigningKey, *,
                                  or any(ord(c) < 32 for c in text)):
             raise InputError([Problem(option, "must be 1 to 500 characters, with no control "
                                       "character")])
+        if text is not None and (found := invisible_message(text)):
+            raise InputError([Problem(option, f"contains an {found}")])
     if not pdf_file.is_file():
         raise InputError([Problem(str(pdf_file), "no such file")])
     report = verify_archive(archive)
