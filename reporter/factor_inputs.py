@@ -151,7 +151,7 @@ def _factors(raw: RawTable, settings: Settings, win, coll: Collector) -> FactorR
                        "window needs it")
         for i in np.flatnonzero(v < -1.0)[:MAX_PER_CHECK]:
             coll.error(place(raw.name, raw.row_number(int(i)), n),
-                       f"return {v[i]:g} is below -100%")
+                       f"return {v[i]:.10g} is below -100%")
         for i in np.flatnonzero(implausible(v))[:MAX_PER_CHECK]:
             coll.error(place(raw.name, raw.row_number(int(i)), n),
                        implausible_message(float(v[i])))
@@ -182,7 +182,7 @@ def _benchmark_sectors(raw: RawTable, settings: Settings, win,
                    f"negative benchmark weight {weight[i]:g}")
     for i in np.flatnonzero(ret < -1.0)[:MAX_PER_CHECK]:
         coll.error(place(raw.name, raw.row_number(int(i)), "return"),
-                   f"return {ret[i]:g} is below -100%")
+                   f"return {ret[i]:.10g} is below -100%")
     for i in np.flatnonzero(implausible(ret))[:MAX_PER_CHECK]:
         coll.error(place(raw.name, raw.row_number(int(i)), "return"),
                    implausible_message(float(ret[i])))

@@ -210,6 +210,15 @@ def test_a_return_at_the_bound_is_accepted(tmp_path, capsys):
         f"returns.csv:{row}:return: return -1.5 is below -100%"]
 
 
+def test_a_return_just_below_minus_100_is_quoted_as_written(tmp_path, capsys):
+    """-1.0000001 is below -100% by a hair; the message quotes it so (it once read "return -1
+    is below -100%", which looks wrong)."""
+    pack = _pack(tmp_path)
+    row = _set_field(pack / "returns.csv", "2026-10-31,TVX002,", "return", "-1.0000001")
+    assert _refused(pack, tmp_path, capsys) == [
+        f"returns.csv:{row}:return: return -1.0000001 is below -100%"]
+
+
 # -- 5. a quoted field that is never closed ---------------------------------------------------
 
 @pytest.mark.parametrize(("file", "line", "column", "end"), [

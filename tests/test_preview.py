@@ -264,4 +264,17 @@ def test_a_taken_port_is_one_line_and_exit_2(tmp_path, capsys):
     assert code == 2
     lines = [ln for ln in err.strip().splitlines() if not ln.startswith("building ")]
     assert len(lines) == 1 and lines[0].startswith(f"reporter: cannot listen on 127.0.0.1:{port}")
+    assert lines[0].endswith("; choose another --port")
     assert "Traceback" not in err and out == ""
+
+
+def test_a_host_not_of_this_machine_names_the_host_not_the_port(capsys):
+    from reporter.cli import main
+
+    # 192.0.2.1 is in TEST-NET-1 (RFC 5737), an address no machine here has
+    code = main(["preview", str(DEMO), "--host", "192.0.2.1", "--port", "0"])
+    out, err = capsys.readouterr()
+    lines = [ln for ln in err.strip().splitlines() if not ln.startswith("building ")]
+    assert code == 2 and len(lines) == 1 and out == ""
+    assert lines[0].startswith("reporter: cannot listen on 192.0.2.1:0: ")
+    assert lines[0].endswith("; give --host an address of this machine, such as 127.0.0.1")

@@ -20,6 +20,7 @@ nothing from outside 127.0.0.1. A request whose ``Host`` is not the address serv
 from __future__ import annotations
 
 import base64
+import errno
 import hashlib
 import re
 import threading
@@ -200,8 +201,10 @@ class Preview:
         try:                        # the address first: a taken port fails at once
             self.httpd = _Server((host, port), _Handler)
         except OSError as exc:
+            hint = ("choose another --port" if exc.errno in (errno.EADDRINUSE, errno.EACCES)
+                    else "give --host an address of this machine, such as 127.0.0.1")
             raise PreviewError(f"cannot listen on {host}:{port}: {exc.strerror or exc}; "
-                               "choose another --port") from None
+                               f"{hint}") from None
         try:
             self.staged = StagedPack(pack)
             self.state = PreviewState(self.staged)      # the first build

@@ -48,7 +48,7 @@ def _report_below_minus_100(raw: RawTable, values: np.ndarray, label: str, summa
     capped = _Capped(coll, summary)
     for i in np.flatnonzero(values < -1.0):
         capped.add(place(raw.name, raw.row_number(int(i)), label),
-                   f"return {values[i]:g} is below -100%")
+                   f"return {values[i]:.10g} is below -100%")
     capped.close()
     capped = _Capped(coll, f"returns above {MAX_PERIOD_RETURN:g} in column {label}")
     for i in np.flatnonzero(implausible(values)):
