@@ -162,3 +162,32 @@ def test_a_bad_proxy_is_named_by_row_and_column(tmp_path, proxy, message):
         validate_pack(load_settings(folder))
     lines = [str(p) for p in err.value.problems]
     assert f"holdings.csv:62:proxy: {message}" in "\n".join(lines)
+
+
+def test_the_warning_says_whether_the_proxy_can_stand_in(tmp_path):
+    """Two new listings naming each other as proxy: neither has returns, and a proxy's proxy
+    is not followed, so both are excluded; validation's warning says so (it once said "its
+    proxy stands in for it"). A proxy with returns is said to stand in, and does."""
+    h = demo_holdings()
+    h = h[h["asset_class"] != "Cash"]
+    h["weight"] = h["weight"] / h["weight"].sum() * 0.97
+    h["proxy"] = ""
+    rows = [{"security_id": "NEW01", "name": "Newly listed plc", "sector": "Industrials",
+             "weight": 0.01, "proxy": "NEW02"},
+            {"security_id": "NEW02", "name": "Newer listed plc", "sector": "Industrials",
+             "weight": 0.01, "proxy": "NEW01"},
+            {"security_id": "NEW03", "name": "Newest listed plc", "sector": "Industrials",
+             "weight": 0.01, "proxy": "TVX002"}]
+    folder = _pack(tmp_path / "mutual", pd.concat([h, pd.DataFrame(rows)], ignore_index=True))
+    settings = load_settings(folder)
+    inputs = validate_pack(settings)
+    said = {p.message.split()[1]: p.message for p in inputs.warnings
+            if "has no return history" in p.message}
+    assert said["NEW01"].endswith("its proxy 'NEW02' has none either, so it is left out of "
+                                  "every return figure; name a proxy with returns")
+    assert said["NEW02"].endswith("its proxy 'NEW01' has none either, so it is left out of "
+                                  "every return figure; name a proxy with returns")
+    assert said["NEW03"].endswith("its proxy 'TVX002' stands in for it")
+    status = analyse(inputs, settings).securities.set_index("security_id")["status"]
+    assert status["NEW01"] == status["NEW02"] == "no return history: excluded"
+    assert status["NEW03"] == "proxy: TVX002"

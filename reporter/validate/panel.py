@@ -53,12 +53,26 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
         out[:, have] = matrix[:, source[have]]
     run, start = longest_constant_run(out)
     proxies = holdings.proxies
+    position = {sid: j for j, sid in enumerate(holdings.ids)}
+
+    def can_stand_in(proxy: str) -> bool:
+        """As the analysis decides (analytics.coverage): the market or benchmark series, or
+        a holding with its own returns or cash (a proxy's proxy is not followed)."""
+        j = position.get(proxy)
+        return (proxy.lower() in ("market", "benchmark")
+                or (j is not None and bool(have[j] or holdings.cash[j])))
+
     for k in np.flatnonzero(~have & ~holdings.cash):     # cash earns the risk-free rate
         # the holdings frame keeps the file's rows in order: holding k is data row k
         row = holdings_raw.row_number(int(k)) if holdings_raw is not None else None
-        stand_in = (f"; its proxy {proxies[k]!r} stands in for it" if proxies[k] else
-                    "; give a proxy column (a security id, market or benchmark) to stand in "
-                    "for it, else it is left out of every return figure")
+        if not proxies[k]:
+            stand_in = ("; give a proxy column (a security id, market or benchmark) to stand "
+                        "in for it, else it is left out of every return figure")
+        elif can_stand_in(proxies[k]):
+            stand_in = f"; its proxy {proxies[k]!r} stands in for it"
+        else:
+            stand_in = (f"; its proxy {proxies[k]!r} has none either, so it is left out of "
+                        "every return figure; name a proxy with returns")
         coll.warn(place(settings.inputs["holdings"].display, row, "security_id"),
                   f"holding {holdings.ids[k]} has no return history in {raw.name}{stand_in}")
     for k in np.flatnonzero(have & (run >= settings.stale_zero_run)):
