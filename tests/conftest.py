@@ -170,3 +170,10 @@ def run_cli(capsys, *argv) -> tuple[int, str, str]:
     code = main([str(a) for a in argv])
     out, err = capsys.readouterr()
     return code, out, err
+
+
+def assert_check_refuses(capsys, pack: Path, line: str) -> None:
+    """``reporter check PACK`` exits 2, one of its lines being ``line``, with no traceback."""
+    code, _, err = run_cli(capsys, "check", pack)
+    assert code == 2 and "Traceback" not in err
+    assert line in err.splitlines(), err

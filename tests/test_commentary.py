@@ -22,7 +22,7 @@ from reporter.cli import main
 from reporter.commentary import COMMENTARY_FILES, read_commentary, render_commentary
 from reporter.context import SECTIONS
 from reporter.errors import InputError
-from tests.conftest import DEMO
+from tests.conftest import DEMO, assert_check_refuses
 
 HEAD = "---\nauthor: A. Writer\ndate: 2026-12-01\n---\n"     # lines 1-4
 
@@ -205,7 +205,5 @@ def test_invisible_author_fails_check(tmp_path, capsys):
     text = path.read_text()
     assert text.startswith("---\nauthor: ")
     path.write_text(text.replace("author: ", "author: \u202e", 1))
-    assert main(["check", str(pack)]) == 2
-    err = capsys.readouterr().err
-    assert "commentary/summary.md:2: invisible control character U+202E" in err
-    assert "Traceback" not in err
+    assert_check_refuses(capsys, pack, "commentary/summary.md:2: invisible control character "
+                         "U+202E")

@@ -24,7 +24,7 @@ from reporter.build import fingerprint
 from reporter.cli import main
 from reporter.errors import InputError
 from reporter.render.environment import num, pct, plural
-from tests.conftest import DEMO, REPO
+from tests.conftest import DEMO, REPO, assert_check_refuses
 
 DATA = Path(__file__).resolve().parent / "data" / "actions"
 PERIOD_END = dt.date(2026, 11, 30)
@@ -310,7 +310,4 @@ def test_invisible_character_in_the_action_log_fails_check(tmp_path, capsys):
     cells[3] = "\u202e" + cells[3]                  # the owner of the first item
     lines[1] = ",".join(cells)
     (pack / "actions.csv").write_text("".join(lines))
-    assert main(["check", str(pack)]) == 2
-    err = capsys.readouterr().err
-    assert "actions.csv:2:owner: invisible control character U+202E" in err
-    assert "Traceback" not in err
+    assert_check_refuses(capsys, pack, "actions.csv:2:owner: invisible control character U+202E")
