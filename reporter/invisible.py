@@ -18,6 +18,13 @@ def format_characters(text: str) -> list[str]:
     return sorted({f"U+{ord(c):04X}" for c in text if unicodedata.category(c) == "Cf"})
 
 
+def has_control(text: str) -> bool:
+    """Whether ``text`` holds a control character (Unicode Cc: C0 with tab and line breaks,
+    DEL, and the C1 range U+0080-U+009F, whose NEL U+0085 some readers take as a line
+    break)."""
+    return any(unicodedata.category(c) == "Cc" for c in text)
+
+
 def invisible_message(text: str) -> str | None:
     """``invisible control character U+202E`` (the distinct format characters of ``text``),
     or None when it holds none: the message every text check gives."""

@@ -379,3 +379,17 @@ def test_invisible_characters_in_sign_off_options_are_refused(demo_build, tmp_pa
     assert lines[0].startswith(f"{option}: contains an invisible control character U+")
     assert lines[1:] == ["reporter: 1 error(s) in the inputs; nothing was written"]
     assert not archive.exists()
+
+
+@pytest.mark.parametrize("text", ["Ruth\x85Okafor", "Ruth\x7fOkafor", "Ruth\x9bOkafor"])
+def test_c1_and_del_controls_in_sign_off_options_are_refused(demo_build, tmp_path, capsys,
+                                                             text):
+    """NEL (U+0085, a line break to some readers), DEL and the C1 range are control
+    characters as much as a line feed is."""
+    archive = tmp_path / "a"
+    code, _, err = run_cli(capsys, "sign-off", demo_build, "--archive", archive, "--quiet",
+                           "--by", text)
+    assert code == 2
+    assert err.splitlines() == ["--by: contains a control character or line break",
+                                "reporter: 1 error(s) in the inputs; nothing was written"]
+    assert not archive.exists()

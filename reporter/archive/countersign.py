@@ -37,7 +37,7 @@ from reporter.archive.signature import sign_pdf, signature_columns
 from reporter.archive.signoff import ArchiveError, archive_name
 from reporter.archive.verify import find_file, verify_archive
 from reporter.errors import InputError, Problem
-from reporter.invisible import invisible_message
+from reporter.invisible import has_control, invisible_message
 from reporter.writer import OutputSet, place_in_archive
 
 
@@ -55,7 +55,7 @@ def countersign(pdf_file: Path | str, archive: Path | str, key: SigningKey, *,
     archive, pdf_file = Path(archive).absolute(), Path(pdf_file)
     for option, text in (("--by", signer), ("--role", role), ("--minute-ref", minute_ref)):
         if text is not None and (not text.strip() or len(text) > 500
-                                 or any(ord(c) < 32 for c in text)):
+                                 or has_control(text)):
             raise InputError([Problem(option, "must be 1 to 500 characters, with no control "
                                       "character")])
         if text is not None and (found := invisible_message(text)):

@@ -43,7 +43,7 @@ from reporter.archive.signature import page_record, sign_pdf, signature_columns
 from reporter.archive.verify import load_entries, verify_archive
 from reporter.config import INPUT_ROLES, Settings, load_settings
 from reporter.errors import EXIT_FAILED, InputError, Problem, ReporterError
-from reporter.invisible import invisible_message
+from reporter.invisible import has_control, invisible_message
 from reporter.progress import Progress
 from reporter.render.pdf import render_pdf
 from reporter.writer import OutputSet, place_in_archive
@@ -208,7 +208,7 @@ def _check_request(request: SignOffRequest) -> None:
             problems.append(Problem(option, "must not be empty"))
         elif len(text) > MAX_TEXT:
             problems.append(Problem(option, f"longer than {MAX_TEXT} characters"))
-        elif any(ord(c) < 32 for c in text):
+        elif has_control(text):
             problems.append(Problem(option, "contains a control character or line break"))
         elif found := invisible_message(text):
             problems.append(Problem(option, f"contains an {found}"))
