@@ -9,6 +9,8 @@ statsmodels ``OLS`` on the returns with those months removed confirms.
 
 from __future__ import annotations
 
+import shutil
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -19,6 +21,7 @@ from reporter.cli import main
 from reporter.config import load_settings
 from reporter.validate import validate_pack
 from reporter.validate.cells import date_format_hint, separator_hint
+from tests.conftest import DEMO, run_cli
 from tests.test_pipeline_french import INDUSTRIES, write_french_pack
 
 WINDOW = 120
@@ -164,3 +167,39 @@ def test_settings_problems(tmp_path, capsys, change, expected):
     err = capsys.readouterr().err
     assert err.splitlines()[0] == expected
     assert "Traceback" not in err
+
+
+def test_a_price_more_than_101_times_the_one_before_is_refused(tmp_path, capsys):
+    """Returns made from prices have the bound of returns given as such (+10,000% in one
+    period): a price 200 times the period before's is a data error (a lost decimal point, a
+    missed split), named at the later price's row, in the holdings' prices and in a market
+    index alike."""
+    pack = tmp_path / "pack"
+    shutil.copytree(DEMO, pack)
+    r = pd.read_csv(pack / "returns.csv", dtype={"security_id": str})
+    r = r.sort_values(["security_id", "date"], ignore_index=True)
+    r["price"] = r.groupby("security_id")["return"].transform(lambda s: 10 * (1 + s).cumprod())
+    jump = r.index[r["security_id"] == "TVX001"][40]
+    later = (r["security_id"] == "TVX001") & (r.index >= jump)
+    r.loc[later, "price"] *= 200
+    r[["date", "security_id", "price"]].to_csv(pack / "prices.csv", index=False,
+                                               float_format="%.17g")
+    m = pd.read_csv(pack / "market.csv")
+    m["price"] = 1000 * (1 + m["return"]).cumprod()
+    m.loc[70:, "price"] *= 150
+    m[["date", "price"]].to_csv(pack / "market_index.csv", index=False, float_format="%.17g")
+    toml = (pack / "pack.toml").read_text().replace('returns = "returns.csv"',
+                                                    'prices = "prices.csv"')
+    (pack / "pack.toml").write_text(toml.replace(
+        'market = "market.csv"', 'market = { path = "market_index.csv", values = "prices" }'))
+    code, _, err = run_cli(capsys, "check", pack)
+    assert code == 2 and "Traceback" not in err
+    stock = 200 * (1 + r.loc[jump, "return"])
+    index = 150 * (1 + m.loc[70, "return"])
+    lines = err.splitlines()
+    assert (f"prices.csv:{jump + 2}:price: the price is {stock:,.4g} times the period before's "
+            f"(a return of {stock - 1:g}, above +10,000% in one period); check the data"
+            ) in lines, lines
+    assert (f"market_index.csv:{70 + 2}:price: the price is {index:,.4g} times the period "
+            f"before's (a return of {index - 1:g}, above +10,000% in one period); check the "
+            "data") in lines, lines

@@ -16,6 +16,7 @@ import numpy as np
 from reporter.errors import Collector, place
 from reporter.readers import RawTable
 from reporter.validate.common import _Capped
+from reporter.validate.values import MAX_PERIOD_RETURN, implausible
 
 PRICE_COLUMN = "price"
 
@@ -58,3 +59,16 @@ def series_returns(dates: np.ndarray, prices: np.ndarray, rows: np.ndarray, keys
     r, _ = price_returns(prices[:, None], keys, frequency)
     ok = np.isfinite(r[:, 0])
     return dates[1:][ok], r[ok, 0], rows[1:][ok]
+
+
+def report_price_jumps(returns: np.ndarray, where_cell, coll: Collector) -> None:
+    """An error per return made from prices that is above :data:`MAX_PERIOD_RETURN` (a price
+    more than 101 times the period before's), placed at the later price by ``where_cell(t,
+    j)`` (``returns`` is periods x series): the bound that returns given as returns have."""
+    capped = _Capped(coll, f"price rises above +{MAX_PERIOD_RETURN:,.0%} in one period")
+    for t, j in zip(*np.nonzero(implausible(returns)), strict=True):
+        r = float(returns[t, j])
+        capped.add(where_cell(int(t), int(j)),
+                   f"the price is {r + 1:,.4g} times the period before's (a return of {r:g}, "
+                   f"above +{MAX_PERIOD_RETURN:,.0%} in one period); check the data")
+    capped.close()

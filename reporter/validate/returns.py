@@ -14,7 +14,12 @@ from reporter.validate.cells import _dictionary, as_dates, as_float, date_codes
 from reporter.validate.common import _Capped, _period_word, _require_columns
 from reporter.validate.long_quick import _clean_long_matrix
 from reporter.validate.panel import _finish_panel
-from reporter.validate.prices import PRICE_COLUMN, price_returns, report_non_positive
+from reporter.validate.prices import (
+    PRICE_COLUMN,
+    price_returns,
+    report_non_positive,
+    report_price_jumps,
+)
 from reporter.validate.text import (
     case_clash_message,
     case_clashes,
@@ -140,11 +145,14 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw, value_col) -> Ret
     if prices:
         report_non_positive(raw, values, value_col, coll)
         returns, keys = price_returns(matrix, uniq_keys, settings.frequency)
+
+        def later_price(t: int, j: int) -> str:
+            return place(raw.name, raw.row_number(row_of(t + 1, j)), value_col)
+
+        report_price_jumps(returns, later_price, coll)
         return _finish_panel(raw, returns, keys, ids, holdings, settings, coll, "long",
                              lambda j: place(raw.name, raw.row_number(first_row(j)), value_col),
-                             lambda t, j: place(raw.name, raw.row_number(row_of(t + 1, j)),
-                                                value_col),
-                             holdings_raw, _no_percent(len(ids)))
+                             later_price, holdings_raw, _no_percent(len(ids)))
     # securities that look like percentages are reported once, in _finish_panel
     percent = _percent_columns(matrix, settings.frequency)
     if out_of_range(values).any():
@@ -203,13 +211,15 @@ def _returns_wide(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     ids = [normalise_id(c) for c in columns]
     matrix, keys = full[ok][order], keys[order]
     sorted_rows = rows[order]
+    def cell(t: int, j: int) -> str:
+        return place(raw.name, raw.row_number(int(sorted_rows[t])), columns[j])
+
     if prices:
         matrix, keys = price_returns(matrix, keys, settings.frequency)
         sorted_rows = sorted_rows[1:]
+        report_price_jumps(matrix, cell, coll)
     return _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, "wide",
-                         lambda j: place(raw.name, 1, columns[j]),
-                         lambda t, j: place(raw.name, raw.row_number(int(sorted_rows[t])),
-                                            columns[j]),
+                         lambda j: place(raw.name, 1, columns[j]), cell,
                          # column statistics do not depend on row order: reuse them when no
                          # row was dropped for a bad date
                          holdings_raw, percent if prices or ok.all() else None)

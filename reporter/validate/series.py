@@ -12,7 +12,12 @@ from reporter.models import DatedSeries
 from reporter.readers import RawTable
 from reporter.validate.cells import as_dates, as_float
 from reporter.validate.common import _Capped, _period_word, _require_columns
-from reporter.validate.prices import PRICE_COLUMN, report_non_positive, series_returns
+from reporter.validate.prices import (
+    PRICE_COLUMN,
+    report_non_positive,
+    report_price_jumps,
+    series_returns,
+)
 from reporter.validate.values import (
     PERCENT_MEDIAN,
     _check_return_values,
@@ -74,6 +79,8 @@ def validate_series(raw: RawTable, value_col: str, settings: Settings,
     d, v, at = d[order], v[order], np.flatnonzero(ok)[order]
     if prices:
         d, v, at = series_returns(d, v, at, keys[order], settings.frequency)
+        report_price_jumps(v[:, None], lambda t, _: place(raw.name, raw.row_number(int(at[t])),
+                                                         value_col), coll)
     return DatedSeries(dates=d, values=v, rows=raw.row_numbers(at),
                        unread_rows=raw.row_numbers(np.flatnonzero(~ok)))
 
