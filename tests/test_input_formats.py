@@ -363,7 +363,7 @@ def test_xlsx_that_unpacks_too_far_is_refused_unread(tmp_path, capsys, monkeypat
     whose parts unpack past the size limit (lowered here to keep the file small)."""
     import zipfile
 
-    from reporter import readers
+    from reporter import readers_xlsx
 
     pack = tmp_path / "pack"
     shutil.copytree(DEMO, pack)
@@ -376,7 +376,7 @@ def test_xlsx_that_unpacks_too_far_is_refused_unread(tmp_path, capsys, monkeypat
     (pack / "pack.toml").write_text(text, encoding="utf-8")
     assert main(["check", str(pack)]) == 0            # a small workbook is read
     capsys.readouterr()
-    monkeypatch.setattr(readers, "XLSX_MAX_UNPACKED", 4096)
+    monkeypatch.setattr(readers_xlsx, "XLSX_MAX_UNPACKED", 4096)
     assert main(["check", str(pack)]) == 2
     err = capsys.readouterr().err.splitlines()
     assert err[1:] == ["reporter: 1 error(s) in the inputs; nothing was written"]
