@@ -8,6 +8,7 @@ spreadsheet's row number, a Parquet file's 1-based row).
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import functools
 import itertools
@@ -138,25 +139,15 @@ def _record_lines(spec: InputSpec, n_records: int) -> np.ndarray | None:
     with a line break inside a value (rare, and then the file is read twice)."""
     starts = []
     record: list[str] = []
-    limit = csv.field_size_limit()
-    csv.field_size_limit(sys.maxsize)       # an unclosed quote makes one field of the rest
-    try:
-        with open(spec.path, encoding="utf-8-sig", newline="") as fh:
-            reader = csv.reader(fh, delimiter=spec.delimiter)
-            last = 0
-            for fields in reader:
-                record = fields                 # the last record is wanted below
-                starts.append(last + 1)
-                last = reader.line_num
-    finally:
-        csv.field_size_limit(limit)
+    with _no_field_limit(), open(spec.path, encoding="utf-8-sig", newline="") as fh:
+        reader = csv.reader(fh, delimiter=spec.delimiter)
+        last = 0
+        for fields in reader:
+            record = fields                     # the last record is wanted below
+            starts.append(last + 1)
+            last = reader.line_num
     if starts and _ends_inside_quotes(spec, starts[-1]):
-        header = _csv_header(spec.path, spec.delimiter)
-        k = len(record) - 1
-        column = header[k] if 0 <= k < len(header) else None
-        raise InputError([Problem(place(spec.display, starts[-1], column),
-                                  "a quoted field opened on this line is never closed (the "
-                                  "quote runs to the end of the file); close it or remove it")])
+        raise _unclosed_quote(spec, _csv_header(spec.path, spec.delimiter), starts[-1], record)
     starts = starts[1:]                                # the header record
     return np.array(starts, dtype=np.int64) if len(starts) == n_records else None
 
@@ -177,28 +168,42 @@ def _refuse_open_last_line(spec: InputSpec, header: list[str], line: int) -> Non
         if "unexpected end of data" not in str(exc):
             return
         fields = next(csv.reader([text], delimiter=spec.delimiter), [])
-        k = len(fields) - 1
-        raise InputError([Problem(place(spec.display, line,
-                                        header[k] if 0 <= k < len(header) else None),
-                                  "a quoted field opened on this line is never closed (the "
-                                  "quote runs to the end of the file); close it or remove it")]
-                         ) from None
+        raise _unclosed_quote(spec, header, line, fields) from None
+
+
+@contextlib.contextmanager
+def _no_field_limit():
+    """The csv module's field size limit lifted for a while: an unclosed quote makes one
+    field of the rest of the file, which must be read to find where it opened."""
+    limit = csv.field_size_limit()
+    csv.field_size_limit(sys.maxsize)
+    try:
+        yield
+    finally:
+        csv.field_size_limit(limit)
+
+
+def _unclosed_quote(spec: InputSpec, header: list[str], line: int,
+                    fields: list[str]) -> InputError:
+    """The one problem of a quote opened on ``line`` and never closed; ``fields``: that
+    record's fields as read, the last being the one the quote opens."""
+    k = len(fields) - 1
+    return InputError([Problem(place(spec.display, line,
+                                     header[k] if 0 <= k < len(header) else None),
+                               "a quoted field opened on this line is never closed (the "
+                               "quote runs to the end of the file); close it or remove it")])
 
 
 def _ends_inside_quotes(spec: InputSpec, line: int) -> bool:
     """Whether the record starting on ``line`` (the file's last) opens a quoted field that the
     file never closes: read strictly from that line, it ends inside the quotes."""
-    with open(spec.path, encoding="utf-8-sig", newline="") as fh:
+    with _no_field_limit(), open(spec.path, encoding="utf-8-sig", newline="") as fh:
         rest = itertools.islice(fh, line - 1, None)
-        limit = csv.field_size_limit()
-        csv.field_size_limit(sys.maxsize)
         try:
             for _ in csv.reader(rest, delimiter=spec.delimiter, strict=True):
                 pass
         except csv.Error as exc:
             return "unexpected end of data" in str(exc)
-        finally:
-            csv.field_size_limit(limit)
     return False
 
 

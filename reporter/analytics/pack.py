@@ -169,14 +169,12 @@ def analyse(inputs: ValidInputs, settings: Settings,
     rolling = HoldingsRolling(settings.rolling_window, hist.returns, hist.risk_free,
                               hist.market_excess)
     hist_raw = portfolio_returns(hist.returns, weights)
-    if portfolio is None:
-        # validation refuses this from the holdings' own returns; cash and proxies stand in
-        # here too, so say it the same way rather than fail in a fractional power below
-        wiped = wipe_out_problem(settings, inputs.holdings, hist_raw, hist.dates)
-        if wiped is not None:
-            raise InputError([wiped])
     if portfolio is not None:
         hist_raw = _align_optional(portfolio, hist.dates, settings.frequency)
+    elif wiped := wipe_out_problem(settings, inputs.holdings, hist_raw, hist.dates):
+        # validation refuses this from the holdings' own returns; cash and proxies stand in
+        # here too, so say it the same way rather than fail in a fractional power below
+        raise InputError([wiped])
     hist_port = hist_raw - hist.risk_free
     perf = performance(win.dates, port, win.market, win.risk_free, pfit.alpha,
                        pfit.residual_vol, P, settings.mar, benchmark=bench_win,

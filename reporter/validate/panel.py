@@ -8,6 +8,7 @@ import pandas as pd
 
 from reporter.errors import place
 from reporter.models import ReturnPanel
+from reporter.validate.holdings import PROXY_SERIES
 from reporter.validate.values import PERCENT_MEDIAN, _percent_columns
 
 
@@ -59,7 +60,7 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
         """As the analysis decides (analytics.coverage): the market or benchmark series, or
         a holding with its own returns or cash (a proxy's proxy is not followed)."""
         j = position.get(proxy)
-        return (proxy.lower() in ("market", "benchmark")
+        return (proxy.lower() in PROXY_SERIES
                 or (j is not None and bool(have[j] or holdings.cash[j])))
 
     for k in np.flatnonzero(~have & ~holdings.cash):     # cash earns the risk-free rate
