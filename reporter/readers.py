@@ -10,10 +10,8 @@ from __future__ import annotations
 
 import contextlib
 import csv
-import functools
 import itertools
 import sys
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -24,45 +22,16 @@ import pyarrow.parquet as pq
 
 from reporter.config import InputSpec
 from reporter.errors import InputError, Problem, place
+from reporter.raw_table import (
+    TEXT_COLUMNS,
+    RawTable,
+    _drop_blank_rows,
+    _refuse_duplicate_columns,
+)
 
-# Columns that are identifiers or labels: always read as text, never inferred.
-TEXT_COLUMNS = ("date", "security_id", "name", "sector", "asset_class", "currency", "country")
 SUPPORTED = (".csv", ".txt", ".xlsx", ".parquet", ".pq")
 MAX_BAD_LINES = 10
 CSV_BLOCK_BYTES = 1 << 22    # the CSV reader's block: one column chunk per block
-
-
-@dataclass(frozen=True)
-class RawTable:
-    """A file's columns as read, before any validation."""
-
-    name: str            # the path as written in pack.toml
-    table: pa.Table
-    first_row: int       # row number of the first data row as the user sees it
-    format: str          # "csv" | "xlsx" | "parquet"
-    # user-visible row number of each data row, when blank rows were dropped (else None)
-    rows: np.ndarray | None = None
-    # what the reader noticed that the user should hear of (warnings), e.g. hidden sheets
-    notes: tuple[Problem, ...] = ()
-    # a long returns CSV read in streamed batches straight into its matrix: the matrix and
-    # what goes with it (see reporter.validate.long_stream), and ``table`` has no rows
-    clean: object | None = None
-
-    @property
-    def n_rows(self) -> int:
-        """Data rows read (a streamed file's, too; blank rows dropped are not counted)."""
-        return self.clean.n_rows if self.clean is not None else self.table.num_rows
-
-    def row_numbers(self, indices: np.ndarray) -> np.ndarray:
-        """:meth:`row_number` of many data rows at once."""
-        indices = np.asarray(indices, dtype=np.int64)
-        return self.rows[indices] if self.rows is not None else self.first_row + indices
-
-    def row_number(self, index: int) -> int:
-        """The user-visible row number of 0-based data row ``index``."""
-        if self.rows is not None:
-            return int(self.rows[index])
-        return self.first_row + index
 
 
 def read_input(spec: InputSpec) -> RawTable:
@@ -217,14 +186,6 @@ def _drop_trailing_empty_columns(table: pa.Table) -> pa.Table:
     return table
 
 
-def _refuse_duplicate_columns(display: str, names: list[str]) -> None:
-    """A column named twice cannot be told apart from its twin: refuse the file."""
-    dupes = sorted({c for c in names if names.count(c) > 1})
-    if dupes:
-        raise InputError([Problem(f"{display}:1:{c}", "column name appears more than once")
-                          for c in dupes])
-
-
 def csv_options(spec: InputSpec, header: list[str], bad: list, column_types: dict, *,
                 block_size: int, use_threads: bool = True) -> dict:
     """pyarrow's read, parse and convert options for a data file's lines under ``header``
@@ -271,24 +232,6 @@ _CODED_COLUMNS = ("date", "security_id")
 
 def _text_type(column: str) -> pa.DataType:
     return _CODED_TYPE if column in _CODED_COLUMNS else pa.string()
-
-
-def _drop_blank_rows(table: pa.Table, first_row: int, lines: np.ndarray | None = None
-                     ) -> tuple[pa.Table, np.ndarray | None]:
-    """Drop rows in which every field is empty; return the kept rows' user-visible numbers
-    (None when they are ``first_row`` + index). ``lines``: each row's number when it is not
-    (a CSV record spanning lines)."""
-    if table.num_columns == 0 or table.num_rows == 0:
-        return table, lines
-    if min(c.null_count for c in table.columns) == 0:
-        return table, lines         # some column has no empty field: no row is blank
-    blank = functools.reduce(pc.and_, [pc.is_null(c) for c in table.columns])
-    blank = np.asarray(blank.to_numpy(zero_copy_only=False), dtype=bool)
-    if not blank.any():
-        return table, lines
-    keep = ~blank
-    numbers = lines[keep] if lines is not None else np.flatnonzero(keep) + first_row
-    return table.filter(pa.array(keep)), numbers
 
 
 def _csv_header(path: Path, delimiter: str) -> list[str]:

@@ -11,7 +11,7 @@ import pyarrow as pa
 
 from reporter.config import InputSpec
 from reporter.errors import InputError, Problem
-from reporter.readers import (
+from reporter.raw_table import (
     TEXT_COLUMNS,
     RawTable,
     _drop_blank_rows,
