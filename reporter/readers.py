@@ -80,7 +80,10 @@ def _read_csv(spec: InputSpec) -> RawTable:
                                     "lines with the wrong number of fields"))
         raise InputError(problems)
     table = _drop_trailing_empty_columns(table)
-    lines = _record_lines(spec, table.num_rows) if _has_line_breaks(table) else None
+    lines = None
+    if _has_line_breaks(table):
+        lines = _record_lines(spec, table.num_rows)
+        _refuse_swallowed_lines(spec, table, lines)
     if lines is None and table.num_rows:
         _refuse_open_last_line(spec, header, table.num_rows + 1)
     table, rows = _drop_blank_rows(table, first_row=2, lines=lines)
@@ -91,7 +94,7 @@ def _has_line_breaks(table: pa.Table) -> bool:
     """Whether any text value holds a line break (only a quoted value can): then a record
     may span several lines of the file, and row numbers must be counted from the file."""
     for column in table.columns:
-        if pa.types.is_dictionary(column.type):
+        if pa.types.is_dictionary(column.type):     # its distinct values only: cheap
             values = pa.chunked_array([c.dictionary for c in column.chunks], pa.string())
         elif pa.types.is_string(column.type):
             values = column
@@ -100,6 +103,49 @@ def _has_line_breaks(table: pa.Table) -> bool:
         if len(values) and pc.any(pc.match_substring_regex(values, "[\\r\\n]")).as_py():
             return True
     return False
+
+
+def _text_values(column: pa.ChunkedArray) -> pa.ChunkedArray | None:
+    """A column's values as strings (a dictionary column decoded), or None for another type."""
+    if pa.types.is_dictionary(column.type):
+        return column.cast(pa.string())
+    return column if pa.types.is_string(column.type) else None
+
+
+def _refuse_swallowed_lines(spec: InputSpec, table: pa.Table, lines: np.ndarray | None
+                            ) -> None:
+    """Refuse the first value that holds both a line break and the delimiter: the mark of a
+    quote closed lines after it was opened, which joins the lines between into one value and
+    silently drops their rows (``"Alpha plc,...`` on one line and ``Gamma plc",...`` two
+    lines on make one holding of three). The merged record keeps the right number of fields
+    only when the quote closes in the column it opened in, and then the value holds the
+    delimiters of the lines it swallowed. A quoted name over two lines with no delimiter in
+    it (an address line, say) is a value as written, and stays. ``lines``: each record's
+    first line in the file, or None if not known."""
+    first: tuple[int, str, str] | None = None
+    for name, column in zip(table.column_names, table.columns):
+        values = _text_values(column)
+        if values is None:
+            continue
+        both = pc.and_(pc.match_substring_regex(values, "[\\r\\n]"),
+                       pc.match_substring(values, spec.delimiter))
+        hit = pc.index(both, True).as_py()
+        if hit >= 0 and (first is None or hit < first[0]):
+            first = (hit, name, values[hit].as_py())
+    if first is None:
+        return
+    row, column, value = first
+    breaks = value.count("\n") + value.replace("\r\n", "\n").count("\r")
+    if lines is None:
+        where, span = place(spec.display, None, column), f"record {row + 1}"
+    else:
+        start = int(lines[row])
+        where = place(spec.display, start, column)
+        span = f"lines {start} to {start + breaks}"
+    raise InputError([Problem(where, f"a quoted value runs over {span} and holds the "
+                              f"delimiter {spec.delimiter!r}: a quote is misplaced, and the "
+                              "lines between would be read as one value and their rows lost; "
+                              "close the quote on the line it opens, or remove it")])
 
 
 def _record_lines(spec: InputSpec, n_records: int) -> np.ndarray | None:

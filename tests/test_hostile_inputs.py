@@ -238,3 +238,42 @@ def test_an_unclosed_quote_is_one_line_naming_where_it_opens(tmp_path, capsys, f
     assert _refused(pack, tmp_path, capsys) == [
         f"{file}:{line}:{column}: a quoted field opened on this line is never closed (the "
         "quote runs to the end of the file); close it or remove it"]
+
+
+@pytest.mark.parametrize(("file", "column", "opens", "closes", "sep"), [
+    ("holdings.csv", "name", 3, 5, "\n"),       # two holdings swallowed into a name
+    ("holdings.csv", "sector", 10, 11, "\r\n"),  # one, in a file with Windows line ends
+    ("returns.csv", "security_id", 40, 42, "\n"),    # a long returns file: two returns lost
+])
+def test_a_quote_closed_lines_later_is_refused_not_read_as_one_value(
+        tmp_path, capsys, file, column, opens, closes, sep):
+    # a quote opened in one line and closed in the same column lines later keeps the right
+    # number of fields, so the lines between became one value and their rows were lost in
+    # silence (two holdings dropped, `check` said "ok"): now refused where the quote opens
+    pack = _pack(tmp_path)
+    path = pack / file
+    lines = path.read_text().splitlines()
+    k = lines[0].split(",").index(column)
+    first, last = lines[opens - 1].split(","), lines[closes - 1].split(",")
+    first[k], last[k] = '"' + first[k], last[k] + '"'
+    lines[opens - 1], lines[closes - 1] = ",".join(first), ",".join(last)
+    path.write_bytes((sep.join(lines) + sep).encode())
+    assert _refused(pack, tmp_path, capsys) == [
+        f"{file}:{opens}:{column}: a quoted value runs over lines {opens} to {closes} and "
+        "holds the delimiter ',': a quote is misplaced, and the lines between would be read "
+        "as one value and their rows lost; close the quote on the line it opens, or remove it"]
+
+
+def test_a_quoted_name_over_two_lines_without_the_delimiter_is_still_read(tmp_path, capsys):
+    # the same shape a custodian's export gives a name with an address line: a value as
+    # written, so it stays (the rows after it keep their numbers: test_bad_inputs.py)
+    pack = _pack(tmp_path)
+    path = pack / "holdings.csv"
+    lines = path.read_text().splitlines()
+    k = lines[0].split(",").index("name")
+    cells = lines[2].split(",")
+    cells[k] = f'"{cells[k]}\nRegistered office: Harbour Row"'
+    lines[2] = ",".join(cells)
+    path.write_text("\n".join(lines) + "\n")
+    assert main(["check", str(pack)]) == 0
+    assert "61 from holdings.csv" in capsys.readouterr().out
