@@ -178,7 +178,8 @@ CASES: dict[str, tuple[str, list[str]]] = {
     "byte_order_mark_inside_text": (ERROR, [
         "holdings.csv:3:sector: invisible control character U+FEFF"]),
     "nan_text_in_numbers": (ERROR, [
-        "market.csv:10:return: value is not a finite number: '-inf'",
+        "market.csv:10:return: value is not a finite number: '-inf' as read (written so, or a "
+        "number too large for a float: beyond about 1.8e308)",
         "returns.csv:24:return: value is not a finite number: 'nan'"]),
     # the run of 0.01 starts at FWX02's return for period 15 (line 59), as stale_prices
     "constant_return_run": (WARNING, [

@@ -277,3 +277,16 @@ def test_a_quoted_name_over_two_lines_without_the_delimiter_is_still_read(tmp_pa
     path.write_text("\n".join(lines) + "\n")
     assert main(["check", str(pack)]) == 0
     assert "61 from holdings.csv" in capsys.readouterr().out
+
+
+def test_an_overflowing_number_is_not_quoted_back_as_if_written_inf(tmp_path, capsys):
+    # the CSV reader parses 1e400 to inf and its text is gone: the message said "'inf'",
+    # which the user never wrote
+    pack = _pack(tmp_path)
+    path = pack / "returns.csv"
+    lines = path.read_text().splitlines()
+    lines[5] = lines[5].rsplit(",", 1)[0] + ",1e400"
+    path.write_text("\n".join(lines) + "\n")
+    assert _refused(pack, tmp_path, capsys) == [
+        "returns.csv:6:return: value is not a finite number: 'inf' as read (written so, or a "
+        "number too large for a float: beyond about 1.8e308)"]

@@ -41,7 +41,10 @@ def as_float(raw: RawTable, column: str, coll: Collector, decimal: str, *,
         null = np.asarray(arr.is_null().to_numpy(zero_copy_only=False), dtype=bool)
         not_finite = ~np.isfinite(values) & ~null
         shown = np.full(len(values), None, dtype=object)
-        shown[not_finite] = [repr(repr(float(v))) for v in values[not_finite]]
+        # the text is gone: an infinity was written as one or overflowed (1e400)
+        shown[not_finite] = [repr(repr(float(v))) if np.isnan(v) else
+                             f"{repr(float(v))!r} as read (written so, or a number too large "
+                             "for a float: beyond about 1.8e308)" for v in values[not_finite]]
     else:
         text = arr.cast(pa.string())
         stripped = pc.utf8_trim_whitespace(text)
