@@ -253,6 +253,8 @@ def _check_link(href: str, rel: str, line: int, problems: list[Problem]) -> None
         return
     if scheme == "file":
         why = "a file: URL"
+    elif scheme in LINK_SCHEMES:       # https:javascript:..., https:/path: no host
+        why = f"a {scheme}: link with no host (write {scheme}://host/...)"
     elif scheme:
         why = f"a {scheme}: link"
     elif href.startswith(("/", "\\")) or _WINDOWS_DRIVE.match(href):

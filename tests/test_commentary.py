@@ -71,6 +71,10 @@ def png(path) -> bytes:
     ("[run](javascript:alert(1))\n", 5,
      "link to 'javascript:alert(1)' is not allowed: a javascript: link; links may go to "
      "https:, http: or mailto: addresses or #sections"),
+    # https: with no host: a browser may resolve it against the page's own address
+    ("[note](https:javascript:alert(1))\n", 5,
+     "link to 'https:javascript:alert(1)' is not allowed: a https: link with no host (write "
+     "https://host/...); links may go to https:, http: or mailto: addresses or #sections"),
     ("![x](img/missing.png)\n", 5, "image 'img/missing.png' does not exist"),
 ])
 def test_refused_with_its_line(tmp_path, body, line, message):
