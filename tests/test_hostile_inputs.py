@@ -64,6 +64,14 @@ def _weights(pack: Path, weights: list[float]) -> None:
 
 # -- 1. leverage that wipes the portfolio out; weights that sum to zero ---------------------
 
+def _cash_earns_the_rate(pack: Path, h: pd.DataFrame, month: pd.Series, date: str) -> None:
+    """Give ``month`` (returns by security id) the cash holdings' return of ``date``: the
+    risk-free rate, as the pack reckons cash."""
+    rate = float(pd.read_csv(pack / "risk_free.csv").set_index("date").loc[date, "rate"])
+    for cid in h.loc[h["asset_class"].str.lower() == "cash", "security_id"]:
+        month[cid] = rate
+
+
 def test_leverage_that_wipes_the_portfolio_out_is_one_error(tmp_path, capsys):
     pack = _pack(tmp_path)
     h = pd.read_csv(pack / "holdings.csv")
@@ -78,9 +86,10 @@ def test_leverage_that_wipes_the_portfolio_out_is_one_error(tmp_path, capsys):
     r.loc[at & (r["security_id"] == "TVX001"), "return"] = "-0.5"
     r.loc[at & (r["security_id"] == "TVX002"), "return"] = "0.5"
     r.to_csv(pack / "returns.csv", index=False)
-    # the month's portfolio return as the pack would compute it: the weights of holdings with
-    # a return that month, re-weighted over them
+    # the month's portfolio return as the pack would compute it: cash earns the risk-free
+    # rate, and the weights of holdings with a return that month are re-weighted over them
     month = r[at].set_index("security_id")["return"].astype(float)
+    _cash_earns_the_rate(pack, h, month, "2026-10-31")
     w = pd.Series([2.0, -2.0, *rest], index=h["security_id"])
     present = w.index.isin(month.index)
     expected = float((w[present] * month.reindex(w.index[present])).sum() / w[present].sum())
@@ -89,6 +98,47 @@ def test_leverage_that_wipes_the_portfolio_out_is_one_error(tmp_path, capsys):
         "holdings.csv:weight: the gross leverage of 5 (sum of |weights|) wipes the portfolio "
         f"out: its return in the period of 2026-10-31 is {expected:.0%}, and nothing is left "
         "to compound; reduce the long and short weights"]
+
+
+def test_leverage_that_wipes_out_only_through_a_proxy_is_refused_by_check_and_build(
+        tmp_path, capsys):
+    # a short holding with no history of its own that names the market as its proxy: the
+    # back-cast wipes out only with the proxy standing in. Validation reckoned from the
+    # holdings' own returns alone, so `check` said ok and only the analysis refused
+    pack = _pack(tmp_path)
+    h = pd.read_csv(pack / "holdings.csv")
+    mv = h["market_value"].to_numpy(dtype=float)
+    rest = mv[2:] / mv[2:].sum()
+    weights = [-2.0, 2.0, *rest]
+    _weights(pack, weights)
+    h = pd.read_csv(pack / "holdings.csv", dtype=str)
+    h["proxy"] = ["market"] + [""] * (len(h) - 1)
+    h.to_csv(pack / "holdings.csv", index=False)
+    _toml(pack, "checks", "allow_short = true")
+    r = pd.read_csv(pack / "returns.csv", dtype={"return": str})
+    r = r[r["security_id"] != "TVX001"]            # its proxy's returns stand in
+    at = r["date"] == "2026-10-31"
+    r.loc[at & (r["security_id"] == "TVX002"), "return"] = "-0.5"
+    r.to_csv(pack / "returns.csv", index=False)
+    m = pd.read_csv(pack / "market.csv", dtype={"return": str})
+    m.loc[m["date"] == "2026-10-31", "return"] = "0.5"
+    m.to_csv(pack / "market.csv", index=False)
+    # the month as validation sees it (TVX001 absent, the others re-weighted) loses less
+    # than all; with the proxy standing in for TVX001 it loses more than all
+    month = r[at].set_index("security_id")["return"].astype(float)
+    w = pd.Series(weights, index=h["security_id"])
+    own = w.index.isin(month.index)
+    seen = float((w[own] * month.reindex(w.index[own])).sum() / w[own].sum())
+    month["TVX001"] = 0.5
+    _cash_earns_the_rate(pack, h, month, "2026-10-31")
+    expected = float((w * month.reindex(w.index)).sum() / w.sum())
+    assert seen > -1 > expected
+    assert _refused(pack, tmp_path, capsys) == [
+        "holdings.csv:weight: the gross leverage of 5 (sum of |weights|) wipes the portfolio "
+        f"out: its return in the period of 2026-10-31 is {expected:.0%}, and nothing is left "
+        "to compound; reduce the long and short weights",
+        "holdings.csv:2:security_id: warning: holding TVX001 has no return history in "
+        "returns.csv; its proxy 'market' stands in for it"]
 
 
 def test_weights_summing_to_zero_are_not_rescaled(tmp_path, capsys):

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from reporter.analytics.coverage import cover_holdings
 from reporter.analytics.returns import frequency_gaps, period_keys, portfolio_returns
 from reporter.config import Settings
 from reporter.errors import Collector, InputError, Problem, place
@@ -57,7 +58,7 @@ def validate_tables(settings: Settings, raws: dict[str, RawTable], read_problems
     if market is not None and rf is not None:
         _check_coverage(settings, market, rf, panel, coll)
     if holdings is not None and panel is not None and not coll.errors:
-        _check_wipe_out(settings, holdings, panel, market, coll)
+        _check_wipe_out(settings, holdings, panel, market, rf, coll)
     coll.raise_if_errors(strict=strict)
     assert holdings is not None and market is not None and rf is not None and panel is not None
     return ValidInputs(holdings=holdings, returns=panel, market=market, risk_free=rf,
@@ -169,14 +170,21 @@ def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
 
 
 def _check_wipe_out(settings: Settings, holdings: Holdings, panel: ReturnPanel,
-                    market: DatedSeries | None, coll: Collector) -> None:
+                    market: DatedSeries | None, rf: DatedSeries | None,
+                    coll: Collector) -> None:
     """Today's weights applied to each period's returns (the back-cast the pack reports) must
     not lose all of the portfolio: with short positions the gross exposure can exceed 100%,
     and a period return of -100% or worse leaves nothing to compound (and a fractional power
-    of a negative number). One error, naming the first such period up to ``period_end``."""
+    of a negative number). One error, naming the first such period up to ``period_end``.
+    Cash earns the risk-free rate and a proxy stands in, as in the analysis (a benchmark
+    proxy only there: the benchmark is read with the optional inputs)."""
     weights = holdings.weights
     if not settings.allow_short or not len(panel.period_keys) or (weights >= 0).all():
         return       # long-only weights summing to 1 average returns that are above -100%
+    if market is not None and rf is not None:
+        covered, _ = cover_holdings(ValidInputs(holdings=holdings, returns=panel, market=market,
+                                                risk_free=rf, warnings=[]), settings)
+        panel = covered.returns
     end_key = period_keys(np.array([np.datetime64(settings.period_end, "D")]),
                           settings.frequency)[0]
     upto = panel.period_keys <= end_key
