@@ -100,8 +100,9 @@ def test_leverage_that_wipes_the_portfolio_out_is_one_error(tmp_path, capsys):
         "to compound; reduce the long and short weights"]
 
 
+@pytest.mark.parametrize("proxy", ["market", "benchmark"])
 def test_leverage_that_wipes_out_only_through_a_proxy_is_refused_by_check_and_build(
-        tmp_path, capsys):
+        tmp_path, capsys, proxy):
     # a short holding with no history of its own that names the market as its proxy: the
     # back-cast wipes out only with the proxy standing in. Validation reckoned from the
     # holdings' own returns alone, so `check` said ok and only the analysis refused
@@ -112,17 +113,20 @@ def test_leverage_that_wipes_out_only_through_a_proxy_is_refused_by_check_and_bu
     weights = [-2.0, 2.0, *rest]
     _weights(pack, weights)
     h = pd.read_csv(pack / "holdings.csv", dtype=str)
-    h["proxy"] = ["market"] + [""] * (len(h) - 1)
+    h["proxy"] = [proxy] + [""] * (len(h) - 1)
     h.to_csv(pack / "holdings.csv", index=False)
     _toml(pack, "checks", "allow_short = true")
+    if proxy == "benchmark":        # a copy of the market's file, read as the benchmark
+        shutil.copy(pack / "market.csv", pack / "benchmark.csv")
+        _toml(pack, "inputs", 'benchmark = "benchmark.csv"')
     r = pd.read_csv(pack / "returns.csv", dtype={"return": str})
     r = r[r["security_id"] != "TVX001"]            # its proxy's returns stand in
     at = r["date"] == "2026-10-31"
     r.loc[at & (r["security_id"] == "TVX002"), "return"] = "-0.5"
     r.to_csv(pack / "returns.csv", index=False)
-    m = pd.read_csv(pack / "market.csv", dtype={"return": str})
+    m = pd.read_csv(pack / f"{proxy}.csv", dtype={"return": str})
     m.loc[m["date"] == "2026-10-31", "return"] = "0.5"
-    m.to_csv(pack / "market.csv", index=False)
+    m.to_csv(pack / f"{proxy}.csv", index=False)
     # the month as validation sees it (TVX001 absent, the others re-weighted) loses less
     # than all; with the proxy standing in for TVX001 it loses more than all
     month = r[at].set_index("security_id")["return"].astype(float)
@@ -138,7 +142,7 @@ def test_leverage_that_wipes_out_only_through_a_proxy_is_refused_by_check_and_bu
         f"out: its return in the period of 2026-10-31 is {expected:.0%}, and nothing is left "
         "to compound; reduce the long and short weights",
         "holdings.csv:2:security_id: warning: holding TVX001 has no return history in "
-        "returns.csv; its proxy 'market' stands in for it"]
+        f"returns.csv; its proxy '{proxy}' stands in for it"]
 
 
 def test_weights_summing_to_zero_are_not_rescaled(tmp_path, capsys):

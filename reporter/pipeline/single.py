@@ -79,7 +79,7 @@ def single_parts(settings: Settings, raws: dict, read_problems: list[Problem], p
     flows, flow_problems = validate_cash_flows(settings, raws, earlier_end(settings, previous))
     inputs = validate_tables(settings, raws, list(dict.fromkeys(
         [*read_problems, *bench_problems, *own_problems, *style_problems,
-         *gross_problems, *flow_problems])), strict=strict)
+         *gross_problems, *flow_problems])), strict=strict, benchmark=benchmark)
     return [PartInputs(
         name=settings.name, slug="", settings=settings, inputs=inputs, tracking=benchmark,
         own=own, gross=gross, style=style_in, previous=previous, compare_note=compare_note,

@@ -43,8 +43,9 @@ def read_inputs(settings: Settings) -> tuple[dict[str, RawTable], list]:
 
 
 def validate_tables(settings: Settings, raws: dict[str, RawTable], read_problems=(),
-                    strict: bool = False) -> ValidInputs:
-    """Check every table; raise :class:`InputError` listing every problem found."""
+                    strict: bool = False, benchmark: DatedSeries | None = None) -> ValidInputs:
+    """Check every table; raise :class:`InputError` listing every problem found.
+    ``benchmark``: the checked benchmark series, if any (a holding may name it as proxy)."""
     coll = Collector()
     coll.problems.extend(read_problems)
     holdings = validate_holdings(raws["holdings"], settings, coll) if "holdings" in raws else None
@@ -58,7 +59,7 @@ def validate_tables(settings: Settings, raws: dict[str, RawTable], read_problems
     if market is not None and rf is not None:
         _check_coverage(settings, market, rf, panel, coll)
     if holdings is not None and panel is not None and not coll.errors:
-        _check_wipe_out(settings, holdings, panel, market, rf, coll)
+        _check_wipe_out(settings, holdings, panel, market, rf, benchmark, coll)
     coll.raise_if_errors(strict=strict)
     assert holdings is not None and market is not None and rf is not None and panel is not None
     return ValidInputs(holdings=holdings, returns=panel, market=market, risk_free=rf,
@@ -171,19 +172,20 @@ def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
 
 def _check_wipe_out(settings: Settings, holdings: Holdings, panel: ReturnPanel,
                     market: DatedSeries | None, rf: DatedSeries | None,
-                    coll: Collector) -> None:
+                    benchmark: DatedSeries | None, coll: Collector) -> None:
     """Today's weights applied to each period's returns (the back-cast the pack reports) must
     not lose all of the portfolio: with short positions the gross exposure can exceed 100%,
     and a period return of -100% or worse leaves nothing to compound (and a fractional power
     of a negative number). One error, naming the first such period up to ``period_end``.
-    Cash earns the risk-free rate and a proxy stands in, as in the analysis (a benchmark
-    proxy only there: the benchmark is read with the optional inputs)."""
+    Cash earns the risk-free rate and a proxy (another holding, the market or the
+    ``benchmark``) stands in, as in the analysis."""
     weights = holdings.weights
     if not settings.allow_short or not len(panel.period_keys) or (weights >= 0).all():
         return       # long-only weights summing to 1 average returns that are above -100%
     if market is not None and rf is not None:
         covered, _ = cover_holdings(ValidInputs(holdings=holdings, returns=panel, market=market,
-                                                risk_free=rf, warnings=[]), settings)
+                                                risk_free=rf, warnings=[]), settings,
+                                    benchmark)
         panel = covered.returns
     end_key = period_keys(np.array([np.datetime64(settings.period_end, "D")]),
                           settings.frequency)[0]
