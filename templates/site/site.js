@@ -7,8 +7,10 @@
     var boxes = document.querySelectorAll("[data-spec]");
     Array.prototype.forEach.call(boxes, function (box) {
       var spec = JSON.parse(document.getElementById(box.getAttribute("data-spec")).textContent);
+      // ast: Vega's expressions evaluated by its interpreter, not compiled to functions,
+      // so the page's policy need not allow eval
       window.vegaEmbed(box, spec, {
-        renderer: "svg", actions: false, tooltip: { theme: "custom" }
+        renderer: "svg", actions: false, tooltip: { theme: "custom" }, ast: true
       }).then(function () {
         var svg = box.querySelector("svg");
         if (svg) {
