@@ -129,14 +129,13 @@ def main(argv: list[str] | None = None) -> int:
                   file=sys.stderr)
             return 2
 
-    from reporter.config import load_settings
-    from reporter.validate import validate_pack
-
     # what a build has imported before its analyse stage (the chart and render modules
     # among them): imported here so that no timing below includes a first import
     import reporter.analytics.style  # noqa: F401
     import reporter.build  # noqa: F401
     import reporter.limits  # noqa: F401
+    from reporter.config import load_settings
+    from reporter.validate import validate_pack
 
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp) / "pack"

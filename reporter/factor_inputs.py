@@ -29,7 +29,7 @@ from reporter.errors import Collector, Problem, place
 from reporter.readers import RawTable
 from reporter.validate import MAX_PER_CHECK, as_dates, as_float, as_text, looks_like_percent
 from reporter.validate import validate_series as _validate_series
-from reporter.validate.values import implausible, implausible_message
+from reporter.validate.values import report_out_of_range
 
 FACTOR_NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_]{0,39}$")
 
@@ -149,12 +149,7 @@ def _factors(raw: RawTable, settings: Settings, win, coll: Collector) -> FactorR
         for i in np.flatnonzero(in_win & ~np.isfinite(v))[:MAX_PER_CHECK]:
             coll.error(place(raw.name, raw.row_number(int(i)), n), "value is empty, and the "
                        "window needs it")
-        for i in np.flatnonzero(v < -1.0)[:MAX_PER_CHECK]:
-            coll.error(place(raw.name, raw.row_number(int(i)), n),
-                       f"return {v[i]:.10g} is below -100%")
-        for i in np.flatnonzero(implausible(v))[:MAX_PER_CHECK]:
-            coll.error(place(raw.name, raw.row_number(int(i)), n),
-                       implausible_message(float(v[i])))
+        report_out_of_range(raw, v, n, None, coll)
         w = v[in_win & ~dup]
         if len(w) > 1 and np.isfinite(w).all() and np.ptp(w) == 0:
             first = int(np.flatnonzero(in_win)[0])
@@ -180,12 +175,7 @@ def _benchmark_sectors(raw: RawTable, settings: Settings, win,
     for i in np.flatnonzero(weight < 0)[:MAX_PER_CHECK]:
         coll.error(place(raw.name, raw.row_number(int(i)), "weight"),
                    f"negative benchmark weight {weight[i]:g}")
-    for i in np.flatnonzero(ret < -1.0)[:MAX_PER_CHECK]:
-        coll.error(place(raw.name, raw.row_number(int(i)), "return"),
-                   f"return {ret[i]:.10g} is below -100%")
-    for i in np.flatnonzero(implausible(ret))[:MAX_PER_CHECK]:
-        coll.error(place(raw.name, raw.row_number(int(i)), "return"),
-                   implausible_message(float(ret[i])))
+    report_out_of_range(raw, ret, "return", None, coll)
     valid = ~np.isnat(dates)
     dup = _repeats(raw, keys, coll, sector, "period and sector")
     frame = pd.DataFrame({"key": keys, "sector": sector, "weight": weight, "return": ret,

@@ -123,7 +123,7 @@ def _refuse_swallowed_lines(spec: InputSpec, table: pa.Table, lines: np.ndarray 
     it (an address line, say) is a value as written, and stays. ``lines``: each record's
     first line in the file, or None if not known."""
     first: tuple[int, str, str] | None = None
-    for name, column in zip(table.column_names, table.columns):
+    for name, column in zip(table.column_names, table.columns, strict=True):
         values = _text_values(column)
         if values is None:
             continue

@@ -26,7 +26,7 @@ from reporter.validate.text import (
     normalise_id,
     normalised_ids,
 )
-from reporter.validate.values import _percent_columns, _report_below_minus_100, out_of_range
+from reporter.validate.values import _percent_columns, out_of_range, report_out_of_range
 
 
 def validate_returns(raw: RawTable, holdings: Holdings | None, settings: Settings,
@@ -158,8 +158,8 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw, value_col) -> Ret
     if out_of_range(values).any():
         pct_code = np.append(percent[0], False)
         code_of_row = np.where(id_null, len(ids), codes_all)  # len(ids): the "no id" slot
-        _report_below_minus_100(raw, np.where(pct_code[code_of_row], np.nan, values),
-                                "return", "returns below -100%", coll)
+        report_out_of_range(raw, np.where(pct_code[code_of_row], np.nan, values),
+                            "return", "returns below -100%", coll)
     return _finish_panel(raw, matrix, uniq_keys, ids, holdings, settings, coll, "long",
                          lambda j: place(raw.name, raw.row_number(first_row(j)), "return"),
                          lambda t, j: place(raw.name, raw.row_number(row_of(t, j)), "return"),
@@ -192,8 +192,7 @@ def _returns_wide(raw, holdings, settings, coll, holdings_raw) -> ReturnPanel | 
     for j in np.flatnonzero((full <= 0).any(axis=0) if prices else []):
         report_non_positive(raw, full[:, j], columns[j], coll)
     for j in np.flatnonzero(~percent[0] & out_of_range(full).any(axis=0) & (not prices)):
-        _report_below_minus_100(raw, full[:, j], columns[j],
-                                f"returns below -100% in column {columns[j]}", coll)
+        report_out_of_range(raw, full[:, j], columns[j], None, coll)
     ids_ok = _wide_ids(raw, columns, coll)
     ok = ~np.isnat(dates)
     keys = period_keys(dates[ok], settings.frequency)

@@ -41,11 +41,12 @@ def out_of_range(values: np.ndarray) -> np.ndarray:
     return (values < -1.0) | implausible(values)
 
 
-def _report_below_minus_100(raw: RawTable, values: np.ndarray, label: str, summary: str,
-                            coll: Collector) -> None:
+def report_out_of_range(raw: RawTable, values: np.ndarray, label: str, summary: str | None,
+                        coll: Collector) -> None:
     """One problem per data row whose return is below -100% (NaN is never below), and one per
-    row whose return is above :data:`MAX_PERIOD_RETURN`."""
-    capped = _Capped(coll, summary)
+    row whose return is above :data:`MAX_PERIOD_RETURN`, each kind capped (``summary``: the
+    cap's words for the first; default "returns below -100% in column ``label``")."""
+    capped = _Capped(coll, summary or f"returns below -100% in column {label}")
     for i in np.flatnonzero(values < -1.0):
         capped.add(place(raw.name, raw.row_number(int(i)), label),
                    f"return {values[i]:.10g} is below -100%")
@@ -64,8 +65,7 @@ def _check_return_values(raw: RawTable, values: np.ndarray, column: str, setting
     finite = values[np.isfinite(values)]
     percent = bool(len(finite)) and looks_like_percent(finite, settings.frequency)
     if not percent:
-        _report_below_minus_100(raw, values, label, f"returns below -100% in column {label}",
-                                coll)
+        report_out_of_range(raw, values, label, None, coll)
     else:
         first = int(np.flatnonzero(np.isfinite(values))[0])
         if column == "rate":
