@@ -75,3 +75,9 @@ def test_a_constant_market_premium_is_bad_input_naming_the_file(tmp_path, capsys
     assert err.splitlines()[0].startswith("market.csv: the market proxy's return less the "
                                           "risk-free rate is the same in all 60 periods")
     assert "internal error" not in err and not out.exists()
+    # check says the same, and only that: it had named the factors file's size factor as a
+    # line in the market's premium, which is a consequence, not the cause
+    code, _, checked = run_cli(capsys, "check", pack)
+    assert code == 2
+    assert checked.splitlines() == err.splitlines()
+    assert "factors.csv" not in checked

@@ -139,6 +139,8 @@ def _require_separable_factors(x: np.ndarray, F: np.ndarray, names: tuple[str, .
     added, so the first factor that adds nothing is the one named."""
     rows = np.isfinite(x) & np.isfinite(F).all(axis=1)
     X = np.column_stack([np.ones(int(rows.sum())), x[rows], F[rows]])
+    if len(X) and not float(np.linalg.cond(X[:, :2].T @ X[:, :2])) < SINGULAR_COND:
+        return      # the market premium alone is constant: validation names that, not a factor
     for j, name in enumerate(names):
         part = X[:, :j + 3]
         cond = float(np.linalg.cond(part.T @ part)) if len(part) else np.inf

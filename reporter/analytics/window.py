@@ -45,18 +45,24 @@ def build_window(inputs: ValidInputs, settings: Settings, periods: int | None = 
                   returns=rets, market=inputs.market.values[idx], risk_free=rf)
 
 
-def _require_varying_market(market_excess: np.ndarray, settings: Settings) -> None:
+def constant_premium(market_excess: np.ndarray, settings: Settings) -> Problem | None:
     """Every beta divides by the market premium's variance: a premium that is the same in
     every period of the window (a constant market return less a constant rate) is bad input,
-    named, not a division by zero."""
+    named, not a division by zero. The problem, or None. Validation asks it too, so that
+    ``check`` names this before anything it makes singular (a factor, say)."""
     x = market_excess[np.isfinite(market_excess)]
     if len(x) and np.ptp(x) > 0:
-        return
+        return None
     spec = settings.inputs.get("market")
     where = spec.display if spec is not None else "market proxy"
-    raise InputError([Problem(where, f"the market proxy's return less the risk-free rate is "
-                              f"the same in all {len(x)} periods of the window, so no beta can "
-                              "be estimated; check the market and risk-free files")])
+    return Problem(where, f"the market proxy's return less the risk-free rate is the same in "
+                   f"all {len(x)} periods of the window, so no beta can be estimated; check "
+                   "the market and risk-free files")
+
+
+def _require_varying_market(market_excess: np.ndarray, settings: Settings) -> None:
+    if (problem := constant_premium(market_excess, settings)) is not None:
+        raise InputError([problem])
 
 
 def _align(series: DatedSeries, keys: np.ndarray, freq: str) -> np.ndarray:

@@ -7,6 +7,7 @@ import numpy as np
 
 from reporter.analytics.coverage import cover_holdings
 from reporter.analytics.returns import frequency_gaps, period_keys, portfolio_returns
+from reporter.analytics.window import constant_premium
 from reporter.config import Settings
 from reporter.errors import Collector, InputError, Problem, place
 from reporter.models import DatedSeries, Holdings, ReturnPanel, ValidInputs
@@ -168,6 +169,10 @@ def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
         if len(missing) > MAX_PER_CHECK:
             coll.error(rname, f"... and {len(missing) - MAX_PER_CHECK} more periods of the "
                        "window with no rate")
+        return
+    pos = np.searchsorted(rkeys, mkeys[win])
+    if (problem := constant_premium(market.values[win] - rf.values[pos], settings)) is not None:
+        coll.problems.append(problem)
 
 
 def _check_wipe_out(settings: Settings, holdings: Holdings, panel: ReturnPanel,
