@@ -163,3 +163,20 @@ print(subprocess.run([sys.executable, "-c", child], capture_output=True, text=Tr
     own, inherited = int(out[0]), int(out[1])
     assert inherited > 400 * 2**20          # the trap: the parent's 400 MB
     assert own < 200 * 2**20                 # a bare interpreter with the benchmark imported
+
+
+def test_memory_accounts_reports_every_stage(tmp_path, capsys):
+    import memory_accounts
+
+    folder = write_scheme(tmp_path / "tiny", 12, 36, "monthly", seed=3, label="T")
+    assert memory_accounts.main([str(folder)]) == 0
+    lines = capsys.readouterr().out.splitlines()
+    tags = [" ".join(line.split()[:2]) for line in lines]
+    for stage in ("read", "validate", "analyse", "chart", "html", "pdf", "write"):
+        assert f"start {stage}" in tags and f"end {stage}" in tags
+    # the resident pages split by kind of mapping, and Python's arenas with their use
+    parts = memory_accounts.resident()
+    assert parts["file"] > 0 and parts["anon"] > 0
+    arenas, in_use = memory_accounts.python_arenas()
+    assert 0 < in_use <= arenas
+    assert memory_accounts.main([str(tmp_path / "missing")]) == 2
