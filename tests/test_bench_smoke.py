@@ -33,7 +33,10 @@ def test_small_workload_measures_every_stage_and_floor(small):
     assert small["pages"] >= 10 and small["peak_rss"] > 100e6
     # the RSS sampled in each stage: every stage seen, none above the process's peak
     assert set(bench_pack.STAGES) <= set(small["stage_rss"])
-    assert all(0 < small["stage_rss"][st] <= small["peak_rss"] for st in bench_pack.STAGES)
+    # (VmHWM and statm are read from the kernel's approximate per-CPU RSS counters: a sample
+    # was seen 0.2 MB above the high-water mark read after it, so a page allowance of 1 MiB)
+    assert all(0 < small["stage_rss"][st] <= small["peak_rss"] + 2**20
+               for st in bench_pack.STAGES)
 
 
 def test_report_ratios_are_the_measured_ones(small):
