@@ -3,6 +3,7 @@
     python benchmarks/profile_analytics.py                  # Large: time stage and floor
     python benchmarks/profile_analytics.py --cprofile       # + the top functions (cProfile)
     python benchmarks/profile_analytics.py --lines          # + the top ten lines (line_profiler)
+    python benchmarks/profile_analytics.py --kernels        # + the dense kernels the methods need
     python benchmarks/profile_analytics.py --holdings 200 --periods 500
 
 The stage is what ``reporter build`` runs under "analyse" for a single pack
@@ -59,6 +60,44 @@ def floor(settings, inputs):
     x = np.column_stack([np.ones(len(m)), m])
     y = y[-len(m):]
     return np.linalg.lstsq(x, y, rcond=None), np.cov(y.T)
+
+
+def kernels(settings, inputs, repeat: int) -> dict[str, float]:
+    """The dense kernels the stage's published methods need at the least, each timed alone
+    (best of ``repeat``) on this workload: the one centred Gram matrix of the window (the
+    covariance floor's own work); a Cholesky factor of the complete holdings' block for each
+    of the three positive-definiteness questions the pack asks (the holdings' and the active
+    covariance estimates, each from pairwise moments, and the GRS test's residual covariance);
+    the GRS condition bound's triangular inverse; and the Newey-West lag products, one pass of
+    the T x N residuals for each lag (here the returns stand in for the residuals)."""
+    from scipy.linalg.lapack import dtrtri
+
+    from reporter.analytics.market_model import newey_west_lags
+
+    y = inputs.returns.values[-settings.window:]
+    complete = np.isfinite(y).all(axis=0)
+    x = np.nan_to_num(y)
+    T = len(x)
+    centred = x - x.mean(axis=0)
+    gram = centred.T @ centred
+    block = gram[np.ix_(complete, complete)] / T
+    block[np.diag_indices_from(block)] += 1e-12 * float(np.trace(block))
+    low = np.linalg.cholesky(block)
+    lags = int(newey_west_lags(T))
+    e = centred
+
+    def hac():
+        for lag in range(1, lags + 1):
+            np.einsum("ij,ij->j", e[lag:], e[:-lag])
+
+    return {
+        "Gram matrix X'X of the centred window": best_of(lambda: centred.T @ centred, repeat),
+        f"3 Cholesky factors of the {int(complete.sum())}-holding complete block":
+            3 * best_of(lambda: np.linalg.cholesky(block), repeat),
+        "triangular inverse (GRS condition bound)":
+            best_of(lambda: dtrtri(low.T, lower=0), repeat),
+        f"Newey-West lag products ({lags} passes of T x N)": best_of(hac, repeat),
+    }
 
 
 def line_profile(settings, inputs, top: int) -> str:
@@ -120,6 +159,8 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--cprofile", action="store_true")
     ap.add_argument("--lines", action="store_true")
     ap.add_argument("--top", type=int, default=10)
+    ap.add_argument("--kernels", action="store_true",
+                    help="also time the dense kernels the methods need at the least")
     a = ap.parse_args(argv)
     if a.lines:
         try:
@@ -152,6 +193,15 @@ def main(argv: list[str] | None = None) -> int:
               f"load average {os.getloadavg()[0]:.2f}")
         print(f"analyse(): {t_analyse:.3f} s; analyse stage: {t_stage:.3f} s; "
               f"floor (lstsq + cov): {t_floor:.3f} s; stage / floor = {t_stage / t_floor:.2f}x")
+        if a.kernels:
+            times = kernels(settings, inputs, a.repeat)
+            total = sum(times.values())
+            print("\nkernels the methods need, each alone (best of "
+                  f"{a.repeat}):")
+            for name, t in times.items():
+                print(f"  {t:7.3f} s  {name}")
+            print(f"  {total:7.3f} s  in all = {total / t_floor:.2f}x the floor; the stage is "
+                  f"{t_stage / total:.2f}x these kernels")
         if a.cprofile:
             prof = cProfile.Profile()
             prof.runcall(analyse_stage, settings, inputs)
