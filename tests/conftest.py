@@ -177,3 +177,19 @@ def assert_check_refuses(capsys, pack: Path, line: str) -> None:
     code, _, err = run_cli(capsys, "check", pack)
     assert code == 2 and "Traceback" not in err
     assert line in err.splitlines(), err
+
+
+def text_past_the_right_edge(pdf: Path) -> list[tuple[int, str]]:
+    """(page, text) of every piece of text that starts beyond its page's right edge."""
+    import pypdf
+
+    out = []
+    for number, page in enumerate(pypdf.PdfReader(pdf).pages, start=1):
+        width = float(page.mediabox.width)
+
+        def visit(text, cm, tm, font, size, number=number, width=width):
+            x = tm[4] * cm[0] + tm[5] * cm[2] + cm[4]
+            if text.strip() and x > width:
+                out.append((number, text.strip()[:30]))
+        page.extract_text(visitor_text=visit)
+    return out

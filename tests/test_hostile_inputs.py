@@ -14,7 +14,7 @@ import pandas as pd
 import pytest
 
 from reporter.cli import main
-from tests.conftest import DEMO
+from tests.conftest import DEMO, text_past_the_right_edge
 
 SUMMARY = "reporter: "
 
@@ -344,3 +344,17 @@ def test_an_overflowing_number_is_not_quoted_back_as_if_written_inf(tmp_path, ca
     assert _refused(pack, tmp_path, capsys) == [
         "returns.csv:6:return: value is not a finite number: 'inf' as read (written so, or a "
         "number too large for a float: beyond about 1.8e308)"]
+
+
+def test_an_overlong_name_wraps_and_keeps_the_figures_on_the_page(tmp_path):
+    # a 300-character name with no space kept its table cell on one line, and the weight,
+    # beta and interval columns beside it were drawn past the page's right edge
+    pack = _pack(tmp_path)
+    h = pd.read_csv(pack / "holdings.csv", dtype=str)
+    h.loc[1, "name"] = "W" * 300
+    h.to_csv(pack / "holdings.csv", index=False)
+    out = tmp_path / "out"
+    assert main(["build", str(pack), "--out", str(out), "--quiet"]) == 0
+    assert 'class="name long">' + "W" * 300 in (out / "pack.html").read_text()
+    for pdf in ("pack.pdf", "pack-trustees.pdf"):
+        assert text_past_the_right_edge(out / pdf) == [], pdf

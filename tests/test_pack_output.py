@@ -11,7 +11,7 @@ import pypdf
 import pytest
 
 from reporter.analytics.pack import SECURITY_COLUMNS
-from tests.conftest import DEMO, GOLDEN
+from tests.conftest import DEMO, GOLDEN, text_past_the_right_edge
 
 REQUIRED = ["security_id", "name", "sector", "weight", "n_obs", "alpha", "alpha_se", "alpha_t",
             "beta", "beta_se", "beta_t", "r_squared", "residual_vol", "mean_excess_return",
@@ -293,3 +293,10 @@ def test_the_page_declares_it_runs_and_fetches_nothing(html):
                           "form-action": ["'none'"]}
     assert "<script" not in html and not re.search(r"\son[a-z]+\s*=", html)
     assert not re.search(r"""<img[^>]*\ssrc=["'](?!data:)""", html)
+
+
+def test_no_text_is_set_past_the_page_edge(demo_build):
+    # the holdings appendix's twelve columns did not fit A4 with every name on one line, and
+    # its last column (the security market line reading) was set past the right edge
+    for pdf in ("pack.pdf", "pack-trustees.pdf"):
+        assert text_past_the_right_edge(demo_build / pdf) == [], pdf

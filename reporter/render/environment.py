@@ -98,6 +98,16 @@ def fit(x, width: int, align: str = "<") -> str:
     return f"{text:{align}{width}}"
 
 
+LONG_NAME = 48     # characters above which a name cell may wrap (pack.css: td.name.long)
+
+
+def name_cell(x) -> str:
+    """The class of a table cell holding a name: ``name`` keeps it on one line; ``name long``
+    lets one longer than :data:`LONG_NAME` characters wrap, anywhere if it must, so that an
+    overlong name (an unbroken one above all) cannot push the figures beside it off the page."""
+    return "name long" if x is not None and len(str(x)) > LONG_NAME else "name"
+
+
 def longdate(d) -> str:
     """A date as '30 November 2026'."""
     if isinstance(d, str):
@@ -274,5 +284,5 @@ def make_environment(user_templates: Path | None = None,
     env.template_class = CheckedTemplate
     env.user_templates = Path(user_templates) if user_templates is not None else None
     env.filters.update(pct=pct, bp=bp, num=num, longdate=longdate, fit=fit,
-                       plural=plural, money=money)
+                       plural=plural, money=money, name_cell=name_cell)
     return env
