@@ -45,8 +45,10 @@ def read_input(spec: InputSpec) -> RawTable:
 
             return read_xlsx(spec)
         if suffix in (".parquet", ".pq"):
+            # a column named twice is refused by name before the read (pyarrow's own read
+            # of such a file may fail with "Multiple matches for FieldRef ...")
+            _refuse_duplicate_columns(spec.display, pq.read_schema(spec.path).names)
             table = pq.read_table(spec.path)
-            _refuse_duplicate_columns(spec.display, table.column_names)
             return RawTable(spec.display, table, 1, "parquet")
     except InputError:
         raise

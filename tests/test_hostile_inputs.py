@@ -358,3 +358,30 @@ def test_an_overlong_name_wraps_and_keeps_the_figures_on_the_page(tmp_path):
     assert 'class="name long">' + "W" * 300 in (out / "pack.html").read_text()
     for pdf in ("pack.pdf", "pack-trustees.pdf"):
         assert text_past_the_right_edge(out / pdf) == [], pdf
+
+
+
+
+
+def _holdings_parquet(pack: Path, column: str, array=None, *, extra=None) -> None:
+    """The demo holdings as ``holdings.parquet``, its ``column`` replaced by ``array`` (or a
+    second column named ``extra`` appended)."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    table = pa.Table.from_pandas(pd.read_csv(pack / "holdings.csv"), preserve_index=False)
+    if array is not None:
+        table = table.set_column(table.schema.get_field_index(column), column, array)
+    if extra is not None:
+        table = table.append_column(extra, table[extra])
+    pq.write_table(table, pack / "holdings.parquet")
+    toml = pack / "pack.toml"
+    toml.write_text(toml.read_text().replace('"holdings.csv"', '"holdings.parquet"'))
+
+
+def test_a_parquet_column_named_twice_is_named_not_arrow_text(tmp_path, capsys):
+    # the read failed first: "cannot be read: Multiple matches for FieldRef.Name(...)"
+    pack = _pack(tmp_path)
+    _holdings_parquet(pack, "market_value", extra="market_value")
+    assert _refused(pack, tmp_path, capsys) == [
+        "holdings.parquet:1:market_value: column name appears more than once"]
