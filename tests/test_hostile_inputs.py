@@ -360,9 +360,6 @@ def test_an_overlong_name_wraps_and_keeps_the_figures_on_the_page(tmp_path):
         assert text_past_the_right_edge(out / pdf) == [], pdf
 
 
-
-
-
 def _holdings_parquet(pack: Path, column: str, array=None, *, extra=None) -> None:
     """The demo holdings as ``holdings.parquet``, its ``column`` replaced by ``array`` (or a
     second column named ``extra`` appended)."""
@@ -379,9 +376,81 @@ def _holdings_parquet(pack: Path, column: str, array=None, *, extra=None) -> Non
     toml.write_text(toml.read_text().replace('"holdings.csv"', '"holdings.parquet"'))
 
 
+def _parquet_types():
+    import pyarrow as pa
+
+    n = len(pd.read_csv(DEMO / "holdings.csv"))
+    return [
+        ("market_value", pa.array([86400 * (1 + i) for i in range(n)], pa.duration("s")),
+         "holdings.parquet:market_value: a duration column (duration[s]); give plain numbers"),
+        ("market_value", pa.array([True] * n),
+         "holdings.parquet:market_value: a true/false column (bool); give plain numbers"),
+        ("market_value", pa.array([[1.0]] * n, pa.list_(pa.float64())),
+         "holdings.parquet:market_value: a list column (list<element: double>); give plain "
+         "numbers"),
+        ("name", pa.array([["a"]] * n, pa.list_(pa.string())),
+         "holdings.parquet:name: a list column (list<element: string>); give text"),
+        ("name", pa.array([{"a": "x"}] * n, pa.struct([("a", pa.string())])),
+         "holdings.parquet:name: a struct column (struct<a: string>); give text"),
+        ("name", pa.array([[("a", "x")]] * n, pa.map_(pa.string(), pa.string())),
+         "holdings.parquet:name: a map column (map<string, string ('name')>); give text"),
+        ("sector", pa.array([b"x"] * n, pa.binary()),
+         "holdings.parquet:sector: a binary column (binary); give text"),
+        ("security_id", pa.array([3600] * n, pa.time32("s")),
+         "holdings.parquet:security_id: a time-of-day column (time32[ms]); give text"),
+    ]
+
+
+@pytest.mark.parametrize("case", range(8))
+def test_a_parquet_column_of_an_unreadable_type_is_refused_at_the_column(
+        tmp_path, capsys, case):
+    # a duration was read as its count of seconds, silently; a list, struct or map gave an
+    # internal error (Arrow could not cast it to text)
+    column, array, message = _parquet_types()[case]
+    pack = _pack(tmp_path)
+    _holdings_parquet(pack, column, array)
+    assert _refused(pack, tmp_path, capsys) == [message]
+
+
+def test_a_parquet_whole_number_beyond_2_53_is_refused_at_its_row(tmp_path, capsys):
+    # a uint64 of 2^64-1 gave "internal error: ArrowInvalid: Integer value ... not in range"
+    import pyarrow as pa
+
+    pack = _pack(tmp_path)
+    values = [int(v) for v in pd.read_csv(pack / "holdings.csv")["market_value"]]
+    _holdings_parquet(pack, "market_value", pa.array([2**64 - 1] + values[1:], pa.uint64()))
+    assert _refused(pack, tmp_path, capsys) == [
+        "holdings.parquet:1:market_value: value is too large to read exactly: "
+        "18446744073709551615 (a whole number beyond 2^53 = 9007199254740992)"]
+
+
+@pytest.mark.parametrize("type_", ["uint64", "int64"])
+def test_parquet_whole_numbers_a_float_holds_exactly_are_read(tmp_path, capsys, type_):
+    import pyarrow as pa
+
+    pack = _pack(tmp_path)
+    values = [int(v) for v in pd.read_csv(pack / "holdings.csv")["market_value"]]
+    _holdings_parquet(pack, "market_value", pa.array([2**53] + values[1:], type_))
+    assert main(["check", str(pack)]) == 0, capsys.readouterr().err
+
+
 def test_a_parquet_column_named_twice_is_named_not_arrow_text(tmp_path, capsys):
     # the read failed first: "cannot be read: Multiple matches for FieldRef.Name(...)"
     pack = _pack(tmp_path)
     _holdings_parquet(pack, "market_value", extra="market_value")
     assert _refused(pack, tmp_path, capsys) == [
         "holdings.parquet:1:market_value: column name appears more than once"]
+
+
+def test_a_parquet_date_column_of_times_of_day_is_refused_at_the_column(tmp_path, capsys):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    pack = _pack(tmp_path)
+    market = pa.Table.from_pandas(pd.read_csv(pack / "market.csv"), preserve_index=False)
+    market = market.set_column(0, "date", pa.array([3600] * market.num_rows, pa.time32("s")))
+    pq.write_table(market, pack / "market.parquet")
+    toml = pack / "pack.toml"
+    toml.write_text(toml.read_text().replace('"market.csv"', '"market.parquet"'))
+    assert _refused(pack, tmp_path, capsys) == [
+        "market.parquet:date: a time-of-day column (time32[ms]); give dates"]

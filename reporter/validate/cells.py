@@ -11,10 +11,71 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from reporter.errors import Collector, place
+from reporter.errors import Collector, InputError, Problem, place
 from reporter.readers import RawTable
 from reporter.validate.common import _Capped
 from reporter.validate.text import normalise_id
+
+
+def _is_text_type(t: pa.DataType) -> bool:
+    return pa.types.is_string(t) or pa.types.is_large_string(t) or (
+        pa.types.is_dictionary(t) and _is_text_type(t.value_type))
+
+
+def _is_number_type(t: pa.DataType) -> bool:
+    return pa.types.is_integer(t) or pa.types.is_floating(t) or pa.types.is_decimal(t)
+
+
+# The Arrow types a Parquet column may have, per use; any other (a duration, a time of day,
+# binary, a list, struct or map, a boolean ...) is refused at the column, never cast.
+ACCEPTED_TYPES = {
+    "number": (lambda t: _is_number_type(t) or _is_text_type(t) or pa.types.is_null(t),
+               "plain numbers"),
+    "text": (lambda t: _is_number_type(t) or _is_text_type(t) or pa.types.is_null(t), "text"),
+    "date": (lambda t: pa.types.is_date(t) or pa.types.is_timestamp(t) or _is_text_type(t)
+             or pa.types.is_integer(t) or pa.types.is_null(t), "dates"),
+}
+
+
+def _type_name(t: pa.DataType) -> str:
+    for test, name in ((pa.types.is_duration, "duration"), (pa.types.is_time, "time-of-day"),
+                       (pa.types.is_boolean, "true/false"), (pa.types.is_date, "date"),
+                       (pa.types.is_timestamp, "timestamp"), (pa.types.is_map, "map"),
+                       (pa.types.is_struct, "struct"), (pa.types.is_dictionary, "dictionary"),
+                       (pa.types.is_floating, "float"), (pa.types.is_decimal, "decimal"),
+                       (lambda x: pa.types.is_list(x) or pa.types.is_large_list(x)
+                        or pa.types.is_fixed_size_list(x), "list"),
+                       (lambda x: pa.types.is_binary(x) or pa.types.is_large_binary(x)
+                        or pa.types.is_fixed_size_binary(x), "binary")):
+        if test(t):
+            return name
+    return str(t)
+
+
+def column_of(raw: RawTable, column: str, use: str) -> pa.ChunkedArray:
+    """``raw``'s column ``column``, refused (one message naming the column and its type) when
+    the file is Parquet and the column's type cannot be read as ``use`` ("number", "text" or
+    "date"; see :data:`ACCEPTED_TYPES`). CSV and spreadsheet columns are typed by the reader."""
+    arr = raw.table[column]
+    accepts, wanted = ACCEPTED_TYPES[use]
+    if raw.format == "parquet" and not accepts(arr.type):
+        raise InputError([Problem(place(raw.name, None, column),
+                                  f"a {_type_name(arr.type)} column ({arr.type}); give {wanted}")])
+    return arr
+
+
+# the largest whole number a float64 holds exactly, and so the largest read as a number
+EXACT_INTEGER = 2 ** 53
+
+
+def _inexact_integers(arr: pa.ChunkedArray) -> np.ndarray:
+    """Where a 64-bit integer column's value is beyond +-2^53 (no float holds it exactly)."""
+    if arr.type.bit_width < 64:
+        return np.zeros(len(arr), dtype=bool)
+    big = pc.greater(arr, pa.scalar(EXACT_INTEGER, arr.type))
+    if pa.types.is_signed_integer(arr.type):
+        big = pc.or_(big, pc.less(arr, pa.scalar(-EXACT_INTEGER, arr.type)))
+    return np.asarray(pc.fill_null(big, False).to_numpy(zero_copy_only=False), dtype=bool)
 
 
 def as_float(raw: RawTable, column: str, coll: Collector, decimal: str, *,
@@ -31,12 +92,21 @@ def as_float(raw: RawTable, column: str, coll: Collector, decimal: str, *,
     a float, are "not a finite number", never taken as an empty value, even where an empty
     value is allowed.
     """
-    arr = raw.table[column]
+    arr = column_of(raw, column, "number")
     label = label or column
     if pa.types.is_floating(arr.type) or pa.types.is_integer(arr.type) or pa.types.is_null(
             arr.type):
-        values = arr.cast(pa.float64()).to_numpy(zero_copy_only=False)
-        bad_text = np.zeros(len(values), dtype=bool)
+        bad_text = (_inexact_integers(arr) if pa.types.is_integer(arr.type)
+                    else np.zeros(len(arr), dtype=bool))
+        if bad_text.any():
+            capped = _Capped(coll, f"whole numbers too large in column {label}")
+            for i in np.flatnonzero(bad_text):
+                capped.add(place(raw.name, raw.row_number(int(i)), label),
+                           f"value is too large to read exactly: {arr[int(i)].as_py()} "
+                           f"(a whole number beyond 2^53 = {EXACT_INTEGER})")
+            capped.close()
+            arr = pc.if_else(pa.chunked_array([bad_text]), pa.scalar(None, arr.type), arr)
+        values = np.array(arr.cast(pa.float64()).to_numpy(zero_copy_only=False), dtype=float)
         # the reader parsed "nan" and "inf" texts as floats: only an empty cell is null
         null = np.asarray(arr.is_null().to_numpy(zero_copy_only=False), dtype=bool)
         not_finite = ~np.isfinite(values) & ~null
@@ -131,7 +201,7 @@ def date_codes(raw: RawTable, column: str, date_format: str,
     time of day dropped. A long returns file repeats each date for every security, so this is one
     pass over the rows (the CSV reader already delivers the column dictionary-encoded).
     """
-    arr = raw.table[column]
+    arr = column_of(raw, column, "date")
     if pa.types.is_date(arr.type) or pa.types.is_timestamp(arr.type):
         if pa.types.is_timestamp(arr.type) and arr.type.tz is not None:
             # the day on the clock where it was stamped: a month-end at 20:00 in New York is
@@ -207,7 +277,8 @@ def as_text(raw: RawTable, column: str, coll: Collector, *, allow_empty: bool) -
     """Column ``column`` as text, each value trimmed and in Unicode NFC (see
     :func:`reporter.validate.text.normalise_id`); None where the cell is empty."""
     values = np.array([None if v is None else normalise_id(str(v))
-                       for v in raw.table[column].cast(pa.string()).to_pylist()], dtype=object)
+                       for v in column_of(raw, column, "text").cast(pa.string()).to_pylist()],
+                      dtype=object)
     if not allow_empty:
         capped = _Capped(coll, f"empty values in column {column}")
         for i in np.flatnonzero([v is None or v == "" for v in values]):

@@ -10,7 +10,7 @@ from reporter.config import Settings
 from reporter.errors import Collector, place
 from reporter.models import Holdings, ReturnPanel
 from reporter.readers import RawTable
-from reporter.validate.cells import _dictionary, as_dates, as_float, date_codes
+from reporter.validate.cells import _dictionary, as_dates, as_float, column_of, date_codes
 from reporter.validate.common import _Capped, _period_word, _require_columns
 from reporter.validate.long_quick import _clean_long_matrix
 from reporter.validate.panel import _finish_panel
@@ -66,7 +66,7 @@ def _returns_long(raw, holdings, settings, coll, holdings_raw, value_col) -> Ret
                       thousands=spec.thousands)
     # ids are trimmed and put in NFC, so that " FWX01" and "FWX01" are one security, and a
     # blank id is empty: the distinct values are normalised (few), then the codes remapped
-    enc = _dictionary(raw.table["security_id"])
+    enc = _dictionary(column_of(raw, "security_id", "text"))
     ids, id_of_text, _ = normalised_ids(enc.dictionary.to_pylist())
     remap = np.append(id_of_text, -1).astype(np.int32)               # last slot: null id
     raw_codes = enc.indices.fill_null(-1).to_numpy(zero_copy_only=False)     # int32
