@@ -442,6 +442,17 @@ def test_a_parquet_column_named_twice_is_named_not_arrow_text(tmp_path, capsys):
         "holdings.parquet:1:market_value: column name appears more than once"]
 
 
+def test_a_parquet_float_nan_is_not_a_finite_number_not_empty(tmp_path, capsys):
+    import pyarrow as pa
+
+    pack = _pack(tmp_path)
+    values = pd.read_csv(pack / "holdings.csv")["market_value"].to_numpy(dtype=float, copy=True)
+    values[1] = np.nan
+    _holdings_parquet(pack, "market_value", pa.array(values))
+    assert _refused(pack, tmp_path, capsys) == [
+        "holdings.parquet:2:market_value: value is not a finite number: 'nan'"]
+
+
 def test_a_parquet_date_column_of_times_of_day_is_refused_at_the_column(tmp_path, capsys):
     import pyarrow as pa
     import pyarrow.parquet as pq
