@@ -1,11 +1,11 @@
 """Read the earlier pack that ``[compare] previous`` names (read-only; never written).
 
 Two forms: a build folder (``reporter build``'s output) or ``archive:ARCHIVE_DIR``, the latest
-signed pack whose period ends strictly before this pack's. Only the build's ``results/`` are
-read: ``manifest.json``, ``portfolio.json``, ``securities.csv`` and, when present,
-``limits.json`` (older builds have none). From a fund's build, the total fund's rows of
-``securities.csv`` are read (its ``portfolio.json`` and ``limits.json`` are the total
-fund's). The comparison itself is pure and lives in :mod:`reporter.analytics.changes`.
+signed pack of the same ``[pack] name`` whose period ends strictly before this pack's. Only
+the build's ``results/`` are read: ``manifest.json``, ``portfolio.json``, ``securities.csv``
+and, when present, ``limits.json`` (older builds have none). From a fund's build, the total
+fund's rows of ``securities.csv`` are read (its ``portfolio.json`` and ``limits.json`` are
+the total fund's). The comparison itself is pure and lives in :mod:`reporter.analytics.changes`.
 """
 
 from __future__ import annotations
@@ -46,30 +46,24 @@ class PreviousPack:
     mandates: dict[str, PreviousPack] = field(default_factory=dict)
 
 
-def latest_signed_pack(archive: Path, before: dt.date) -> Path | None:
-    """The archive folder ``ARCHIVE/<date>/<pack-name>/`` of the signed pack with the latest
-    ``period_end`` strictly before ``before``, found by scanning
-    ``ARCHIVE/*/*/results/manifest.json``; among several for that period, the folder listed
-    last in sorted order. None when there is none. Read-only; kept to this one function so
-    that it can be switched to the archive's ledger."""
-    best: tuple[dt.date, Path] | None = None
-    problems = []
-    # sorted by (period folder, pack folder) names, so that the last of a period wins
-    manifests = sorted(Path(archive).glob("*/*/results/manifest.json"),
-                       key=lambda m: (m.parents[2].name, m.parents[1].name))
-    for manifest in manifests:
-        try:
-            period_end = dt.date.fromisoformat(
-                json.loads(manifest.read_text(encoding="utf-8"))["period_end"])
-        except (OSError, UnicodeDecodeError, ValueError, KeyError, TypeError) as exc:
-            problems.append(Problem(str(manifest), f"cannot read the period end of this "
-                                    f"signed pack ({type(exc).__name__}: {exc})"))
-            continue
-        if period_end < before and (best is None or period_end >= best[0]):
-            best = (period_end, manifest.parent.parent)
-    if problems:
-        raise InputError(problems)
-    return best[1] if best else None
+def latest_signed_pack(archive: Path, before: dt.date, pack_name: str) -> Path | None:
+    """The archive folder ``ARCHIVE/<date>/<pack-name>-<date>[-rN]/`` of pack ``pack_name``'s
+    signed pack with the latest ``period_end`` strictly before ``before``, and of that period
+    the latest revision (the one that supersedes the others), as the archive's ledger
+    records them. None when there is none. Another scheme's packs in the same archive are
+    never chosen, and revision 10 follows revision 9 (folder names sort "-r10" before
+    "-r2"). The caller has verified the archive against its ledger (:func:`check_archive`),
+    so the folder the entry names holds what was signed. Read-only."""
+    from reporter.archive.ledger import connect_read_only
+
+    con = connect_read_only(Path(archive))
+    try:
+        row = con.execute("SELECT pdf_path FROM entries WHERE pack_name = ? AND period_end < ? "
+                          "ORDER BY period_end DESC, revision DESC LIMIT 1",
+                          (pack_name, before.isoformat())).fetchone()
+    finally:
+        con.close()
+    return Path(archive) / Path(row[0]).with_suffix("") if row else None
 
 
 MAX_FINDINGS = 10       # archive findings listed before a count of the rest
@@ -107,10 +101,11 @@ def read_previous(settings: Settings) -> tuple[PreviousPack | None, list[Problem
     fails verification against its ledger (see :func:`check_archive`)."""
     if settings.compare_archive is not None:
         check_archive(settings.compare_archive)
-        folder = latest_signed_pack(settings.compare_archive, settings.period_end)
+        folder = latest_signed_pack(settings.compare_archive, settings.period_end,
+                                    settings.name)
         if folder is None:
-            return None, [Problem(WHERE, f"no signed pack with a period end before "
-                                  f"{settings.period_end} in the archive at "
+            return None, [Problem(WHERE, f"no signed pack named {settings.name!r} with a "
+                                  f"period end before {settings.period_end} in the archive at "
                                   f"{settings.compare_archive}; nothing to compare",
                                   "warning")]
         return read_build(folder, "archive", settings.period_end), []

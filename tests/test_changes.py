@@ -11,6 +11,7 @@ import datetime as dt
 import json
 import re
 import shutil
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -150,24 +151,40 @@ def test_not_a_build_is_an_input_error(tmp_path):
         "results/manifest.json is missing"]
 
 
-def _signed(archive, date: str, name: str, period_end: str):
-    folder = archive / date / name / "results"
-    folder.mkdir(parents=True)
-    (folder / "manifest.json").write_text(json.dumps({"period_end": period_end}))
-    return folder.parent
+def _sign(archive, pack_name: str, period_end: str, revision: int = 1) -> Path:
+    """A ledger entry for a sign-off (the ledger's own columns; no files are made: the
+    choice reads only the ledger), and the pack folder it names."""
+    from reporter.archive.ledger import append, ledger_transaction
+
+    stem = f"{pack_name}-{period_end}" + (f"-r{revision}" if revision > 1 else "")
+    with ledger_transaction(archive) as con:
+        append(con, {"pack_name": pack_name, "period_end": period_end, "revision": revision,
+                     "title": "t", "organisation": "o", "signer": "s", "role": None,
+                     "minute_ref": None, "note": None, "signed_utc": "2026-12-01T00:00:00Z",
+                     "pdf_path": f"{period_end}/{stem}.pdf", "pdf_sha256": "0" * 64,
+                     "files": "{}", "inputs": "{}", "tool_version": "0", "supersedes": None,
+                     "reason": None})
+    return archive / period_end / stem
 
 
-def test_latest_signed_pack(tmp_path):
+def test_latest_signed_pack_is_the_same_packs_latest_revision(tmp_path):
+    # by the ledger: the pack's own name only (another scheme's pack of a later period in
+    # the same archive was chosen, as the folder sorting last), and revision 10 after 9
+    # (folder names sort "-r10" before "-r2")
     a = tmp_path / "archive"
     a.mkdir()
-    (a / "ledger.sqlite").write_bytes(b"")
-    _signed(a, "2026-09-30", "equity", "2026-09-30")
-    _signed(a, "2026-10-31", "equity", "2026-10-31")
-    want = _signed(a, "2026-10-31", "equity-restated", "2026-10-31")  # sorts last
-    _signed(a, "2026-11-30", "equity", "2026-11-30")   # this period: not "before"
-    assert latest_signed_pack(a, dt.date(2026, 11, 30)) == want
-    assert latest_signed_pack(a, dt.date(2026, 10, 31)).name == "equity"
-    assert latest_signed_pack(a, dt.date(2026, 9, 30)) is None
+    _sign(a, "equity", "2026-09-30")
+    for revision in range(1, 11):
+        want = _sign(a, "equity", "2026-10-31", revision)
+    _sign(a, "zz-other", "2026-10-31")
+    _sign(a, "zz-other", "2026-11-15")
+    _sign(a, "equity", "2026-11-30")                  # this period: not "before"
+    assert latest_signed_pack(a, dt.date(2026, 11, 30), "equity") == want
+    assert want.name == "equity-2026-10-31-r10"
+    assert latest_signed_pack(a, dt.date(2026, 10, 31), "equity").name == "equity-2026-09-30"
+    assert latest_signed_pack(a, dt.date(2026, 9, 30), "equity") is None
+    assert latest_signed_pack(a, dt.date(2026, 12, 31), "zz-other").name == \
+        "zz-other-2026-11-15"
 
 
 def test_archive_form(site_archive, tmp_path):
@@ -185,7 +202,9 @@ def test_archive_with_nothing_earlier(signed_archive, tmp_path):
     a = assemble(load_settings(make_swapped(tmp_path / "pack", f"archive:{signed_archive}")))
     assert a.changes is None
     assert [p.severity for p in a.compare_warnings] == ["warning"]
-    assert "no signed pack with a period end before 2026-11-30" in a.html()
+    assert "no signed pack named 'tarnbrook-valley' with a period end before 2026-11-30" \
+        in a.compare_warnings[0].message
+    assert "no signed pack named &#39;tarnbrook-valley&#39; with a period end" in a.html()
     with pytest.raises(InputError):
         assemble(load_settings(tmp_path / "pack"), strict=True)
 
