@@ -24,6 +24,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from reporter.build import build_time
+from reporter.cli_common import symlink_loop
 from reporter.errors import EXIT_FAILED, InputError, OutputError, Problem, ReporterError
 from reporter.output_folder import refuse_overlap
 from reporter.writer import refuse_archive
@@ -115,8 +116,9 @@ def build_scheme(pack: str, out: str, strict: bool = False,
     except ReporterError as exc:
         return SchemeResult(scheme, FAILED, time.perf_counter() - start, str(exc), 1)
     except Exception as exc:  # an internal fault in one scheme must not stop the rest
+        loop = symlink_loop(exc)
         return SchemeResult(scheme, FAILED, time.perf_counter() - start,
-                            f"internal error: {type(exc).__name__}: {exc}", 1)
+                            loop or f"internal error: {type(exc).__name__}: {exc}", 1)
     return SchemeResult(scheme, BUILT, time.perf_counter() - start,
                         n_warnings=len(report.warnings))
 

@@ -465,3 +465,23 @@ def test_a_parquet_date_column_of_times_of_day_is_refused_at_the_column(tmp_path
     toml.write_text(toml.read_text().replace('"market.csv"', '"market.parquet"'))
     assert _refused(pack, tmp_path, capsys) == [
         "market.parquet:date: a time-of-day column (time32[ms]); give dates"]
+
+
+@pytest.mark.parametrize("where", ["--out", "previous", "archive:"])
+def test_a_symbolic_link_loop_is_one_line_not_an_internal_error(tmp_path, capsys, where):
+    # Path.resolve raised RuntimeError("Symlink loop from ...") wherever a path was resolved
+    (tmp_path / "loop2").symlink_to(tmp_path / "loop1")
+    (tmp_path / "loop1").symlink_to(tmp_path / "loop2")
+    pack = _pack(tmp_path)
+    args = ["build", str(pack), "--out", str(tmp_path / "out"), "--quiet"]
+    if where == "--out":
+        args[3] = str(tmp_path / "loop1")
+    else:
+        target = "../loop1" if where == "previous" else "archive:../loop1"
+        _toml(pack, "compare", f'previous = "{target}"')
+    code = main(args)
+    _, err = capsys.readouterr()
+    assert code == 2, err
+    assert err.splitlines() == [f"reporter: '{tmp_path / 'loop1'}': a symbolic link that "
+                                "loops (it leads back to itself); give a real folder or file"]
+    assert not (tmp_path / "out").exists()
