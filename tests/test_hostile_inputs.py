@@ -485,3 +485,29 @@ def test_a_symbolic_link_loop_is_one_line_not_an_internal_error(tmp_path, capsys
     assert err.splitlines() == [f"reporter: '{tmp_path / 'loop1'}': a symbolic link that "
                                 "loops (it leads back to itself); give a real folder or file"]
     assert not (tmp_path / "out").exists()
+
+
+def test_a_portfolio_of_cash_alone_is_refused_not_divided_by_zero(tmp_path, capsys):
+    # every excess return is zero: the build failed with ZeroDivisionError (check said ok)
+    pack = _pack(tmp_path)
+    h = pd.read_csv(pack / "holdings.csv", dtype=str)
+    cash = h[h["asset_class"].str.lower() == "cash"]
+    both = pd.concat([cash, cash.assign(security_id="CASH02")])
+    both.to_csv(pack / "holdings.csv", index=False)
+    text = (pack / "pack.toml").read_text()
+    start, end = text.index("# The scheme's policy limits"), text.index("# A named window")
+    (pack / "pack.toml").write_text(text[:start] + text[end:])    # limits need holdings
+    lines = _refused(pack, tmp_path, capsys)
+    assert lines[0] == ("holdings.csv:asset_class: every holding is cash, which earns the "
+                        "risk-free rate: the pack has no market exposure to measure; a pack "
+                        "needs at least one holding that is not cash")
+
+
+def test_autocorrelations_of_a_constant_series_are_undefined_not_a_division_by_zero():
+    from reporter.analytics.performance import autocorrelations
+
+    assert np.isnan(autocorrelations(np.full(12, 0.001), 2)).all()
+    # a varying series as statsmodels' acf (adjusted=False) gives it, by its definition
+    x = np.array([0.01, -0.02, 0.03, 0.0, 0.015, -0.01])
+    e = x - x.mean()
+    assert autocorrelations(x, 1)[0] == pytest.approx(float(e[1:] @ e[:-1] / (e @ e)))

@@ -163,7 +163,10 @@ def max_drawdown(returns: np.ndarray) -> Drawdown:
 def autocorrelations(x: np.ndarray, lags: int) -> np.ndarray:
     """Sample autocorrelations rho_1..rho_lags with the usual full-sample denominator
     sum (x - mean)^2 (as statsmodels ``acf`` with ``adjusted=False``)."""
-    e = np.asarray(x, dtype=float) - np.mean(x)
+    x = np.asarray(x, dtype=float)
+    if not np.ptp(x) > 0:      # a constant series (its deviations only rounding): undefined
+        return np.full(lags, np.nan)
+    e = x - np.mean(x)
     denom = float(e @ e)
     return np.array([float(e[k:] @ e[:-k]) / denom for k in range(1, lags + 1)])
 

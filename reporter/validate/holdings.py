@@ -116,7 +116,14 @@ def validate_holdings(raw: RawTable, settings: Settings, coll: Collector) -> Hol
     frame = frame[["security_id", "name", "sector", "weight"]
                   + [c for c in frame.columns if c not in ("security_id", "name", "sector",
                                                            "weight")]]
-    return Holdings(frame=frame, weight_source=column, normalised=normalised)
+    holdings = Holdings(frame=frame, weight_source=column, normalised=normalised)
+    if holdings.cash.all():
+        # cash earns the risk-free rate: no excess return, no beta, nothing for the pack's
+        # regressions and ratios to measure (they divided by a variance of zero)
+        coll.error(place(raw.name, None, "asset_class"), "every holding is cash, which earns "
+                   "the risk-free rate: the pack has no market exposure to measure; a pack "
+                   "needs at least one holding that is not cash")
+    return holdings
 
 
 
