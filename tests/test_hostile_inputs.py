@@ -511,3 +511,24 @@ def test_autocorrelations_of_a_constant_series_are_undefined_not_a_division_by_z
     x = np.array([0.01, -0.02, 0.03, 0.0, 0.015, -0.01])
     e = x - x.mean()
     assert autocorrelations(x, 1)[0] == pytest.approx(float(e[1:] @ e[:-1] / (e @ e)))
+
+
+def test_a_sector_limit_named_in_another_case_is_refused(tmp_path, capsys):
+    # "energy = 0.10" was applied to no holding (weight 0, "within") while Energy, at
+    # 10.8%, was judged only under "*" = 15%: a breach shown as within, and check said ok
+    pack = _pack(tmp_path)
+    text = (pack / "pack.toml").read_text()
+    (pack / "pack.toml").write_text(text.replace("Energy = 0.12", "energy = 0.10"))
+    assert _refused(pack, tmp_path, capsys) == [
+        "pack.toml:limits.max_sector_weight.energy: no holding's sector is 'energy', but "
+        "'Energy' is (sector names must match exactly); write it as the holdings file does"]
+
+
+def test_a_sector_limit_naming_no_held_sector_is_a_warning(tmp_path, capsys):
+    pack = _pack(tmp_path)
+    text = (pack / "pack.toml").read_text()
+    (pack / "pack.toml").write_text(text.replace("Energy = 0.12", "Enrgy = 0.12"))
+    assert main(["check", str(pack)]) == 0
+    assert ("pack.toml:limits.max_sector_weight.Enrgy: warning: no holding belongs to the "
+            "sector 'Enrgy', so its limit applies to a weight of 0; check the name against "
+            "the holdings file's sectors") in capsys.readouterr().err.splitlines()

@@ -57,6 +57,8 @@ def validate_tables(settings: Settings, raws: dict[str, RawTable], read_problems
     panel = validate_returns(raws["returns"], holdings, settings, coll,
                              raws.get("holdings")) if "returns" in raws \
         else None
+    if holdings is not None:
+        _check_sector_limits(settings, holdings, coll)
     if market is not None and rf is not None:
         _check_coverage(settings, market, rf, panel, coll)
     if holdings is not None and panel is not None and not coll.errors:
@@ -173,6 +175,31 @@ def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
     pos = np.searchsorted(rkeys, mkeys[win])
     if (problem := constant_premium(market.values[win] - rf.values[pos], settings)) is not None:
         coll.problems.append(problem)
+
+
+def _check_sector_limits(settings: Settings, holdings: Holdings, coll: Collector) -> None:
+    """Each sector that ``[limits] max_sector_weight`` names must be one a holding belongs to,
+    written exactly as the holdings file writes it (a limit is applied to the sector of that
+    exact name). A name that matches a held sector but for case or spaces is an error: its
+    limit would be applied to a weight of 0 and the sector itself judged only under "*". A
+    name that matches nothing is a warning: a sector not held today weighs 0."""
+    table = settings.limits.max_sector_weight if settings.limits is not None else None
+    if not isinstance(table, dict):
+        return
+    held = sorted({str(s) for s in holdings.frame["sector"].dropna()})
+    folded = {" ".join(s.split()).casefold(): s for s in held}
+    where = f"{settings.config_path.name}:limits.max_sector_weight"
+    for name in sorted(table):
+        if name == "*" or name in held:
+            continue
+        near = folded.get(" ".join(name.split()).casefold())
+        if near is not None:
+            coll.error(f"{where}.{name}", f"no holding's sector is {name!r}, but {near!r} is "
+                       "(sector names must match exactly); write it as the holdings file does")
+        else:
+            coll.warn(f"{where}.{name}", f"no holding belongs to the sector {name!r}, so its "
+                      "limit applies to a weight of 0; check the name against the holdings "
+                      "file's sectors")
 
 
 def _check_wipe_out(settings: Settings, holdings: Holdings, panel: ReturnPanel,
