@@ -6,6 +6,7 @@ traceback unless ``--debug``).
 
 from __future__ import annotations
 
+import ipaddress
 from pathlib import Path
 
 import click
@@ -159,6 +160,9 @@ def preview(pack: Path, port: int, host: str, debug: bool) -> None:
     click.echo(f"building {pack} ...", err=True)
     server = guarded(lambda: Preview(pack, host, port, on_update=report), debug)
     report(server.state.page, True)
+    if not ipaddress.ip_address(server.httpd.server_address[0]).is_loopback:
+        click.echo(f"reporter: warning: listening on {host}: anyone who can reach this machine "
+                   "there sees the unsigned pack", err=True)
     click.echo(f"previewing {pack} at {server.url} (Ctrl-C stops)")
     guarded(server.serve_forever, debug)
     click.echo("preview stopped")

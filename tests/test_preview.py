@@ -278,3 +278,17 @@ def test_a_host_not_of_this_machine_names_the_host_not_the_port(capsys):
     assert code == 2 and len(lines) == 1 and out == ""
     assert lines[0].startswith("reporter: cannot listen on 192.0.2.1:0: ")
     assert lines[0].endswith("; give --host an address of this machine, such as 127.0.0.1")
+
+
+@pytest.mark.parametrize("host", ["", "  "])
+def test_an_empty_host_is_refused_not_bound_to_every_address(capsys, host):
+    from reporter.cli import main
+
+    # the socket layer takes "" as every address of the machine (0.0.0.0): the unsigned
+    # pack was served to the network, with no word of it
+    code = main(["preview", str(DEMO), "--host", host, "--port", "0"])
+    out, err = capsys.readouterr()
+    lines = [ln for ln in err.strip().splitlines() if not ln.startswith("building ")]
+    assert code == 2 and out == ""
+    assert lines == ["reporter: --host is empty, which would listen on every address of this "
+                     "machine; give 127.0.0.1 (the default), or an address on purpose"]

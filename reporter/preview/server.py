@@ -198,6 +198,10 @@ class Preview:
 
     def __init__(self, pack: Path | str, host: str = DEFAULT_HOST,
                  port: int = DEFAULT_PORT, on_update=None) -> None:
+        if not host.strip():        # "" binds every address of the machine
+            raise PreviewError("--host is empty, which would listen on every address of this "
+                               "machine; give 127.0.0.1 (the default), or an address on "
+                               "purpose")
         try:                        # the address first: a taken port fails at once
             self.httpd = _Server((host, port), _Handler)
         except OSError as exc:
