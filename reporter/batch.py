@@ -24,8 +24,14 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from reporter.build import build_time
-from reporter.cli_common import symlink_loop
-from reporter.errors import EXIT_FAILED, InputError, OutputError, Problem, ReporterError
+from reporter.errors import (
+    EXIT_FAILED,
+    InputError,
+    OutputError,
+    Problem,
+    ReporterError,
+    symlink_loop,
+)
 from reporter.output_folder import refuse_overlap
 from reporter.writer import refuse_archive
 

@@ -3,12 +3,17 @@ code (see :mod:`reporter.cli`)."""
 
 from __future__ import annotations
 
-import errno
 import traceback
 
 import click
 
-from reporter.errors import EXIT_BAD_INPUT, EXIT_FAILED, InputError, ReporterError
+from reporter.errors import (
+    EXIT_BAD_INPUT,
+    EXIT_FAILED,
+    InputError,
+    ReporterError,
+    symlink_loop,
+)
 
 MAX_LINES = 50
 
@@ -71,17 +76,3 @@ def guarded(fn, debug: bool):
                    "(run with --debug for a traceback)", err=True)
         raise Stop(EXIT_FAILED) from None
 
-
-def symlink_loop(exc: BaseException) -> str | None:
-    """The one-line problem of a symbolic link that loops, or None for any other failure.
-    ``Path.resolve`` raises RuntimeError("Symlink loop from '...'"), and opening such a path
-    OSError ELOOP; either may come from any path the user gives (a pack, ``--out``,
-    ``[compare] previous``, an archive), so it is recognised here, once."""
-    if isinstance(exc, RuntimeError) and str(exc).startswith("Symlink loop from "):
-        where = str(exc).removeprefix("Symlink loop from ")
-    elif isinstance(exc, OSError) and exc.errno == errno.ELOOP:
-        where = repr(exc.filename) if exc.filename is not None else "a path given"
-    else:
-        return None
-    return (f"{where}: a symbolic link that loops (it leads back to itself); give a real "
-            "folder or file")

@@ -7,6 +7,7 @@ into an :class:`InputError` so that the user sees all of them at once.
 
 from __future__ import annotations
 
+import errno
 from dataclasses import dataclass, field
 
 EXIT_OK = 0
@@ -95,3 +96,19 @@ class Collector:
         failing = self.problems if strict else self.errors
         if failing:
             raise InputError(list(self.problems) if strict else self.errors + self.warnings)
+
+
+def symlink_loop(exc: BaseException) -> str | None:
+    """The one-line problem of a symbolic link that loops, or None for any other failure.
+    ``Path.resolve`` raises RuntimeError("Symlink loop from '...'"), and opening such a path
+    OSError ELOOP; either may come from any path the user gives (a pack, ``--out``,
+    ``[compare] previous``, an archive), so it is recognised once, where the CLI and a
+    batch print a failure."""
+    if isinstance(exc, RuntimeError) and str(exc).startswith("Symlink loop from "):
+        where = str(exc).removeprefix("Symlink loop from ")
+    elif isinstance(exc, OSError) and exc.errno == errno.ELOOP:
+        where = repr(exc.filename) if exc.filename is not None else "a path given"
+    else:
+        return None
+    return (f"{where}: a symbolic link that loops (it leads back to itself); give a real "
+            "folder or file")
