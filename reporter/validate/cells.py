@@ -28,10 +28,15 @@ def _is_number_type(t: pa.DataType) -> bool:
 
 # The Arrow types a Parquet column may have, per use; any other (a duration, a time of day,
 # binary, a list, struct or map, a boolean ...) is refused at the column, never cast.
+def _is_number_or_text_type(t: pa.DataType) -> bool:
+    """What a number or a text column may be: each is read from the other's types too (a
+    number column of text is parsed; an empty optional text column arrives as floats)."""
+    return _is_number_type(t) or _is_text_type(t) or pa.types.is_null(t)
+
+
 ACCEPTED_TYPES = {
-    "number": (lambda t: _is_number_type(t) or _is_text_type(t) or pa.types.is_null(t),
-               "plain numbers"),
-    "text": (lambda t: _is_number_type(t) or _is_text_type(t) or pa.types.is_null(t), "text"),
+    "number": (_is_number_or_text_type, "plain numbers"),
+    "text": (_is_number_or_text_type, "text"),
     "date": (lambda t: pa.types.is_date(t) or pa.types.is_timestamp(t) or _is_text_type(t)
              or pa.types.is_integer(t) or pa.types.is_null(t), "dates"),
 }
