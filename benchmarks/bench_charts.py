@@ -25,9 +25,9 @@ moves them less than it moves wall time. Ratios only: the seconds move with the 
 
 from __future__ import annotations
 
-import os
-
-os.environ.setdefault("NUMPY_MADVISE_HUGEPAGE", "0")
+# the tool's process settings (numpy's huge-page advice, OpenBLAS's idle threads; see
+# reporter/__init__.py), made before numpy is first imported, as in a build
+import reporter  # noqa: F401  # isort: skip
 
 import argparse
 import json

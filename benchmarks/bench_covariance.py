@@ -8,20 +8,21 @@ code the row-block estimators replaced, kept in tests/covariance_before.py).
 
 from __future__ import annotations
 
+# the tool's process settings (numpy's huge-page advice, OpenBLAS's idle threads; see
+# reporter/__init__.py), made before numpy is first imported, as in a build
+import reporter  # noqa: F401  # isort: skip
+
+import argparse
 import os
+import sys
+import threading
+import time
+from pathlib import Path
 
-os.environ.setdefault("NUMPY_MADVISE_HUGEPAGE", "0")
+import numpy as np
 
-import argparse  # noqa: E402
-import sys  # noqa: E402
-import threading  # noqa: E402
-import time  # noqa: E402
-from pathlib import Path  # noqa: E402
-
-import numpy as np  # noqa: E402
-
-from reporter.analytics.covariance import holdings_and_active  # noqa: E402
-from reporter.analytics.diversification import (  # noqa: E402
+from reporter.analytics.covariance import holdings_and_active
+from reporter.analytics.diversification import (
     equal_weight_curve,
     pairwise_covariance_and_average_correlation,
 )

@@ -6,10 +6,9 @@ Run: ``python benchmarks/bench_inputs.py`` (writes its files to a temporary fold
 
 from __future__ import annotations
 
-import os
-
-# as the tool itself does (reporter/__init__.py), before numpy is first imported
-os.environ.setdefault("NUMPY_MADVISE_HUGEPAGE", "0")
+# the tool's process settings (numpy's huge-page advice, OpenBLAS's idle threads; see
+# reporter/__init__.py), made before numpy is first imported, as in a build
+import reporter  # noqa: F401  # isort: skip
 
 import platform
 import tempfile

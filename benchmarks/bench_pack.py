@@ -20,14 +20,14 @@ conversion). A build may take at most that baseline plus 6 x the float64 return 
 
 from __future__ import annotations
 
-import os
-
-# as the tool itself does (reporter/__init__.py), before numpy is first imported
-os.environ.setdefault("NUMPY_MADVISE_HUGEPAGE", "0")
+# the tool's process settings (numpy's huge-page advice, OpenBLAS's idle threads; see
+# reporter/__init__.py), made before numpy is first imported, as in a build
+import reporter  # noqa: F401  # isort: skip
 
 import argparse
 import contextlib
 import json
+import os
 import platform
 import re
 import subprocess

@@ -22,16 +22,17 @@ are unchanged: nothing is traced.
 
 from __future__ import annotations
 
+# the tool's process settings (numpy's huge-page advice, OpenBLAS's idle threads; see
+# reporter/__init__.py), made before numpy is first imported, as in a build
+import reporter  # noqa: F401  # isort: skip
+
+import contextlib
+import ctypes
 import os
-
-os.environ.setdefault("NUMPY_MADVISE_HUGEPAGE", "0")     # as the tool does
-
-import contextlib  # noqa: E402
-import ctypes  # noqa: E402
-import re  # noqa: E402
-import sys  # noqa: E402
-import tempfile  # noqa: E402
-from pathlib import Path  # noqa: E402
+import re
+import sys
+import tempfile
+from pathlib import Path
 
 MB = 1e6
 

@@ -7,8 +7,7 @@
     python benchmarks/profile_analytics.py --holdings 200 --periods 500
 
 The stage is what ``reporter build`` runs under "analyse" for a single pack
-(:func:`reporter.analytics.pack.analyse`, then the style figures, the input hashes and the
-limits); its floor is the one the pack benchmark uses (benchmarks/bench_pack.py): one
+(:func:`reporter.analytics.pack.analyse`, then the style figures and the limits); its floor is the one the pack benchmark uses (benchmarks/bench_pack.py): one
 ``numpy.linalg.lstsq`` of every holding on [1, market] plus one ``numpy.cov``. Both are
 timed ``--repeat`` times in this one process and the minimum of each is reported, so the
 ratio holds on a loaded machine. The line profile needs line_profiler, which the tool does
@@ -17,13 +16,14 @@ not depend on: ``.venv/bin/pip install line_profiler``.
 
 from __future__ import annotations
 
-import os
-
-os.environ.setdefault("NUMPY_MADVISE_HUGEPAGE", "0")    # as reporter/__init__.py does
+# the tool's process settings (numpy's huge-page advice, OpenBLAS's idle threads; see
+# reporter/__init__.py), made before numpy is first imported, as in a build
+import reporter  # noqa: F401  # isort: skip
 
 import argparse
 import cProfile
 import io
+import os
 import pstats
 import sys
 import tempfile
@@ -39,15 +39,15 @@ from workloads import write_scheme  # noqa: E402
 
 
 def analyse_stage(settings, inputs):
-    """What the build's "analyse" stage runs for a pack without optional inputs."""
+    """What the build's "analyse" stage runs for a pack without optional inputs
+    (reporter/pipeline/part.py). The input files' hashes are the validate stage's, and are
+    not timed here (an earlier version counted them: about 0.09 s on Large)."""
     from reporter.analytics.pack import analyse
     from reporter.analytics.style import StyleInputs, analyse_style
-    from reporter.build import input_hashes
     from reporter.limits import evaluate_limits
 
     res = analyse(inputs, settings)
     res, _ = analyse_style(res, inputs.holdings.frame, settings, StyleInputs())
-    input_hashes(settings)
     if settings.limits:
         evaluate_limits(settings.limits, res)
     return res

@@ -12,6 +12,17 @@ from importlib.metadata import PackageNotFoundError, version
 # user has not set it.
 os.environ.setdefault("NUMPY_MADVISE_HUGEPAGE", "0")
 
+# numpy and scipy each link their own OpenBLAS, and each keeps its idle threads spinning for a
+# while after a call (2^28 cycles by default). A scipy LAPACK call right after numpy's
+# products (the analysis does several: the GRS triangular inverse, the Schur complement's
+# triangular solve) then shares two cores with numpy's still-spinning threads: on the Large
+# benchmark workload the GRS test's triangular inverse took 0.12 s in the analysis against
+# 0.02 s alone. OPENBLAS_THREAD_TIMEOUT (OpenBLAS's documented runtime variable; 4 is its
+# least, 2^4 cycles) makes idle threads sleep at once. The analysis stage went from 1.29-1.33 s
+# to 1.13-1.17 s (three runs each, benchmarks/profile_analytics.py); numpy's own products did
+# not slow. Read when OpenBLAS loads, so set here, before numpy; a user's setting stands.
+os.environ.setdefault("OPENBLAS_THREAD_TIMEOUT", "4")
+
 try:
     __version__ = version("committee-pack-reporter")
 except PackageNotFoundError:  # running from a source tree without an install

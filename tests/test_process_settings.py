@@ -6,15 +6,21 @@ import os
 import subprocess
 import sys
 
-CODE = "import os, reporter, numpy; print(os.environ['NUMPY_MADVISE_HUGEPAGE'])"
+import pytest
+
+CODE = "import os, reporter, numpy; print(os.environ[{name!r}])"
 
 
-def _run(env: dict[str, str]) -> str:
-    return subprocess.run([sys.executable, "-c", CODE], env=env, capture_output=True,
-                          text=True, check=True).stdout.strip()
+def _run(name: str, env: dict[str, str]) -> str:
+    return subprocess.run([sys.executable, "-c", CODE.format(name=name)], env=env,
+                          capture_output=True, text=True, check=True).stdout.strip()
 
 
-def test_numpy_huge_page_advice_is_off_unless_the_user_set_it():
-    env = {k: v for k, v in os.environ.items() if k != "NUMPY_MADVISE_HUGEPAGE"}
-    assert _run(env) == "0"
-    assert _run({**env, "NUMPY_MADVISE_HUGEPAGE": "1"}) == "1"
+@pytest.mark.parametrize(("name", "ours", "users"), [
+    ("NUMPY_MADVISE_HUGEPAGE", "0", "1"),      # numpy's huge-page advice off
+    ("OPENBLAS_THREAD_TIMEOUT", "4", "12"),    # OpenBLAS's idle threads sleep at once
+])
+def test_process_settings_hold_unless_the_user_set_them(name, ours, users):
+    env = {k: v for k, v in os.environ.items() if k != name}
+    assert _run(name, env) == ours
+    assert _run(name, {**env, name: users}) == users
