@@ -7,8 +7,9 @@
     python benchmarks/profile_analytics.py --holdings 200 --periods 500
 
 The stage is what ``reporter build`` runs under "analyse" for a single pack
-(:func:`reporter.analytics.pack.analyse`, then the style figures and the limits); its floor is the one the pack benchmark uses (benchmarks/bench_pack.py): one
-``numpy.linalg.lstsq`` of every holding on [1, market] plus one ``numpy.cov``. Both are
+(:func:`reporter.analytics.pack.analyse`, then the style figures and the limits); its floor
+is the one the pack benchmark uses (benchmarks/bench_pack.py): one ``numpy.linalg.lstsq``
+of every holding on [1, market] plus one ``numpy.cov``. Both are
 timed ``--repeat`` times in this one process and the minimum of each is reported, so the
 ratio holds on a loaded machine. The line profile needs line_profiler, which the tool does
 not depend on: ``.venv/bin/pip install line_profiler``.

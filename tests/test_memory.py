@@ -42,3 +42,41 @@ def test_freed_blocks_are_handed_back_with_a_fixed_threshold():
     assert held("default") > 70
     # with return_large_blocks each was mapped on its own and went back when freed
     assert held("fixed") < 30
+
+
+
+REUSE = """
+import numpy as np
+from reporter.memory import heap_reuse, return_large_blocks
+
+def rss():
+    with open("/proc/self/statm") as fh:
+        return int(fh.read().split()[1]) * 4096 / 2**20
+
+return_large_blocks()              # as a build starts
+n = 20 * 2**20 // 8                # 20 MiB blocks, each touched in full
+base = rss()
+with heap_reuse():
+    a = np.ones(n)
+    first = a.ctypes.data
+    del a                          # freed: kept in the heap, its pages resident
+    held_inside = rss() - base
+    b = np.ones(n)                 # served from the freed block: no page to fault in
+    same_place = b.ctypes.data == first
+    del b
+after = rss() - base               # handed back at the block's end
+c = np.ones(n)                     # the build's setting is back: a mapping of its own
+del c
+print(held_inside, same_place, after, rss() - base)
+"""
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="glibc's malloc")
+def test_heap_reuse_keeps_freed_blocks_for_the_next_and_hands_them_back_after():
+    out = subprocess.run([sys.executable, "-c", REUSE], capture_output=True, text=True,
+                         check=True)
+    held_inside, same_place, after, end = out.stdout.split()
+    assert float(held_inside) > 15      # a freed 20 MiB block stays resident in the block
+    assert same_place == "True"         # and serves the next request of its size
+    assert float(after) < 5             # handed back when the block ended
+    assert float(end) < 5               # afterwards a freed block goes back at once

@@ -21,6 +21,7 @@ from reporter.charts import build_charts
 from reporter.config import Settings
 from reporter.context import PackContext, build_context
 from reporter.limits import LimitsReport, evaluate_limits
+from reporter.memory import heap_reuse
 from reporter.models import DatedSeries, ValidInputs
 from reporter.progress import Progress
 from reporter.render.html import export_charts, print_charts
@@ -96,7 +97,7 @@ def assemble_part(p: PartInputs, fingerprint: str, at: dt.datetime,
     (stages analyse and chart). Pure but for the time it takes; no file is read or written."""
     settings = p.settings
     label = p.name if settings.is_fund else None
-    with progress.stage("analyse", label):
+    with progress.stage("analyse", label), heap_reuse():
         res = analyse_part(p)
         style = None
         if p.style is not None:
