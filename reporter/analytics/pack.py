@@ -56,7 +56,6 @@ from reporter.analytics.stress import stress_analysis
 from reporter.analytics.window import _align_optional, _require_varying_market, build_window
 from reporter.config import Settings
 from reporter.errors import InputError
-from reporter.memory import release_free_memory
 from reporter.models import DatedSeries, ValidInputs
 from reporter.validate.pack import wipe_out_problem
 
@@ -160,7 +159,6 @@ def analyse(inputs: ValidInputs, settings: Settings,
     full = np.isfinite(sector_ex).all(axis=0) & (np.ptp(sector_ex, axis=0) > 1e-12)  # not cash
     grs_s = grs_test(sector_ex[:, full], x, "sector portfolios")
 
-    release_free_memory()      # the window's temporaries, before the whole history's
     # the whole history; the window itself (no second copy of the returns) when it is that
     hist = (win if len(mkt_dates) == win.n_periods
             else build_window(inputs, settings, periods=0))
