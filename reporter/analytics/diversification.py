@@ -336,10 +336,11 @@ def random_subset_band(cov: np.ndarray, sizes: np.ndarray, draws: int,
     """For each size n, ``draws`` random sets of n distinct holdings (numpy ``default_rng``
     with ``seed``), each equally weighted; volatility sqrt(1' C_sub 1) / n from ``cov``.
     Vectorised over draws and holdings (one loop over the few sizes). Each draw's sum
-    1' C_sub 1 is taken the cheaper of two exact ways: gathering its n x n block (draws x n^2
-    values) for small n, or, once n^2 exceeds N^2 / 16, as s' C s with s the draw's 0/1
-    indicator over all N holdings (one draws x N x N matrix product, draws x N memory), so
-    that a size near N costs neither draws x n^2 memory nor time."""
+    1' C_sub 1 is taken the cheaper of two exact ways: gathering its n x n block (draws x
+    n (n + 1) / 2 values, C being symmetric) for small n, or, once n^2 exceeds N^2 / 16, as
+    s' C s with s the draw's 0/1 indicator over all N holdings (one draws x N x N matrix
+    product, draws x N memory), so that a size near N costs neither draws x n^2 memory nor
+    time."""
     rng = np.random.default_rng(seed)
     N = cov.shape[0]
     # a copy only when something is missing (N x N is 800 MB for 10,000 holdings)
@@ -373,16 +374,16 @@ def _first_in_order(u: np.ndarray, n: int) -> np.ndarray:
 
 
 def _block_sums(c: np.ndarray, pick: np.ndarray, chunk: int = 64) -> np.ndarray:
-    """1' C[p, p] 1 for each row p of ``pick``: the draws x n x n gathered blocks, summed;
-    gathered by flat position ``chunk`` draws at a time (the same values in the same order
-    as ``c[pick[:, :, None], pick[:, None, :]]``, with chunk x n^2 memory)."""
-    flat = c.reshape(-1)
-    N = c.shape[1]
+    """1' C[p, p] 1 for each row p of ``pick``: the diagonal plus twice the pairs above it
+    (C symmetric), gathered by flat position ``chunk`` draws at a time: n (n + 1) / 2 values a
+    draw, not n^2 (the Large band's gather took 0.11-0.12 s for 0.17-0.18 s)."""
+    flat, N = c.reshape(-1), c.shape[1]
+    iu, ju = np.triu_indices(pick.shape[1], 1)
     out = np.empty(len(pick))
     for start in range(0, len(pick), chunk):
         p = pick[start:start + chunk]
-        out[start:start + chunk] = np.take(flat, p[:, :, None] * N + p[:, None, :]).sum(
-            axis=(1, 2))
+        off = np.take(flat, p[:, iu] * N + p[:, ju]).sum(axis=1)
+        out[start:start + chunk] = np.take(flat, p * (N + 1)).sum(axis=1) + 2.0 * off
     return out
 
 
