@@ -10,9 +10,29 @@ from __future__ import annotations
 
 import numpy as np
 from scipy.linalg import solve_triangular
+from scipy.linalg.lapack import dpotrf
 
 EXACT_CLIP_MAX = 500   # holdings up to which a non-PSD estimate gets a full eigendecomposition
 LowRank = tuple[np.ndarray, np.ndarray, np.ndarray]
+
+
+def cholesky_in_place(a: np.ndarray, clean: bool = False) -> np.ndarray | None:
+    """The lower Cholesky factor L of the symmetric positive definite C-ordered ``a``, made
+    in ``a``'s own memory and returned as ``a``: L is its lower triangle, and the strict upper
+    triangle keeps ``a``'s values (read it with a triangular routine, which looks at one
+    triangle only), or is zeroed with ``clean``. None when ``a`` is not positive definite.
+    LAPACK's dpotrf on ``a.T`` (``a`` read as the Fortran-ordered ``a'`` = ``a``), upper:
+    U'U = a, U' = L.
+
+    numpy's ``linalg.cholesky`` copies its argument and zeroes a triangle, and took twice as
+    long: Large's 1,891-holding block, best of 15 in one process, 0.064 s against 0.033 s.
+    (An earlier note found scipy's LAPACK slower inside the analysis: its OpenBLAS threads then
+    shared the cores with numpy's still spinning ones, which OPENBLAS_THREAD_TIMEOUT, set in
+    reporter/__init__.py, ends.)"""
+    if not a.flags.c_contiguous:
+        raise ValueError("cholesky_in_place needs a C-ordered array")
+    _, info = dpotrf(a.T, lower=0, overwrite_a=1, clean=int(clean))
+    return a if info == 0 else None
 
 
 def _explained(mat: np.ndarray, gapped: np.ndarray,
@@ -29,14 +49,9 @@ def _explained(mat: np.ndarray, gapped: np.ndarray,
     if low_rank is not None and 3 * low_rank[1].shape[1] ** 2 > low_rank[0].size ** 2:
         low_rank = None          # k > N_c / sqrt(3): N_c k^2 exceeds the N_c^3 / 3 of Cholesky
     if low_rank is None:
-        # numpy's Cholesky, not scipy's LAPACK: the two link separate OpenBLAS builds, and
-        # right after numpy's products (the Gram matrix, the estimate's passes) scipy's
-        # threads compete with numpy's still-spinning ones; in the analyse stage on the Large
-        # workload numpy's factor took half the time (1.9 s against 4.0 s, same run, loaded)
-        try:
-            ci = np.flatnonzero(c)
-            low = np.linalg.cholesky(mat.take(ci, axis=0).take(ci, axis=1))
-        except np.linalg.LinAlgError:
+        ci = np.flatnonzero(c)
+        low = cholesky_in_place(mat.take(ci, axis=0).take(ci, axis=1))    # (a fresh copy)
+        if low is None:
             return None
         z = solve_triangular(low, b, lower=True, check_finite=False)
         return z.T @ z

@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from reporter.analytics.market_model import MarketModelFits, Prepared, t_critical
+from reporter.analytics.psd import cholesky_in_place
 
 ABOVE, BELOW, WITHIN = "above the line", "below the line", "within estimation error"
 
@@ -352,13 +353,10 @@ def _quadratic_form(sigma: np.ndarray, alpha: np.ndarray, scale: np.ndarray) -> 
         R[blk] /= np.outer(scale[blk], scale)
     a = alpha / scale                   # a' S^-1 a = (a / s)' R^-1 (a / s)
     threshold = 1.0 / (N * np.finfo(float).eps)
-    try:        # numpy's factor: see reporter.analytics.psd._explained for why not scipy's
-        low = np.linalg.cholesky(R)
-    except np.linalg.LinAlgError:
-        low = None
+    low = cholesky_in_place(R.copy(), clean=True)      # (R is kept for the exact test)
     if low is not None and np.all(np.diagonal(low) > 0):
         # L^-1 by LAPACK's triangular inverse, N^3/3 flops (a solve against the identity
-        # costs N^3), in place on L' (numpy's C-ordered L read as Fortran-ordered L')
+        # costs N^3), in place on L' (the C-ordered L read as Fortran-ordered L')
         inv_up, info = dtrtri(low.T, lower=0, overwrite_c=1)       # (L^-1)'
         if info == 0:
             trace_inv = float(np.einsum("ij,ij->", inv_up, inv_up))
