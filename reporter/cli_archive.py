@@ -8,7 +8,7 @@ from pathlib import Path
 import click
 
 from reporter.cli_common import MAX_LINES, Stop, debug_option, guarded, quiet_option
-from reporter.errors import EXIT_BAD_INPUT, EXIT_FAILED
+from reporter.errors import EXIT_BAD_INPUT, EXIT_FAILED, shown_name
 
 
 def key_options(fn):
@@ -43,8 +43,8 @@ def _print_signatures(file: Path, trust: Path | None, matches, debug: bool) -> b
     for line in lines:
         click.echo(line)
     expected = [m.entry for m in matches if m.entry.cert_sha256]
-    if expected and lines == [f"{file}: carries no digital signature"]:
-        click.echo(f"{file}: the ledger records a digital signature that is missing")
+    if expected and lines == [f"{shown_name(file)}: carries no digital signature"]:
+        click.echo(f"{shown_name(file)}: the ledger records a digital signature that is missing")
         return False
     return ok
 
@@ -76,7 +76,7 @@ def sign_off_cmd(build_dir: Path, archive: Path, signer: str, role, minute_ref, 
             return sign_off(build_dir, archive, request, progress=Progress(quiet=quiet))
         except BrokenArchive as exc:          # each problem on its own line, then the summary
             for line in exc.findings[:MAX_LINES]:
-                click.echo(f"{exc.archive}: {line}", err=True)
+                click.echo(f"{shown_name(exc.archive)}: {line}", err=True)
             if len(exc.findings) > MAX_LINES:
                 click.echo(f"... and {len(exc.findings) - MAX_LINES} more problems", err=True)
             raise
@@ -160,17 +160,19 @@ def verify(file: Path | None, archive: Path, heads: tuple[str, ...], head_file: 
                        "without FILE", err=True)
             raise Stop(EXIT_BAD_INPUT)
         if not file.is_file():
-            click.echo(f"reporter: {file}: no such file", err=True)
+            click.echo(f"reporter: {shown_name(file)}: no such file", err=True)
             raise Stop(EXIT_BAD_INPUT)
         matches = guarded(lambda: find_file(file, archive), debug)
         signed_ok = _print_signatures(file, trust, matches, debug)
         if not matches:
-            click.echo(f"{file}: NOT in the archive (its sha256 matches no ledger entry)")
+            click.echo(f"{shown_name(file)}: NOT in the archive (its sha256 matches no "
+                       "ledger entry)")
             raise Stop(EXIT_FAILED)
         for m in matches:
             e = m.entry
-            click.echo(f"{file}: matches {m.path}, ledger entry {e.seq}: {e.title}, period "
-                       f"ending {e.period_end}, signed off by {e.signer} on {e.signed_utc}"
+            click.echo(f"{shown_name(file)}: matches {shown_name(m.path)}, ledger entry "
+                       f"{e.seq}: {e.title}, period ending {e.period_end}, signed off by "
+                       f"{e.signer} on {e.signed_utc}"
                        + (f"; superseded by entry {m.superseded_by.seq}"
                           if m.superseded_by else ""))
         if not signed_ok:
@@ -212,7 +214,7 @@ def repair(archive: Path, debug: bool) -> None:
 
     report = guarded(lambda: repair_archive(archive), debug)
     for src, dest in report.moved:
-        click.echo(f"moved {src} -> {dest}")
+        click.echo(f"moved {shown_name(src)} -> {shown_name(dest)}")
     for f in report.unresolved:
         click.echo(f"cannot repair: {f} (restore it from a backup)")
     if not report.moved and not report.unresolved:

@@ -41,6 +41,14 @@ def place(file: str, row: int | None = None, column: str | None = None) -> str:
     return ":".join(parts)
 
 
+def shown_name(name: object) -> str:
+    """A file name or path as printed on one line: as it is when every character is
+    printable, else quoted with its control characters escaped, repr-style (``'a\\nb'``), so
+    that a name holding a line break cannot split a message in two."""
+    text = str(name)
+    return text if text.isprintable() else repr(text)
+
+
 class ReporterError(Exception):
     """Base class of every error the CLI prints without a traceback."""
 

@@ -139,6 +139,29 @@ def test_files_placed_without_their_entry_are_named_and_quarantined(tmp_path, ca
     assert main(["verify", "--archive", str(archive)]) == 0
 
 
+def test_a_file_name_with_a_line_break_is_one_line_in_verify_and_repair(tmp_path, capsys):
+    # a name holding a line break split its finding in two: the second half read as a
+    # line of its own ("b.pdf: unrecorded: ..."), naming a file that does not exist
+    archive = tmp_path / "archive"
+    archive.mkdir()
+    connect_for_writing(archive).close()          # an archive with an empty ledger
+    (archive / "2026-10-31").mkdir()
+    (archive / "2026-10-31" / "a\nb.pdf").write_bytes(b"placed, never recorded")
+    (archive / "2026-10-31" / "tab\there\x1b[2J.pdf").write_bytes(b"also never recorded")
+    assert main(["verify", "--archive", str(archive)]) == 1
+    out = capsys.readouterr().out.splitlines()
+    assert out == [
+        "'2026-10-31/a\\nb.pdf': unrecorded: in the archive but no ledger entry records it "
+        "('reporter repair' moves it to quarantine)",
+        "'2026-10-31/tab\\there\\x1b[2J.pdf': unrecorded: in the archive but no ledger "
+        "entry records it ('reporter repair' moves it to quarantine)",
+        "archive NOT intact: 2 problem(s)"]
+    assert main(["repair", "--archive", str(archive)]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert len(out) == 2 and all(ln.startswith("moved '2026-10-31/") for ln in out), out
+    assert "a\\nb.pdf' -> 'quarantine/" in out[0] and out[0].endswith("a\\nb.pdf'")
+
+
 def test_archived_file_is_never_overwritten(tmp_path):
     from reporter.errors import OutputError
 

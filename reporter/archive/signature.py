@@ -36,7 +36,7 @@ from cryptography import x509
 from cryptography.hazmat.primitives import serialization
 
 from reporter.archive.keys import SigningKey
-from reporter.errors import InputError, Problem
+from reporter.errors import InputError, Problem, shown_name
 
 FIELD_PREFIX = "Signature"
 MAX_ROOTS_FILE = 1 << 20
@@ -288,7 +288,7 @@ def describe(pdf_path: Path | str, roots_file: Path | str | None = None
     roots = load_roots(roots_file) if roots_file is not None else None
     checks = check_signatures(Path(pdf_path).read_bytes(), roots)
     if not checks:
-        return [f"{pdf_path}: carries no digital signature"], True
+        return [f"{shown_name(pdf_path)}: carries no digital signature"], True
     lines = []
     for i, c in enumerate(checks, 1):
         if c.subject:

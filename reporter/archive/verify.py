@@ -42,7 +42,7 @@ from reporter.archive.ledger import (
     ledger_transaction,
     read_entries,
 )
-from reporter.errors import EXIT_BAD_INPUT, ReporterError
+from reporter.errors import EXIT_BAD_INPUT, ReporterError, shown_name
 from reporter.writer import QUARANTINE_DIR, STAGING_DIR, quarantine
 
 # files SQLite keeps beside the ledger while it is in use
@@ -63,7 +63,7 @@ class Finding:
     message: str
 
     def __str__(self) -> str:
-        return f"{self.where}: {self.kind}: {self.message}"
+        return f"{shown_name(self.where)}: {self.kind}: {self.message}"
 
 
 @dataclass(frozen=True)
@@ -234,8 +234,8 @@ def verify_archive(archive: Path | str) -> ArchiveReport:
     for rel in sorted(set(on_disk) - recorded):
         findings.append(Finding("unrecorded", rel, "in the archive but no ledger entry "
                                 "records it ('reporter repair' moves it to quarantine)"))
-    notes = [f"{s}: left by an interrupted sign-off (not archived; 'reporter repair' moves "
-             "it to quarantine)" for s in staging if not _staging_alive(s)]
+    notes = [f"{shown_name(s)}: left by an interrupted sign-off (not archived; 'reporter "
+             "repair' moves it to quarantine)" for s in staging if not _staging_alive(s)]
     return ArchiveReport(entries, sorted(findings), notes)
 
 
