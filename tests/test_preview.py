@@ -97,6 +97,19 @@ def _wait_for(preview: Preview, predicate) -> str:
         time.sleep(0.1)
 
 
+def test_the_watch_starting_is_no_new_version(env):
+    # the first test of the module, before any edit: the watch's first (empty) batch
+    # re-rendered with an input fingerprint that left out actions.csv, so the page "changed"
+    # (version 2) and the command printed "rebuilt (HTML only)" right after it started
+    preview = env["preview"]
+    assert preview.state.version == 1
+    assert preview.state.update() is False and preview.state.version == 1
+    build = (env["out"] / "pack.html").read_text(encoding="utf-8")
+    shown = re.findall(r'class="fingerprint[^"]*">([0-9a-f]+)<', preview.state.page.html)
+    assert shown and set(shown) <= set(re.findall(r'class="fingerprint[^"]*">([0-9a-f]+)<',
+                                                  build))
+
+
 def test_serves_the_pack_html_with_the_reload_script_only(env):
     preview, out = env["preview"], env["out"]
     status, headers, body = _get(preview, "/")

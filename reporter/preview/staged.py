@@ -3,8 +3,10 @@
 A full build runs settings, read, validate, analyse, charts, context and render. Of these,
 only the last two depend on the commentary (``commentary/*.md`` and the images it embeds)
 and on the user templates. So the preview keeps the last :class:`~reporter.build.Assembled`
-pack, keyed by the sha256 of ``pack.toml`` and of every data file it names
-(:func:`reporter.build.input_hashes`):
+pack, keyed by the sha256 of ``pack.toml``, of every data file it names
+(:func:`reporter.build.input_hashes`) and of ``actions.csv`` (the action log is read with the
+data, so an edit to it is assembled again; and a re-render's input fingerprint is then the
+build's, which counts it):
 
 - the key is unchanged (a commentary or template edit, or a file touched but not changed):
   the commentary is read again, the context is rebuilt from the cached one with the new
@@ -28,6 +30,8 @@ from dataclasses import dataclass
 from html import escape
 from pathlib import Path
 
+from reporter.actions import FILE as ACTIONS_FILE
+from reporter.archive.verify import file_sha256
 from reporter.build import Assembled, assemble, build_time, fingerprint, input_hashes
 from reporter.commentary import read_commentary
 from reporter.config import load_settings
@@ -82,6 +86,9 @@ class StagedPack:
     def _refresh(self) -> Page:
         settings = load_settings(self.pack)
         hashes = input_hashes(settings)
+        actions = settings.pack_dir / ACTIONS_FILE
+        if actions.is_file():          # as the build's fingerprint counts it (actions_stage)
+            hashes[ACTIONS_FILE] = file_sha256(actions)
         key = fingerprint(hashes)
         if self._cached is not None and key == self._key and not settings.is_fund:
             html = self._rerender(settings, hashes)
