@@ -63,7 +63,10 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
         return (proxy.lower() in PROXY_SERIES
                 or (j is not None and bool(have[j] or holdings.cash[j])))
 
-    for k in np.flatnonzero(~have & ~holdings.cash):     # cash earns the risk-free rate
+    # a holding without an id (null or blank: an error of the holdings file already) has
+    # no history to look for; it read "holding nan has no return history"
+    named = np.array([isinstance(s, str) and s != "" for s in holdings.ids], dtype=bool)
+    for k in np.flatnonzero(~have & ~holdings.cash & named):    # cash earns the risk-free rate
         # the holdings frame keeps the file's rows in order: holding k is data row k
         row = holdings_raw.row_number(int(k)) if holdings_raw is not None else None
         if not proxies[k]:
