@@ -30,13 +30,14 @@ from reporter.models import DatedSeries, Holdings, ReturnPanel, ValidInputs
 from reporter.readers import RawTable
 from reporter.validate import (
     HOLDINGS_OPTIONAL,
+    HoldingRows,
     _check_coverage,
     as_text,
     validate_holdings,
     validate_returns,
     validate_series,
 )
-from reporter.validate.text import normalise_id
+from reporter.validate.text import case_clashes, normalise_id
 
 MANDATE_COLUMN = "mandate"
 
@@ -79,20 +80,22 @@ def _subtable(raw: RawTable, idx: np.ndarray) -> RawTable:
     return dataclasses.replace(raw, table=table, rows=raw.row_numbers(idx))
 
 
-def _mandate_holdings(settings: Settings, raws: dict[str, RawTable],
-                      coll: Collector) -> dict[int, Holdings]:
-    """Each mandate's checked holdings (weights within the mandate), by mandate index."""
+def _mandate_holdings(settings: Settings, raws: dict[str, RawTable], coll: Collector
+                      ) -> tuple[dict[int, Holdings], dict[int, RawTable]]:
+    """Each mandate's checked holdings (weights within the mandate), and the table of its
+    rows as read (its rows keep the file's numbers), by mandate index."""
     cfg = settings.config_path.name
     out: dict[int, Holdings] = {}
+    tables: dict[int, RawTable] = {}
     if settings.mandates[0].holdings_role is None:            # one file, a mandate column
         raw = raws.get("holdings")
         if raw is None:
-            return out
+            return out, tables
         if MANDATE_COLUMN not in raw.table.column_names:
             coll.error(place(raw.name, 1, MANDATE_COLUMN), "required column is missing: a "
                        "fund's holdings file names each holding's mandate "
                        f"(the file has: {', '.join(raw.table.column_names)})")
-            return out
+            return out, tables
         names = as_text(raw, MANDATE_COLUMN, coll, allow_empty=False)
         known = {normalise_id(m.name) for m in settings.mandates}
         given = pd.Series(names, dtype=object)
@@ -110,14 +113,15 @@ def _mandate_holdings(settings: Settings, raws: dict[str, RawTable],
                            f"the mandate {m.name!r}")
                 continue
             sub = Collector()
-            h = validate_holdings(_subtable(raw, idx), settings, sub)
+            tables[m.index] = _subtable(raw, idx)
+            h = validate_holdings(tables[m.index], settings, sub)
             for p in sub.problems:          # name the mandate in each error
                 (coll.error if p.severity == "error" else coll.warn)(
                     p.where, p.message + (f" (mandate {m.name!r})"
                                           if p.severity == "error" else ""))
             if h is not None:
                 out[m.index] = h
-        return out
+        return out, tables
     for m in settings.mandates:
         raw = raws.get(m.holdings_role or "")
         if raw is None:
@@ -125,9 +129,10 @@ def _mandate_holdings(settings: Settings, raws: dict[str, RawTable],
         own = dataclasses.replace(settings, inputs={**settings.inputs,
                                                     "holdings": settings.inputs[m.holdings_role]})
         h = validate_holdings(raw, own, coll)
+        tables[m.index] = raw
         if h is not None:
             out[m.index] = h
-    return out
+    return out, tables
 
 
 def _mandate_weights(settings: Settings, holdings: dict[int, Holdings],
@@ -227,7 +232,7 @@ def validate_fund(settings: Settings, raws: dict[str, RawTable], read_problems=(
     """Check every input of a fund pack; raise :class:`InputError` listing every problem."""
     coll = Collector()
     coll.problems.extend(read_problems)
-    holdings = _mandate_holdings(settings, raws, coll)
+    holdings, tables = _mandate_holdings(settings, raws, coll)
     ms = settings.mandates
     v, weight_source = (_mandate_weights(settings, holdings, coll)
                         if len(holdings) == len(ms) else (None, ""))
@@ -235,7 +240,7 @@ def validate_fund(settings: Settings, raws: dict[str, RawTable], read_problems=(
         if "market" in raws else None
     rf = validate_series(raws["risk_free"], "rate", settings, coll) \
         if "risk_free" in raws else None
-    total_frame = positions = None
+    total_frame = positions = read_at = None
     union = None
     if v is not None:
         total_frame, positions = fund_holdings([holdings[m.index].frame for m in ms], v,
@@ -246,7 +251,12 @@ def validate_fund(settings: Settings, raws: dict[str, RawTable], read_problems=(
             settings.inputs[m.holdings_role or "holdings"].display for m in ms))
         _warn_conflicts(pd.concat([holdings[m.index].frame.assign(mandate=m.name)
                                    for m in ms]), where, coll)
-    panel = validate_returns(raws["returns"], union, settings, coll, None) \
+        first = _first_rows(ms, holdings, tables)
+        _warn_case_clashes(first, coll)
+        rows = [first.get(sid) for sid in union.ids]
+        read_at = HoldingRows(tuple(r[1].name if r else where for r in rows),
+                              tuple(r[1].row_number(r[2]) if r else None for r in rows))
+    panel = validate_returns(raws["returns"], union, settings, coll, read_at) \
         if "returns" in raws and union is not None else None
     benches: dict[str, DatedSeries | None] = {}
     if market is not None and rf is not None:
@@ -308,6 +318,36 @@ def _own_returns(settings: Settings, raws: dict[str, RawTable], role: str,
     gross, gross_problems = validate_gross_returns(settings, raws, role)
     coll.problems.extend([*problems, *gross_problems])
     return {"own": net, "gross": gross}
+
+
+def _first_rows(ms: tuple[Mandate, ...], holdings: dict[int, Holdings],
+                tables: dict[int, RawTable]) -> dict[str, tuple[Mandate, RawTable, int]]:
+    """Each id of the fund (in order of first appearance, as the total fund holds them):
+    the first mandate that holds it, the table of that mandate's rows and the id's position
+    in it."""
+    first: dict[str, tuple[Mandate, RawTable, int]] = {}
+    for m in ms:
+        for i, sid in enumerate(holdings[m.index].ids):
+            if isinstance(sid, str) and sid:
+                first.setdefault(sid, (m, tables[m.index], i))
+    return first
+
+
+def _warn_case_clashes(first: dict[str, tuple[Mandate, RawTable, int]],
+                       coll: Collector) -> None:
+    """A warning, at its file, row and column, for each id of a mandate that differs only by
+    case from an id of an earlier mandate (two ids of one mandate are an error of its
+    holdings already): the total fund holds them as two securities."""
+    ids = list(first)
+    for a, b in case_clashes(ids):
+        (ma, raw_a, i), (mb, raw_b, j) = first[ids[a]], first[ids[b]]
+        if ma.index == mb.index:
+            continue
+        at_first = f"{raw_a.name} row {raw_a.row_number(i)}, mandate {ma.name!r}"
+        coll.warn(place(raw_b.name, raw_b.row_number(j), "security_id"),
+                  f"security id {ids[b]!r} (mandate {mb.name!r}) differs from {ids[a]!r} "
+                  f"({at_first}) only by case: the total fund holds them as two securities; "
+                  "give one security one id")
 
 
 def _warn_conflicts(long: pd.DataFrame, where: str, coll: Collector) -> None:

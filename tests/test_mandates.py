@@ -433,6 +433,47 @@ def test_fund_table_without_mandates_is_refused(tmp_path, capsys):
     assert "pack.toml:fund: a [fund] table needs [[mandates]]" in err
 
 
+
+def _per_mandate_files(folder: Path) -> None:
+    """Split the fund's holdings file into one file per mandate, h_A.csv, h_B.csv, ..."""
+    h = pd.read_csv(folder / "holdings.csv", dtype=str)
+    toml = folder / "pack.toml"
+    text = toml.read_text(encoding="utf-8").replace('holdings = "holdings.csv"\n', "")
+    for m in h["mandate"].unique():
+        h[h["mandate"] == m].drop(columns="mandate").to_csv(folder / f"h_{m}.csv", index=False)
+        text = text.replace(f'name = "{m}"\n', f'name = "{m}"\nholdings = "h_{m}.csv"\n')
+    toml.write_text(text, encoding="utf-8")
+    (folder / "holdings.csv").unlink()
+
+
+@pytest.mark.parametrize("files", ["one", "per mandate"])
+def test_an_id_differing_from_another_mandates_only_by_case_is_named_at_its_row(tmp_path,
+                                                                                  files):
+    # the total fund held 'A00' and 'a00' as two securities with one warning, "holding a00
+    # has no return history", that named no row; with one file per mandate that warning
+    # was an internal error (KeyError: 'holdings')
+    folder = write_fund(tmp_path / "fund")
+    h = pd.read_csv(folder / "holdings.csv", dtype=str)
+    b = int(np.flatnonzero(h["mandate"] == "B")[0])
+    r = pd.read_csv(folder / "returns.csv", dtype=str)
+    r.drop(columns=h.loc[b, "security_id"]).to_csv(folder / "returns.csv", index=False)
+    h.loc[b, "security_id"] = "a00"
+    h.to_csv(folder / "holdings.csv", index=False)
+    a_at, b_at = ("holdings.csv", "holdings.csv:10") if files == "one" else ("h_A.csv",
+                                                                               "h_B.csv:2")
+    assert b == 8 and h.loc[0, "security_id"] == "A00"       # CSV lines 10 and 2
+    if files != "one":
+        _per_mandate_files(folder)
+    settings = load_settings(folder)
+    fin = validate_fund(settings, *read_inputs(settings))
+    assert [str(p) for p in fin.warnings] == [
+        f"{b_at}:security_id: warning: security id 'a00' (mandate 'B') differs from 'A00' "
+        f"({a_at} row 2, mandate 'A') only by case: the total fund holds them as two "
+        "securities; give one security one id",
+        f"{b_at}:security_id: warning: holding a00 has no return history in returns.csv; "
+        "give a proxy column (a security id, market or benchmark) to stand in for it, else "
+        "it is left out of every return figure"]
+
 # --- the demo fund: generator and PDF -------------------------------------------------------
 
 DEMO_FUND = REPO / "inputs" / "demo-fund"

@@ -22,7 +22,7 @@ Stated rules (also in the README):
 from __future__ import annotations
 
 from reporter.validate.cells import as_dates, as_float, as_text, date_codes
-from reporter.validate.common import MAX_PER_CHECK
+from reporter.validate.common import MAX_PER_CHECK, HoldingRows
 from reporter.validate.holdings import HOLDINGS_OPTIONAL, HOLDINGS_REQUIRED, validate_holdings
 from reporter.validate.long_quick import _clean_long_matrix
 from reporter.validate.pack import _check_coverage, read_inputs, validate_pack, validate_tables
@@ -33,7 +33,8 @@ from reporter.validate.values import PERCENT_MEDIAN, looks_like_percent
 
 __all__ = [
     "HOLDINGS_OPTIONAL", "HOLDINGS_REQUIRED", "INDEX_MOVE_LIMIT", "MAX_PER_CHECK", "PERCENT_MEDIAN",
-    "_check_coverage", "_clean_long_matrix", "as_dates", "as_float", "as_text", "date_codes",
+    "HoldingRows", "_check_coverage", "_clean_long_matrix", "as_dates", "as_float", "as_text",
+    "date_codes",
     "longest_constant_run", "looks_like_percent", "read_inputs", "validate_holdings",
     "validate_pack", "validate_returns", "validate_series", "validate_tables",
 ]

@@ -1,13 +1,29 @@
 """What every check shares: the cap on places listed per kind of problem, the column
-check, and the word for one period."""
+check, where each holding was read, and the word for one period."""
 
 from __future__ import annotations
+
+from dataclasses import dataclass
 
 from reporter.config import Settings
 from reporter.errors import Collector, place
 from reporter.readers import RawTable
 
 MAX_PER_CHECK = 10
+
+
+@dataclass(frozen=True)
+class HoldingRows:
+    """Where each holding was read, by its position in the holdings: the file's name and
+    row (None: not known). A fund's total holdings come from several mandates, perhaps from
+    several files, so one table cannot say it."""
+
+    files: tuple[str, ...]
+    rows: tuple[int | None, ...]
+
+    def place(self, k: int) -> str:
+        """Holding ``k``'s id cell, as ``file:row:security_id``."""
+        return place(self.files[k], self.rows[k], "security_id")
 
 
 class _Capped:

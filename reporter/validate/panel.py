@@ -8,6 +8,7 @@ import pandas as pd
 
 from reporter.errors import place
 from reporter.models import ReturnPanel
+from reporter.validate.common import HoldingRows
 from reporter.validate.holdings import PROXY_SERIES
 from reporter.validate.values import PERCENT_MEDIAN, _percent_columns
 
@@ -18,9 +19,10 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
     Warns of a holding whose longest run of one return (:func:`longest_constant_run`) is
     ``checks.stale_zero_run`` periods or more.
 
-    ``where_of(j)`` places a message about security ``j`` as a whole, ``where_cell(t, j)`` one
-    about its value in sorted period ``t``. ``percent`` is :func:`_percent_columns` of
-    ``matrix`` when the caller has it already.
+    ``holdings_raw`` is the holdings file as read (its row ``k`` is holding ``k``), or a fund's
+    :class:`HoldingRows`, or None. ``where_of(j)`` places a message about security ``j`` as a
+    whole, ``where_cell(t, j)`` one about its value in sorted period ``t``. ``percent`` is
+    :func:`_percent_columns` of ``matrix`` when the caller has it already.
     """
     pct, med = percent if percent is not None else _percent_columns(matrix, settings.frequency)
     flagged = np.flatnonzero(pct)
@@ -67,8 +69,11 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
     # no history to look for; it read "holding nan has no return history"
     named = np.array([isinstance(s, str) and s != "" for s in holdings.ids], dtype=bool)
     for k in np.flatnonzero(~have & ~holdings.cash & named):    # cash earns the risk-free rate
-        # the holdings frame keeps the file's rows in order: holding k is data row k
-        row = holdings_raw.row_number(int(k)) if holdings_raw is not None else None
+        if isinstance(holdings_raw, HoldingRows):       # a fund's holdings, from mandates
+            where = holdings_raw.place(int(k))
+        else:    # the holdings frame keeps the file's rows in order: holding k is data row k
+            row = holdings_raw.row_number(int(k)) if holdings_raw is not None else None
+            where = place(settings.inputs["holdings"].display, row, "security_id")
         if not proxies[k]:
             stand_in = ("; give a proxy column (a security id, market or benchmark) to stand "
                         "in for it, else it is left out of every return figure")
@@ -77,8 +82,7 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
         else:
             stand_in = (f"; its proxy {proxies[k]!r} has none either, so it is left out of "
                         "every return figure; name a proxy with returns")
-        coll.warn(place(settings.inputs["holdings"].display, row, "security_id"),
-                  f"holding {holdings.ids[k]} has no return history in {raw.name}{stand_in}")
+        coll.warn(where, f"holding {holdings.ids[k]} has no return history in {raw.name}{stand_in}")
     for k in np.flatnonzero(have & (run >= settings.stale_zero_run)):
         sid, value = holdings.ids[k], out[start[k], k]
         what = (f"{run[k]} exact-zero returns in a row" if value == 0.0

@@ -11,7 +11,7 @@ from reporter.errors import Collector, place
 from reporter.models import Holdings, ReturnPanel
 from reporter.readers import RawTable
 from reporter.validate.cells import _dictionary, as_dates, as_float, column_of, date_codes
-from reporter.validate.common import _Capped, _period_word, _require_columns
+from reporter.validate.common import HoldingRows, _Capped, _period_word, _require_columns
 from reporter.validate.long_quick import _clean_long_matrix
 from reporter.validate.panel import _finish_panel
 from reporter.validate.prices import (
@@ -30,10 +30,12 @@ from reporter.validate.values import _percent_columns, out_of_range, report_out_
 
 
 def validate_returns(raw: RawTable, holdings: Holdings | None, settings: Settings,
-                     coll: Collector, holdings_raw: RawTable | None = None) -> ReturnPanel | None:
+                     coll: Collector, holdings_raw: RawTable | HoldingRows | None = None
+                     ) -> ReturnPanel | None:
     """Long (``date,security_id,return``) or wide (``date`` + one column per id) returns.
 
-    ``holdings_raw`` (the holdings file as read) lets messages about a holding name its row.
+    ``holdings_raw`` (the holdings file as read, or a fund's :class:`HoldingRows`) lets
+    messages about a holding name its row.
     With ``values = "prices"`` (``[inputs] prices``) the file holds prices or index levels
     (long: ``date,security_id,price``), turned into returns by
     :func:`reporter.validate.prices.price_returns`.
