@@ -360,6 +360,24 @@ def test_an_overlong_name_wraps_and_keeps_the_figures_on_the_page(tmp_path):
         assert text_past_the_right_edge(out / pdf) == [], pdf
 
 
+def test_an_overlong_sector_wraps_and_keeps_the_figures_on_the_page(tmp_path):
+    # a 120-character sector with no space kept its cell on one line in the attribution,
+    # sector limit, risk and appendix tables, whose figures were drawn past the page's edge
+    pack = _pack(tmp_path)
+    sector = "S" * 120
+    h = pd.read_csv(pack / "holdings.csv", dtype=str)
+    held = h.loc[1, "sector"]
+    h.loc[h["sector"] == held, "sector"] = sector
+    h.to_csv(pack / "holdings.csv", index=False)
+    b = pd.read_csv(pack / "benchmark_sectors.csv", dtype=str)
+    b.loc[b["sector"] == held, "sector"] = sector
+    b.to_csv(pack / "benchmark_sectors.csv", index=False)
+    out = tmp_path / "out"
+    assert main(["build", str(pack), "--out", str(out), "--quiet"]) == 0
+    assert '<td class="long">' + sector in (out / "pack.html").read_text()
+    for pdf in ("pack.pdf", "pack-trustees.pdf"):
+        assert text_past_the_right_edge(out / pdf) == [], pdf
+
 def _holdings_parquet(pack: Path, column: str, array=None, *, extra=None) -> None:
     """The demo holdings as ``holdings.parquet``, its ``column`` replaced by ``array`` (or a
     second column named ``extra`` appended)."""

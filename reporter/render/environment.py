@@ -38,6 +38,7 @@ from jinja2 import (
 from jinja2.exceptions import SecurityError
 from jinja2.loaders import split_template_path
 from jinja2.sandbox import ImmutableSandboxedEnvironment
+from markupsafe import Markup
 
 from reporter.errors import InputError, Problem
 
@@ -106,6 +107,14 @@ def name_cell(x) -> str:
     lets one longer than :data:`LONG_NAME` characters wrap, anywhere if it must, so that an
     overlong name (an unbroken one above all) cannot push the figures beside it off the page."""
     return "name long" if x is not None and len(str(x)) > LONG_NAME else "name"
+
+
+def long_cell(x) -> Markup:
+    """`` class="long"`` for a table cell of other text that may run long (a sector's
+    name) when it is longer than :data:`LONG_NAME` characters: it wraps as a long name does
+    (:func:`name_cell`), anywhere if it must; else nothing, and the cell wraps at its spaces
+    as any cell does."""
+    return Markup(' class="long"') if x is not None and len(str(x)) > LONG_NAME else Markup("")
 
 
 def longdate(d) -> str:
@@ -284,5 +293,6 @@ def make_environment(user_templates: Path | None = None,
     env.template_class = CheckedTemplate
     env.user_templates = Path(user_templates) if user_templates is not None else None
     env.filters.update(pct=pct, bp=bp, num=num, longdate=longdate, fit=fit,
-                       plural=plural, money=money, name_cell=name_cell)
+                       plural=plural, money=money, name_cell=name_cell,
+                       long_cell=long_cell)
     return env
