@@ -9,7 +9,7 @@ import pytest
 
 from reporter.analytics import covariance, moments
 from reporter.analytics.covariance import _Moments, estimate_covariance, holdings_and_active
-from reporter.analytics.psd import _explained
+from reporter.analytics.psd import LowRank, _explained
 from tests.covariance_before import estimate_before
 
 METHODS = ("constant_correlation", "ledoit_wolf", "sample")
@@ -89,22 +89,28 @@ def test_row_blocks_of_any_size_give_the_same_estimate(monkeypatch):
 
 
 def test_woodbury_matches_a_cholesky_factor():
-    # B'A^-1 B with A = diag(lam) + V diag(sign) V', one negative sign, against scipy's
-    # triangular solves on the dense A (the old route)
+    # B'A^-1 B with A = diag(lam) + V diag(sign) V' + X'X, against LAPACK's factor of the
+    # dense A (the other route); X given in its own layout (periods x holdings) or not at
+    # all; one negative sign (the core is then solved by LU) or none (by its Cholesky factor)
     rng = np.random.default_rng(8)
-    nc, g, k = 300, 12, 25
+    nc, g, k, t = 300, 12, 25, 40
     lam = rng.uniform(0.5, 2.0, nc)
     v = rng.normal(size=(nc, k))
-    sign = np.ones(k)
-    sign[0] = -1.0
     v[:, 0] *= 0.05
-    a = np.diag(lam) + (v * sign) @ v.T
-    assert np.linalg.eigvalsh(a).min() > 0
-    b = rng.normal(size=(nc, g))
-    mat = np.block([[a, b], [b.T, np.eye(g)]])
-    gapped = np.r_[np.zeros(nc, bool), np.ones(g, bool)]
-    np.testing.assert_allclose(_explained(mat, gapped, (lam, v, sign)),
-                               _explained(mat, gapped, None), rtol=1e-9)
+    x = rng.normal(size=(t, nc)) * 0.3
+    for first_sign in (-1.0, 1.0):
+        sign = np.ones(k)
+        sign[0] = first_sign
+        for with_x in (False, True):
+            a = np.diag(lam) + (v * sign) @ v.T + (x.T @ x if with_x else 0.0)
+            assert np.linalg.eigvalsh(a).min() > 0
+            b = rng.normal(size=(nc, g))
+            mat = np.block([[a, b], [b.T, np.eye(g)]])
+            gapped = np.r_[np.zeros(nc, bool), np.ones(g, bool)]
+            low = LowRank(lam, v, sign, x.copy() if with_x else None)
+            assert low.rank == k + (t if with_x else 0)
+            np.testing.assert_allclose(_explained(mat, gapped, low),
+                                       _explained(mat, gapped, None), rtol=1e-9)
 
 
 def test_holdings_and_active_match_the_code_they_replaced(french):

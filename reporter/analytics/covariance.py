@@ -46,7 +46,7 @@ from reporter.analytics.moments import (  # noqa: F401  (centred: re-exported)
     _row_blocks,
     centred,
 )
-from reporter.analytics.psd import to_psd
+from reporter.analytics.psd import LowRank, to_psd
 
 METHODS = ("constant_correlation", "ledoit_wolf", "sample")
 DEFAULT_METHOD = "constant_correlation"
@@ -75,24 +75,24 @@ def choose_method(method: str, n_assets: int, n_periods: int) -> str:
 
 
 def _complete_block_form(mo: _Moments, diag: np.ndarray, scale: float, rank_one: np.ndarray,
-                         rank_one_weight: float, x_weight: float):
-    """(lam, V, sign) with diag(lam) + V diag(sign) V' = the complete holdings' block of
-    diag(diag) + rank_one_weight r r' + x_weight X_c'X_c, or None if a lam is not clearly
-    positive (then the Cholesky test decides, as before) or the window is long."""
+                         rank_one_weight: float, x_weight: float) -> LowRank | None:
+    """The complete holdings' block of diag(diag) + rank_one_weight r r' + x_weight X_c'X_c
+    as a :class:`~reporter.analytics.psd.LowRank` (X_c scaled by sqrt(x_weight), periods x
+    holdings, a copy of its own), or None if a lam is not clearly positive (then the Cholesky
+    test decides, as before) or the window is long."""
     c = ~mo.gapped
     lam = diag[c]
     if not lam.size or lam.min() <= 1e-8 * scale or 3 * (mo.T + 1) ** 2 > lam.size ** 2:
         return None                  # (the last: a Cholesky factor of the block is cheaper)
-    cols, signs = [], []
+    v, sign = np.zeros((lam.size, 0)), np.zeros(0)
     if rank_one_weight != 0.0:
-        cols.append(np.sqrt(abs(rank_one_weight)) * rank_one[c][:, None])
-        signs.append([np.sign(rank_one_weight)])
+        v = np.sqrt(abs(rank_one_weight)) * rank_one[c][:, None]
+        sign = np.array([np.sign(rank_one_weight)])
+    x = None
     if x_weight > 0.0:
-        cols.append(np.sqrt(x_weight) * mo.x[:, c].T)
-        signs.append(np.ones(mo.T))
-    if not cols:
-        return lam, np.zeros((lam.size, 0)), np.zeros(0)
-    return lam, np.hstack(cols), np.concatenate(signs)
+        x = mo.x[:, c]                             # (a copy: fancy indexing)
+        x *= np.sqrt(x_weight)
+    return LowRank(lam, v, sign, x)
 
 
 def _estimate(mo: _Moments, method: str) -> CovarianceEstimate:

@@ -8,12 +8,29 @@ algebra (e.g. Golub and Van Loan, *Matrix Computations*; recalled from memory).
 
 from __future__ import annotations
 
+from typing import NamedTuple
+
 import numpy as np
 from scipy.linalg import solve_triangular
 from scipy.linalg.lapack import dpotrf
 
 EXACT_CLIP_MAX = 500   # holdings up to which a non-PSD estimate gets a full eigendecomposition
-LowRank = tuple[np.ndarray, np.ndarray, np.ndarray]
+
+
+class LowRank(NamedTuple):
+    """A = diag(lam) + V diag(sign) V' + X'X, lam > 0, sign = +-1 (the caller vouches that A
+    is positive definite). ``x`` (periods x holdings, C-ordered; or None) stands for T more
+    columns of V, X', with sign +1: it is given in its own layout, so that no transposed
+    copy is made, and it is consumed (scaled in place)."""
+
+    lam: np.ndarray
+    v: np.ndarray
+    sign: np.ndarray
+    x: np.ndarray | None = None
+
+    @property
+    def rank(self) -> int:
+        return self.v.shape[1] + (0 if self.x is None else self.x.shape[0])
 
 
 def cholesky_in_place(a: np.ndarray, clean: bool = False) -> np.ndarray | None:
@@ -38,15 +55,16 @@ def cholesky_in_place(a: np.ndarray, clean: bool = False) -> np.ndarray | None:
 def _explained(mat: np.ndarray, gapped: np.ndarray,
                low_rank: LowRank | None) -> np.ndarray | None:
     """B'A^-1 B for the block A of the complete holdings and B = mat[complete, gapped], or
-    None when A is not positive definite. With ``low_rank`` = (lam, V, sign) meaning
-    A = diag(lam) + V diag(sign) V' (lam > 0, sign = +-1; the caller vouches that this A is
-    positive definite), by the Woodbury identity
-    A^-1 = L^-1 - L^-1 V (diag(sign) + V'L^-1 V)^-1 V'L^-1 with L = diag(lam): O(N k^2)
-    for k = T + 1 columns of V, instead of an O(N^3) Cholesky factor of A (used when it is
-    the cheaper: long windows, T > N / sqrt(3))."""
+    None when A is not positive definite. With ``low_rank`` (:class:`LowRank`: A =
+    diag(lam) + W diag(sign) W', W = [V, X']), by the Woodbury identity
+    A^-1 = L^-1 - L^-1 W (diag(sign) + W'L^-1 W)^-1 W'L^-1 with L = diag(lam): O(N k^2)
+    for k = T + 1 columns of W, instead of an O(N^3) Cholesky factor of A (used when it is
+    the cheaper: long windows, T > N / sqrt(3)). W'L^-1 W is formed by blocks, X L^-1 X' as
+    one product of X in its own layout (10,000 holdings: W as one N x (T + 1) matrix took a
+    transposed copy of X, 0.46 s, and a second copy for L^-1/2 W)."""
     c, g = ~gapped, gapped
     b = mat[np.ix_(c, g)]
-    if low_rank is not None and 3 * low_rank[1].shape[1] ** 2 > low_rank[0].size ** 2:
+    if low_rank is not None and 3 * low_rank.rank ** 2 > low_rank.lam.size ** 2:
         low_rank = None          # k > N_c / sqrt(3): N_c k^2 exceeds the N_c^3 / 3 of Cholesky
     if low_rank is None:
         ci = np.flatnonzero(c)
@@ -55,13 +73,25 @@ def _explained(mat: np.ndarray, gapped: np.ndarray,
             return None
         z = solve_triangular(low, b, lower=True, check_finite=False)
         return z.T @ z
-    lam, v, sign = low_rank
+    lam, v, sign, x = low_rank
     root = np.sqrt(lam)[:, None]
     bs = b / root                                   # L^-1/2 B
     vs = v / root                                   # L^-1/2 V
-    w = vs.T @ bs                                   # V'L^-1 B
-    core = vs.T @ vs
+    w = vs.T @ bs                                   # W'L^-1 B, by blocks of W
+    core = vs.T @ vs                                # W'L^-1 W + diag(sign), by blocks
+    if x is not None:
+        xs = x
+        xs /= root.T                                # (L^-1/2 X')', in place
+        xv = xs @ vs
+        core = np.block([[core, xv.T], [xv, xs @ xs.T]])
+        w = np.vstack([w, xs @ bs])
+        sign = np.concatenate([sign, np.ones(len(xs))])
     core[np.diag_indices_from(core)] += sign
+    if np.all(sign > 0):        # core = I + W'L^-1 W is positive definite: w'core^-1 w = z'z
+        low = cholesky_in_place(core.copy())        # (core kept should rounding refuse it)
+        if low is not None:
+            z = solve_triangular(low, w, lower=True, check_finite=False)
+            return bs.T @ bs - z.T @ z
     return bs.T @ bs - w.T @ np.linalg.solve(core, w)
 
 
