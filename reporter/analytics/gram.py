@@ -79,7 +79,7 @@ def pairwise_moments(mo: _Moments, cols: np.ndarray
     n_g = mo.n_gap[gsel][:, idx]                        # n[gpos, :], g x k
     col_sum = x_sub.sum(axis=0)                         # sum of d_i over its own periods
     s_c = x_sub.T @ m_gap                               # S[:, gpos]: d_i over a gapped j's
-    q_c = mo.squares_over_gaps()[idx][:, gsel]          # Q[:, gpos] before centring (a copy)
+    q_c = mo.squares_over_gaps()[np.ix_(idx, gsel)]     # Q[:, gpos] before centring (a copy)
     del x_sub, m_gap
     diag0 = np.diagonal(G).copy()                       # Q_ij = G_ii for a complete j
     s_r = np.repeat(col_sum[gpos][:, None], k, axis=1)  # S[gpos, :]
