@@ -33,6 +33,7 @@ from reporter.validate import (
     HoldingRows,
     _check_coverage,
     as_text,
+    check_sector_limit_names,
     validate_holdings,
     validate_returns,
     validate_series,
@@ -251,6 +252,12 @@ def validate_fund(settings: Settings, raws: dict[str, RawTable], read_problems=(
             settings.inputs[m.holdings_role or "holdings"].display for m in ms))
         _warn_conflicts(pd.concat([holdings[m.index].frame.assign(mandate=m.name)
                                    for m in ms]), where, coll)
+        cfg = settings.config_path.name
+        check_sector_limit_names(settings.limits, union, f"{cfg}:limits.max_sector_weight",
+                                 coll)
+        for m in ms:
+            check_sector_limit_names(m.limits, holdings[m.index],
+                                     f"{cfg}:mandates.{m.index}.limits.max_sector_weight", coll)
         first = _first_rows(ms, holdings, tables)
         _warn_case_clashes(first, coll)
         rows = [first.get(sid) for sid in union.ids]

@@ -22,12 +22,11 @@ import numpy as np
 import pandas as pd
 
 from reporter.analytics.pack import PackResults
-from reporter.config import LimitsSection
+from reporter.config import OTHER_SECTORS, LimitsSection
 from reporter.jsonvalues import json_ready
 
 WITHIN, WATCH, BREACH = "within", "watch", "breach"
 STATUS_ORDER = {WITHIN: 0, WATCH: 1, BREACH: 2}
-OTHER_SECTORS = "*"
 
 LABELS = {
     "beta_min": "Portfolio beta, minimum",

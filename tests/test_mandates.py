@@ -474,6 +474,30 @@ def test_an_id_differing_from_another_mandates_only_by_case_is_named_at_its_row(
         "give a proxy column (a security id, market or benchmark) to stand in for it, else "
         "it is left out of every return figure"]
 
+def test_a_fund_sector_limit_named_in_another_case_is_refused(tmp_path, capsys):
+    # a mandate's (or the total fund's) "utilities = 0.10" was applied to no holding, a
+    # weight of 0 shown as within, while Utilities itself was judged only under "*"; the
+    # single portfolio's check had not been run for a fund
+    import shutil
+
+    pack = tmp_path / "fund"
+    shutil.copytree(REPO / "inputs" / "demo-fund", pack)
+    text = (pack / "pack.toml").read_text()
+    text = text.replace("[limits]\n", '[limits]\nmax_sector_weight = { Utilties = 0.2, '
+                        '"*" = 0.5 }\n', 1)
+    text = text.replace("beta_min = 0.9\n", 'beta_min = 0.9\nmax_sector_weight = { utilities '
+                        '= 0.10, "*" = 0.4 }\n', 1)
+    (pack / "pack.toml").write_text(text)
+    assert main(["check", str(pack)]) == 2
+    err = capsys.readouterr().err.splitlines()
+    assert ("pack.toml:mandates.0.limits.max_sector_weight.utilities: no holding's sector is "
+            "'utilities', but 'Utilities' is (sector names must match exactly); write it as "
+            "the holdings file does") in err
+    assert ("pack.toml:limits.max_sector_weight.Utilties: warning: no holding belongs to the "
+            "sector 'Utilties', so its limit applies to a weight of 0; check the name against "
+            "the holdings file's sectors") in err
+
+
 # --- the demo fund: generator and PDF -------------------------------------------------------
 
 DEMO_FUND = REPO / "inputs" / "demo-fund"

@@ -21,6 +21,7 @@ from reporter.config.problems import (
 from reporter.config.schema import (
     INPUT_ROLES,
     OPTIONAL_ROLES,
+    OTHER_SECTORS,
     AnalysisSection,
     ChecksSection,
     CompareSection,
@@ -39,7 +40,8 @@ __all__ = [
     "ARCHIVE_PREFIX", "DEFAULT_ROLLING_WINDOW", "DEFAULT_STALE_RUN", "INPUT_ROLES",
     "OPTIONAL_ROLES", "PERIODS_PER_YEAR", "STRATEGIC_TOLERANCE", "TOTAL_FUND",
     "AnalysisSection", "ChecksSection", "CompareSection", "FundSection", "InputFile",
-    "InputSpec", "InputsSection", "LimitsSection", "Mandate", "MandateSection", "PackFile",
+    "InputSpec", "InputsSection", "LimitsSection", "OTHER_SECTORS", "Mandate",
+    "MandateSection", "PackFile",
     "PackSection", "RenderSection", "Settings", "date_format_problem", "limits_problems",
     "load_settings", "pack_name_from_folder", "resolve_compare", "resolve_mandates",
 ]

@@ -114,6 +114,9 @@ class RenderSection(_Strict):
 Fraction = Annotated[float, Field(gt=0.0, le=1.0)]
 
 
+OTHER_SECTORS = "*"     # the key of ``max_sector_weight`` for every sector not named
+
+
 class LimitsSection(_Strict):
     """``[limits]``: the investment policy's limits, each optional (see README, Limits).
 

@@ -25,7 +25,13 @@ from reporter.validate.cells import as_dates, as_float, as_text, date_codes
 from reporter.validate.common import MAX_PER_CHECK, HoldingRows
 from reporter.validate.holdings import HOLDINGS_OPTIONAL, HOLDINGS_REQUIRED, validate_holdings
 from reporter.validate.long_quick import _clean_long_matrix
-from reporter.validate.pack import _check_coverage, read_inputs, validate_pack, validate_tables
+from reporter.validate.pack import (
+    _check_coverage,
+    check_sector_limit_names,
+    read_inputs,
+    validate_pack,
+    validate_tables,
+)
 from reporter.validate.panel import longest_constant_run
 from reporter.validate.returns import validate_returns
 from reporter.validate.series import INDEX_MOVE_LIMIT, validate_series
@@ -33,7 +39,8 @@ from reporter.validate.values import PERCENT_MEDIAN, looks_like_percent
 
 __all__ = [
     "HOLDINGS_OPTIONAL", "HOLDINGS_REQUIRED", "INDEX_MOVE_LIMIT", "MAX_PER_CHECK", "PERCENT_MEDIAN",
-    "HoldingRows", "_check_coverage", "_clean_long_matrix", "as_dates", "as_float", "as_text",
+    "HoldingRows", "_check_coverage", "check_sector_limit_names", "_clean_long_matrix",
+    "as_dates", "as_float", "as_text",
     "date_codes",
     "longest_constant_run", "looks_like_percent", "read_inputs", "validate_holdings",
     "validate_pack", "validate_returns", "validate_series", "validate_tables",

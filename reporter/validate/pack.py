@@ -8,7 +8,7 @@ import numpy as np
 from reporter.analytics.coverage import cover_holdings
 from reporter.analytics.returns import frequency_gaps, period_keys, portfolio_returns
 from reporter.analytics.window import constant_premium
-from reporter.config import Settings
+from reporter.config import OTHER_SECTORS, LimitsSection, Settings
 from reporter.errors import Collector, InputError, Problem, place
 from reporter.models import DatedSeries, Holdings, ReturnPanel, ValidInputs
 from reporter.readers import RawTable, read_input
@@ -58,7 +58,8 @@ def validate_tables(settings: Settings, raws: dict[str, RawTable], read_problems
                              raws.get("holdings")) if "returns" in raws \
         else None
     if holdings is not None:
-        _check_sector_limits(settings, holdings, coll)
+        check_sector_limit_names(settings.limits, holdings, f"{settings.config_path.name}:"
+                                 "limits.max_sector_weight", coll)
     if market is not None and rf is not None:
         _check_coverage(settings, market, rf, panel, coll)
     if holdings is not None and panel is not None and not coll.errors:
@@ -177,20 +178,21 @@ def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
         coll.problems.append(problem)
 
 
-def _check_sector_limits(settings: Settings, holdings: Holdings, coll: Collector) -> None:
-    """Each sector that ``[limits] max_sector_weight`` names must be one a holding belongs to,
-    written exactly as the holdings file writes it (a limit is applied to the sector of that
-    exact name). A name that matches a held sector but for case or spaces is an error: its
-    limit would be applied to a weight of 0 and the sector itself judged only under "*". A
-    name that matches nothing is a warning: a sector not held today weighs 0."""
-    table = settings.limits.max_sector_weight if settings.limits is not None else None
+def check_sector_limit_names(limits: LimitsSection | None, holdings: Holdings, where: str,
+                             coll: Collector) -> None:
+    """Each sector that ``max_sector_weight`` of ``limits`` names must be one a holding of
+    ``holdings`` belongs to, written exactly as the holdings file writes it (a limit is
+    applied to the sector of that exact name). A name that matches a held sector but for
+    case or spaces is an error: its limit would be applied to a weight of 0 and the sector
+    itself judged only under "*". A name that matches nothing is a warning: a sector not
+    held today weighs 0. ``where``: the table's place in pack.toml, for the messages."""
+    table = limits.max_sector_weight if limits is not None else None
     if not isinstance(table, dict):
         return
     held = sorted({str(s) for s in holdings.frame["sector"].dropna()})
     folded = {" ".join(s.split()).casefold(): s for s in held}
-    where = f"{settings.config_path.name}:limits.max_sector_weight"
     for name in sorted(table):
-        if name == "*" or name in held:
+        if name == OTHER_SECTORS or name in held:
             continue
         near = folded.get(" ".join(name.split()).casefold())
         if near is not None:
