@@ -23,22 +23,45 @@ def _compact(y: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.n
     return yc, xc, m
 
 
-def _hac_scores_sums(e: np.ndarray, xr: np.ndarray, L: np.ndarray) -> tuple[np.ndarray, ...]:
+HAC_BLOCK = 1 << 18      # elements of the residuals a column block holds (2 MiB: in cache)
+
+
+def _hac_scores_sums(y0: np.ndarray, m: np.ndarray, xr: np.ndarray, alpha: np.ndarray,
+                     beta: np.ndarray, L: np.ndarray) -> tuple[np.ndarray, ...]:
     """Bartlett-weighted long-run sums of the OLS scores (e, e x) for columns that share the
-    regressor ``xr`` row by row (no interior gaps): S_aa, S_ab, S_bb. One elementwise product
-    and one small matrix product per lag, for all columns at once."""
+    regressor ``xr`` row by row (no interior gaps): S_aa, S_ab, S_bb, with the residuals
+    e = (y0 - alpha - beta x) m. A block of columns at a time (HAC_BLOCK elements), each
+    block's residuals and lag products made in two buffers that stay in the processor's
+    cache: one elementwise product and one small matrix product per lag. (As whole T x N
+    matrices these were two fresh 40 MB arrays at Large, and every lag a pass through
+    memory.)"""
+    T, N = y0.shape
+    lags = int(L.max(initial=0))
     ones = np.ones_like(xr)
-    buf = np.multiply(e, e)
-    s_aa, s_ab, s_bb = np.stack([ones, xr, xr * xr]) @ buf
-    T = e.shape[0]
-    for lag in range(1, int(L.max(initial=0)) + 1):
-        w = np.where(lag <= L, 1.0 - lag / (L + 1.0), 0.0)
-        prod = np.multiply(e[lag:], e[:-lag], out=buf[: T - lag])
-        xt, xl = xr[lag:], xr[:-lag]
-        aa, bb, ab, ba = np.stack([ones[lag:], xt * xl, xl, xt]) @ prod
-        s_aa = s_aa + 2 * w * aa
-        s_bb = s_bb + 2 * w * bb
-        s_ab = s_ab + w * (ab + ba)
+    first = np.stack([ones, xr, xr * xr])
+    at_lag = [np.stack([ones[lag:], xr[lag:] * xr[:-lag], xr[:-lag], xr[lag:]])
+              for lag in range(1, lags + 1)]
+    s_aa, s_ab, s_bb = np.empty((3, N))
+    step = max(1, min(N, HAC_BLOCK // max(T, 1)))
+    e_buf, p_buf = np.empty((T, step)), np.empty((T, step))
+    for start in range(0, N, step):
+        cols = slice(start, min(start + step, N))
+        k = cols.stop - cols.start
+        e, buf = e_buf[:, :k], p_buf[:, :k]
+        np.multiply.outer(xr, beta[cols], out=e)       # fitted values, then residuals
+        e += alpha[cols]
+        e *= m[:, cols]
+        np.subtract(y0[:, cols], e, out=e)
+        np.multiply(e, e, out=buf)
+        aa, ab, bb = first @ buf
+        for lag in range(1, lags + 1):
+            w = np.where(lag <= L[cols], 1.0 - lag / (L[cols] + 1.0), 0.0)
+            prod = np.multiply(e[lag:], e[:-lag], out=buf[: T - lag])
+            la, lb, lab, lba = at_lag[lag - 1] @ prod
+            aa = aa + 2 * w * la
+            bb = bb + 2 * w * lb
+            ab = ab + w * (lab + lba)
+        s_aa[cols], s_ab[cols], s_bb[cols] = aa, ab, bb
     return s_aa, s_ab, s_bb
 
 
@@ -93,11 +116,7 @@ def hac_standard_errors(y: np.ndarray, x: np.ndarray, fits: MarketModelFits,
     L = np.full(N, lags) if lags is not None else newey_west_lags(n)
     alpha = np.nan_to_num(fits.alpha)
     beta = np.nan_to_num(fits.beta)
-    e = np.multiply.outer(xr, beta)          # fitted values, built in place
-    e += alpha
-    e *= p.m
-    np.subtract(p.y0, e, out=e)              # residuals, zero where missing
-    s_aa, s_ab, s_bb = _hac_scores_sums(e, xr, L)
+    s_aa, s_ab, s_bb = _hac_scores_sums(p.y0, p.m, xr, alpha, beta, L)   # zero where missing
     sx, sxx = np.stack([xr, xr * xr]) @ p.m
     gapped = np.flatnonzero(interior_gaps(p.m > 0, p.n_obs))
     if len(gapped):
