@@ -69,7 +69,9 @@ def heap_reuse(limit: int = HEAP_REUSE_LIMIT) -> Iterator[None]:
     of system time and 1.09-1.10 s without; 79,000, 0.12 s and 0.85-0.86 s with it. Its peak
     RSS rose from 620-622 MB to 631 MB, below the PDF stage's. Blocks over ``limit`` (an
     N x N estimate at 10,000 holdings: 800 MB) are still mapped on their own, so that no
-    freed one is held while the next is made. Does nothing where malloc is not glibc's."""
+    freed one is held while the next is made. Does nothing where malloc is not glibc's.
+    The settings are the process's: two analyses on threads of one process share them, and
+    the first to end restores the build's for both (only their speed is touched)."""
     fn = _libc_function("mallopt")
     if fn is None:
         yield
