@@ -172,6 +172,27 @@ def run_cli(capsys, *argv) -> tuple[int, str, str]:
     return code, out, err
 
 
+# A4 with the pack's 16 mm side margins: the text block's right edge, in points
+TEXT_BLOCK_RIGHT = 595.28 - 16 / 25.4 * 72
+
+
+def words_past_the_text_block(pdf: Path, slack: float = 6.0) -> list[tuple[int, str, float]]:
+    """(page, word, right edge) of every word whose box ends more than ``slack`` points past
+    the text block's right edge (poppler's ``pdftotext -bbox`` word boxes). The pypdf check
+    above sees where a piece of text starts; this one where each word ends, so it finds a
+    long word or a wide table that runs into the right margin."""
+    import re
+    import subprocess
+
+    html = subprocess.run(["pdftotext", "-bbox", str(pdf), "-"], capture_output=True,
+                          text=True, check=True).stdout
+    word = re.compile(r'<word xMin="[\d.]+" yMin="[\d.]+" xMax="([\d.]+)" yMax="[\d.]+">'
+                      r"([^<]*)</word>")
+    return [(number, text[:30], float(x))
+            for number, page in enumerate(html.split("<page ")[1:], start=1)
+            for x, text in word.findall(page) if float(x) > TEXT_BLOCK_RIGHT + slack]
+
+
 def assert_check_refuses(capsys, pack: Path, line: str) -> None:
     """``reporter check PACK`` exits 2, one of its lines being ``line``, with no traceback."""
     code, _, err = run_cli(capsys, "check", pack)

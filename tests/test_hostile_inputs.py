@@ -14,7 +14,7 @@ import pandas as pd
 import pytest
 
 from reporter.cli import main
-from tests.conftest import DEMO, text_past_the_right_edge
+from tests.conftest import DEMO, text_past_the_right_edge, words_past_the_text_block
 
 SUMMARY = "reporter: "
 
@@ -377,6 +377,11 @@ def test_an_overlong_sector_wraps_and_keeps_the_figures_on_the_page(tmp_path):
     assert '<td class="long">' + sector in (out / "pack.html").read_text()
     for pdf in ("pack.pdf", "pack-trustees.pdf"):
         assert text_past_the_right_edge(out / pdf) == [], pdf
+        # and no word runs into the margin: the attribution's "Reading." paragraph, which
+        # names the sector, had set it on one line far past the text block
+        if shutil.which("pdftotext") is not None:
+            assert words_past_the_text_block(out / pdf) == [], pdf
+
 
 def _holdings_parquet(pack: Path, column: str, array=None, *, extra=None) -> None:
     """The demo holdings as ``holdings.parquet``, its ``column`` replaced by ``array`` (or a
