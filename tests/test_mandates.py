@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 import re
+import shutil
 import subprocess
 from pathlib import Path
 
@@ -25,7 +26,7 @@ from reporter.config import TOTAL_FUND, load_settings
 from reporter.fund_inputs import validate_fund
 from reporter.pipeline.fund import FundAnalysis, analyse_fund
 from reporter.validate import read_inputs, validate_pack
-from tests.conftest import REPO, build_at_fixed_epoch
+from tests.conftest import REPO, build_at_fixed_epoch, words_past_the_text_block
 
 T, WINDOW = 48, 36
 
@@ -519,6 +520,14 @@ def demo_fund_build(tmp_path_factory) -> Path:
     return out
 
 
+@pytest.mark.skipif(shutil.which("pdftotext") is None, reason="poppler-utils not installed")
+def test_demo_fund_words_stay_inside_the_text_block(demo_fund_build):
+    # the mandate weights table's status tags ("within range") ran 22-35 points into the
+    # right margin; its headings and tags may now wrap
+    for pdf in ("pack.pdf", "pack-trustees.pdf"):
+        assert words_past_the_text_block(demo_fund_build / pdf) == [], pdf
+
+
 def _outline(pdf: Path) -> list[tuple[int, str, int]]:
     """(depth, title, 1-based page) of every PDF bookmark, in order."""
     import pypdf
@@ -580,11 +589,14 @@ def test_demo_fund_pdf(demo_fund_build):
     for name in ("Fund overview", *names):
         assert re.search(re.escape(name) + r" ?\.{3,} ?" + str(pages[name]) + r"\b", contents), \
             name
-    # the fund overview shows every mandate with its status in words
-    overview = _page_text(pdf, pages["Fund overview"])
-    for name, status in zip(names, table["range_status"].iloc[:-1], strict=True):
-        line = next(x for x in overview.splitlines() if x.strip().startswith(name))
-        assert status in line, name
+    # the fund overview shows every mandate with its status in words (the status may wrap
+    # onto the row's next lines: the row runs to the next mandate's line)
+    lines = _page_text(pdf, pages["Fund overview"]).splitlines()
+    starts = [next(i for i, x in enumerate(lines) if x.strip().startswith(n)) for n in names]
+    for name, status, start, end in zip(names, table["range_status"].iloc[:-1], starts,
+                                        [*starts[1:], starts[-1] + 4], strict=True):
+        row = " ".join(lines[start:end]).split()
+        assert all(word in row for word in status.split()), name
     # a mandate's part: its title page names its benchmark and weight; footers name it
     first = pages["Low-volatility equity"]
     title = " ".join(_page_text(pdf, first).split())
