@@ -22,7 +22,7 @@ from reporter.cli_common import (
     quiet_option,
     strict_option,
 )
-from reporter.errors import EXIT_BAD_INPUT, EXIT_FAILED, EXIT_OK
+from reporter.errors import EXIT_BAD_INPUT, EXIT_FAILED, EXIT_OK, one_line
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -50,7 +50,7 @@ def build(pack: Path, out: Path, strict: bool, quiet: bool, debug: bool) -> None
     report = guarded(lambda: build_pack(pack, out, strict=strict, progress=Progress(quiet=quiet)),
                      debug)
     print_warnings(report.warnings)
-    click.echo(f"wrote {report.out}: " + ", ".join(report.files))
+    click.echo(one_line(f"wrote {report.out}: " + ", ".join(report.files)))
 
 
 @cli.command()
@@ -106,7 +106,7 @@ def init(folder: Path, debug: bool) -> None:
     from reporter.starter import init_pack
 
     names = guarded(lambda: init_pack(folder), debug)
-    click.echo(f"wrote {folder}: " + ", ".join(names))
+    click.echo(one_line(f"wrote {folder}: " + ", ".join(names)))
     click.echo(f"next: fill in the CSV files and [pack] in pack.toml, then "
                f"'reporter check {folder}'")
 
@@ -127,8 +127,9 @@ def site(archive: Path, out: Path, quiet: bool, debug: bool) -> None:
     from reporter.site import build_site
 
     report = guarded(lambda: build_site(archive, out, progress=Progress(quiet=quiet)), debug)
-    click.echo(f"wrote {report.out}: {report.n_packs} signed pack(s), {len(report.files)} "
-               f"files, {report.n_bytes:,} bytes; ledger head {report.head_hash or '(empty)'}")
+    click.echo(one_line(f"wrote {report.out}: {report.n_packs} signed pack(s), "
+                        f"{len(report.files)} files, {report.n_bytes:,} bytes; ledger head "
+                        f"{report.head_hash or '(empty)'}"))
 
 
 @cli.command()

@@ -12,6 +12,7 @@ from reporter.errors import (
     EXIT_FAILED,
     InputError,
     ReporterError,
+    one_line,
     symlink_loop,
 )
 
@@ -25,7 +26,7 @@ quiet_option = click.option("--quiet", "-q", is_flag=True, help="Print no progre
 def print_warnings(warnings) -> None:
     """Each warning on its own line on standard error, at most :data:`MAX_LINES`."""
     for w in warnings[:MAX_LINES]:
-        click.echo(str(w), err=True)
+        click.echo(one_line(str(w)), err=True)
     if len(warnings) > MAX_LINES:
         click.echo(f"... and {len(warnings) - MAX_LINES} more warnings", err=True)
 
@@ -48,7 +49,7 @@ def guarded(fn, debug: bool):
         problems = exc.problems
         errors = [p for p in problems if p.severity == "error"]
         for p in problems[:MAX_LINES]:
-            click.echo(str(p), err=True)
+            click.echo(one_line(str(p)), err=True)
         if len(problems) > MAX_LINES:
             click.echo(f"... and {len(problems) - MAX_LINES} more problems", err=True)
         n_warn = len(problems) - len(errors)
@@ -61,7 +62,7 @@ def guarded(fn, debug: bool):
     except ReporterError as exc:
         if debug:
             traceback.print_exc()
-        click.echo(f"reporter: {exc}", err=True)
+        click.echo(f"reporter: {one_line(str(exc))}", err=True)
         raise Stop(exc.exit_code) from None
     except KeyboardInterrupt:
         click.echo("reporter: interrupted; nothing was written", err=True)
@@ -70,9 +71,9 @@ def guarded(fn, debug: bool):
         if debug:
             traceback.print_exc()
         if (loop := symlink_loop(exc)) is not None:     # bad input, wherever it is met
-            click.echo(f"reporter: {loop}", err=True)
+            click.echo(f"reporter: {one_line(str(loop))}", err=True)
             raise Stop(EXIT_BAD_INPUT) from None
-        click.echo(f"reporter: internal error: {type(exc).__name__}: {exc} "
+        click.echo(f"reporter: internal error: {type(exc).__name__}: {one_line(str(exc))} "
                    "(run with --debug for a traceback)", err=True)
         raise Stop(EXIT_FAILED) from None
 

@@ -49,6 +49,17 @@ def shown_name(name: object) -> str:
     return text if text.isprintable() else repr(text)
 
 
+def one_line(text: str) -> str:
+    """``text`` with every character Python does not count printable (a line break, a tab,
+    a terminal escape, a bidirectional override) written as its escape (``\\n``,
+    ``\\x1b``, ``\\u202e``), so that a message quoting a name from the inputs stays one
+    line and cannot steer the terminal. The CLI prints every problem and error through it."""
+    if text.isprintable():
+        return text
+    return "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii")
+                   for c in text)
+
+
 class ReporterError(Exception):
     """Base class of every error the CLI prints without a traceback."""
 

@@ -575,6 +575,26 @@ def test_a_sector_limit_named_in_another_case_is_refused(tmp_path, capsys):
         "'Energy' is (sector names must match exactly); write it as the holdings file does"]
 
 
+def test_a_sector_limit_without_its_spaces_or_in_another_unicode_form_is_refused(tmp_path,
+                                                                               capsys):
+    # "HealthCare" for "Health Care", a full-width letter, and an empty name had been
+    # warnings only, their limits then passing on a weight of 0
+    pack = _pack(tmp_path)
+    text = (pack / "pack.toml").read_text()
+    (pack / "pack.toml").write_text(text.replace(
+        "Energy = 0.12", 'Energy = 0.12, HealthCare = 0.1, "\uff26inancials" = 0.1, "" = 0.1'))
+    lines = _refused(pack, tmp_path, capsys)
+    assert lines == [
+        "pack.toml:limits.max_sector_weight.'': a sector name that is empty or only spaces "
+        "names no sector; write the sector as the holdings file does",
+        "pack.toml:limits.max_sector_weight.HealthCare: no holding's sector is 'HealthCare', "
+        "but 'Health Care' is (sector names must match exactly); write it as the holdings "
+        "file does",
+        "pack.toml:limits.max_sector_weight.\uff26inancials: no holding's sector is "
+        "'\uff26inancials', but 'Financials' is (sector names must match exactly); write it "
+        "as the holdings file does"]
+
+
 def test_a_sector_limit_naming_no_held_sector_is_a_warning(tmp_path, capsys):
     pack = _pack(tmp_path)
     text = (pack / "pack.toml").read_text()

@@ -3,6 +3,8 @@
 
 from __future__ import annotations
 
+import unicodedata
+
 import numpy as np
 
 from reporter.analytics.coverage import cover_holdings
@@ -178,23 +180,34 @@ def _check_coverage(settings: Settings, market: DatedSeries, rf: DatedSeries,
         coll.problems.append(problem)
 
 
+def _folded(name: str) -> str:
+    """A sector name with case, spaces and Unicode compatibility forms (NFKC: a full-width
+    letter, a decomposed accent) set aside, for finding the held sector a limit meant."""
+    return "".join(unicodedata.normalize("NFKC", name).split()).casefold()
+
+
 def check_sector_limit_names(limits: LimitsSection | None, holdings: Holdings, where: str,
                              coll: Collector) -> None:
     """Each sector that ``max_sector_weight`` of ``limits`` names must be one a holding of
     ``holdings`` belongs to, written exactly as the holdings file writes it (a limit is
     applied to the sector of that exact name). A name that matches a held sector but for
-    case or spaces is an error: its limit would be applied to a weight of 0 and the sector
-    itself judged only under "*". A name that matches nothing is a warning: a sector not
-    held today weighs 0. ``where``: the table's place in pack.toml, for the messages."""
+    case, spaces or Unicode form (NFKC) is an error: its limit would be applied to a weight
+    of 0 and the sector itself judged only under "*". An empty name is an error. A name
+    that matches nothing is a warning: a sector not held today weighs 0. ``where``: the
+    table's place in pack.toml, for the messages."""
     table = limits.max_sector_weight if limits is not None else None
     if not isinstance(table, dict):
         return
     held = sorted({str(s) for s in holdings.frame["sector"].dropna()})
-    folded = {" ".join(s.split()).casefold(): s for s in held}
+    folded = {_folded(s): s for s in held}
     for name in sorted(table):
         if name == OTHER_SECTORS or name in held:
             continue
-        near = folded.get(" ".join(name.split()).casefold())
+        if not name.strip():
+            coll.error(f"{where}.{name!r}", "a sector name that is empty or only spaces "
+                       "names no sector; write the sector as the holdings file does")
+            continue
+        near = folded.get(_folded(name))
         if near is not None:
             coll.error(f"{where}.{name}", f"no holding's sector is {name!r}, but {near!r} is "
                        "(sector names must match exactly); write it as the holdings file does")
