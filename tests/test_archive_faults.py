@@ -178,3 +178,24 @@ def test_archived_file_is_never_overwritten(tmp_path):
     (archive / "ledger.sqlite").write_bytes(b"")
     assert main(["build", str(REPO / "inputs/demo"), "--out", str(archive / "x"),
                  "--quiet"]) == 2
+
+
+def test_a_second_repair_in_the_same_second_takes_its_own_quarantine_folder(tmp_path):
+    # two repairs within one second named the same quarantine/<stamp>/ folder, and the
+    # second refused to overwrite the first's file (safe, but the stray file stayed put)
+    from reporter.archive.verify import _free_stamp
+
+    stamp = "20261204T065944Z"
+    assert _free_stamp(tmp_path, stamp) == stamp
+    (tmp_path / "quarantine" / stamp).mkdir(parents=True)
+    assert _free_stamp(tmp_path, stamp) == f"{stamp}-2"
+    (tmp_path / "quarantine" / f"{stamp}-2").mkdir()
+    assert _free_stamp(tmp_path, stamp) == f"{stamp}-3"
+
+
+def test_an_archive_path_with_a_line_break_is_one_line(tmp_path, capsys):
+    folder = tmp_path / "bad\narch"
+    folder.mkdir()
+    assert main(["verify", "--archive", str(folder)]) == 2
+    err = capsys.readouterr().err
+    assert len(err.splitlines()) == 1 and "bad\\narch" in err

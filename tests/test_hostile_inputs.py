@@ -603,3 +603,60 @@ def test_a_sector_limit_naming_no_held_sector_is_a_warning(tmp_path, capsys):
     assert ("pack.toml:limits.max_sector_weight.Enrgy: warning: no holding belongs to the "
             "sector 'Enrgy', so its limit applies to a weight of 0; check the name against "
             "the holdings file's sectors") in capsys.readouterr().err.splitlines()
+
+
+@pytest.mark.parametrize(("text", "line"), [
+    # the short form's empty path was an internal error (pydantic's), exit 1
+    ('holdings = ""', "pack.toml:inputs.holdings: the path is empty; name a file in the "
+     "pack folder"),
+    # a NUL byte was "internal error: ValueError: embedded null byte"
+    ('holdings = "holdings.csv\\u0000"', "pack.toml:inputs.holdings: path "
+     "'holdings.csv\\x00' holds a control character"),
+])
+def test_an_empty_or_nul_holding_input_path_is_one_line(tmp_path, capsys, text, line):
+    pack = _pack(tmp_path)
+    toml = pack / "pack.toml"
+    toml.write_text(toml.read_text().replace('holdings = "holdings.csv"', text, 1))
+    assert _refused(pack, tmp_path, capsys) == [line]
+
+
+@pytest.mark.parametrize(("body", "line"), [
+    # tomllib reads nesting by recursion: thousands deep was "internal error: RecursionError"
+    ("a = " + "[" * 3000 + "]" * 3000, "pack.toml: not a pack's settings: its arrays or "
+     "tables are nested too deeply to read"),
+    ("a = " + "{x = " * 3000 + "1" + "}" * 3000, "pack.toml: not a pack's settings: its "
+     "arrays or tables are nested too deeply to read"),
+])
+def test_a_pack_toml_nested_too_deeply_is_one_line(tmp_path, capsys, body, line):
+    pack = _pack(tmp_path)
+    (pack / "pack.toml").write_text(body + "\n")
+    assert _refused(pack, tmp_path, capsys) == [line]
+
+
+def test_a_byte_order_mark_in_pack_toml_is_named(tmp_path, capsys):
+    pack = _pack(tmp_path)
+    toml = pack / "pack.toml"
+    toml.write_bytes(b"\xef\xbb\xbf" + toml.read_bytes())
+    (line,) = _refused(pack, tmp_path, capsys)
+    assert line.endswith("(the file starts with a byte-order mark: save it as UTF-8 without "
+                         "one)")
+
+
+def test_problems_naming_control_characters_stay_one_line(tmp_path, capsys):
+    # a sector key holding a line break was printed raw in the problem's place, splitting
+    # it over two lines; a tab and a terminal escape went out raw too
+    pack = _pack(tmp_path)
+    toml = pack / "pack.toml"
+    toml.write_text(toml.read_text().replace(
+        "Energy = 0.12", 'Energy = 0.12, "Fin\\nancials" = 0.1, "a\\u001b[31mb" = 0.1'))
+    assert main(["check", str(pack)]) == 2        # "Fin\nancials" is Financials spaced out
+    err = capsys.readouterr().err
+    assert "\x1b" not in err
+    lines = [ln for ln in err.splitlines() if "max_sector_weight" in ln]
+    assert [ln.split(": ")[0] for ln in lines] == [
+        "pack.toml:limits.max_sector_weight.Fin\\nancials",
+        "pack.toml:limits.max_sector_weight.a\\x1b[31mb"]
+    from reporter.errors import one_line
+
+    assert one_line("ok as it is") == "ok as it is"
+    assert one_line("a\tb\u202ec") == "a\\tb\\u202ec"

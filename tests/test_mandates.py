@@ -658,3 +658,20 @@ def test_demo_fund_signs_off(demo_fund_build, tmp_path):
     rolling = page[page.index('id="rolling-caption"'):]
     rolling = rolling[: rolling.index("</table>")]
     assert rolling.count("<tr><td data-value=") == n_windows
+
+
+def test_a_mandate_name_holding_a_line_break_is_one_error(tmp_path, capsys):
+    # it had been accepted, and every holdings row of that mandate was then refused as
+    # "not declared", the name shown with its line break escaped
+    import shutil
+
+    pack = tmp_path / "fund"
+    shutil.copytree(REPO / "inputs" / "demo-fund", pack)
+    toml = pack / "pack.toml"
+    toml.write_text(toml.read_text().replace('name = "Domestic equity"',
+                                             'name = "Domestic\\nequity"', 1))
+    assert main(["check", str(pack)]) == 2
+    err = capsys.readouterr().err.splitlines()
+    assert err[0] == ("pack.toml:mandates.0.name: mandate name 'Domestic\\nequity' holds a "
+                      "control character; write it on one line")
+    assert len(err) == 2          # and the summary: no row of the holdings is blamed for it

@@ -280,7 +280,7 @@ def repair(archive: Path | str) -> RepairReport:
     load_entries(archive)                      # unreadable -> ArchiveUnreadable
     with ledger_transaction(archive, commit=False):     # the write lock alone is wanted
         report = verify_archive(archive)
-        stamp = dt.datetime.now(dt.UTC).strftime("%Y%m%dT%H%M%SZ")
+        stamp = _free_stamp(archive, dt.datetime.now(dt.UTC).strftime("%Y%m%dT%H%M%SZ"))
         orphans = [f.where for f in report.findings if f.kind == "unrecorded"]
         _, staging = archive_files(archive)
         orphans += [s for s in staging if not _staging_alive(s)]
@@ -288,6 +288,16 @@ def repair(archive: Path | str) -> RepairReport:
         _remove_empty_folders(archive, [m[0] for m in moved])
     unresolved = [f for f in report.findings if f.kind != "unrecorded"]
     return RepairReport(moved, unresolved)
+
+
+def _free_stamp(archive: Path, stamp: str) -> str:
+    """``stamp``, or ``stamp-2``, ``stamp-3``... if a repair in the same second has made
+    that quarantine folder already (the write lock keeps two repairs from racing here)."""
+    base, n = stamp, 1
+    while (archive / QUARANTINE_DIR / stamp).exists():
+        n += 1
+        stamp = f"{base}-{n}"
+    return stamp
 
 
 def _staging_alive(rel: str) -> bool:

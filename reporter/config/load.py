@@ -45,7 +45,12 @@ def load_settings(pack: Path | str) -> Settings:
     except UnicodeDecodeError as exc:
         raise InputError([Problem(fname, f"not UTF-8 text ({exc.reason})")]) from None
     except tomllib.TOMLDecodeError as exc:
-        raise InputError([Problem(fname, f"not valid TOML: {exc}")]) from None
+        hint = (" (the file starts with a byte-order mark: save it as UTF-8 without one)"
+                if config_path.read_bytes().startswith(b"\xef\xbb\xbf") else "")
+        raise InputError([Problem(fname, f"not valid TOML: {exc}{hint}")]) from None
+    except RecursionError:          # arrays or tables nested thousands deep
+        raise InputError([Problem(fname, "not a pack's settings: its arrays or tables are "
+                                  "nested too deeply to read")]) from None
     if hidden := toml_problems(raw, fname):
         raise InputError(hidden)
     try:
@@ -76,6 +81,10 @@ def load_settings(pack: Path | str) -> Settings:
         problems.append(Problem(f"{fname}:inputs.holdings", "required key is missing"))
 
     def add_input(role: str, entry: str | InputFile, key: str) -> None:
+        if not isinstance(entry, InputFile) and not entry.strip():   # (InputFile refuses it)
+            problems.append(Problem(f"{fname}:{key}", "the path is empty; name a file in "
+                                    "the pack folder"))
+            return
         spec = entry if isinstance(entry, InputFile) else InputFile(path=entry)
         where = key + (".path" if isinstance(entry, InputFile) else "")
         path = guarded_path(pack_dir, spec.path, f"{fname}:{where}", problems, must_exist=True)

@@ -48,6 +48,9 @@ def resolve_mandates(model: PackFile, fname: str, add_input, problems: list[Prob
         if name.casefold() == TOTAL_FUND.casefold():
             problems.append(Problem(f"{fname}:{key}.name", f"{TOTAL_FUND!r} is reserved for "
                                     "the whole fund; choose another name"))
+        if not name.isprintable():      # a line break or tab: the holdings could not match it
+            problems.append(Problem(f"{fname}:{key}.name", f"mandate name {name!r} holds a "
+                                    "control character; write it on one line"))
         if m.range is not None:
             lo, hi = m.range
             if not lo <= m.strategic_weight <= hi:

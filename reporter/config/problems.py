@@ -122,7 +122,14 @@ def date_format_problem(fmt: str) -> str | None:
 
 def guarded_path(base: Path, rel: str, where: str, problems: list[Problem], *,
                   must_exist: bool, want_dir: bool = False) -> Path | None:
-    """Resolve ``rel`` against ``base``; refuse a path that leaves ``base``."""
+    """Resolve ``rel`` against ``base``; refuse a path that is empty, holds a control
+    character (a NUL byte no file system takes), or leaves ``base``."""
+    if not rel.strip():
+        problems.append(Problem(where, "the path is empty; name a file in the pack folder"))
+        return None
+    if not rel.isprintable():
+        problems.append(Problem(where, f"path {rel!r} holds a control character"))
+        return None
     candidate = Path(rel)
     if candidate.is_absolute():
         problems.append(Problem(where, f"path {rel!r} must be relative to the pack folder"))
@@ -136,6 +143,7 @@ def guarded_path(base: Path, rel: str, where: str, problems: list[Problem], *,
             problems.append(Problem(where, f"folder {rel!r} does not exist"))
             return None
         if not want_dir and not resolved.is_file():
-            problems.append(Problem(where, f"file {rel!r} does not exist"))
+            problems.append(Problem(where, f"file {rel!r} does not exist" + (
+                " (it is a folder)" if resolved.is_dir() else "")))
             return None
     return resolved
