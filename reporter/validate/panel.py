@@ -41,7 +41,11 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
                    "1.2%")
     held = set(holdings.ids) if holdings is not None else set(ids)
     unheld = [s for s in ids if s not in held]
-    if unheld and holdings is not None:
+    # a holding without an id (null or blank: an error of the holdings file already) is
+    # likely the one these returns belong to: no second line about them
+    named = (np.array([isinstance(s, str) and s != "" for s in holdings.ids], dtype=bool)
+             if holdings is not None else np.ones(0, dtype=bool))
+    if unheld and holdings is not None and named.all():
         coll.warn(raw.name, f"{len(unheld)} security id(s) have returns but are not held, "
                   "ignored: " + ", ".join(unheld[:8]) + (" ..." if len(unheld) > 8 else ""))
     if holdings is None:
@@ -65,9 +69,8 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
         return (proxy.lower() in PROXY_SERIES
                 or (j is not None and bool(have[j] or holdings.cash[j])))
 
-    # a holding without an id (null or blank: an error of the holdings file already) has
-    # no history to look for; it read "holding nan has no return history"
-    named = np.array([isinstance(s, str) and s != "" for s in holdings.ids], dtype=bool)
+    # a holding without an id has no history to look for either; it read "holding nan has
+    # no return history"
     for k in np.flatnonzero(~have & ~holdings.cash & named):    # cash earns the risk-free rate
         if isinstance(holdings_raw, HoldingRows):       # a fund's holdings, from mandates
             where = holdings_raw.place(int(k))
