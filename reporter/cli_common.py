@@ -52,9 +52,11 @@ def guarded(fn, debug: bool):
             click.echo(one_line(str(p)), err=True)
         if len(problems) > MAX_LINES:
             click.echo(f"... and {len(problems) - MAX_LINES} more problems", err=True)
-        n_warn = len(problems) - len(errors)
+        # a capped line ("... and 51 more empty values") counts the problems it stands for
+        n_errors = sum(p.count for p in errors)
+        n_warn = sum(p.count for p in problems) - n_errors
         if errors:
-            summary = f"{len(errors)} error(s) in the inputs"
+            summary = f"{n_errors} error(s) in the inputs"
         else:
             summary = f"{n_warn} warning(s) treated as errors (--strict)"
         click.echo(f"reporter: {summary}; nothing was written", err=True)

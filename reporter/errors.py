@@ -25,6 +25,7 @@ class Problem:
     where: str
     message: str
     severity: str = "error"  # "error" | "warning"
+    count: int = 1           # problems this line stands for ("... and 51 more ...": 51)
 
     def __str__(self) -> str:
         tag = "" if self.severity == "error" else "warning: "
@@ -96,11 +97,11 @@ class Collector:
     def __init__(self) -> None:
         self.problems: list[Problem] = []
 
-    def error(self, where: str, message: str) -> None:
-        self.problems.append(Problem(where, message, "error"))
+    def error(self, where: str, message: str, count: int = 1) -> None:
+        self.problems.append(Problem(where, message, "error", count))
 
-    def warn(self, where: str, message: str) -> None:
-        self.problems.append(Problem(where, message, "warning"))
+    def warn(self, where: str, message: str, count: int = 1) -> None:
+        self.problems.append(Problem(where, message, "warning", count))
 
     @property
     def errors(self) -> list[Problem]:

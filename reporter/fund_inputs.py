@@ -119,7 +119,7 @@ def _mandate_holdings(settings: Settings, raws: dict[str, RawTable], coll: Colle
             for p in sub.problems:          # name the mandate in each error
                 (coll.error if p.severity == "error" else coll.warn)(
                     p.where, p.message + (f" (mandate {m.name!r})"
-                                          if p.severity == "error" else ""))
+                                          if p.severity == "error" else ""), p.count)
             if h is not None:
                 out[m.index] = h
         return out, tables

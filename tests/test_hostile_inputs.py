@@ -657,3 +657,15 @@ def test_problems_naming_control_characters_stay_one_line(tmp_path, capsys):
 
     assert one_line("ok as it is") == "ok as it is"
     assert one_line("a\tb\u202ec") == "a\\tb\\u202ec"
+
+
+def test_the_summary_counts_the_problems_a_capped_line_stands_for(tmp_path, capsys):
+    # ten lines and "... and 51 more empty values" had been summed up as "11 error(s)"
+    pack = _pack(tmp_path)
+    h = pd.read_csv(pack / "holdings.csv", dtype=str)
+    h["security_id"] = ""
+    h.to_csv(pack / "holdings.csv", index=False)
+    assert main(["check", str(pack)]) == 2
+    err = capsys.readouterr().err.splitlines()
+    assert err[-2] == ("holdings.csv: ... and 51 more empty values in column security_id")
+    assert err[-1] == f"{SUMMARY}{len(h)} error(s) in the inputs; nothing was written"

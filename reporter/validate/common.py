@@ -43,7 +43,7 @@ class _Capped:
         rest = self.count - MAX_PER_CHECK
         if rest > 0:
             msg = f"... and {rest} more {self.summary}"
-            (self.coll.warn if self.warning else self.coll.error)(self._last_file, msg)
+            (self.coll.warn if self.warning else self.coll.error)(self._last_file, msg, rest)
 
 
 def _require_columns(raw: RawTable, required: tuple[str, ...], optional: tuple[str, ...],
