@@ -675,3 +675,16 @@ def test_a_mandate_name_holding_a_line_break_is_one_error(tmp_path, capsys):
     assert err[0] == ("pack.toml:mandates.0.name: mandate name 'Domestic\\nequity' holds a "
                       "control character; write it on one line")
     assert len(err) == 2          # and the summary: no row of the holdings is blamed for it
+
+
+def test_a_reversed_rebalancing_range_is_named_as_such(tmp_path, capsys):
+    # [0.40, 0.30] was reported as "does not contain the strategic weight"
+    import shutil
+
+    pack = tmp_path / "fund"
+    shutil.copytree(REPO / "inputs" / "demo-fund", pack)
+    toml = pack / "pack.toml"
+    toml.write_text(toml.read_text().replace("range = [0.30, 0.40]", "range = [0.40, 0.30]", 1))
+    assert main(["check", str(pack)]) == 2
+    assert capsys.readouterr().err.splitlines()[0] == (
+        "pack.toml:mandates.0.range: the range [0.4, 0.3] is reversed: write the low end first")

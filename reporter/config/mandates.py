@@ -53,7 +53,10 @@ def resolve_mandates(model: PackFile, fname: str, add_input, problems: list[Prob
                                     "control character; write it on one line"))
         if m.range is not None:
             lo, hi = m.range
-            if not lo <= m.strategic_weight <= hi:
+            if lo > hi:
+                problems.append(Problem(f"{fname}:{key}.range", f"the range [{lo:g}, {hi:g}] "
+                                        "is reversed: write the low end first"))
+            elif not lo <= m.strategic_weight <= hi:
                 problems.append(Problem(f"{fname}:{key}.range", f"the range [{lo:g}, {hi:g}] "
                                         "does not contain the strategic weight "
                                         f"{m.strategic_weight:g}"))
