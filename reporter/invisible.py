@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import unicodedata
 
-from reporter.errors import Problem
+from reporter.errors import Problem, one_line
 
 
 def format_characters(text: str) -> list[str]:
@@ -44,6 +44,10 @@ def toml_problems(raw, fname: str, key: str = "") -> list[Problem]:
             if found := format_characters(str(k)):
                 problems.append(Problem(f"{fname}:{here}", "invisible control character in "
                                         f"a key: {', '.join(found)}"))
+            elif controls := [c for c in str(k) if unicodedata.category(c) == "Cc"]:
+                # a line break or tab in a key (a sector's name, say) names nothing in a file
+                problems.append(Problem(f"{fname}:{here}", "control character in a key: "
+                                        + one_line("".join(dict.fromkeys(controls)))))
             problems += toml_problems(v, fname, here)
     elif isinstance(raw, list):
         for i, v in enumerate(raw):

@@ -33,3 +33,15 @@ def test_ordinary_accents_and_symbols_are_fine():
     assert [str(p) for p in toml_problems(
         {"mandates": [{"name": "ok"}, {"name": "a\u202eb"}]}, "pack.toml")] == [
         "pack.toml:mandates.1.name: invisible control character U+202E"]
+
+
+def test_a_control_character_in_a_key_is_an_error_naming_it_escaped():
+    # a tab or line break in a [limits] sector key named no sector and was only a warning
+    # ("no holding belongs to the sector 'a\tb'"); a line break in a value stays allowed
+    from reporter.invisible import toml_problems
+
+    raw = {"limits": {"max_sector_weight": {"a\tb": 0.1, "Fin\nancials": 0.1, "ok": 0.1}},
+           "pack": {"title": "two\nlines"}}
+    assert [str(p) for p in toml_problems(raw, "pack.toml")] == [
+        "pack.toml:limits.max_sector_weight.a\tb: control character in a key: \\t",
+        "pack.toml:limits.max_sector_weight.Fin\nancials: control character in a key: \\n"]
