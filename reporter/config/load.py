@@ -81,15 +81,14 @@ def load_settings(pack: Path | str) -> Settings:
         problems.append(Problem(f"{fname}:inputs.holdings", "required key is missing"))
 
     def add_input(role: str, entry: str | InputFile, key: str) -> None:
-        if not isinstance(entry, InputFile) and not entry.strip():   # (InputFile refuses it)
-            problems.append(Problem(f"{fname}:{key}", "the path is empty; name a file in "
-                                    "the pack folder"))
-            return
-        spec = entry if isinstance(entry, InputFile) else InputFile(path=entry)
         where = key + (".path" if isinstance(entry, InputFile) else "")
-        path = guarded_path(pack_dir, spec.path, f"{fname}:{where}", problems, must_exist=True)
+        text = entry.path if isinstance(entry, InputFile) else entry
+        # the path is checked (an empty one refused) before the short form is made an
+        # InputFile, whose own refusal of an empty path would not be a problem of the pack
+        path = guarded_path(pack_dir, text, f"{fname}:{where}", problems, must_exist=True)
         if path is None:
             return
+        spec = entry if isinstance(entry, InputFile) else InputFile(path=entry)
         inputs[role] = InputSpec(
             role=role,
             path=path,

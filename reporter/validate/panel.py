@@ -39,17 +39,16 @@ def _finish_panel(raw, matrix, keys, ids, holdings, settings, coll, shape, where
                     f"{limit})")
         coll.error(where_of(flagged[0]), f"returns for {what}; give decimals, e.g. 0.012 for "
                    "1.2%")
-    held = set(holdings.ids) if holdings is not None else set(ids)
+    if holdings is None:
+        return None
+    held = set(holdings.ids)
     unheld = [s for s in ids if s not in held]
     # a holding without an id (null or blank: an error of the holdings file already) is
     # likely the one these returns belong to: no second line about them
-    named = (np.array([isinstance(s, str) and s != "" for s in holdings.ids], dtype=bool)
-             if holdings is not None else np.ones(0, dtype=bool))
-    if unheld and holdings is not None and named.all():
+    named = np.array([isinstance(s, str) and s != "" for s in holdings.ids], dtype=bool)
+    if unheld and named.all():
         coll.warn(raw.name, f"{len(unheld)} security id(s) have returns but are not held, "
                   "ignored: " + ", ".join(unheld[:8]) + (" ..." if len(unheld) > 8 else ""))
-    if holdings is None:
-        return None
     col_of = {s: j for j, s in enumerate(ids)}
     source = pd.Index(ids).get_indexer(list(holdings.ids))     # -1 where not in the file
     have = source >= 0
