@@ -13,7 +13,7 @@ DEMO_PERIODS := 2026-09-30 2026-10-31
 DEMO_KEY_PASS := demo-only-not-secret
 SIGNER := --by "Ruth Okafor" --role "Chair of the investment committee"
 
-.PHONY: demo test lint lock demo-data bad-cases golden bench clean browser
+.PHONY: demo test lint lock demo-data bad-cases golden bench clean browser pdf-libs
 
 # Installs come from requirements.lock: exact versions with their hashes, build tools
 # included, so a fresh machine gets what the tests last passed with. `make lock` refreshes it.
@@ -39,7 +39,7 @@ lock:
 # The demo pack, then a demo archive of three signed periods (the demo pack re-dated to
 # the two month-ends before it) made from scratch in a fresh $(DEMO_RUN) each time (build/
 # is scratch: no real archive lives there), and the trustees' site built from it into site/.
-demo: $(STAMP)
+demo: $(STAMP) pdf-libs
 	$(BIN)/reporter build inputs/demo --out build/demo
 	$(BIN)/reporter build inputs/demo-fund --out build/demo-fund
 	rm -rf $(DEMO_RUN) && mkdir -p $(DEMO_RUN)
@@ -82,6 +82,17 @@ browser:
 	@command -v chromium >/dev/null && command -v pdftoppm >/dev/null || \
 	  (apt-get update && DEBIAN_FRONTEND=noninteractive apt-get install -y chromium poppler-utils)
 
+# WeasyPrint subsets the fonts it embeds with HarfBuzz's subsetter when the system has it
+# (Debian's libharfbuzz-subset0), and otherwise falls back to fontTools in Python, with a
+# DeprecationWarning: the demo's full PDF took 6.1-6.7 s of CPU that way, 4.9-5.4 s with it
+# (three renders each), and the fallback's PDFs differed by a few bytes from run to run.
+# A fresh Debian machine may lack it; installed as root with apt-get, as above. Without root
+# the build still works, more slowly, and this says so.
+pdf-libs:
+	@{ ldconfig -p 2>/dev/null || /sbin/ldconfig -p; } | grep -q 'libharfbuzz-subset\.so' || \
+	  (apt-get update && DEBIAN_FRONTEND=noninteractive apt-get install -y libharfbuzz-subset0) || \
+	  echo "note: libharfbuzz-subset0 is missing (installing it needs root): PDFs are slower"
+
 # axe-core (accessibility checks run inside the page) from the npm registry, into build/.
 $(AXE):
 	command -v npm >/dev/null || (apt-get update && DEBIAN_FRONTEND=noninteractive apt-get install -y npm)
@@ -89,7 +100,7 @@ $(AXE):
 	npm install --prefix build/npm --no-save --no-audit --no-fund --loglevel=error \
 	  axe-core@$(AXE_VERSION)
 
-test: $(STAMP) browser $(AXE)
+test: $(STAMP) pdf-libs browser $(AXE)
 	$(BIN)/ruff check reporter tests
 	$(BIN)/python -m pytest
 

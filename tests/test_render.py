@@ -112,14 +112,29 @@ def test_every_chart_matches_the_vega_lite_schema():
 
 def test_held_objects_frozen_keeps_held_objects_from_the_collector_and_restores():
     """While WeasyPrint renders, the objects held on entry are frozen (the collector skips
-    them); on exit none is, and an outer freeze of the caller's is left as it was."""
+    them); garbage on entry is collected first, not frozen; on exit none is frozen, and an
+    outer freeze of the caller's is left as it was."""
     import gc
+    import weakref
 
     from reporter.render.pdf import held_objects_frozen
 
     held = [[i] for i in range(1000)]          # tracked objects that exist on entry
     assert gc.get_freeze_count() == 0
+    class Box:
+        pass
+
+    gc.disable()                                # no automatic collection in between
+    try:
+        box = Box()
+        box.me = box                            # garbage on entry: a cycle no one holds
+        gone = weakref.ref(box)
+        del box
+        assert gone() is not None
+    finally:
+        gc.enable()
     with held_objects_frozen():
+        assert gone() is None                   # collected first, not frozen for the render
         frozen = gc.get_freeze_count()
         assert frozen >= len(held)
         made = [[i] for i in range(10)]
