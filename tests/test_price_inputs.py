@@ -115,6 +115,36 @@ def test_custodian_numbers(tmp_path, capsys):
     assert panel.iloc[1][rows[5][1]] == -0.0123 and panel.iloc[1][rows[6][1]] == -0.015
 
 
+def test_a_thousands_separator_that_does_not_group_in_threes_is_refused(tmp_path, capsys):
+    """With thousands = ",", a separator is dropped only where it groups the whole part in
+    threes. "1155087,64" (a decimal comma) had become 115,508,764, a weight 100 x too large,
+    and "0,012" a return of 12, with no message; each is now refused at its cell."""
+    from tests.data.bad_pack import write_pack
+    from tests.data.make_bad_cases import make_case
+
+    pack = make_case("thousands_without_setting")
+    pack.toml["inputs"]["thousands"] = '","'
+    holdings = pack.rows("holdings.csv")
+    holdings[0][-1] = '"4000000,25"'                               # line 2: a decimal comma
+    holdings[1][-1] = '"3,0,0,0000.00"'                            # line 3: groups not threes
+    returns = pack.rows("returns.csv")
+    returns[5][2] = '"0,012"'                                      # line 7: a leading 0 group
+    write_pack(pack, tmp_path)
+    assert main(["check", str(tmp_path)]) == 2
+    err = capsys.readouterr().err
+    why = '; the thousands separator "," must group the digits before the decimal mark "." ' \
+          'in threes (1,234,567.8)'
+    for line in ("holdings.csv:2:market_value: not a number: '4000000,25'",
+                 "holdings.csv:3:market_value: not a number: '3,0,0,0000.00'",
+                 "returns.csv:7:return: not a number: '0,012'"):
+        assert line + why in err.splitlines(), err
+    # grouped in threes, in brackets or with a sign and an exponent: still read
+    holdings[0][-1], holdings[1][-1] = '"4,000,000.25"', '"+3,000,000e0"'
+    returns[5][2] = '"(0.012)"'
+    write_pack(pack, tmp_path)
+    assert main(["check", str(tmp_path)]) == 0, capsys.readouterr().err
+
+
 @pytest.mark.parametrize(("text", "decimal", "thousands", "hint"), [
     ("6,931,283.20", ".", None, '; it has thousands separators: set thousands = ","'),
     ("6.931.283,20", ".", None, '; it has thousands separators: set thousands = "." and '
@@ -123,6 +153,10 @@ def test_custodian_numbers(tmp_path, capsys):
     ("1 234", ".", None, '; it has thousands separators: set thousands = " "'),
     ("12.5%", ".", None, ""),
     ("#N/A", ".", None, ""),
+    ("1155087,64", ".", ",", '; the thousands separator "," must group the digits before the '
+                             'decimal mark "." in threes (1,234,567.8)'),
+    ("1155087.64", ",", ".", '; the thousands separator "." must group the digits before the '
+                             'decimal mark "," in threes (1.234.567,8)'),
 ])
 def test_separator_hint(text, decimal, thousands, hint):
     assert separator_hint(text, decimal, thousands) == hint

@@ -161,7 +161,15 @@ def _parse_numbers(stripped: pa.ChunkedArray, decimal: str, thousands: str | Non
     """Trimmed number texts as float64, NaN where a text is empty or not a number."""
     num = stripped
     if thousands:
-        num = pc.replace_substring(num, thousands, "")
+        # a separator only where it groups the whole part in threes: "1155087,64" with
+        # thousands = "," is not 115,508,764 but a number written with another decimal
+        # mark, and "0,012" not 12 (the text is refused, and the hint says why)
+        misplaced = pc.and_(
+            pc.fill_null(pc.match_substring(num, thousands), False),
+            pc.invert(pc.fill_null(pc.match_substring_regex(
+                num, grouped_pattern(thousands, decimal)), False)))
+        num = pc.if_else(misplaced, pa.scalar("not a number"),
+                         pc.replace_substring(num, thousands, ""))
     num = pc.replace_substring_regex(num, r"^\((.*)\)$", r"-\1")     # (12.5) -> -12.5
     if decimal == ",":
         num = pc.replace_substring(num, ",", ".")
@@ -177,9 +185,23 @@ _GROUPED = re.compile(r"^\(?[+-]?\d{1,3}(?P<sep>[,.' ])\d{3}(?:(?P=sep)\d{3})*"
                       r"(?:(?P<dec>[.,])\d+)?\)?$")
 
 
+def grouped_pattern(thousands: str, decimal: str) -> str:
+    """A number whose whole part is grouped in threes by ``thousands`` (the first group one
+    to three digits, not starting with 0), optionally with a fraction after ``decimal``, an
+    exponent, a sign, or in accounting brackets: the only texts in which a thousands
+    separator is taken (and dropped)."""
+    sep, dec = re.escape(thousands), re.escape(decimal)
+    return (rf"^\(?[+-]?[1-9]\d{{0,2}}(?:{sep}\d{{3}})+(?:{dec}\d*)?(?:[eE][+-]?\d+)?\)?$")
+
+
 def separator_hint(text: str | None, decimal: str, thousands: str | None) -> str:
     """``; ... set thousands = ","`` when ``text`` reads as a number with a thousands
-    separator (and a decimal mark other than ``decimal``), else ''."""
+    separator (and a decimal mark other than ``decimal``); why a separator set is refused
+    where it does not group the digits in threes; else ''."""
+    if thousands and thousands in (text or "") and not re.match(
+            grouped_pattern(thousands, decimal), (text or "").strip()):
+        return (f'; the thousands separator "{thousands}" must group the digits before the '
+                f'decimal mark "{decimal}" in threes (1{thousands}234{thousands}567{decimal}8)')
     m = _GROUPED.match((text or "").strip())
     if m is None or m.group("sep") == m.group("dec"):
         return ""
