@@ -153,6 +153,10 @@ def test_a_thousands_separator_that_does_not_group_in_threes_is_refused(tmp_path
     ("1 234", ".", None, '; it has thousands separators: set thousands = " "'),
     ("12.5%", ".", None, ""),
     ("#N/A", ".", None, ""),
+    ("０.００１", ".", None, "; its digits are not the digits 0-9 (full-width or another "
+                         "script's)"),           # had been told to set thousands = "."
+    ("٠.٠٠١", ".", None, "; its digits are not the digits 0-9 (full-width or another "
+                       "script's)"),
     ("1155087,64", ".", ",", '; the thousands separator "," must group the digits before the '
                              'decimal mark "." in threes (1,234,567.8)'),
     ("1155087.64", ",", ".", '; the thousands separator "." must group the digits before the '

@@ -182,7 +182,7 @@ def _parse_numbers(stripped: pa.ChunkedArray, decimal: str, thousands: str | Non
 
 
 _GROUPED = re.compile(r"^\(?[+-]?\d{1,3}(?P<sep>[,.' ])\d{3}(?:(?P=sep)\d{3})*"
-                      r"(?:(?P<dec>[.,])\d+)?\)?$")
+                      r"(?:(?P<dec>[.,])\d+)?\)?$", re.ASCII)   # digits 0-9 only, as read
 
 
 def grouped_pattern(thousands: str, decimal: str) -> str:
@@ -198,8 +198,10 @@ def separator_hint(text: str | None, decimal: str, thousands: str | None) -> str
     """``; ... set thousands = ","`` when ``text`` reads as a number with a thousands
     separator (and a decimal mark other than ``decimal``); why a separator set is refused
     where it does not group the digits in threes; else ''."""
+    if any(ch.isdigit() and not ch.isascii() for ch in text or ""):
+        return "; its digits are not the digits 0-9 (full-width or another script's)"
     if thousands and thousands in (text or "") and not re.match(
-            grouped_pattern(thousands, decimal), (text or "").strip()):
+            grouped_pattern(thousands, decimal), (text or "").strip(), re.ASCII):
         return (f'; the thousands separator "{thousands}" must group the digits before the '
                 f'decimal mark "{decimal}" in threes (1{thousands}234{thousands}567{decimal}8)')
     m = _GROUPED.match((text or "").strip())
