@@ -24,7 +24,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from reporter.errors import InputError, Problem, place
-from reporter.invisible import invisible_message
+from reporter.invisible import invisible_message, long_word_message
 from reporter.validate.text import visible
 
 FILE = "actions.csv"
@@ -120,7 +120,7 @@ def parse_actions(text: str, period_end: dt.date) -> tuple[Action, ...]:
         cell = {h: cells[i].strip() for h, i in index.items()}
         before = len(problems)
         for col in header:
-            if found := invisible_message(cell[col]):
+            if found := invisible_message(cell[col]) or long_word_message(cell[col]):
                 problems.append(Problem(place(FILE, n, col), found))
         for col in REQUIRED:
             if not cell[col]:

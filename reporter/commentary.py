@@ -38,7 +38,7 @@ from mdit_py_plugins.front_matter import front_matter_plugin
 
 from reporter.context import SECTIONS
 from reporter.errors import InputError, Problem
-from reporter.invisible import invisible_message
+from reporter.invisible import invisible_message, long_word_message
 
 FOLDER = "commentary"
 # section anchor -> file name; the cautions are the tool's own and take no commentary
@@ -149,6 +149,11 @@ def _one(section: str, rel: str, text: str, base: Path, pack_dir: Path,
                 _check_image(child.attrGet("src") or "", rel, cline, base, pack_dir, problems)
             elif child.type == "link_open":
                 _check_link(child.attrGet("href") or "", rel, cline, problems)
+            elif child.type in ("text", "code_inline"):
+                _check_words(child.content, rel, cline, problems)
+        if tok.type in ("fence", "code_block"):
+            _check_words(tok.content, rel, line + 1 if tok.type == "fence" else line,
+                         problems)
     if len(problems) > before or meta is None:
         return None
     # 2. render with raw HTML off; images become data: URLs, headings move down
@@ -182,6 +187,15 @@ def _children_with_lines(tok):
             line += 1
         elif child.content and child.type in ("text", "code_inline", "html_inline"):
             line += child.content.count("\n")
+
+
+def _check_words(text: str, rel: str, line: int | None, problems: list[Problem]) -> None:
+    """A word of printed text (inline text, code, a code block: not a link's target) longer
+    than :data:`~reporter.invisible.LONGEST_WORD` characters, named by its line."""
+    for n, part in enumerate(text.split("\n")):
+        if found := long_word_message(part):
+            problems.append(Problem(f"{rel}:{line + n}" if line is not None else rel, found))
+            return
 
 
 def _snippet(s: str) -> str:

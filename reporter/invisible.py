@@ -8,6 +8,7 @@ its bytes."""
 
 from __future__ import annotations
 
+import re
 import unicodedata
 
 from reporter.errors import Problem, one_line
@@ -23,6 +24,25 @@ def has_control(text: str) -> bool:
     DEL, and the C1 range U+0080-U+009F, whose NEL U+0085 some readers take as a line
     break)."""
     return any(unicodedata.category(c) == "Cc" for c in text)
+
+
+# the longest run of printed text without a space that commentary and actions.csv may hold:
+# the PDF breaks such a word anywhere to keep it on the page, and the cost of finding those
+# breaks grows with the square of its length (a paragraph of one 4,000-character word took
+# 0.33 s to lay out, of 2,000 0.10 s; a 50,000-character word held a build for minutes)
+LONGEST_WORD = 300
+_LONG_WORD = re.compile(rf"\S{{{LONGEST_WORD + 1},}}")
+
+
+def long_word_message(text: str) -> str | None:
+    """``a word of 50,000 characters with no space ...`` for the first run of ``text`` longer
+    than :data:`LONGEST_WORD` characters, or None."""
+    found = _LONG_WORD.search(text)
+    if found is None:
+        return None
+    word = found.group()
+    return (f"a word of {len(word):,} characters with no space ({word[:40]!r}...); at most "
+            f"{LONGEST_WORD}: break it, or make a long address a link's target")
 
 
 def invisible_message(text: str) -> str | None:

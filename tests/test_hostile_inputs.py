@@ -360,6 +360,41 @@ def test_an_overlong_name_wraps_and_keeps_the_figures_on_the_page(tmp_path):
         assert text_past_the_right_edge(out / pdf) == [], pdf
 
 
+def test_text_too_long_to_print_is_refused_at_its_cell_before_any_layout(tmp_path, capsys):
+    """A 20,000-character name or a 3,000-character sector held the PDF stage for minutes
+    (the layout breaks a word with no space anywhere, at a cost that grows with the square
+    of its length); so did one long word in commentary or actions.csv. Each is refused at
+    its cell or line, and nothing is built; 300 characters are still taken (the tests above
+    build with them)."""
+    word = ("a word of {:,} characters with no space ('{}'...); at most 300: break it, or make "
+            "a long address a link's target").format
+    pack = _pack(tmp_path)
+    h = pd.read_csv(pack / "holdings.csv", dtype=str)
+    h.loc[0, "name"] = "W" * 20_000
+    h.loc[1, "sector"] = "S" * 301
+    h.to_csv(pack / "holdings.csv", index=False)
+    assert _refused(pack, tmp_path, capsys) == [
+        "holdings.csv:2:name: 20,000 characters long; at most 300",
+        "holdings.csv:3:sector: 301 characters long; at most 300"]
+
+    pack = _pack(tmp_path / "commentary")
+    note = pack / "commentary" / "summary.md"
+    lines = note.read_text().split("\n")
+    lines[5] += " " + "x" * 50_000
+    lines.append("```\n" + "c" * 400 + "\n```")
+    note.write_text("\n".join(lines))
+    assert _refused(pack, tmp_path, capsys) == [
+        f"commentary/summary.md:6: {word(50_000, 'x' * 40)}",
+        f"commentary/summary.md:{len(lines) + 1}: {word(400, 'c' * 40)}"]   # in the block
+
+    pack = _pack(tmp_path / "actions")
+    actions = pack / "actions.csv"
+    rows = actions.read_text().split("\n")
+    rows[2] = rows[2].replace("Awaiting two quotes", "Awaiting " + "q" * 1000)
+    actions.write_text("\n".join(rows))
+    assert _refused(pack, tmp_path, capsys) == [f"actions.csv:3:note: {word(1000, 'q' * 40)}"]
+
+
 def test_an_overlong_sector_wraps_and_keeps_the_figures_on_the_page(tmp_path):
     # a 120-character sector with no space kept its cell on one line in the attribution,
     # sector limit, risk and appendix tables, whose figures were drawn past the page's edge

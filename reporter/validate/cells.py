@@ -302,12 +302,23 @@ def as_dates(raw: RawTable, column: str, date_format: str, coll: Collector) -> n
     return out
 
 
+# the longest text cell (an id, a name, a sector) an input may hold: the pack prints these in
+# tables, charts and the PDF, where a 20,000-character name held a build for minutes
+LONGEST_CELL = 300
+
+
 def as_text(raw: RawTable, column: str, coll: Collector, *, allow_empty: bool) -> np.ndarray:
     """Column ``column`` as text, each value trimmed and in Unicode NFC (see
-    :func:`reporter.validate.text.normalise_id`); None where the cell is empty."""
+    :func:`reporter.validate.text.normalise_id`); None where the cell is empty. A value over
+    :data:`LONGEST_CELL` characters is an error."""
     values = np.array([None if v is None else normalise_id(str(v))
                        for v in column_of(raw, column, "text").cast(pa.string()).to_pylist()],
                       dtype=object)
+    capped = _Capped(coll, f"overlong values in column {column}")
+    for i in np.flatnonzero([v is not None and len(v) > LONGEST_CELL for v in values]):
+        capped.add(place(raw.name, raw.row_number(int(i)), column),
+                   f"{len(values[i]):,} characters long; at most {LONGEST_CELL}")
+    capped.close()
     if not allow_empty:
         capped = _Capped(coll, f"empty values in column {column}")
         for i in np.flatnonzero([v is None or v == "" for v in values]):
