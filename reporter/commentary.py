@@ -217,14 +217,21 @@ def _front_matter(tokens, rel: str, problems: list[Problem]) -> dict | None:
                 return i + 2          # the opening '---' is line 1
         return 1
 
+    loader = _FrontMatterLoader(fm.content)
     try:
-        meta = yaml.safe_load(fm.content) or {}
+        meta = loader.get_single_data() or {}
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         line = mark.line + 2 if mark is not None else 1
         problems.append(Problem(f"{rel}:{line}", f"front matter is not valid YAML: "
                                 f"{getattr(exc, 'problem', exc)}"))
         return None
+    except RecursionError:
+        problems.append(Problem(f"{rel}:2", "front matter is nested too deeply; write "
+                                "'key: value' lines"))
+        return None
+    finally:
+        loader.dispose()
     if not isinstance(meta, dict):
         problems.append(Problem(f"{rel}:2", "front matter must be 'key: value' lines"))
         return None
@@ -239,16 +246,20 @@ def _front_matter(tokens, rel: str, problems: list[Problem]) -> dict | None:
                                 "front matter needs 'author: <name>'"))
         bad = True
     date = meta.get("date")
+    why = ""
     if isinstance(date, str):
         try:
             date = dt.date.fromisoformat(date.strip())
         except ValueError:
+            # a timestamp YAML could not build (2026-02-30) says what is wrong with it
+            if isinstance(date, _BadTimestamp):
+                why = f"; {date.strip()!r} is no real date or time ({date.reason})"
             date = None
     if isinstance(date, dt.datetime):
         date = date.date()
     if not isinstance(date, dt.date):
         problems.append(Problem(f"{rel}:{line_of('date')}",
-                                "front matter needs 'date: YYYY-MM-DD'"))
+                                f"front matter needs 'date: YYYY-MM-DD'{why}"))
         bad = True
     title = meta.get("title")
     if title is not None and not isinstance(title, str):
@@ -257,6 +268,44 @@ def _front_matter(tokens, rel: str, problems: list[Problem]) -> dict | None:
     if bad:
         return None
     return {"author": author.strip(), "date": date, "title": title}
+
+
+class _FrontMatterLoader(yaml.SafeLoader):
+    """YAML's safe loader, but a value YAML cannot build is a problem at its line, not an
+    exception: a timestamp that is no real date or time (``2026-02-30``, hour 25, year 0)
+    stays the text written, for the field's own check to name; any other (``!!int abc``)
+    is a YAMLError at its mark."""
+
+    def construct_object(self, node, deep=False):
+        try:
+            return super().construct_object(node, deep=deep)
+        except yaml.YAMLError:
+            raise
+        except (ValueError, TypeError, KeyError, AttributeError, OverflowError) as exc:
+            kind = node.tag.rsplit(":", 1)[-1]
+            why = f" ({exc})" if isinstance(exc, ValueError) else ""
+            raise yaml.constructor.ConstructorError(
+                None, None, f"{node.value!r} is not a valid {kind}{why}",
+                node.start_mark) from None
+
+    def construct_yaml_timestamp(self, node):
+        try:
+            return super().construct_yaml_timestamp(node)
+        except (ValueError, OverflowError) as exc:
+            return _BadTimestamp(self.construct_scalar(node), str(exc))
+
+
+_FrontMatterLoader.add_constructor("tag:yaml.org,2002:timestamp",
+                                   _FrontMatterLoader.construct_yaml_timestamp)
+
+
+class _BadTimestamp(str):
+    """The text of a timestamp that is no real date or time, with Python's reason."""
+
+    def __new__(cls, text: str, reason: str):
+        obj = super().__new__(cls, text)
+        obj.reason = reason
+        return obj
 
 
 def _check_link(href: str, rel: str, line: int, problems: list[Problem]) -> None:

@@ -211,3 +211,49 @@ def test_invisible_author_fails_check(tmp_path, capsys):
     path.write_text(text.replace("author: ", "author: \u202e", 1))
     assert_check_refuses(capsys, pack, "commentary/summary.md:2: invisible control character "
                          "U+202E")
+
+
+@pytest.mark.parametrize("head,line,message", [
+    # values YAML reads as timestamps but Python cannot build: one line each, never a crash
+    ("---\nauthor: A\ndate: 2026-02-30\n---\n", 3, "front matter needs 'date: YYYY-MM-DD'; "
+     "'2026-02-30' is no real date or time (day is out of range for month)"),
+    ("---\nauthor: A\ndate: 2026-02-30 10:00:00\n---\n", 3,
+     "front matter needs 'date: YYYY-MM-DD'; '2026-02-30 10:00:00' is no real date"),
+    ("---\nauthor: A\ndate: 2026-01-01T25:00:00\n---\n", 3,
+     "front matter needs 'date: YYYY-MM-DD'; '2026-01-01T25:00:00' is no real date"),
+    ("---\nauthor: A\ndate: 2026-01-01T10:00:00+99:00\n---\n", 3,
+     "front matter needs 'date: YYYY-MM-DD'; '2026-01-01T10:00:00+99:00' is no real date"),
+    ("---\nauthor: A\ndate: 0000-01-01\n---\n", 3,
+     "front matter needs 'date: YYYY-MM-DD'; '0000-01-01' is no real date"),
+    ("---\nauthor: A\ndate: 99999-01-01\n---\n", 3, "front matter needs 'date: YYYY-MM-DD'"),
+    # explicit tags YAML cannot build, in any key
+    ("---\nauthor: A\ndate: 2026-12-01\ntitle: !!int abc\n---\n", 4,
+     "front matter is not valid YAML: 'abc' is not a valid int"),
+    ("---\nauthor: !!bool maybe\ndate: 2026-12-01\n---\n", 2,
+     "front matter is not valid YAML: 'maybe' is not a valid bool"),
+    ("---\nauthor: A\ndate: !!timestamp soon\n---\n", 3,
+     "front matter is not valid YAML: 'soon' is not a valid timestamp"),
+    ("---\nauthor: A\ndate: " + "[" * 3000 + "\n---\n", 2,
+     "front matter is nested too deeply"),
+])
+def test_front_matter_values_yaml_cannot_build(tmp_path, head, line, message):
+    (got,) = problems_of(head + "Text.\n", tmp_path)
+    assert got.startswith(f"commentary/summary.md:{line}: {message}")
+
+
+def test_front_matter_title_shaped_like_a_bad_date_is_text(tmp_path):
+    c = render_commentary("summary", "commentary/summary.md",
+                          "---\nauthor: A\ndate: 2026-12-01\ntitle: 2026-02-30\n---\nText.\n",
+                          tmp_path / "commentary", tmp_path)
+    assert c.title == "2026-02-30"
+
+
+def test_impossible_front_matter_date_is_an_input_error_in_check(tmp_path, capsys):
+    pack = tmp_path / "pack"
+    shutil.copytree(DEMO, pack)
+    (pack / "commentary").mkdir(exist_ok=True)
+    (pack / "commentary" / "summary.md").write_text(
+        "---\nauthor: A\ndate: 2026-02-30\n---\nbody\n", encoding="utf-8")
+    assert_check_refuses(capsys, pack, "commentary/summary.md:3: front matter needs 'date: "
+                         "YYYY-MM-DD'; '2026-02-30' is no real date or time (day is out of "
+                         "range for month)")
