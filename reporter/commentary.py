@@ -232,6 +232,11 @@ def _front_matter(tokens, rel: str, problems: list[Problem]) -> dict | None:
         return None
     finally:
         loader.dispose()
+    for key, line, first in loader.duplicates:
+        problems.append(Problem(f"{rel}:{line + 2}", f"front matter key {key!r} is given "
+                                f"twice (first on line {first + 2}); keep one"))
+    if loader.duplicates:
+        return None
     if not isinstance(meta, dict):
         problems.append(Problem(f"{rel}:2", "front matter must be 'key: value' lines"))
         return None
@@ -274,7 +279,13 @@ class _FrontMatterLoader(yaml.SafeLoader):
     """YAML's safe loader, but a value YAML cannot build is a problem at its line, not an
     exception: a timestamp that is no real date or time (``2026-02-30``, hour 25, year 0)
     stays the text written, for the field's own check to name; any other (``!!int abc``)
-    is a YAMLError at its mark."""
+    is a YAMLError at its mark. A key given twice is kept in ``duplicates`` as
+    ``(key, line, first line)`` (0-based lines of the front matter), where YAML would let
+    the last one win."""
+
+    def __init__(self, stream):
+        super().__init__(stream)
+        self.duplicates: list[tuple[str, int, int]] = []
 
     def construct_object(self, node, deep=False):
         try:
@@ -293,6 +304,17 @@ class _FrontMatterLoader(yaml.SafeLoader):
             return super().construct_yaml_timestamp(node)
         except (ValueError, OverflowError) as exc:
             return _BadTimestamp(self.construct_scalar(node), str(exc))
+
+    def construct_mapping(self, node, deep=False):
+        seen: dict[str, int] = {}
+        for key_node, _ in node.value if isinstance(node, yaml.MappingNode) else ():
+            if isinstance(key_node, yaml.ScalarNode) and key_node.tag != "tag:yaml.org,2002:merge":
+                line = key_node.start_mark.line
+                if key_node.value in seen:
+                    self.duplicates.append((key_node.value, line, seen[key_node.value]))
+                else:
+                    seen[key_node.value] = line
+        return super().construct_mapping(node, deep=deep)
 
 
 _FrontMatterLoader.add_constructor("tag:yaml.org,2002:timestamp",

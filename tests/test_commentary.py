@@ -257,3 +257,14 @@ def test_impossible_front_matter_date_is_an_input_error_in_check(tmp_path, capsy
     assert_check_refuses(capsys, pack, "commentary/summary.md:3: front matter needs 'date: "
                          "YYYY-MM-DD'; '2026-02-30' is no real date or time (day is out of "
                          "range for month)")
+
+
+@pytest.mark.parametrize("head,line,message", [
+    ("---\nauthor: A\nauthor: B\ndate: 2026-12-01\n---\n", 3,
+     "front matter key 'author' is given twice (first on line 2); keep one"),
+    ("---\ndate: 2026-12-01\nauthor: A\ntitle: T\ndate: 2026-12-02\n---\n", 5,
+     "front matter key 'date' is given twice (first on line 2); keep one"),
+])
+def test_front_matter_key_given_twice_is_refused(tmp_path, head, line, message):
+    (got,) = problems_of(head + "Text.\n", tmp_path)
+    assert got == f"commentary/summary.md:{line}: {message}"
