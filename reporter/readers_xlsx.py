@@ -18,6 +18,10 @@ from reporter.raw_table import (
     _refuse_duplicate_columns,
 )
 
+# every input names its dates column so (returns, market, risk-free rate, benchmark, cash
+# flows, factors, prices)
+DATE_COLUMN = "date"
+
 # an .xlsx file is a zip archive of XML parts: a workbook whose parts unpack to more than
 # this, or one large part packed more tightly than any sheet of figures (numeric sheet XML
 # packs about 5-30 to 1), is refused before it is unpacked. A 1 MB file unpacking to 1 GB
@@ -85,7 +89,8 @@ def read_xlsx(spec: InputSpec) -> RawTable:
         if not name:
             continue
         values = [r[j] if j < len(r) else None for r in body]
-        columns[name] = _xlsx_column(values, force_text=name in TEXT_COLUMNS)
+        columns[name] = _xlsx_column(values, force_text=name in TEXT_COLUMNS,
+                                     is_date=name == DATE_COLUMN)
     table, rows = _drop_blank_rows(pa.table(columns), first_row=2)
     return RawTable(spec.display, table, 2, "xlsx", rows, notes)
 
@@ -122,19 +127,23 @@ def _first_visible_sheet(spec: InputSpec, wb) -> tuple[object, tuple[Problem, ..
                               + "); unhide the sheet to read, or name it with sheet = ...")])
 
 
-def _xlsx_column(values: list, force_text: bool) -> pa.Array:
+def _xlsx_column(values: list, force_text: bool, is_date: bool = False) -> pa.Array:
+    """One column's cells as an Arrow array. In the date column (``is_date``) a date cell
+    with a time of day is that calendar day (README: "its time of day is dropped"); in any
+    other column only a cell at midnight is a date, and one with a time keeps it as text."""
     def text(v):
         if v is None:
             return None
         if isinstance(v, dt.datetime):
-            return v.date().isoformat() if v.time() == dt.time(0) else v.isoformat()
+            keep_time = v.time() != dt.time(0) and not is_date
+            return v.isoformat() if keep_time else v.date().isoformat()
         if isinstance(v, dt.date):
             return v.isoformat()
         if isinstance(v, float) and v.is_integer():
             return str(int(v))
         return str(v)
 
-    if all(v is None or _is_calendar_date(v) for v in values) and any(
+    if all(v is None or _is_calendar_date(v, is_date) for v in values) and any(
             v is not None for v in values):
         # real date cells: keep them as dates, so that date_format (for text dates) is not
         # applied to the ISO text they would otherwise become
@@ -145,10 +154,11 @@ def _xlsx_column(values: list, force_text: bool) -> pa.Array:
     return pa.array([text(v) for v in values], type=pa.string())
 
 
-def _is_calendar_date(v) -> bool:
-    """A date cell, or a datetime cell at midnight (how spreadsheets store dates)."""
+def _is_calendar_date(v, any_time: bool = False) -> bool:
+    """A date cell, or a datetime cell at midnight (how spreadsheets store dates); with
+    ``any_time`` (the date column) a datetime cell at any time of day."""
     if isinstance(v, dt.datetime):
-        return v.time() == dt.time(0) and v.tzinfo is None
+        return any_time or (v.time() == dt.time(0) and v.tzinfo is None)
     return isinstance(v, dt.date)
 
 

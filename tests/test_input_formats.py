@@ -179,6 +179,32 @@ def test_xlsx_date_cells_are_dates_whatever_the_text_date_format(tmp_path, refer
     assert_same_figures(pack, reference)
 
 
+def test_xlsx_date_cells_with_a_time_of_day_are_their_days(tmp_path, reference):
+    """README: a spreadsheet date cell's "time of day is dropped". Every file with dates
+    (returns, market, risk-free rate, cash flows) as a workbook whose date cells carry a
+    time (23:59:59 on the first, 18:30 on the rest) gives the plain demo's figures; such a
+    cell was refused as "not a valid date in the format '%Y-%m-%d': '2017-01-31T23:59:59'"."""
+    pack = tmp_path / "pack"
+    shutil.copytree(DEMO, pack)
+    text = (pack / "pack.toml").read_text(encoding="utf-8")
+    for role, (header, rows) in demo_tables().items():
+        if "date" not in header:
+            continue
+        wb = Workbook()
+        wb.active.append(header)
+        for i, r in enumerate(rows):
+            clock = dt.time(23, 59, 59) if i == 0 else dt.time(18, 30)
+            cells = [dt.datetime.combine(dt.date.fromisoformat(v), clock) if c == "date"
+                     else float(v) if c in NUMERIC else v for c, v in zip(header, r, strict=True)]
+            wb.active.append(cells)
+        wb.save(pack / f"{role}.xlsx")
+        (pack / FILES[role]).unlink()
+        text = text.replace(f'{role} = "{FILES[role]}"', f'{role} = "{role}.xlsx"')
+    (pack / "pack.toml").write_text(text, encoding="utf-8")
+    assert text.count(".xlsx") == 4
+    assert_same_figures(pack, reference)
+
+
 def test_xlsx_unknown_sheet_is_named(tmp_path, capsys):
     pack = tmp_path / "pack"
     shutil.copytree(DEMO, pack)
