@@ -3,7 +3,7 @@
 Its own small schema, imported by :mod:`reporter.config` (which reports its problems as
 ``pack.toml:stress.<key>: message`` with every other one). Whether a named scenario's window
 lies inside the history is known only once the data are read: see
-:func:`reporter.analytics.stress.scenario_problems`.
+:func:`reporter.analytics.stress.scenario_windows` (run by the build and by ``check``).
 """
 
 from __future__ import annotations

@@ -8,6 +8,7 @@ from pathlib import Path
 import numpy as np
 
 from reporter.analytics.pack import build_window
+from reporter.analytics.stress import scenario_windows
 from reporter.analytics.style import factors_on_window
 from reporter.config import Settings, load_settings
 from reporter.config.schema import INPUT_ROLES
@@ -32,6 +33,7 @@ def check_pack(pack: Path | str, strict: bool = False) -> CheckSummary:
     part = checked.parts[0]
     inputs = part.inputs
     win = build_window(inputs, settings)
+    _check_scenarios(settings, inputs)
     if part.style is not None and part.style.factors is not None:
         # the one check of the factors that needs the window's market: as the build runs it
         factors_on_window(win.dates, win.market_excess, part.style.factors, settings)
@@ -58,6 +60,14 @@ def check_pack(pack: Path | str, strict: bool = False) -> CheckSummary:
     return CheckSummary(text="\n".join(lines), warnings=checked.warnings)
 
 
+def _check_scenarios(settings: Settings, inputs) -> None:
+    """The named stress scenarios' windows against the history, as the build's stress stage
+    finds them (the market's periods up to period_end; no returns copied): a window outside
+    it is a ``pack.toml:stress.scenarios.N.start`` (or ``.end``) error here too."""
+    hist = build_window(inputs, settings, periods=0, holdings=False)
+    scenario_windows(settings.stress, hist.dates, settings.frequency)
+
+
 def _optional_lines(settings: Settings) -> list[str]:
     """One line naming the input files beyond the four tables that were checked too, if any."""
     others = [r for r in settings.inputs if r not in INPUT_ROLES]
@@ -70,6 +80,7 @@ def _check_fund(settings: Settings, checked: CheckedInputs) -> CheckSummary:
     """``reporter check`` for a fund: the total fund and one line per mandate."""
     fin = checked.fund
     win = build_window(fin.total, settings)
+    _check_scenarios(settings, fin.total)
     lines = [
         f"pack: {settings.title} ({settings.organisation}), period ending {settings.period_end}",
         f"fund: {len(fin.total.holdings.ids)} securities in {len(fin.positions)} positions, "

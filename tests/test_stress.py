@@ -30,6 +30,7 @@ from reporter.cli import main
 from reporter.config import load_settings
 from reporter.limits import BREACH, WATCH, WITHIN, classify, evaluate_limits
 from reporter.validate import validate_pack
+from tests.conftest import assert_check_refuses
 from tests.test_pipeline_french import INDUSTRIES, write_french_pack
 
 DEMO = Path(__file__).resolve().parents[1] / "inputs" / "demo"
@@ -357,3 +358,26 @@ def test_bad_stress_settings_exit_2(tmp_path, capsys, extra, line):
     err = capsys.readouterr().err
     assert line in err and "Traceback" not in err
     assert not out.exists()
+
+
+@pytest.mark.parametrize("demo, first", [("demo", "2016-12-31"), ("demo-fund", "2018-12-31")])
+@pytest.mark.parametrize("dates, line", [
+    ("start = 1900-01-01\nend = 2020-03-31\n",
+     "pack.toml:stress.scenarios.0.start: the scenario 'Hostile' starts 1900-01-01, before "
+     "the history's first period ({first})"),
+    ("start = 2026-01-01\nend = 2099-12-31\n",
+     "pack.toml:stress.scenarios.0.end: the scenario 'Hostile' ends 2099-12-31, after the "
+     "history's last period (2026-11-30)"),
+])
+def test_scenario_outside_the_history_fails_check(tmp_path, capsys, demo, first, dates, line):
+    """`reporter check` finds a named scenario outside the history, as the build does (it
+    passed check and failed only the build's stress stage). ``first`` is the first row of
+    the demo's market.csv."""
+    pack = tmp_path / "pack"
+    shutil.copytree(DEMO.parent / demo, pack)
+    assert (pack / "market.csv").read_text().splitlines()[1].startswith(first)
+    text = (pack / "pack.toml").read_text()
+    if "[[stress.scenarios]]" in text:
+        text = text[:text.index("[[stress.scenarios]]")]
+    (pack / "pack.toml").write_text(text + '[[stress.scenarios]]\nname = "Hostile"\n' + dates)
+    assert_check_refuses(capsys, pack, line.format(first=first))
