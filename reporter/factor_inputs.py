@@ -29,6 +29,7 @@ from reporter.errors import Collector, Problem, place
 from reporter.readers import RawTable
 from reporter.validate import MAX_PER_CHECK, as_dates, as_float, as_text, looks_like_percent
 from reporter.validate import validate_series as _validate_series
+from reporter.validate.common import delimiter_hint
 from reporter.validate.values import report_out_of_range
 
 FACTOR_NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_]{0,39}$")
@@ -75,9 +76,10 @@ def _dates(raw: RawTable, settings: Settings, role: str,
 def _columns(raw: RawTable, required: tuple[str, ...], coll: Collector) -> bool:
     names = raw.table.column_names
     missing = [c for c in required if c not in names]
+    hint = delimiter_hint(raw, missing)
     for c in missing:
         coll.error(place(raw.name, 1, c), "required column is missing "
-                   f"(the file has: {', '.join(names) or 'no columns'})")
+                   f"(the file has: {', '.join(names) or 'no columns'}){hint}")
     if not missing and raw.table.num_rows == 0:
         coll.error(raw.name, "the file has no rows")
         return False

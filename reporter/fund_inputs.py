@@ -38,6 +38,7 @@ from reporter.validate import (
     validate_returns,
     validate_series,
 )
+from reporter.validate.common import delimiter_hint
 from reporter.validate.text import case_clashes, normalise_id
 
 MANDATE_COLUMN = "mandate"
@@ -95,7 +96,8 @@ def _mandate_holdings(settings: Settings, raws: dict[str, RawTable], coll: Colle
         if MANDATE_COLUMN not in raw.table.column_names:
             coll.error(place(raw.name, 1, MANDATE_COLUMN), "required column is missing: a "
                        "fund's holdings file names each holding's mandate "
-                       f"(the file has: {', '.join(raw.table.column_names)})")
+                       f"(the file has: {', '.join(raw.table.column_names)})"
+                       + delimiter_hint(raw, (MANDATE_COLUMN,)))
             return out, tables
         names = as_text(raw, MANDATE_COLUMN, coll, allow_empty=False)
         known = {normalise_id(m.name) for m in settings.mandates}

@@ -126,6 +126,50 @@ def test_decimal_comma_without_the_setting_fails(tmp_path, capsys):
     assert "holdings.csv:1:security_id: required column is missing" in err
 
 
+@pytest.mark.parametrize("sep, toml", [(";", '";"'), ("\t", '"\\t"')])
+def test_other_delimiter_without_the_setting_says_what_to_set(tmp_path, capsys, sep, toml):
+    """A semicolon (or tab) file read with the default comma is one column named
+    ``date;return``: each missing column's line says which delimiter to set."""
+    pack = tmp_path / "pack"
+    shutil.copytree(DEMO, pack)
+    for role in ("holdings", "market"):
+        header, rows = read_text_table(DEMO / FILES[role])
+        write_text_table(pack / FILES[role], header, rows, delimiter=sep)
+    assert main(["check", str(pack)]) == 2
+    err = capsys.readouterr().err.splitlines()
+    hint = f"; the header holds them separated by {sep!r}: set delimiter = {toml}"
+    # a control character in a message is shown escaped (a tab as \t)
+    m_has = sep.join(read_text_table(DEMO / "market.csv")[0]).replace("\t", "\\t")
+    assert f"market.csv:1:date: required column is missing (the file has: {m_has}){hint}" in err
+    assert f"market.csv:1:return: required column is missing (the file has: {m_has}){hint}" in err
+    assert ("holdings.csv:1:weight: required column is missing: give weight or market_value"
+            + hint.replace("them", "it")) in err
+    assert "Traceback" not in "\n".join(err)
+
+
+@pytest.mark.parametrize("demo, file, column", [("demo-fund", "holdings.csv", "mandate"),
+                                                 ("demo", "factors.csv", "date")])
+def test_other_delimiter_hint_for_fund_holdings_and_factors(tmp_path, capsys, demo, file,
+                                                             column):
+    pack = tmp_path / "pack"
+    shutil.copytree(DEMO.parent / demo, pack)
+    header, rows = read_text_table(pack / file)
+    write_text_table(pack / file, header, rows, delimiter=";")
+    assert main(["check", str(pack)]) == 2
+    (line,) = [x for x in capsys.readouterr().err.splitlines()
+               if x.startswith(f"{file}:1:{column}: required column is missing")]
+    assert line.endswith("; the header holds it separated by ';': set delimiter = \";\"")
+
+
+def test_a_column_truly_missing_gets_no_delimiter_hint(tmp_path, capsys):
+    pack = tmp_path / "pack"
+    shutil.copytree(DEMO, pack)
+    (pack / "market.csv").write_text("date;x,rate\n2016-12-31;1,0.1\n", encoding="utf-8")
+    assert main(["check", str(pack)]) == 2
+    err = capsys.readouterr().err.splitlines()
+    assert "market.csv:1:return: required column is missing (the file has: date;x, rate)" in err
+
+
 def test_xlsx_with_named_sheets(tmp_path, reference):
     pack = tmp_path / "pack"
     pack.mkdir()

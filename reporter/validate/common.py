@@ -46,13 +46,35 @@ class _Capped:
             (self.coll.warn if self.warning else self.coll.error)(self._last_file, msg, rest)
 
 
+# the delimiters a CSV header is tried with when the names wanted are not among its columns
+OTHER_DELIMITERS = ((";", '";"'), ("\t", '"\\t"'), (",", '","'), ("|", '"|"'))
+
+
+def delimiter_hint(raw: RawTable, wanted: tuple[str, ...] | list[str]) -> str:
+    """``; the header holds them separated by ';': set delimiter = ";"`` when a CSV file's
+    header, split at another delimiter, holds every name in ``wanted`` (a semicolon file
+    read with the default comma is one column named ``date;return``), else ''."""
+    names = raw.table.column_names
+    if raw.format != "csv" or not wanted:
+        return ""
+    for sep, toml in OTHER_DELIMITERS:
+        if not any(sep in n for n in names):
+            continue
+        parts = {p.strip().strip('"') for n in names for p in n.split(sep)}
+        if set(wanted) <= parts:
+            them = "it" if len(wanted) == 1 else "them"
+            return f"; the header holds {them} separated by {sep!r}: set delimiter = {toml}"
+    return ""
+
+
 def _require_columns(raw: RawTable, required: tuple[str, ...], optional: tuple[str, ...],
                      coll: Collector) -> bool:
     names = raw.table.column_names
     missing = [c for c in required if c not in names]
+    hint = delimiter_hint(raw, missing)
     for c in missing:
         coll.error(place(raw.name, 1, c), "required column is missing "
-                   f"(the file has: {', '.join(names) or 'no columns'})")
+                   f"(the file has: {', '.join(names) or 'no columns'}){hint}")
     for c in names:
         if c not in required and c not in optional:
             coll.warn(place(raw.name, 1, c), "unknown column, ignored")

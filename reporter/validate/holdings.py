@@ -10,7 +10,7 @@ from reporter.errors import Collector, place
 from reporter.models import Holdings
 from reporter.readers import RawTable
 from reporter.validate.cells import as_float, as_text
-from reporter.validate.common import _Capped, _require_columns
+from reporter.validate.common import _Capped, _require_columns, delimiter_hint
 from reporter.validate.text import case_clash_message, case_clashes
 
 HOLDINGS_REQUIRED = ("security_id", "name", "sector")
@@ -29,7 +29,9 @@ def validate_holdings(raw: RawTable, settings: Settings, coll: Collector) -> Hol
     has_w, has_mv = "weight" in names, "market_value" in names
     if not (has_w or has_mv):
         coll.error(place(raw.name, 1, "weight"),
-                   "required column is missing: give weight or market_value")
+                   "required column is missing: give weight or market_value"
+                   + (delimiter_hint(raw, ("weight",))
+                      or delimiter_hint(raw, ("market_value",))))
     optional = HOLDINGS_OPTIONAL + ("weight", "market_value")
     if not _require_columns(raw, HOLDINGS_REQUIRED, optional, coll) or not (has_w or has_mv):
         return None
