@@ -627,6 +627,24 @@ def test_a_sector_limit_without_its_spaces_or_in_another_unicode_form_is_refused
         "as the holdings file does"]
 
 
+def test_a_sector_limit_in_look_alike_letters_of_another_script_is_refused(tmp_path, capsys):
+    # "Еnergy" with a Cyrillic "Е" (U+0415) is not folded to "Energy" by NFKC: it had been a
+    # warning that no holding is in that sector, and the limit passed on a weight of 0. A
+    # name wholly in one other script (a sector not held) stays a warning.
+    pack = _pack(tmp_path)
+    text = (pack / "pack.toml").read_text()
+    greek = "\u0395\u03bd\u03ad\u03c1\u03b3\u03b5\u03b9\u03b1"
+    (pack / "pack.toml").write_text(text.replace(
+        "Energy = 0.12", f'"\u0415nergy" = 0.12, "{greek}" = 0.1'))
+    assert _refused(pack, tmp_path, capsys) == [
+        "pack.toml:limits.max_sector_weight.\u0415nergy: the sector name '\u0415nergy' mixes "
+        "Cyrillic and Latin letters, as a look-alike letter does, and no holding's sector is "
+        "written so; write it as the holdings file does",
+        f"pack.toml:limits.max_sector_weight.{greek}: warning: no holding belongs to the "
+        f"sector '{greek}', so its limit applies to a weight of 0; check the name against "
+        "the holdings file's sectors"]
+
+
 def test_a_sector_limit_naming_no_held_sector_is_a_warning(tmp_path, capsys):
     pack = _pack(tmp_path)
     text = (pack / "pack.toml").read_text()

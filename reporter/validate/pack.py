@@ -19,7 +19,7 @@ from reporter.validate.holdings import validate_holdings
 from reporter.validate.long_stream import stream_long_returns
 from reporter.validate.returns import validate_returns
 from reporter.validate.series import validate_series
-from reporter.validate.text import check_invisible
+from reporter.validate.text import check_invisible, letter_scripts
 
 
 def read_inputs(settings: Settings) -> tuple[dict[str, RawTable], list]:
@@ -193,7 +193,9 @@ def check_sector_limit_names(limits: LimitsSection | None, holdings: Holdings, w
     applied to the sector of that exact name). A name that matches a held sector but for
     case, spaces or Unicode form (NFKC) is an error: its limit would be applied to a weight
     of 0 and the sector itself judged only under "*". An empty name is an error. A name
-    that matches nothing is a warning: a sector not held today weighs 0. ``where``: the
+    that matches nothing is a warning (a sector not held today weighs 0), unless its letters
+    mix scripts (Cyrillic "Е" in "Еnergy", which NFKC does not fold): that is an error, as a
+    look-alike of a held name would be. ``where``: the
     table's place in pack.toml, for the messages."""
     table = limits.max_sector_weight if limits is not None else None
     if not isinstance(table, dict):
@@ -208,7 +210,13 @@ def check_sector_limit_names(limits: LimitsSection | None, holdings: Holdings, w
                        "names no sector; write the sector as the holdings file does")
             continue
         near = folded.get(_folded(name))
-        if near is not None:
+        scripts = letter_scripts(name)
+        if near is None and len(scripts) > 1:
+            coll.error(f"{where}.{name}", f"the sector name {name!r} mixes "
+                       f"{' and '.join(s.title() for s in scripts)} letters, as a look-alike "
+                       "letter does, and no holding's sector is written so; write it as the "
+                       "holdings file does")
+        elif near is not None:
             coll.error(f"{where}.{name}", f"no holding's sector is {name!r}, but {near!r} is "
                        "(sector names must match exactly); write it as the holdings file does")
         else:

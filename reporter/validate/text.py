@@ -76,6 +76,17 @@ def case_clash_message(later: str, first: str, first_row: int | None) -> str:
             "security one id")
 
 
+def letter_scripts(text: str) -> list[str]:
+    """The scripts of the letters of ``text`` (the first word of each letter's Unicode name:
+    LATIN, CYRILLIC, GREEK ...), in order of first use. Two or more in one short name is
+    what a look-alike letter (Cyrillic "Е" for Latin "E") leaves behind."""
+    seen: dict[str, None] = {}
+    for ch in text:
+        if unicodedata.category(ch).startswith("L"):
+            seen.setdefault(unicodedata.name(ch, "UNKNOWN ").split(" ", 1)[0], None)
+    return list(seen)
+
+
 def visible(text: str) -> str:
     """``text`` with each format character written as ``<U+XXXX>`` (for messages)."""
     return "".join(f"<U+{ord(c):04X}>" if unicodedata.category(c) == "Cf" else c for c in text)
