@@ -645,6 +645,23 @@ def test_a_sector_limit_in_look_alike_letters_of_another_script_is_refused(tmp_p
         "the holdings file's sectors"]
 
 
+def test_market_values_beyond_exact_float_units_are_warned_of(tmp_path, capsys):
+    # a portfolio in a currency of small units can sum past 2^53, where a float64 no longer
+    # holds every whole number: the sums and money figures had been printed to the unit as
+    # if exact, with no word
+    pack = _pack(tmp_path)
+    h = pd.read_csv(pack / "holdings.csv", dtype=str)
+    mv = h["market_value"].astype(float)
+    assert mv.sum() < 2**53 / 1e6                        # the demo itself is far below it
+    h["market_value"] = (mv * 1e8).map(lambda v: f"{v:.0f}")
+    h.to_csv(pack / "holdings.csv", index=False)
+    assert main(["check", str(pack)]) == 0
+    warned = [ln for ln in capsys.readouterr().err.splitlines() if "64-bit" in ln]
+    assert len(warned) == 1 and warned[0].startswith(
+        "holdings.csv:market_value: warning: market values sum to 24,8") and \
+        "beyond 9,007,199,254,740,992" in warned[0], warned
+
+
 def test_a_sector_limit_naming_no_held_sector_is_a_warning(tmp_path, capsys):
     pack = _pack(tmp_path)
     text = (pack / "pack.toml").read_text()

@@ -14,6 +14,7 @@ from reporter.validate.common import _Capped, _require_columns, delimiter_hint
 from reporter.validate.text import case_clash_message, case_clashes
 
 HOLDINGS_REQUIRED = ("security_id", "name", "sector")
+EXACT_UNITS = 2 ** 53     # the largest whole number below which every one is a float64
 HOLDINGS_OPTIONAL = ("asset_class", "currency", "country", "proxy")
 PROXY_SERIES = ("market", "benchmark")   # a proxy may also name another holding's id
 # weights whose sum is within this of zero are not rescaled (checks.normalise_weights): the
@@ -93,6 +94,11 @@ def validate_holdings(raw: RawTable, settings: Settings, coll: Collector) -> Hol
             if total <= 0:
                 coll.error(place(raw.name, None, column), "market values sum to zero or less")
                 return None
+            if float(np.abs(raw_w).sum()) > EXACT_UNITS:
+                coll.warn(place(raw.name, None, column), f"market values sum to {total:,.0f}, "
+                          f"beyond {EXACT_UNITS:,}: figures are held as 64-bit floats, exact "
+                          "to the unit only below that, so sums and the pack's money figures "
+                          "may be off in their last units (about 1 in 10^16)")
             weights = raw_w / total
         else:
             weights = raw_w
