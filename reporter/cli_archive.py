@@ -8,7 +8,8 @@ from pathlib import Path
 import click
 
 from reporter.cli_common import MAX_LINES, Stop, debug_option, guarded, quiet_option
-from reporter.errors import EXIT_BAD_INPUT, EXIT_FAILED, shown_name
+from reporter.errors import EXIT_BAD_INPUT, EXIT_FAILED, InputError, one_line, shown_name
+from reporter.user_files import check_regular
 
 
 def key_options(fn):
@@ -159,9 +160,11 @@ def verify(file: Path | None, archive: Path, heads: tuple[str, ...], head_file: 
             click.echo("reporter: --head and --head-file check the whole archive; give them "
                        "without FILE", err=True)
             raise Stop(EXIT_BAD_INPUT)
-        if not file.is_file():
-            click.echo(f"reporter: {shown_name(file)}: no such file", err=True)
-            raise Stop(EXIT_BAD_INPUT)
+        try:
+            check_regular(file)
+        except InputError as exc:
+            click.echo(f"reporter: {one_line(str(exc))}", err=True)
+            raise Stop(EXIT_BAD_INPUT) from None
         matches = guarded(lambda: find_file(file, archive), debug)
         signed_ok = _print_signatures(file, trust, matches, debug)
         if not matches:

@@ -19,7 +19,10 @@ from pathlib import Path
 
 from reporter.archive.ledger import Entry
 from reporter.archive.verify import ArchiveReport
-from reporter.errors import EXIT_BAD_INPUT, ReporterError
+from reporter.errors import EXIT_BAD_INPUT, InputError, ReporterError, shown_name
+from reporter.user_files import read_regular
+
+MAX_HEADS_FILE = 1 << 20          # minuted heads are 65 bytes a line
 
 _HEAD = re.compile(r"[0-9a-f]{64}")
 _CHAIN_KINDS = ("ledger-edited", "ledger-chain")
@@ -75,10 +78,12 @@ def read_heads_file(path: Path) -> list[MinutedHead]:
     Every bad line is named (one line each), and a file with no head is refused."""
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        reason = exc.strerror if isinstance(exc, OSError) else "not UTF-8 text"
-        raise BadHead(f"{path}: cannot be read ({reason})") from None
+        text = read_regular(path, MAX_HEADS_FILE, missing="cannot be read (no such file)",
+                            too_large="too large for a file of ledger heads").decode("utf-8")
+    except InputError as exc:             # no such file, not a regular file, too large
+        raise BadHead(str(exc)) from None
+    except UnicodeDecodeError:
+        raise BadHead(f"{shown_name(path)}: cannot be read (not UTF-8 text)") from None
     heads, bad = [], []
     for n, line in enumerate(text.splitlines(), start=1):
         content = line.split("#", 1)[0].strip()

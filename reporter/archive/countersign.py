@@ -38,6 +38,7 @@ from reporter.archive.signoff import ArchiveError, archive_name
 from reporter.archive.verify import find_file, verify_archive
 from reporter.errors import InputError, Problem
 from reporter.invisible import has_control, invisible_message
+from reporter.user_files import check_regular
 from reporter.writer import OutputSet, place_in_archive
 
 
@@ -60,8 +61,7 @@ def countersign(pdf_file: Path | str, archive: Path | str, key: SigningKey, *,
                                       "character")])
         if text is not None and (found := invisible_message(text)):
             raise InputError([Problem(option, f"contains an {found}")])
-    if not pdf_file.is_file():
-        raise InputError([Problem(str(pdf_file), "no such file")])
+    check_regular(pdf_file)
     report = verify_archive(archive)
     if not report.intact:
         raise ArchiveError(f"{archive}: does not verify ({len(report.findings)} problem(s)); "

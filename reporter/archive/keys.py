@@ -29,6 +29,7 @@ from cryptography.hazmat.primitives.serialization import pkcs12
 from cryptography.x509.oid import NameOID
 
 from reporter.errors import InputError, Problem
+from reporter.user_files import check_regular, read_regular
 
 MAX_KEY_FILE = 1 << 20          # a PKCS#12 file is a few kB; refuse anything absurd
 DEMO_PASSPHRASE_ENV = "REPORTER_DEMO_KEY_PASS"
@@ -82,14 +83,8 @@ def load_signing_key(path: Path | str, secret: bytes, *,
     """Open a PKCS#12 file and check it is fit to sign with at ``now`` (UTC)."""
     path = Path(path)
     now = now or dt.datetime.now(dt.UTC)
-    if not path.is_file():
-        raise _fail(path, "no such key file")
-    if path.stat().st_size > MAX_KEY_FILE:
-        raise _fail(path, "too large to be a PKCS#12 key file")
-    try:
-        data = path.read_bytes()
-    except OSError as exc:
-        raise _fail(path, f"cannot be read ({exc.strerror})") from None
+    data = read_regular(path, MAX_KEY_FILE, missing="no such key file",
+                        too_large="too large to be a PKCS#12 key file")
     try:
         key, cert, extra = pkcs12.load_key_and_certificates(data, secret or None)
     except ValueError:
@@ -118,8 +113,7 @@ def load_signing_key(path: Path | str, secret: bytes, *,
 def open_key(path: Path | str, pass_env: str | None) -> SigningKey:
     """The checked key of ``--key PATH`` with ``--key-pass-env NAME`` (or a prompt)."""
     path = Path(path)
-    if not path.is_file():
-        raise _fail(path, "no such key file")
+    check_regular(path, "no such key file")      # before the passphrase is asked for
     return load_signing_key(path, passphrase(pass_env, path=path))
 
 

@@ -37,6 +37,7 @@ from cryptography.hazmat.primitives import serialization
 
 from reporter.archive.keys import SigningKey
 from reporter.errors import InputError, Problem, shown_name
+from reporter.user_files import read_regular
 
 FIELD_PREFIX = "Signature"
 MAX_ROOTS_FILE = 1 << 20
@@ -127,11 +128,8 @@ def page_record(key: SigningKey | None, signed_utc: str) -> dict | None:
 def load_roots(path: Path | str) -> list:
     """Trusted root certificates from a PEM (one or more certificates) or DER file."""
     path = Path(path)
-    if not path.is_file():
-        raise InputError([Problem(str(path), "no such file of trusted root certificates")])
-    if path.stat().st_size > MAX_ROOTS_FILE:
-        raise InputError([Problem(str(path), "too large for a file of root certificates")])
-    data = path.read_bytes()
+    data = read_regular(path, MAX_ROOTS_FILE, missing="no such file of trusted root certificates",
+                        too_large="too large for a file of root certificates")
     try:
         if pem.detect(data):
             roots = [asn1_x509.Certificate.load(der) for kind, _, der in pem.unarmor(

@@ -43,6 +43,7 @@ from reporter.archive.ledger import (
     read_entries,
 )
 from reporter.errors import EXIT_BAD_INPUT, ReporterError, shown_name
+from reporter.user_files import open_regular
 from reporter.writer import QUARANTINE_DIR, STAGING_DIR, quarantine
 
 # files SQLite keeps beside the ledger while it is in use
@@ -82,10 +83,14 @@ class ArchiveReport:
 
 
 def file_sha256(path: Path) -> str:
-    h = hashlib.sha256()
     with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            h.update(block)
+        return _sha256_of(fh)
+
+
+def _sha256_of(fh) -> str:
+    h = hashlib.sha256()
+    for block in iter(lambda: fh.read(1 << 20), b""):
+        h.update(block)
     return h.hexdigest()
 
 
@@ -248,7 +253,8 @@ class FileMatch:
 
 def find_file(file: Path | str, archive: Path | str) -> list[FileMatch]:
     """The ledger entries whose recorded files have exactly the bytes of ``file``."""
-    digest = file_sha256(Path(file))
+    with open_regular(file) as fh:        # a FIFO or device is refused, never read
+        digest = _sha256_of(fh)
     entries = load_entries(Path(archive))
     later = {e.supersedes: e for e in entries if e.supersedes is not None}
     out = []
