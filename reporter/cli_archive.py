@@ -181,6 +181,10 @@ def verify(file: Path | None, archive: Path, heads: tuple[str, ...], head_file: 
         if not signed_ok:
             raise Stop(EXIT_FAILED)
         return
+    if trust is not None:                     # it would be ignored: say so, do not pass
+        click.echo("reporter: --trust checks the digital signatures of FILE; give it with "
+                   "FILE", err=True)
+        raise Stop(EXIT_BAD_INPUT)
     minuted = guarded(lambda: [parse_head(h, "--head") for h in heads]
                       + (read_heads_file(head_file) if head_file is not None else []), debug)
     report = guarded(lambda: verify_archive(archive), debug)

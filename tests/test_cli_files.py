@@ -79,3 +79,12 @@ def test_key_trust_and_countersigned_pdf_refuse_special_files(kind, tmp_path):
             call()
         assert [p.message for p in info.value.problems] == [
             f"not a regular file ({KIND[kind]}); give a file"]
+
+
+def test_trust_without_file_is_refused(tmp_path, capsys):
+    roots = tmp_path / "roots.pem"
+    roots.write_text("not used\n")
+    code, out, err = run_cli(capsys, "verify", "--archive", tmp_path / "arch", "--trust", roots)
+    assert code == 2 and out == ""
+    assert err.splitlines() == ["reporter: --trust checks the digital signatures of FILE; give "
+                                "it with FILE"]
