@@ -94,6 +94,10 @@ def init_pack(folder: Path | str, today: dt.date | None = None) -> list[str]:
                           "or empty folder, so nothing of yours is overwritten")
     parent = folder.absolute().parent
     if not parent.is_dir():
+        above = next((p for p in (parent, *parent.parents) if os.path.lexists(p)), None)
+        if above is not None and not above.is_dir():      # /etc/passwd/x: passwd is a file
+            what = "a file, not a folder" if above.is_file() else "not a folder"
+            raise OutputError(f"{folder}: {above} is {what}")
         raise OutputError(f"{folder}: the folder {parent} does not exist")
     period_end = _last_month_end(today or dt.date.today())
     files = {"pack.toml": PACK_TOML.format(folder=folder, name=_pack_name(folder),

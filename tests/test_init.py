@@ -61,3 +61,17 @@ def test_init_refuses_a_folder_that_is_not_empty_and_touches_nothing(tmp_path, c
     assert (empty / "pack.toml").is_file()
     # no staging folder is left beside the targets
     assert sorted(p.name for p in tmp_path.iterdir()) == ["empty", "mine"]
+
+
+def test_init_under_a_file_says_the_file_is_not_a_folder(tmp_path, capsys):
+    notes = tmp_path / "notes.txt"
+    notes.write_text("keep me", encoding="utf-8")
+    for target in (notes / "mine", notes / "a" / "mine"):
+        code, out, err = run_cli(capsys, "init", target)
+        assert code == 2 and out == ""
+        assert err.splitlines() == [f"reporter: {target}: {notes} is a file, not a folder"]
+    code, _, err = run_cli(capsys, "init", tmp_path / "none" / "mine")
+    assert err.splitlines() == [f"reporter: {tmp_path / 'none' / 'mine'}: the folder "
+                                f"{tmp_path / 'none'} does not exist"]
+    assert notes.read_text(encoding="utf-8") == "keep me"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["notes.txt"]
