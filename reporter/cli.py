@@ -132,9 +132,25 @@ def site(archive: Path, out: Path, quiet: bool, debug: bool) -> None:
                         f"{report.head_hash or '(empty)'}"))
 
 
+class PortType(click.ParamType):
+    """A TCP port, 0 to 65535; anything else is one plain sentence (click's IntRange said
+    "'abc' is not a valid integer range")."""
+
+    name = "port"
+
+    def convert(self, value, param, ctx):
+        if isinstance(value, int):
+            return value
+        text = str(value).strip()
+        if text.isascii() and text.isdigit() and int(text) <= 65535:
+            return int(text)
+        self.fail("the port must be a whole number from 0 to 65535 (0 picks a free one)",
+                  param, ctx)
+
+
 @cli.command()
 @click.argument("pack", type=click.Path(exists=True, path_type=Path))
-@click.option("--port", "-p", type=click.IntRange(0, 65535), default=8765, show_default=True,
+@click.option("--port", "-p", type=PortType(), default=8765, show_default=True,
               help="Port to serve on; 0 picks a free one (printed).")
 @click.option("--host", default="127.0.0.1", show_default=True,
               help="Address to listen on. Another than 127.0.0.1 shows the unsigned pack to "

@@ -59,3 +59,13 @@ def test_no_arguments_prints_the_help_and_exits_0(capsys):
     assert code == 0
     assert out.startswith("Usage: reporter [OPTIONS] COMMAND")
     assert "sign-off" in out and err == ""
+
+
+@pytest.mark.parametrize("port", ["abc", "99999", "-1", "1.5", "", "٣"])
+def test_a_bad_port_says_what_a_port_is(port, tmp_path, capsys):
+    code = main(["preview", str(tmp_path), "--port", port])
+    out, err = capsys.readouterr()
+    assert code == 2 and out == ""
+    assert err.splitlines() == ["reporter preview: Invalid value for '--port' / '-p': the port "
+                                "must be a whole number from 0 to 65535 (0 picks a free one) "
+                                "(see 'reporter preview --help')"]
