@@ -6,7 +6,10 @@ traceback unless ``--debug``).
 
 from __future__ import annotations
 
+import contextlib
 import ipaddress
+import signal
+import threading
 from pathlib import Path
 
 import click
@@ -193,8 +196,42 @@ def main(argv: list[str] | None = None) -> int:
     A usage error (unknown option or command, missing argument, bad value) is one line on
     standard error and exit 2; ``reporter`` alone prints the help and exits 0.
     """
+    with _stops_as_interrupts():
+        return _main(argv)
+
+
+@contextlib.contextmanager
+def _stops_as_interrupts():
+    """Within this block, SIGTERM and SIGHUP (``timeout``, ``kill``, a closed terminal) end
+    the command as Ctrl-C does: a KeyboardInterrupt, so that a build's cleanup runs (its
+    staging folder removed, nothing written). By default Python dies on them at once, and a
+    killed build left its ``.OUT.tmp-...`` staging folder behind. Only where the signal is
+    still the system's default and this is the main thread; the handlers before are put
+    back on exit (tests call :func:`main` many times in one process)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    before = {}
+    for sig in (signal.SIGTERM, getattr(signal, "SIGHUP", None)):
+        if sig is not None and signal.getsignal(sig) == signal.SIG_DFL:
+            before[sig] = signal.signal(sig, _interrupt)
+    try:
+        yield
+    finally:
+        for sig, handler in before.items():
+            signal.signal(sig, handler)
+
+
+def _interrupt(signum, frame):
+    raise KeyboardInterrupt(signal.Signals(signum).name)
+
+
+def _main(argv: list[str] | None) -> int:
     try:
         cli.main(args=argv, prog_name="reporter", standalone_mode=False)
+    except KeyboardInterrupt:           # outside a command's own handling (while parsing)
+        click.echo("reporter: interrupted; nothing was written", err=True)
+        return EXIT_FAILED
     except Stop as e:
         return e.code
     except _NO_ARGS_IS_HELP as e:

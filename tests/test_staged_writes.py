@@ -247,3 +247,35 @@ def test_a_releasing_build_writes_the_same_files_and_releases_its_arrays(tmp_pat
                 assert all(s > 0 for s in sizes)
     assert trees[True] == trees[False]
     assert "results/rolling_beta.csv" in trees[True]
+
+
+@pytest.mark.parametrize("sig", ["SIGTERM", "SIGHUP"])
+def test_a_build_ended_by_a_signal_leaves_no_staging_folder(tmp_path, sig):
+    """``timeout`` or ``kill`` (SIGTERM), or a closed terminal (SIGHUP), during the PDF stage:
+    Python's default was to die at once, and the build's staging folder beside --out stayed
+    behind. Now the signal ends the command as Ctrl-C does: the staging folder is removed,
+    --out is never made, one line says so, exit 1."""
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    out = tmp_path / "o"
+    proc = subprocess.Popen([sys.executable, "-m", "reporter", "build", str(DEMO), "--out",
+                             str(out)], stderr=subprocess.PIPE, text=True)
+    seen = []
+    for line in proc.stderr:                    # the PDF stage starts after "html done"
+        seen.append(line)
+        if line.startswith("reporter: html done"):
+            break
+    deadline = time.monotonic() + 20
+    while not any(p.name.startswith(".o.tmp-") for p in tmp_path.iterdir()):
+        assert time.monotonic() < deadline and proc.poll() is None, seen    # writing soon
+        time.sleep(0.05)
+    time.sleep(0.5)
+    proc.send_signal(getattr(signal, sig))
+    rest = proc.stderr.read()
+    assert proc.wait(timeout=60) == 1, seen + [rest]
+    assert "reporter: interrupted; nothing was written" in rest.splitlines(), rest
+    assert "Traceback" not in rest
+    assert list(tmp_path.iterdir()) == []
