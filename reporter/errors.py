@@ -50,6 +50,18 @@ def shown_name(name: object) -> str:
     return text if text.isprintable() else repr(text)
 
 
+QUOTE_LIMIT = 80
+
+
+def quoted(value: object, limit: int = QUOTE_LIMIT) -> str:
+    """``repr(value)``, cut to its first ``limit`` characters for a long text:
+    ``'TTTT...' (5,000 characters)``, so that a problem line quoting a bad value from the
+    inputs stays readable (a 5,000-character title had been echoed whole)."""
+    if isinstance(value, str) and len(value) > limit:
+        return f"{value[:limit]!r}... ({len(value):,} characters)"
+    return repr(value)
+
+
 def one_line(text: str) -> str:
     """``text`` with every character Python does not count printable (a line break, a tab,
     a terminal escape, a bidirectional override) written as its escape (``\\n``,

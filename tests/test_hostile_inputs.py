@@ -739,3 +739,22 @@ def test_the_summary_counts_the_problems_a_capped_line_stands_for(tmp_path, caps
     err = capsys.readouterr().err.splitlines()
     assert err[-2] == ("holdings.csv: ... and 51 more empty values in column security_id")
     assert err[-1] == f"{SUMMARY}{len(h)} error(s) in the inputs; nothing was written"
+
+
+def test_a_long_bad_value_is_quoted_cut_short(tmp_path, capsys):
+    # a 5,000-character title was echoed whole in its one error line; so was a long text
+    # in a number column
+    pack = _pack(tmp_path)
+    text = (pack / "pack.toml").read_text()
+    start = text.index("\ntitle = ") + 1
+    end = text.index("\n", start)
+    (pack / "pack.toml").write_text(text[:start] + 'title = "' + "T" * 5000 + '"' + text[end:])
+    assert _refused(pack, tmp_path, capsys) == [
+        "pack.toml:pack.title: String should have at most 200 characters (got "
+        f"'{'T' * 80}'... (5,000 characters))"]
+    pack = _pack(tmp_path / "number")
+    lines = (pack / "returns.csv").read_text().splitlines()
+    lines[5] = lines[5].rsplit(",", 1)[0] + "," + "x" * 3000
+    (pack / "returns.csv").write_text("\n".join(lines) + "\n")
+    assert _refused(pack, tmp_path, capsys) == [
+        f"returns.csv:6:return: not a number: '{'x' * 80}'... (3,000 characters)"]

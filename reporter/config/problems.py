@@ -11,7 +11,7 @@ from pathlib import Path
 from pydantic import ValidationError
 
 from reporter.config.schema import CompareSection, LimitsSection
-from reporter.errors import InputError, Problem
+from reporter.errors import InputError, Problem, quoted
 
 
 def _loc(loc: tuple) -> str:
@@ -41,7 +41,7 @@ def pydantic_problems(err: ValidationError, fname: str) -> list[Problem]:
         else:
             msg = e["msg"]
             if "input" in e and not isinstance(e["input"], dict):
-                msg += f" (got {e['input']!r})"
+                msg += f" (got {quoted(e['input'])})"
         # a str | table field yields one error per alternative; keep the first
         problems.setdefault(f"{key}|{kind}" if kind == "extra_forbidden" else key,
                             Problem(f"{fname}:{key}", msg))

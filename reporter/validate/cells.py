@@ -11,7 +11,7 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from reporter.errors import Collector, InputError, Problem, place
+from reporter.errors import Collector, InputError, Problem, place, quoted
 from reporter.readers import RawTable
 from reporter.validate.common import _Capped
 from reporter.validate.text import normalise_id
@@ -137,7 +137,7 @@ def as_float(raw: RawTable, column: str, coll: Collector, decimal: str, *,
         for i in np.flatnonzero(bad_text):
             cell = text[int(i)].as_py()
             capped.add(place(raw.name, raw.row_number(int(i)), label),
-                       f"not a number: {cell!r}{separator_hint(cell, decimal, thousands)}")
+                       f"not a number: {quoted(cell)}{separator_hint(cell, decimal, thousands)}")
         capped.close()
     if not_finite.any():
         capped = _Capped(coll, f"values that are not finite numbers in column {label}")
@@ -258,7 +258,7 @@ def date_codes(raw: RawTable, column: str, date_format: str,
             capped.add(where, "date is empty")
         else:
             text = texts[raw_codes[i]] if texts is not None else str(parsed[raw_codes[i]])
-            capped.add(where, f"not a valid date in the format {date_format!r}: {text!r}"
+            capped.add(where, f"not a valid date in the format {date_format!r}: {quoted(text)}"
                        + date_format_hint(text, date_format))
     capped.close()
     return codes, parsed[good]
