@@ -14,9 +14,10 @@ from reporter.validate.common import _Capped, _require_columns, delimiter_hint
 from reporter.validate.text import case_clash_message, case_clashes
 
 HOLDINGS_REQUIRED = ("security_id", "name", "sector")
-EXACT_UNITS = 2 ** 53     # the largest whole number below which every one is a float64
 HOLDINGS_OPTIONAL = ("asset_class", "currency", "country", "proxy")
 PROXY_SERIES = ("market", "benchmark")   # a proxy may also name another holding's id
+# market values summing past this get a warning: below it every whole number is a float64
+EXACT_UNITS = 2 ** 53
 # weights whose sum is within this of zero are not rescaled (checks.normalise_weights): the
 # division would blow up rounding error (a sum of -1.4e-16 from +0.6, -0.6, ...) into weights
 # of 1e16. Far above double rounding of a few thousand weights of order 1, far below any
